@@ -1,0 +1,8 @@
+"""shortcut-gym: command-selection environments, an agent zoo and lab tools.
+
+Import namespace root. The subpackages live in the project's top-level folders
+``envs/`` (``shortcut_gym.envs``), ``agents/`` (``shortcut_gym.agents``) and
+``lab/`` (``shortcut_gym.lab``).
+"""
+
+__version__ = "0.1.0"

@@ -1,0 +1,1 @@
+"""The agent zoo: agent protocol, cognitive models, planners, RL adapters."""

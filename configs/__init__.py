@@ -1,0 +1,1 @@
+"""Bundled YAML settings: cost presets, scenarios, memory, agents, sweeps."""

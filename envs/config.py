@@ -1,0 +1,92 @@
+"""Loading and validating YAML settings; errors name the file, the field and the value."""
+
+from __future__ import annotations
+
+from importlib import resources
+from pathlib import Path
+from typing import Any, TypeVar
+
+import yaml
+from pydantic import BaseModel, ValidationError
+
+from shortcut_gym.envs.costs import CostSettings
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.memory import MemorySettings
+from shortcut_gym.envs.task import ScenarioSettings
+
+M = TypeVar("M", bound=BaseModel)
+
+#: Sub-folder of the bundled configs for each settings type.
+_FOLDERS: dict[type[BaseModel], str] = {
+    CostSettings: "costs",
+    ScenarioSettings: "scenarios",
+    MemorySettings: "memory",
+}
+
+
+def format_validation_error(err: ValidationError, source: str) -> str:
+    """One line per fault: '<source>: <dotted.field>: <message> (got <value>)'."""
+    lines = []
+    for e in err.errors():
+        where = ".".join(str(p) for p in e["loc"]) or "<top level>"
+        msg = e["msg"]
+        if e["type"] == "extra_forbidden":
+            msg = "unknown key"
+        got = e.get("input")
+        got_text = "" if isinstance(got, dict) else f" (got {got!r})"
+        lines.append(f"{source}: {where}: {msg}{got_text}")
+    return "\n".join(lines)
+
+
+def validate(model: type[M], data: Any, source: str) -> M:
+    """Validate ``data`` into ``model`` or raise :class:`ConfigError` naming every fault."""
+    if isinstance(data, model):
+        return data
+    if not isinstance(data, dict):
+        raise ConfigError(f"{source}: expected a mapping of {model.__name__} fields, got {type(data).__name__}")
+    try:
+        return model.model_validate(data)
+    except ValidationError as err:
+        raise ConfigError(format_validation_error(err, source)) from None
+
+
+def bundled_config_dir() -> Path:
+    """Folder of the configs shipped with the package (``configs/`` of the project)."""
+    return Path(str(resources.files("shortcut_gym.configs")))
+
+
+def bundled_names(model: type[BaseModel]) -> list[str]:
+    """Names of the bundled presets of one settings type."""
+    folder = bundled_config_dir() / _FOLDERS[model]
+    return sorted(p.stem for p in folder.glob("*.yaml"))
+
+
+def read_yaml(path: Path) -> Any:
+    """Parse a YAML file; a syntax error names the file and line."""
+    if not path.is_file():
+        raise ConfigError(f"{path}: no such file")
+    try:
+        return yaml.safe_load(path.read_text())
+    except yaml.YAMLError as err:
+        raise ConfigError(f"{path}: not valid YAML: {err}") from None
+
+
+def load_settings(model: type[M], spec: str | Path | dict | M | None) -> M:
+    """Settings from a preset name, a YAML path, a dict or an instance (None = defaults)."""
+    if spec is None:
+        return model()
+    if isinstance(spec, model):
+        return spec
+    if isinstance(spec, dict):
+        return validate(model, spec, f"<{model.__name__} dict>")
+    if isinstance(spec, (str, Path)):
+        path = Path(spec)
+        if path.suffix in (".yaml", ".yml") or path.exists():
+            return validate(model, read_yaml(path), str(path))
+        folder = _FOLDERS.get(model)
+        preset = bundled_config_dir() / folder / f"{spec}.yaml" if folder else None
+        if preset is None or not preset.is_file():
+            known = bundled_names(model) if folder else []
+            raise ConfigError(f"unknown {model.__name__} preset {str(spec)!r}; bundled: {known}")
+        return validate(model, read_yaml(preset), str(preset))
+    raise ConfigError(f"cannot read {model.__name__} from a {type(spec).__name__}")

@@ -1,0 +1,229 @@
+"""Operator-level time models for issuing a command (all times in seconds).
+
+Sources for every default:
+
+* Keystroke-Level Model (KLM) operators: Card, Moran & Newell (1980), "The keystroke-level
+  model for user performance time with interactive systems", CACM 23(7), Figure 1; and
+  Card, Moran & Newell (1983), *The Psychology of Human-Computer Interaction*.
+* Fitts' law, Shannon form MT = a + b log2(D/W + 1): MacKenzie (1992), "Fitts' law as a
+  research and design tool in human-computer interaction", HCI 7(1).
+* Menu selection, search-decision-pointing model: Cockburn, Gutwin & Greenberg (2007),
+  "A predictive model of menu performance", CHI 2007.
+* Hick-Hyman law: Hick (1952); Hyman (1953).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+#: KLM keystroke time K (s) by typist class, Card, Moran & Newell (1980), Figure 1.
+KLM_KEYSTROKE_S: dict[str, float] = {
+    "best_typist": 0.08,  # 135 wpm
+    "good_typist": 0.12,  # 90 wpm
+    "average_skilled_typist": 0.20,  # 55 wpm
+    "average_non_secretary": 0.28,  # 40 wpm
+    "random_letters": 0.50,  # typing random letters
+    "worst_typist": 1.20,  # typist unfamiliar with the keyboard
+}
+#: KLM P, point with a mouse to a target on a display (s), Card, Moran & Newell (1980).
+KLM_POINT_S = 1.1
+#: KLM B, press or release a mouse button (s), Card, Moran & Newell (1983).
+KLM_BUTTON_S = 0.1
+#: KLM H, home the hands between keyboard and mouse (s), Card, Moran & Newell (1980).
+KLM_HOME_S = 0.4
+#: KLM M, mental preparation (s), Card, Moran & Newell (1980).
+KLM_MENTAL_S = 1.35
+#: M in Kieras' later KLM guide (s). From memory: Kieras, "Using the keystroke-level model
+#: to estimate execution times" (1993/2001 guide); check the guide before relying on it.
+KIERAS_MENTAL_S = 1.2
+
+TypistClass = Literal[
+    "best_typist",
+    "good_typist",
+    "average_skilled_typist",
+    "average_non_secretary",
+    "random_letters",
+    "worst_typist",
+]
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class KLMOperators(_Strict):
+    """KLM operator times (s). Defaults: Card, Moran & Newell (1980), average skilled typist."""
+
+    typist: TypistClass = "average_skilled_typist"
+    keystroke_s: float | None = Field(
+        default=None, gt=0, description="K; overrides the typist class when given"
+    )
+    point_s: float = Field(default=KLM_POINT_S, gt=0, description="P")
+    button_s: float = Field(default=KLM_BUTTON_S, gt=0, description="B")
+    home_s: float = Field(default=KLM_HOME_S, ge=0, description="H")
+    mental_s: float = Field(default=KLM_MENTAL_S, ge=0, description="M")
+
+    @property
+    def k_s(self) -> float:
+        """Keystroke time K (s): the explicit value, else the typist class's."""
+        if self.keystroke_s is not None:
+            return self.keystroke_s
+        return KLM_KEYSTROKE_S[self.typist]
+
+
+class FittsLaw(_Strict):
+    """Fitts' law, Shannon form MT = a + b log2(D/W + 1) (MacKenzie 1992).
+
+    Defaults: mouse pointing, MacKenzie, Sellen & Buxton (1991), "A comparison of input devices
+    in elemental pointing and dragging tasks", CHI '91: MT = -107 + 223 ID ms. From memory:
+    check the paper's table before relying on the exact figures.
+    """
+
+    intercept_s: float = -0.107
+    slope_s_per_bit: float = Field(default=0.223, gt=0)
+
+
+class MenuModel(_Strict):
+    """Search-decision-pointing menu model (Cockburn, Gutwin & Greenberg 2007).
+
+    T_item = (1 - e) T_search + e T_decision + T_pointing, with expertise e = 1 - 1/t for the
+    t-th selection of the item; T_search = a_s + b_s n (n items in the menu);
+    T_decision = a_d + b_d log2(1/p) (Hick-Hyman over the item's probability within its menu).
+    Search and decision coefficients: from memory of the orders of magnitude used by Cockburn
+    et al. (2007); check the paper before relying on the exact figures.
+    """
+
+    search_intercept_s: float = Field(default=0.0, ge=0)
+    search_slope_s_per_item: float = Field(default=0.1, ge=0)
+    decision_intercept_s: float = Field(default=0.08, ge=0)
+    decision_slope_s_per_bit: float = Field(default=0.15, ge=0)
+    item_height_px: float = Field(default=24.0, gt=0)
+
+
+class LearnModel(_Strict):
+    """Deliberate learning: the menu path plus an encoding time spent rehearsing the label.
+
+    The encoding time is an assumption of this project (no source).
+    """
+
+    encoding_s: float = Field(default=1.5, ge=0)
+
+
+class ErrorModel(_Strict):
+    """Failure paths of a hotkey attempt.
+
+    ``commission_share``: share of failed recalls that produce a wrong command (the rest are
+    omissions). ``undo_keystrokes``: keys of the undo shortcut. Both are assumptions of this
+    project (no source). An undo costs M + undo_keystrokes x K.
+    """
+
+    commission_share: float = Field(default=0.25, ge=0, le=1)
+    undo_keystrokes: int = Field(default=2, ge=1)
+
+
+class CostSettings(_Strict):
+    """All time-model settings; one YAML preset in ``configs/costs/`` is one of these."""
+
+    name: str = "custom"
+    klm: KLMOperators = KLMOperators()
+    fitts: FittsLaw = FittsLaw()
+    menu: MenuModel = MenuModel()
+    learn: LearnModel = LearnModel()
+    errors: ErrorModel = ErrorModel()
+
+    @model_validator(mode="after")
+    def _pointing_positive(self) -> CostSettings:
+        # Smallest index of difficulty in a menu: first item, D/W = 0.5 -> log2(1.5).
+        shortest = fitts_time_s(0.5, 1.0, self.fitts.intercept_s, self.fitts.slope_s_per_bit)
+        if shortest <= 0:
+            raise ValueError(
+                f"fitts: intercept_s={self.fitts.intercept_s} with slope_s_per_bit="
+                f"{self.fitts.slope_s_per_bit} gives a non-positive pointing time "
+                f"({shortest:.4f} s) for the first menu item"
+            )
+        return self
+
+
+def fitts_index_of_difficulty(distance: float, width: float) -> float:
+    """Shannon index of difficulty ID = log2(D/W + 1) in bits (MacKenzie 1992)."""
+    if distance < 0 or width <= 0:
+        raise ValueError(f"Fitts' law needs distance >= 0 and width > 0, got D={distance}, W={width}")
+    return math.log2(distance / width + 1.0)
+
+
+def fitts_time_s(distance: float, width: float, intercept_s: float, slope_s_per_bit: float) -> float:
+    """Movement time MT = a + b ID (s), Shannon form (MacKenzie 1992)."""
+    return intercept_s + slope_s_per_bit * fitts_index_of_difficulty(distance, width)
+
+
+def effective_throughput_bits_per_s(distance: float, endpoint_sd: float, movement_time_s: float) -> float:
+    """ISO 9241-9 effective throughput TP = log2(D/We + 1) / MT with We = 4.133 SD (bits/s).
+
+    Soukoreff & MacKenzie (2004), "Towards a standard for pointing device evaluation", IJHCS 61.
+    """
+    if movement_time_s <= 0:
+        raise ValueError(f"movement time must be > 0 s, got {movement_time_s}")
+    effective_width = 4.133 * endpoint_sd
+    return fitts_index_of_difficulty(distance, effective_width) / movement_time_s
+
+
+def hick_hyman_time_s(probability: float, intercept_s: float, slope_s_per_bit: float) -> float:
+    """Decision time a + b log2(1/p) (s) for choosing an item of probability p (Hick-Hyman)."""
+    if not 0 < probability <= 1:
+        raise ValueError(f"item probability must be in (0, 1], got {probability}")
+    return intercept_s + slope_s_per_bit * math.log2(1.0 / probability)
+
+
+def menu_expertise(selections: int) -> float:
+    """Expertise e = 1 - 1/t for the t-th selection of an item (Cockburn et al. 2007)."""
+    if selections < 1:
+        raise ValueError(f"the selection count t starts at 1, got {selections}")
+    return 1.0 - 1.0 / selections
+
+
+def menu_item_time_s(
+    costs: CostSettings, n_items: int, item_index: int, item_probability: float, selection: int
+) -> float:
+    """Search-decision-pointing time (s) of the ``selection``-th selection of a menu item.
+
+    Pointing runs from the menu header to the item: D = (index + 0.5) h, W = h, h the item height.
+    """
+    m = costs.menu
+    e = menu_expertise(selection)
+    search = m.search_intercept_s + m.search_slope_s_per_item * n_items
+    decision = hick_hyman_time_s(item_probability, m.decision_intercept_s, m.decision_slope_s_per_bit)
+    h = m.item_height_px
+    pointing = fitts_time_s((item_index + 0.5) * h, h, costs.fitts.intercept_s, costs.fitts.slope_s_per_bit)
+    return (1.0 - e) * search + e * decision + pointing
+
+
+def menu_time_s(
+    costs: CostSettings,
+    n_items: int,
+    item_index: int,
+    item_probability: float,
+    selection: int,
+    hand_on_keyboard: bool,
+    include_mental: bool = True,
+) -> float:
+    """Whole menu selection (s): [M] + [H] + P to the header + click + item time + click."""
+    k = costs.klm
+    t = k.mental_s if include_mental else 0.0
+    if hand_on_keyboard:
+        t += k.home_s
+    t += k.point_s + 2 * k.button_s
+    t += menu_item_time_s(costs, n_items, item_index, item_probability, selection)
+    t += 2 * k.button_s
+    return t
+
+
+def hotkey_time_s(
+    costs: CostSettings, keystrokes: int, hand_on_keyboard: bool, recall_latency_s: float
+) -> float:
+    """Successful hotkey (s): M + [H] + recall latency + keystrokes x K (Card et al. 1980)."""
+    k = costs.klm
+    t = k.mental_s + (0.0 if hand_on_keyboard else k.home_s) + recall_latency_s
+    return t + keystrokes * k.k_s

@@ -1,0 +1,145 @@
+"""``CommandSelection-v0``: one simulated user's history of command selections.
+
+Each step is one trial: the user must issue the target command by menu (0), hotkey (1) or by
+menu while learning the hotkey (2). Reward is minus the trial's time in seconds. The episode is
+truncated at the schedule's horizon.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import gymnasium as gym
+import numpy as np
+from gymnasium import spaces
+
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.costs import CostSettings
+from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.memory import MemorySettings
+from shortcut_gym.envs.simulator import BatchSimulator
+from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings
+from shortcut_gym.envs.world import World, make_world
+
+#: Upper bound of the log1p features (log1p of ~30 years in seconds).
+LOG_FEATURE_HIGH = 25.0
+
+
+class CommandSelectionEnv(gym.Env):
+    """Gymnasium environment of command selection by menu, hotkey or learning the hotkey.
+
+    Keyword arguments: ``scenario``, ``costs``, ``memory`` (preset name, YAML path, dict or
+    settings object), ``schedule`` (dict of schedule fields overriding the scenario's),
+    ``observe_recall`` (expose the true recall probability), ``target_encoding``
+    ('onehot' | 'index'), ``render_mode`` ('ansi'). ``reset(options={'schedule': Schedule})``
+    replays a given schedule of targets.
+    """
+
+    metadata = {"render_modes": ["ansi"], "render_fps": 4}
+
+    def __init__(
+        self,
+        scenario: str | Path | dict | ScenarioSettings | None = None,
+        costs: str | Path | dict | CostSettings | None = None,
+        memory: str | Path | dict | MemorySettings | None = None,
+        schedule: dict | ScheduleSettings | None = None,
+        observe_recall: bool = False,
+        target_encoding: str = "onehot",
+        render_mode: str | None = None,
+        world: World | None = None,
+    ) -> None:
+        if render_mode is not None and render_mode not in self.metadata["render_modes"]:
+            raise ValueError(f"render_mode must be one of {self.metadata['render_modes']}, got {render_mode!r}")
+        self.world = world or make_world(scenario, costs, memory, schedule, observe_recall, target_encoding)
+        self.render_mode = render_mode
+        self.action_space = spaces.Discrete(3)
+        n = self.world.commands.n_commands
+        high = np.full(self.world.obs_dim, LOG_FEATURE_HIGH, dtype=np.float32)
+        target_len = n if self.world.target_encoding == "onehot" else 1
+        high[:target_len] = 1.0
+        high[target_len + 5 :] = 1.0  # hand, horizon fraction, recall probability
+        self.observation_space = spaces.Box(0.0, high, dtype=np.float32)
+        self._sim = BatchSimulator(self.world)
+        self._act = np.zeros(1, dtype=np.int64)
+        self._last: dict[str, Any] | None = None
+
+    # ---- gymnasium API --------------------------------------------------------------------
+    def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
+        """Start a new simulated user; ``options={'schedule': Schedule}`` replays targets."""
+        super().reset(seed=seed)
+        schedule = None
+        if options:
+            unknown = set(options) - {"schedule"}
+            if unknown:
+                raise ValueError(f"unknown reset option(s) {sorted(unknown)}; known: ['schedule']")
+            schedule = options.get("schedule")
+            if schedule is not None and not isinstance(schedule, Schedule):
+                raise ValueError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
+        obs = self._sim.reset(rngs=[self.np_random], schedules=[schedule])
+        self._last = None
+        return obs[0].copy(), self._upcoming_info()
+
+    def step(self, action: Any) -> tuple[np.ndarray, float, bool, bool, dict]:
+        """One trial with ``action`` in {0: menu, 1: hotkey, 2: learn}."""
+        sim = self._sim
+        if sim.n_users == 0:
+            raise RuntimeError("call reset() before step()")
+        try:
+            a = int(action)
+        except (TypeError, ValueError):
+            raise ActionError(f"action must be 0 (menu), 1 (hotkey) or 2 (learn), got {action!r}") from None
+        if a != action or not 0 <= a <= 2:
+            raise ActionError(f"action must be 0 (menu), 1 (hotkey) or 2 (learn), got {action!r}")
+        t = int(sim.us[0, k.U_TRIAL])
+        if t >= sim.horizon:
+            raise RuntimeError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
+        self._act[0] = a
+        k.step_users(self._act, sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us,
+                     sim.sched_cmd, sim.sched_clock, sim.sched_onset, sim.sched_u,
+                     sim.reward, sim.outcome, sim.ops, sim.p_recall, sim.obs)
+        c = int(sim.sched_cmd[0, t])
+        ops = sim.ops[0]
+        info = self._upcoming_info()
+        info.update(
+            trial=t,
+            session=int(self._sim.schedules[0].session[t]),
+            onset_s=float(sim.sched_onset[0, t]),
+            command=c,
+            command_name=self.world.commands.names[c],
+            action=a,
+            outcome=k.OUTCOME_NAMES[sim.outcome[0]],
+            duration_s=-float(sim.reward[0]),
+            p_recall=float(sim.p_recall[0]),
+            time_s=dict(zip(k.OPERATOR_NAMES, ops.tolist())),
+        )
+        self._last = info
+        truncated = t + 1 >= sim.horizon
+        return sim.obs[0].copy(), float(sim.reward[0]), False, truncated, info
+
+    def render(self) -> str | None:
+        """ansi: a one-line summary of the last trial."""
+        if self.render_mode != "ansi":
+            return None
+        if self._last is None:
+            return f"trial 0/{self._sim.horizon}: next {self.world.commands.names[self._sim.targets()[0]]}"
+        i = self._last
+        hk = self.world.commands.hotkeys[i["command"]]
+        return (
+            f"trial {i['trial'] + 1}/{self._sim.horizon} session {i['session'] + 1}: "
+            f"{i['command_name']} [{hk}] {k.ACTION_NAMES[i['action']]} -> {i['outcome']} "
+            f"{i['duration_s']:.2f} s (p_recall {i['p_recall']:.2f})"
+        )
+
+    # ---- helpers --------------------------------------------------------------------------
+    def _upcoming_info(self) -> dict[str, Any]:
+        sim = self._sim
+        t = int(sim.us[0, k.U_TRIAL])
+        tt = min(t, sim.horizon - 1)
+        c = int(sim.sched_cmd[0, tt])
+        return {"target": c, "target_name": self.world.commands.names[c], "next_trial": t}
+
+    @property
+    def schedule(self) -> Schedule:
+        """The current user's schedule."""
+        return self._sim.schedules[0]

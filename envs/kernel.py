@@ -1,0 +1,266 @@
+"""Compiled step kernel shared by the single environment and the batched simulator.
+
+Both call :func:`step_users` on arrays of users (the single env is a batch of one), so the two
+produce the same numbers bit for bit. The formulas mirror :mod:`shortcut_gym.envs.costs` and
+:mod:`shortcut_gym.envs.memory`, which are the readable references the tests compare against.
+Every time is in seconds.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+# ---- action and outcome codes -------------------------------------------------------------
+MENU, HOTKEY, LEARN = 0, 1, 2
+ACTION_NAMES = ("menu", "hotkey", "learn")
+OUT_MENU, OUT_HOTKEY, OUT_FORGOTTEN, OUT_WRONG, OUT_LEARNED = 0, 1, 2, 3, 4
+OUTCOME_NAMES = ("menu", "hotkey", "hotkey_forgotten", "hotkey_wrong", "learned")
+
+# ---- parameter vector ---------------------------------------------------------------------
+(P_M, P_K, P_P, P_B, P_H, P_ENC, P_COMM, P_UNDOK, P_DECAY, P_TAU, P_S, P_F, P_PA_C, P_PA_A,
+ P_EXP_RATE, P_POW_U, W_LEARN, W_HK_OK, W_HK_FAIL, W_MENU) = range(20)
+N_PAR = 20
+# integer parameters
+I_KIND, I_RECENT, I_OBS_RECALL, I_ONEHOT = range(4)
+N_IPAR = 4
+# memory kinds (see memory.MEMORY_CODES)
+K_ACTR, K_ACTR_EXACT, K_PA, K_EXP, K_POW = range(5)
+
+# ---- per-command constants ----------------------------------------------------------------
+C_SEARCH, C_DECISION, C_POINTING, C_KEYS = range(4)
+N_CMDC = 4
+
+# ---- per-user per-command state -----------------------------------------------------------
+F_OLD_W, F_OLD_FIRST, F_OLD_LAST, F_EXP_S, F_EXP_T, F_LAST_USE = range(6)
+N_FS = 6
+S_NTR, S_MENU_SEL, S_EXPOSURE, S_HK_OK, S_HK_FAIL, S_LEARN = range(6)
+N_IS = 6
+# per-user state
+U_TRIAL, U_HAND = range(2)
+N_US = 2
+HAND_MOUSE, HAND_KEYBOARD = 0, 1
+
+# ---- time breakdown by operator -----------------------------------------------------------
+OPERATOR_NAMES = ("M", "K", "P", "B", "H", "search", "decision", "pointing", "retrieval", "encoding")
+(O_M, O_K, O_P, O_B, O_H, O_SEARCH, O_DECISION, O_POINTING, O_RETRIEVAL, O_ENCODING) = range(10)
+N_OPS = 10
+
+#: Observation features after the target encoding.
+OBS_FEATURES = (
+    "log1p_exposures",
+    "log1p_seconds_since_last_use",
+    "log1p_hotkey_successes",
+    "log1p_hotkey_failures",
+    "log1p_learn_count",
+    "hand_on_keyboard",
+    "horizon_left_fraction",
+)
+
+
+@njit(cache=True)
+def activation(ipar, par, fs, ist, tr, now):
+    """Activation A of one command's memory at clock ``now`` (-inf with no trace)."""
+    kind = ipar[I_KIND]
+    if kind == K_EXP:
+        s = fs[F_EXP_S]
+        if s <= 0.0:
+            return -np.inf
+        return math.log(s * math.exp(-par[P_EXP_RATE] * (now - fs[F_EXP_T])))
+    n = ist[S_NTR]
+    total = 0.0
+    for j in range(n):
+        age = now - tr[j, 0]
+        if kind == K_POW:
+            total += tr[j, 1] * (1.0 + age / par[P_POW_U]) ** (-par[P_DECAY])
+        elif kind == K_PA:
+            total += tr[j, 1] * age ** (-tr[j, 2])
+        else:
+            total += tr[j, 1] * age ** (-par[P_DECAY])
+    if kind == K_ACTR and fs[F_OLD_W] > 0.0:
+        d = par[P_DECAY]
+        a_o = now - fs[F_OLD_FIRST]
+        a_n = now - fs[F_OLD_LAST]
+        if a_o - a_n <= 1e-9 * a_o:
+            total += fs[F_OLD_W] * a_n ** (-d)
+        else:
+            total += fs[F_OLD_W] * (a_o ** (1.0 - d) - a_n ** (1.0 - d)) / ((1.0 - d) * (a_o - a_n))
+    if total <= 0.0:
+        return -np.inf
+    return math.log(total)
+
+
+@njit(cache=True)
+def recall_p(par, a):
+    """Logistic retrieval probability of activation ``a``."""
+    if a == -np.inf:
+        return 0.0
+    z = -(a - par[P_TAU]) / par[P_S]
+    if z > 700.0:
+        return 0.0
+    return 1.0 / (1.0 + math.exp(z))
+
+
+@njit(cache=True)
+def add_trace(ipar, par, fs, ist, tr, now, w):
+    """Lay a trace of weight ``w`` at clock ``now``."""
+    if w <= 0.0:
+        return
+    kind = ipar[I_KIND]
+    if kind == K_EXP:
+        s = fs[F_EXP_S]
+        if s > 0.0:
+            s = s * math.exp(-par[P_EXP_RATE] * (now - fs[F_EXP_T]))
+        fs[F_EXP_S] = s + w
+        fs[F_EXP_T] = now
+        return
+    n = ist[S_NTR]
+    if kind == K_ACTR and n == ipar[I_RECENT]:
+        if fs[F_OLD_W] == 0.0:
+            fs[F_OLD_FIRST] = tr[0, 0]
+        fs[F_OLD_LAST] = tr[0, 0]
+        fs[F_OLD_W] += tr[0, 1]
+        for j in range(n - 1):
+            tr[j, 0] = tr[j + 1, 0]
+            tr[j, 1] = tr[j + 1, 1]
+        n -= 1
+    decay = par[P_DECAY]
+    if kind == K_PA:
+        m = activation(ipar, par, fs, ist, tr, now)
+        decay = par[P_PA_A] if m == -np.inf else par[P_PA_C] * math.exp(m) + par[P_PA_A]
+    tr[n, 0] = now
+    tr[n, 1] = w
+    tr[n, 2] = decay
+    ist[S_NTR] = n + 1
+
+
+@njit(cache=True)
+def _menu(par, cmdc, ist, hand, include_m, ops):
+    """Menu selection time; counts the selection for the search-to-decision expertise."""
+    t = 0.0
+    if include_m:
+        ops[O_M] += par[P_M]
+        t += par[P_M]
+    if hand == HAND_KEYBOARD:
+        ops[O_H] += par[P_H]
+        t += par[P_H]
+    ist[S_MENU_SEL] += 1
+    e = 1.0 - 1.0 / ist[S_MENU_SEL]
+    search = (1.0 - e) * cmdc[C_SEARCH]
+    decision = e * cmdc[C_DECISION]
+    ops[O_P] += par[P_P]
+    ops[O_B] += 4.0 * par[P_B]
+    ops[O_SEARCH] += search
+    ops[O_DECISION] += decision
+    ops[O_POINTING] += cmdc[C_POINTING]
+    return t + par[P_P] + 4.0 * par[P_B] + search + decision + cmdc[C_POINTING]
+
+
+@njit(cache=True)
+def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, obs):
+    """Observation of the user's upcoming trial (or of the last one once the horizon is reached)."""
+    t = us[U_TRIAL]
+    done = t >= horizon
+    tt = horizon - 1 if done else t
+    c = sched_cmd[tt]
+    obs[:] = 0.0
+    if ipar[I_ONEHOT] == 1:
+        obs[c] = 1.0
+        k = n_cmd
+    else:
+        obs[0] = c / max(n_cmd - 1, 1)
+        k = 1
+    obs[k] = math.log1p(ist[c, S_EXPOSURE])
+    if ist[c, S_EXPOSURE] > 0:
+        obs[k + 1] = math.log1p(max(sched_onset[tt] - fs[c, F_LAST_USE], 0.0))
+    obs[k + 2] = math.log1p(ist[c, S_HK_OK])
+    obs[k + 3] = math.log1p(ist[c, S_HK_FAIL])
+    obs[k + 4] = math.log1p(ist[c, S_LEARN])
+    obs[k + 5] = 1.0 if us[U_HAND] == HAND_KEYBOARD else 0.0
+    obs[k + 6] = (horizon - t) / horizon
+    if ipar[I_OBS_RECALL] == 1:
+        if done:
+            obs[k + 7] = 0.0
+        else:
+            a = activation(ipar, par, fs[c], ist[c], tr[c], sched_clock[tt])
+            obs[k + 7] = recall_p(par, a)
+
+
+@njit(cache=True)
+def step_users(
+    actions, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
+    reward, outcome, ops, p_recall, obs,
+):
+    """Advance every user one trial with its action; write reward, outcome, breakdown, obs."""
+    n_users = actions.shape[0]
+    n_cmd = cmdc.shape[0]
+    horizon = sched_cmd.shape[1]
+    for b in range(n_users):
+        t = us[b, U_TRIAL]
+        c = sched_cmd[b, t]
+        now = sched_clock[b, t]
+        f = fs[b, c]
+        s = ist[b, c]
+        trc = tr[b, c]
+        o = ops[b]
+        o[:] = 0.0
+        hand = us[b, U_HAND]
+        a = activation(ipar, par, f, s, trc, now)
+        p = recall_p(par, a)
+        p_recall[b] = p
+        act = actions[b]
+        if act == MENU:
+            dur = _menu(par, cmdc[c], s, hand, True, o)
+            res = OUT_MENU
+            w = par[W_MENU]
+            us[b, U_HAND] = HAND_MOUSE
+        elif act == LEARN:
+            dur = _menu(par, cmdc[c], s, hand, True, o) + par[P_ENC]
+            o[O_ENCODING] += par[P_ENC]
+            res = OUT_LEARNED
+            w = par[W_LEARN]
+            s[S_LEARN] += 1
+            us[b, U_HAND] = HAND_MOUSE
+        else:
+            dur = par[P_M]
+            o[O_M] += par[P_M]
+            if hand == HAND_MOUSE:
+                dur += par[P_H]
+                o[O_H] += par[P_H]
+            u = sched_u[b, t]
+            keys = cmdc[c, C_KEYS] * par[P_K]
+            if u < p:
+                lat = par[P_F] * math.exp(-a)
+                dur += lat + keys
+                o[O_RETRIEVAL] += lat
+                o[O_K] += keys
+                res = OUT_HOTKEY
+                w = par[W_HK_OK]
+                s[S_HK_OK] += 1
+                us[b, U_HAND] = HAND_KEYBOARD
+            else:
+                lat = par[P_F] * math.exp(-par[P_TAU])
+                dur += lat
+                o[O_RETRIEVAL] += lat
+                if u < p + (1.0 - p) * par[P_COMM]:
+                    undo_keys = par[P_UNDOK] * par[P_K]
+                    dur += keys + par[P_M] + undo_keys
+                    o[O_K] += keys + undo_keys
+                    o[O_M] += par[P_M]
+                    res = OUT_WRONG
+                else:
+                    res = OUT_FORGOTTEN
+                dur += _menu(par, cmdc[c], s, HAND_KEYBOARD, False, o)
+                w = par[W_HK_FAIL]
+                s[S_HK_FAIL] += 1
+                us[b, U_HAND] = HAND_MOUSE
+        add_trace(ipar, par, f, s, trc, now, w)
+        s[S_EXPOSURE] += 1
+        f[F_LAST_USE] = sched_onset[b, t]
+        reward[b] = -dur
+        outcome[b] = res
+        us[b, U_TRIAL] = t + 1
+        write_obs(ipar, par, n_cmd, horizon, fs[b], ist[b], tr[b], us[b], sched_cmd[b],
+                  sched_clock[b], sched_onset[b], obs[b])

@@ -1,0 +1,223 @@
+"""Per-command hotkey memory models: readable reference forms (the simulator kernel mirrors them).
+
+* ACT-R base-level learning: A = ln(sum_j w_j (t - t_j)^-d), d = 0.5 (Anderson & Schooler 1991,
+  "Reflections of the environment in memory", Psych. Science 2(6); Anderson & Lebiere 1998,
+  *The Atomic Components of Thought*). P(recall) = 1 / (1 + exp(-(A - tau)/s)); latency F e^-A.
+  The trace weight w_j generalises the count of presentations (w = 1 is the standard form).
+* O(1) hybrid approximation of the base level: Petrov (2006), "Computationally efficient
+  approximation of the base-level learning equation in ACT-R", ICCM 2006: the k most recent
+  traces exact, the older ones as if spread evenly between the oldest and the k+1-th.
+* Spacing-sensitive decay: Pavlik & Anderson (2005), "Practice and forgetting effects on
+  vocabulary memory: an activation-based model of the spacing effect", Cognitive Science 29:
+  d_j = c e^{m_{j-1}} + a, with m_{j-1} the activation when trace j is laid.
+* Exponential and power-law forgetting: Wixted & Ebbesen (1991), "On the form of forgetting",
+  Psych. Science 2(6): strength sum_j w_j e^{-lambda age} or sum_j w_j (1 + age/u)^-b, read
+  through the same logistic link as ACT-R with A = ln(strength).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+MemoryKind = Literal["actr", "actr_exact", "pavlik_anderson", "exponential", "power"]
+#: Integer codes of the memory kinds inside the simulator kernel.
+MEMORY_CODES: dict[str, int] = {
+    "actr": 0,
+    "actr_exact": 1,
+    "pavlik_anderson": 2,
+    "exponential": 3,
+    "power": 4,
+}
+
+
+class TraceWeights(BaseModel):
+    """Weight of the trace each event lays (1 = one standard ACT-R presentation).
+
+    Values are assumptions of this project (no source): deliberate learning lays a strong trace,
+    a successful hotkey is retrieval practice, a failed attempt followed by the menu shows the
+    label as feedback, plain menu use lays an incidental trace only when > 0.
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    learn: float = Field(default=2.0, ge=0)
+    hotkey_success: float = Field(default=1.0, ge=0)
+    hotkey_failure: float = Field(default=0.5, ge=0)
+    menu: float = Field(default=0.0, ge=0)
+
+
+class MemorySettings(BaseModel):
+    """Memory-model settings. Time is in seconds.
+
+    Defaults: d = 0.5 (Anderson & Lebiere 1998); F = 0.1 s (pyactr's default latency factor);
+    tau = -3.0 and s = 0.4 are assumptions of this project, chosen so that a hotkey practised in
+    one session is partly forgotten by the next day (no source); Pavlik & Anderson (2005)
+    c = 0.217, a = 0.177 (from memory: check the paper); gap_time_scale multiplies the time
+    between sessions (Pavlik & Anderson's psychological-time factor, 0.025 in their 2005 fit from
+    memory; 1.0 = real time).
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    kind: MemoryKind = "actr"
+    decay: float = Field(default=0.5, gt=0, lt=1)
+    threshold: float = -3.0
+    noise_s: float = Field(default=0.4, gt=0)
+    latency_factor_s: float = Field(default=0.1, gt=0)
+    recent_traces: int = Field(default=3, ge=1, le=64)
+    spacing_scale: float = Field(default=0.217, ge=0)
+    spacing_intercept: float = Field(default=0.177, gt=0)
+    exponential_rate_per_s: float = Field(default=2e-5, gt=0)
+    power_time_unit_s: float = Field(default=1.0, gt=0)
+    gap_time_scale: float = Field(default=1.0, gt=0, le=1)
+    weights: TraceWeights = TraceWeights()
+
+    @model_validator(mode="after")
+    def _spacing_decay_below_one(self) -> MemorySettings:
+        if self.kind == "pavlik_anderson" and self.spacing_intercept >= 1:
+            raise ValueError(f"spacing_intercept must be < 1, got {self.spacing_intercept}")
+        return self
+
+
+def recall_probability(activation: float, threshold: float, noise_s: float) -> float:
+    """ACT-R retrieval probability 1 / (1 + exp(-(A - tau)/s)) (Anderson & Lebiere 1998)."""
+    if activation == -math.inf:
+        return 0.0
+    z = -(activation - threshold) / noise_s
+    if z > 700:
+        return 0.0
+    return 1.0 / (1.0 + math.exp(z))
+
+
+def retrieval_latency_s(activation: float, latency_factor_s: float) -> float:
+    """ACT-R retrieval latency F e^-A (s) (Anderson & Lebiere 1998)."""
+    return latency_factor_s * math.exp(-activation)
+
+
+def _check_ages(now: float, times: Sequence[float]) -> None:
+    for t in times:
+        if not t < now:
+            raise ValueError(f"trace at {t} s is not before now = {now} s")
+
+
+def actr_activation(
+    now: float, times: Sequence[float], decay: float = 0.5, weights: Sequence[float] | None = None
+) -> float:
+    """Exact ACT-R base-level activation ln(sum_j w_j (now - t_j)^-d); -inf with no trace."""
+    _check_ages(now, times)
+    w = [1.0] * len(times) if weights is None else list(weights)
+    total = sum(wj * (now - tj) ** (-decay) for tj, wj in zip(times, w) if wj > 0)
+    return math.log(total) if total > 0 else -math.inf
+
+
+def pavlik_anderson_activation(
+    now: float,
+    times: Sequence[float],
+    scale: float = 0.217,
+    intercept: float = 0.177,
+    weights: Sequence[float] | None = None,
+) -> float:
+    """Activation with spacing-sensitive decay (Pavlik & Anderson 2005), in seconds.
+
+    Trace j decays at d_j = c e^{m_{j-1}} + a, m_{j-1} the activation just before it was laid
+    (m = -inf for the first trace, so d_1 = a).
+    """
+    _check_ages(now, times)
+    w = [1.0] * len(times) if weights is None else list(weights)
+    decays: list[float] = []
+    for j, tj in enumerate(times):
+        prior = sum(w[i] * (tj - times[i]) ** (-decays[i]) for i in range(j) if w[i] > 0)
+        m = math.log(prior) if prior > 0 else -math.inf
+        decays.append(scale * math.exp(m) + intercept if m > -math.inf else intercept)
+    total = sum(w[j] * (now - tj) ** (-decays[j]) for j, tj in enumerate(times) if w[j] > 0)
+    return math.log(total) if total > 0 else -math.inf
+
+
+def exponential_activation(
+    now: float, times: Sequence[float], rate_per_s: float, weights: Sequence[float] | None = None
+) -> float:
+    """ln(sum_j w_j e^{-lambda (now - t_j)}) (exponential forgetting, Wixted & Ebbesen 1991)."""
+    _check_ages(now, times)
+    w = [1.0] * len(times) if weights is None else list(weights)
+    total = sum(wj * math.exp(-rate_per_s * (now - tj)) for tj, wj in zip(times, w) if wj > 0)
+    return math.log(total) if total > 0 else -math.inf
+
+
+def power_activation(
+    now: float,
+    times: Sequence[float],
+    exponent: float,
+    time_unit_s: float = 1.0,
+    weights: Sequence[float] | None = None,
+) -> float:
+    """ln(sum_j w_j (1 + age_j/u)^-b) (power-law forgetting, Wixted & Ebbesen 1991)."""
+    _check_ages(now, times)
+    w = [1.0] * len(times) if weights is None else list(weights)
+    total = sum(wj * (1.0 + (now - tj) / time_unit_s) ** (-exponent) for tj, wj in zip(times, w) if wj > 0)
+    return math.log(total) if total > 0 else -math.inf
+
+
+class HybridBaseLevel:
+    """O(1)-per-step ACT-R base level (Petrov 2006) for one command, with trace weights.
+
+    The ``recent`` most recent traces are kept exactly; older traces keep only their total weight,
+    the time of the oldest and of the newest among them, and contribute
+    W (a_o^{1-d} - a_n^{1-d}) / ((1 - d)(a_o - a_n)), the mean of age^-d over [a_n, a_o].
+    Since age^-d is decreasing, the old part lies between W a_o^-d and W a_n^-d, which bounds the
+    error of A (see :meth:`error_bound`).
+    """
+
+    def __init__(self, decay: float = 0.5, recent: int = 3) -> None:
+        if not 0 < decay < 1:
+            raise ValueError(f"decay must be in (0, 1), got {decay}")
+        if recent < 1:
+            raise ValueError(f"recent must be >= 1, got {recent}")
+        self.decay = decay
+        self.recent = recent
+        self.times: list[float] = []
+        self.weights: list[float] = []
+        self.old_weight = 0.0
+        self.old_first = 0.0
+        self.old_last = 0.0
+
+    def add(self, time: float, weight: float = 1.0) -> None:
+        """Lay a trace of the given weight at ``time`` (s); weight 0 lays nothing."""
+        if weight <= 0:
+            return
+        if self.times and time < self.times[-1]:
+            raise ValueError(f"traces must be laid in time order, got {time} after {self.times[-1]}")
+        self.times.append(time)
+        self.weights.append(weight)
+        if len(self.times) > self.recent:
+            t0, w0 = self.times.pop(0), self.weights.pop(0)
+            if self.old_weight == 0.0:
+                self.old_first = t0
+            self.old_last = t0
+            self.old_weight += w0
+
+    def _old_sum(self, now: float) -> float:
+        if self.old_weight == 0.0:
+            return 0.0
+        d = self.decay
+        a_o, a_n = now - self.old_first, now - self.old_last
+        if a_o - a_n <= 1e-9 * a_o:
+            return self.old_weight * a_n ** (-d)
+        return self.old_weight * (a_o ** (1 - d) - a_n ** (1 - d)) / ((1 - d) * (a_o - a_n))
+
+    def activation(self, now: float) -> float:
+        """Approximate base-level activation at ``now`` (s); -inf with no trace."""
+        total = sum(w * (now - t) ** (-self.decay) for t, w in zip(self.times, self.weights))
+        total += self._old_sum(now)
+        return math.log(total) if total > 0 else -math.inf
+
+    def error_bound(self, now: float) -> float:
+        """Upper bound on |A_exact - A_hybrid| at ``now``: ln((S_r + W a_n^-d)/(S_r + W a_o^-d))."""
+        if self.old_weight == 0.0:
+            return 0.0
+        d = self.decay
+        recent = sum(w * (now - t) ** (-d) for t, w in zip(self.times, self.weights))
+        hi = recent + self.old_weight * (now - self.old_last) ** (-d)
+        lo = recent + self.old_weight * (now - self.old_first) ** (-d)
+        return math.log(hi / lo)

@@ -1,0 +1,172 @@
+"""A resolved world: scenario, costs, memory and options, packed into the kernel's arrays."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Literal
+
+import numpy as np
+
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.config import load_settings, validate
+from shortcut_gym.envs.costs import CostSettings, fitts_time_s, hick_hyman_time_s
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.memory import MEMORY_CODES, MemorySettings
+from shortcut_gym.envs.task import (
+    CommandSet,
+    ScenarioSettings,
+    Schedule,
+    ScheduleSettings,
+    build_command_set,
+    sample_schedule,
+)
+
+DEFAULT_SCENARIO = "tidepool_logbook"
+DEFAULT_COSTS = "average_skilled_mouse"
+TargetEncoding = Literal["onehot", "index"]
+
+
+@dataclass(frozen=True)
+class World:
+    """Everything the simulator needs besides the random seed."""
+
+    scenario: ScenarioSettings
+    commands: CommandSet
+    costs: CostSettings
+    memory: MemorySettings
+    schedule: ScheduleSettings
+    observe_recall: bool = False
+    target_encoding: TargetEncoding = "onehot"
+
+    @property
+    def horizon(self) -> int:
+        """Trials per simulated user."""
+        return self.schedule.horizon
+
+    @property
+    def obs_dim(self) -> int:
+        """Length of the flat observation vector."""
+        target = self.commands.n_commands if self.target_encoding == "onehot" else 1
+        return target + len(k.OBS_FEATURES) + (1 if self.observe_recall else 0)
+
+    def observation_names(self) -> list[str]:
+        """Name of each observation entry."""
+        if self.target_encoding == "onehot":
+            names = [f"target={n}" for n in self.commands.names]
+        else:
+            names = ["target_index_fraction"]
+        names += list(k.OBS_FEATURES)
+        if self.observe_recall:
+            names.append("recall_probability")
+        return names
+
+    def parameters(self) -> tuple[np.ndarray, np.ndarray]:
+        """(float parameters, integer parameters) in the kernel's layout."""
+        c, m = self.costs, self.memory
+        par = np.zeros(k.N_PAR)
+        par[k.P_M] = c.klm.mental_s
+        par[k.P_K] = c.klm.k_s
+        par[k.P_P] = c.klm.point_s
+        par[k.P_B] = c.klm.button_s
+        par[k.P_H] = c.klm.home_s
+        par[k.P_ENC] = c.learn.encoding_s
+        par[k.P_COMM] = c.errors.commission_share
+        par[k.P_UNDOK] = c.errors.undo_keystrokes
+        par[k.P_DECAY] = m.decay
+        par[k.P_TAU] = m.threshold
+        par[k.P_S] = m.noise_s
+        par[k.P_F] = m.latency_factor_s
+        par[k.P_PA_C] = m.spacing_scale
+        par[k.P_PA_A] = m.spacing_intercept
+        par[k.P_EXP_RATE] = m.exponential_rate_per_s
+        par[k.P_POW_U] = m.power_time_unit_s
+        par[k.W_LEARN] = m.weights.learn
+        par[k.W_HK_OK] = m.weights.hotkey_success
+        par[k.W_HK_FAIL] = m.weights.hotkey_failure
+        par[k.W_MENU] = m.weights.menu
+        ipar = np.zeros(k.N_IPAR, dtype=np.int64)
+        ipar[k.I_KIND] = MEMORY_CODES[m.kind]
+        ipar[k.I_RECENT] = m.recent_traces
+        ipar[k.I_OBS_RECALL] = int(self.observe_recall)
+        ipar[k.I_ONEHOT] = int(self.target_encoding == "onehot")
+        return par, ipar
+
+    def command_constants(self) -> np.ndarray:
+        """Per command: visual search time, Hick-Hyman decision time, pointing time, key count."""
+        cs, mm, f = self.commands, self.costs.menu, self.costs.fitts
+        out = np.zeros((cs.n_commands, k.N_CMDC))
+        for i in range(cs.n_commands):
+            out[i, k.C_SEARCH] = mm.search_intercept_s + mm.search_slope_s_per_item * cs.menu_size[i]
+            out[i, k.C_DECISION] = hick_hyman_time_s(
+                float(cs.within_menu_probability[i]), mm.decision_intercept_s, mm.decision_slope_s_per_bit
+            )
+            h = mm.item_height_px
+            out[i, k.C_POINTING] = fitts_time_s((cs.item_index[i] + 0.5) * h, h, f.intercept_s, f.slope_s_per_bit)
+            out[i, k.C_KEYS] = cs.keystrokes[i]
+        return out
+
+    def trace_capacity(self, schedules: list[Schedule]) -> int:
+        """Trace-buffer length per command: k for the O(1) forms, else the most trials of one command."""
+        if self.memory.kind == "actr":
+            return self.memory.recent_traces
+        if self.memory.kind == "exponential":
+            return 1
+        most = max(int(np.bincount(s.command, minlength=self.commands.n_commands).max()) for s in schedules)
+        return max(most, 1)
+
+    def draw(self, rng: np.random.Generator, schedule: Schedule | None = None) -> tuple[Schedule, np.ndarray]:
+        """One user's schedule (sampled unless given) and per-trial uniforms, from ``rng``."""
+        if schedule is None:
+            schedule = sample_schedule(self.commands, self.schedule, rng)
+        elif schedule.command.max() >= self.commands.n_commands or schedule.command.min() < 0:
+            raise ConfigError(
+                f"replayed schedule names command index {int(schedule.command.max())}, "
+                f"the scenario has {self.commands.n_commands} commands"
+            )
+        return schedule, rng.random(schedule.horizon)
+
+    def with_changes(self, **changes: Any) -> World:
+        """A copy with some fields replaced."""
+        fields = {f: getattr(self, f) for f in self.__dataclass_fields__}
+        fields.update(changes)
+        return World(**fields)
+
+
+def make_world(
+    scenario: str | Path | dict | ScenarioSettings | None = None,
+    costs: str | Path | dict | CostSettings | None = None,
+    memory: str | Path | dict | MemorySettings | None = None,
+    schedule: dict | ScheduleSettings | None = None,
+    observe_recall: bool = False,
+    target_encoding: str = "onehot",
+) -> World:
+    """Resolve names, paths and dicts into a validated :class:`World`."""
+    sc = load_settings(ScenarioSettings, DEFAULT_SCENARIO if scenario is None else scenario)
+    co = load_settings(CostSettings, DEFAULT_COSTS if costs is None else costs)
+    me = load_settings(MemorySettings, memory)
+    if schedule is None:
+        sch = sc.schedule
+    elif isinstance(schedule, ScheduleSettings):
+        sch = schedule
+    else:
+        merged = {**sc.schedule.model_dump(), **schedule} if isinstance(schedule, dict) else schedule
+        sch = validate(ScheduleSettings, merged, "schedule")
+    if target_encoding not in ("onehot", "index"):
+        raise ConfigError(f"target_encoding must be 'onehot' or 'index', got {target_encoding!r}")
+    if not isinstance(observe_recall, bool):
+        raise ConfigError(f"observe_recall must be true or false, got {observe_recall!r}")
+    world = World(
+        scenario=sc,
+        commands=build_command_set(sc),
+        costs=co,
+        memory=me,
+        schedule=sch,
+        observe_recall=observe_recall,
+        target_encoding=target_encoding,  # type: ignore[arg-type]
+    )
+    retrieval_fail = me.latency_factor_s * math.exp(-me.threshold)
+    if not math.isfinite(retrieval_fail):
+        raise ConfigError(f"memory.threshold={me.threshold} makes the retrieval-failure time infinite")
+    return world

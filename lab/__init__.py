@@ -1,0 +1,1 @@
+"""The lab: trial logs, fitting, comparison, recovery, sweeps, reports, the CLI."""
