@@ -52,9 +52,9 @@ class TraceWeights(BaseModel):
 class MemorySettings(BaseModel):
     """Memory-model settings. Time is in seconds.
 
-    Defaults: d = 0.5 (Anderson & Lebiere 1998); F = 0.1 s (pyactr's default latency factor);
-    tau = -3.0 and s = 0.4 are assumptions of this project, chosen so that a hotkey practised in
-    one session is partly forgotten by the next day (no source); Pavlik & Anderson (2005)
+    Defaults: d = 0.5 (Anderson & Lebiere 1998); tau = -3.5, s = 0.4 and F = 0.05 s are
+    assumptions of this project, chosen so that a hotkey practised in one session is partly
+    forgotten by the next day and a retrieval failure costs F e^-tau = 1.7 s (no source); Pavlik & Anderson (2005)
     c = 0.217, a = 0.177 (from memory: check the paper); gap_time_scale multiplies the time
     between sessions (Pavlik & Anderson's psychological-time factor, 0.025 in their 2005 fit from
     memory; 1.0 = real time).
@@ -63,9 +63,9 @@ class MemorySettings(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
     kind: MemoryKind = "actr"
     decay: float = Field(default=0.5, gt=0, lt=1)
-    threshold: float = -3.0
+    threshold: float = -3.5
     noise_s: float = Field(default=0.4, gt=0)
-    latency_factor_s: float = Field(default=0.1, gt=0)
+    latency_factor_s: float = Field(default=0.05, gt=0)
     recent_traces: int = Field(default=3, ge=1, le=64)
     spacing_scale: float = Field(default=0.217, ge=0)
     spacing_intercept: float = Field(default=0.177, gt=0)

@@ -1,0 +1,75 @@
+"""Fixed baseline agents: always menu, always hotkey, learn on the first k uses, random."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from shortcut_gym.agents.base import Agent, ParamSpec, Transition
+from shortcut_gym.envs.kernel import HOTKEY, LEARN, MENU
+
+
+def _one_hot(action: int) -> np.ndarray:
+    p = np.zeros(3)
+    p[action] = 1.0
+    return p
+
+
+class AlwaysMenu(Agent):
+    """Selects every command from its menu."""
+
+    name = "always_menu"
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        return _one_hot(MENU)
+
+
+class AlwaysHotkey(Agent):
+    """Tries the hotkey on every trial (falls back to the menu when recall fails)."""
+
+    name = "always_hotkey"
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        return _one_hot(HOTKEY)
+
+
+class LearnFirstK(Agent):
+    """Learns the hotkey on the first ``k`` uses of each command, then always uses the hotkey."""
+
+    name = "learn_first_k"
+
+    def param_specs(self) -> dict[str, ParamSpec]:
+        return {"k": ParamSpec("k", 1.0, 0.0, 1000.0, "none", "learning trials per command (integer)")}
+
+    def reset(self, seed: int | None = None) -> None:
+        super().reset(seed)
+        if self.params["k"] != int(self.params["k"]):
+            raise ValueError(f"{self.name}: parameter k must be a whole number, got {self.params['k']}")
+        self.uses: dict[int, int] = {}
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        used = self.uses.get(int(info["target"]), 0)
+        return _one_hot(LEARN if used < int(self.params["k"]) else HOTKEY)
+
+    def observe(self, transition: Transition) -> None:
+        c = int(transition.info["command"])
+        self.uses[c] = self.uses.get(c, 0) + 1
+
+
+class RandomAgent(Agent):
+    """Picks menu, hotkey, learn with fixed probabilities (``p_hotkey``, ``p_learn``)."""
+
+    name = "random"
+
+    def param_specs(self) -> dict[str, ParamSpec]:
+        return {
+            "p_hotkey": ParamSpec("p_hotkey", 1 / 3, 0.0, 1.0, "logit", "probability of the hotkey"),
+            "p_learn": ParamSpec("p_learn", 1 / 3, 0.0, 1.0, "logit", "probability of learning"),
+        }
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        ph, pl = self.params["p_hotkey"], self.params["p_learn"]
+        if ph + pl > 1.0 + 1e-12:
+            raise ValueError(f"{self.name}: p_hotkey + p_learn = {ph + pl} exceeds 1")
+        return np.array([max(1.0 - ph - pl, 0.0), ph, pl])

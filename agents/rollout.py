@@ -1,0 +1,43 @@
+"""Run an agent through an environment episode and collect a tidy trial table."""
+
+from __future__ import annotations
+
+import gymnasium as gym
+import pandas as pd
+
+from shortcut_gym.agents.base import Agent, AgentContext, Transition
+from shortcut_gym.envs.kernel import ACTION_NAMES, OPERATOR_NAMES
+
+
+def context_of(env: gym.Env) -> AgentContext:
+    """World facts of a (possibly wrapped) CommandSelection env for binding an agent."""
+    world = env.unwrapped.world  # type: ignore[attr-defined]
+    return AgentContext(world.commands.n_commands, world.horizon, world.commands.names)
+
+
+def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials: int | None = None) -> pd.DataFrame:
+    """One simulated user: reset env and agent with ``seed``, step until truncation.
+
+    Returns one row per trial: trial, session, onset_s, command, command_name, action (name),
+    outcome, duration_s, p_recall and the time breakdown ``t_<operator>`` columns.
+    """
+    if agent.context is None:
+        agent.bind(context_of(env))
+    obs, info = env.reset(seed=seed)
+    agent.reset(seed)
+    rows = []
+    done = False
+    while not done:
+        action = agent.act(obs, info)
+        next_obs, reward, terminated, truncated, step_info = env.step(action)
+        agent.observe(Transition(obs, action, reward, next_obs, step_info, terminated, truncated))
+        row = {key: step_info[key] for key in ("trial", "session", "onset_s", "command", "command_name",
+                                               "outcome", "duration_s", "p_recall")}
+        row["action"] = ACTION_NAMES[action]
+        for op in OPERATOR_NAMES:
+            row[f"t_{op}"] = step_info["time_s"][op]
+        rows.append(row)
+        obs, info = next_obs, step_info
+        done = terminated or truncated or (max_trials is not None and len(rows) >= max_trials)
+    cols = ["trial", "session", "onset_s", "command", "command_name", "action", "outcome", "duration_s", "p_recall"]
+    return pd.DataFrame(rows)[cols + [f"t_{op}" for op in OPERATOR_NAMES]]
