@@ -9,6 +9,7 @@ import yaml
 
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
+from shortcut_gym.agents.static_softmax import StaticSoftmax
 
 AGENTS: dict[str, type[Agent]] = {}
 
@@ -21,7 +22,7 @@ def register_agent(cls: type[Agent]) -> type[Agent]:
     return cls
 
 
-for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent):
+for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax):
     register_agent(_cls)
 
 

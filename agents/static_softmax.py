@@ -1,0 +1,150 @@
+"""Static softmax agent: a multinomial logit over menu, hotkey, learn with no learning rule.
+
+Utility of menu is 0 (reference); utility of action a in {hotkey, learn} is
+``b_a + sum_c w_a_c * x_c`` over the chosen per-trial covariates ``x_c``:
+
+* ``log_exposure``: ln(1 + number of earlier trials of the same command);
+* ``session``: the trial's session index (0-based).
+
+P(a) = softmax(utilities). With these covariates the model equals a multinomial logit
+(McFadden 1974, "Conditional logit analysis of qualitative choice behavior"), so its
+maximum-likelihood fit must match any MNLogit routine on the same design matrix.
+The likelihood is vectorised with numpy (no per-trial Python loop).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.envs.kernel import ACTION_NAMES
+
+COVARIATES: tuple[str, ...] = ("log_exposure", "session")
+_CHOICES = ("hotkey", "learn")
+
+
+def covariate_matrix(command: np.ndarray, session: np.ndarray, covariates: Sequence[str]) -> np.ndarray:
+    """Per-trial covariates (n x len(covariates)) from command indices and sessions, in trial order."""
+    command = np.asarray(command, dtype=np.int64)
+    cols = []
+    for name in covariates:
+        if name == "log_exposure":
+            order = np.argsort(command, kind="stable")
+            sorted_cmd = command[order]
+            starts = np.r_[0, np.flatnonzero(np.diff(sorted_cmd)) + 1]
+            run_start = np.repeat(starts, np.diff(np.r_[starts, len(command)]))
+            earlier = np.empty(len(command), dtype=float)
+            earlier[order] = np.arange(len(command)) - run_start
+            cols.append(np.log1p(earlier))
+        elif name == "session":
+            cols.append(np.asarray(session, dtype=float))
+        else:
+            raise ValueError(f"unknown covariate {name!r}; known: {list(COVARIATES)}")
+    return np.column_stack(cols) if cols else np.zeros((len(command), 0))
+
+
+def _action_codes(action: Any) -> np.ndarray:
+    a = np.asarray(action)
+    if a.dtype.kind in "iu":
+        return a.astype(np.int64)
+    lookup = {n: i for i, n in enumerate(ACTION_NAMES)}
+    try:
+        return np.array([lookup[str(x)] for x in a], dtype=np.int64)
+    except KeyError as err:
+        raise ValueError(f"unknown action {err.args[0]!r}; expected one of {list(ACTION_NAMES)}") from None
+
+
+class StaticSoftmax(Agent):
+    """Softmax of fixed per-action intercepts plus linear covariate effects (a multinomial logit)."""
+
+    name = "static_softmax"
+
+    def __init__(self, context: AgentContext | None = None, covariates: Sequence[str] = ("log_exposure",),
+                 **params: float) -> None:
+        if isinstance(covariates, str):
+            covariates = [c for c in covariates.split("+") if c]
+        unknown = [c for c in covariates if c not in COVARIATES]
+        if unknown:
+            raise ValueError(f"{self.name}: unknown covariate(s) {unknown}; known: {list(COVARIATES)}")
+        if len(set(covariates)) != len(covariates):
+            raise ValueError(f"{self.name}: covariates {list(covariates)} repeat a name")
+        self.covariates = tuple(covariates)
+        super().__init__(context, **params)
+
+    def param_specs(self) -> dict[str, ParamSpec]:
+        specs = {}
+        for a in _CHOICES:
+            specs[f"b_{a}"] = ParamSpec(f"b_{a}", 0.0, doc=f"utility of {a} relative to menu (logit units)")
+        for c in self.covariates:
+            for a in _CHOICES:
+                n = f"w_{a}_{c}"
+                specs[n] = ParamSpec(n, 0.0, doc=f"effect of {c} on the utility of {a} (logit units per unit)")
+        return specs
+
+    def coefficient_matrix(self, theta: np.ndarray | None = None) -> np.ndarray:
+        """(1 + n_covariates) x 2 coefficients (rows: intercept, covariates; cols: hotkey, learn)."""
+        v = np.asarray(list(self.params.values()) if theta is None else theta, dtype=float)
+        return v.reshape(1 + len(self.covariates), 2)
+
+    # ---- protocol -------------------------------------------------------------------------
+    def reset(self, seed: int | None = None) -> None:
+        super().reset(seed)
+        self.exposures: dict[int, int] = {}
+        self.session = 0
+
+    def _features(self, target: int) -> np.ndarray:
+        x = [1.0]
+        for c in self.covariates:
+            x.append(np.log1p(self.exposures.get(target, 0)) if c == "log_exposure" else float(self.session))
+        return np.asarray(x)
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        if "session" in self.covariates and "session" in info:
+            self.session = int(info["session"])
+        u = np.r_[0.0, self._features(int(info["target"])) @ self.coefficient_matrix()]
+        u -= u.max()
+        p = np.exp(u)
+        return p / p.sum()
+
+    def observe(self, transition: Transition) -> None:
+        c = int(transition.info["command"])
+        self.exposures[c] = self.exposures.get(c, 0) + 1
+        self.session = int(transition.info.get("session", self.session))
+
+    def spec(self) -> dict[str, Any]:
+        return {"name": self.name, "covariates": list(self.covariates), "params": dict(self.params)}
+
+    # ---- fast likelihood ------------------------------------------------------------------
+    def likelihood_function(self, trials: Any):
+        """f(theta) -> log-likelihood of one participant's trials, vectorised over trials.
+
+        ``trials``: a frame or an object with ``command`` (int index), ``action`` (names or codes)
+        and, for the session covariate, ``session``. Theta is in ``param_specs()`` order.
+        f also accepts a (starts x k) array and then returns one log-likelihood per row.
+        """
+        get = (lambda k: trials[k].to_numpy()) if isinstance(trials, pd.DataFrame) else (
+            lambda k: np.asarray(getattr(trials, k)))
+        command = get("command")
+        session = get("session") if "session" in self.covariates else np.zeros(len(command))
+        x = np.column_stack([np.ones(len(command)), covariate_matrix(command, session, self.covariates)])
+        y = _action_codes(get("action"))
+        k = 2 * x.shape[1]
+
+        def loglik(theta: np.ndarray) -> float | np.ndarray:
+            t = np.asarray(theta, dtype=float)
+            single = t.ndim == 1
+            t = t.reshape(-1, k)
+            b = t.reshape(len(t), x.shape[1], 2)
+            u = np.einsum("np,spa->sna", x, b)  # starts x trials x (hotkey, learn)
+            full = np.concatenate([np.zeros(u.shape[:2] + (1,)), u], axis=2)
+            m = full.max(axis=2, keepdims=True)
+            lse = (m[..., 0] + np.log(np.exp(full - m).sum(axis=2)))
+            chosen = np.take_along_axis(full, y[None, :, None], axis=2)[..., 0]
+            ll = (chosen - lse).sum(axis=1)
+            return float(ll[0]) if single else ll
+
+        return loglik
