@@ -1,0 +1,34 @@
+# Two commands: `make demo` (the main job on the demo scenario) and `make test`.
+# Each creates .venv if missing (CPU torch 2.13.0 first), installs the project, and is idempotent.
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed-stamp
+OUT ?= out/demo
+
+.PHONY: setup demo test lint bench docs clean
+
+$(STAMP): pyproject.toml setup.py
+	test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet torch==2.13.0
+	$(PY) -m pip install --quiet -e ".[test]"
+	touch $(STAMP)
+
+setup: $(STAMP)
+
+demo: $(STAMP)
+	$(PY) -m shortcut_gym.lab.demo --out $(OUT)
+
+test: $(STAMP)
+	$(VENV)/bin/ruff check .
+	$(VENV)/bin/pytest -n 2 -q
+
+lint: $(STAMP)
+	$(VENV)/bin/ruff check .
+
+bench: $(STAMP)
+	for s in scripts/bench_*.py; do echo "== $$s"; $(PY) $$s || exit 1; done
+
+clean:
+	rm -rf $(VENV) out build *.egg-info
