@@ -6,3 +6,7 @@ Import namespace root. The subpackages live in the project's top-level folders
 """
 
 __version__ = "0.1.0"
+
+# The public subpackages (the project's top-level folder also holds setup.py, tests and scripts,
+# which are not part of the package).
+__all__ = ["__version__", "agents", "configs", "envs", "lab"]
