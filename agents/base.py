@@ -82,11 +82,15 @@ class Transition:
 
 @dataclass
 class AgentContext:
-    """Facts about the world an agent may be built with (command count, names, horizon)."""
+    """Facts about the world an agent may be built with (command count, names, horizon).
+
+    ``obs_names`` (optional) names each entry of the observation vector (``World.observation_names()``).
+    """
 
     n_commands: int
     horizon: int
     command_names: tuple[str, ...] = field(default_factory=tuple)
+    obs_names: tuple[str, ...] = field(default_factory=tuple)
 
 
 class Agent(ABC):

@@ -9,6 +9,7 @@ import yaml
 
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
+from shortcut_gym.agents.learning import ChoiceKernelAgent, RescorlaWagnerAgent, RWChoiceKernelAgent
 from shortcut_gym.agents.static_softmax import StaticSoftmax
 
 AGENTS: dict[str, type[Agent]] = {}
@@ -22,7 +23,8 @@ def register_agent(cls: type[Agent]) -> type[Agent]:
     return cls
 
 
-for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax):
+for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax, RescorlaWagnerAgent,
+             ChoiceKernelAgent, RWChoiceKernelAgent):
     register_agent(_cls)
 
 

@@ -12,7 +12,8 @@ from shortcut_gym.envs.kernel import ACTION_NAMES, OPERATOR_NAMES
 def context_of(env: gym.Env) -> AgentContext:
     """World facts of a (possibly wrapped) CommandSelection env for binding an agent."""
     world = env.unwrapped.world  # type: ignore[attr-defined]
-    return AgentContext(world.commands.n_commands, world.horizon, world.commands.names)
+    return AgentContext(world.commands.n_commands, world.horizon, world.commands.names,
+                        tuple(world.observation_names()))
 
 
 def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials: int | None = None) -> pd.DataFrame:
