@@ -84,13 +84,15 @@ class Transition:
 class AgentContext:
     """Facts about the world an agent may be built with (command count, names, horizon).
 
-    ``obs_names`` (optional) names each entry of the observation vector (``World.observation_names()``).
+    ``obs_names`` (optional) names each entry of the observation vector (``World.observation_names()``);
+    ``world`` (optional) is the World itself, for agents that plan with the true model (the planner).
     """
 
     n_commands: int
     horizon: int
     command_names: tuple[str, ...] = field(default_factory=tuple)
     obs_names: tuple[str, ...] = field(default_factory=tuple)
+    world: Any = None
 
 
 class Agent(ABC):

@@ -10,6 +10,7 @@ import yaml
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
 from shortcut_gym.agents.learning import ChoiceKernelAgent, RescorlaWagnerAgent, RWChoiceKernelAgent
+from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.agents.static_softmax import StaticSoftmax
 
 AGENTS: dict[str, type[Agent]] = {}
@@ -24,7 +25,7 @@ def register_agent(cls: type[Agent]) -> type[Agent]:
 
 
 for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax, RescorlaWagnerAgent,
-             ChoiceKernelAgent, RWChoiceKernelAgent):
+             ChoiceKernelAgent, RWChoiceKernelAgent, BoundedOptimalPlanner):
     register_agent(_cls)
 
 

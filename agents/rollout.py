@@ -13,7 +13,7 @@ def context_of(env: gym.Env) -> AgentContext:
     """World facts of a (possibly wrapped) CommandSelection env for binding an agent."""
     world = env.unwrapped.world  # type: ignore[attr-defined]
     return AgentContext(world.commands.n_commands, world.horizon, world.commands.names,
-                        tuple(world.observation_names()))
+                        tuple(world.observation_names()), world)
 
 
 def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials: int | None = None) -> pd.DataFrame:
