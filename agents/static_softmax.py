@@ -62,6 +62,8 @@ class StaticSoftmax(Agent):
     """Softmax of fixed per-action intercepts plus linear covariate effects (a multinomial logit)."""
 
     name = "static_softmax"
+    #: the lab passes the one-participant frame itself to :meth:`likelihood_function`
+    likelihood_input = "frame"
 
     def __init__(self, context: AgentContext | None = None, covariates: Sequence[str] = ("log_exposure",),
                  **params: float) -> None:
@@ -148,3 +150,52 @@ class StaticSoftmax(Agent):
             return float(ll[0]) if single else ll
 
         return loglik
+
+    # ---- batched simulation ---------------------------------------------------------------
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> StaticSoftmaxBatch:
+        """Vectorised policy for ``n_users`` users; user i draws what ``reset(seeds[i])`` would."""
+        return StaticSoftmaxBatch(self, n_users, seeds)
+
+
+class StaticSoftmaxBatch:
+    """Many users of one :class:`StaticSoftmax`: exposure counts per user and command, numpy only.
+
+    The session covariate is counted by the caller through :meth:`set_session`.
+    """
+
+    def __init__(self, agent: StaticSoftmax, n_users: int, seeds: Sequence[int]) -> None:
+        if len(seeds) != n_users:
+            raise ValueError(f"{len(seeds)} seeds for {n_users} users")
+        n_cmd = agent.context.n_commands if agent.context is not None else 0
+        if n_cmd == 0:
+            raise ValueError(f"{agent.name}: bind a context before batch_policy")
+        self.agent = agent
+        self.coef = agent.coefficient_matrix()
+        self.rngs = [np.random.default_rng(int(s)) for s in seeds]
+        self.exposures = np.zeros((n_users, n_cmd))
+        self.session = np.zeros(n_users)
+
+    def set_session(self, session: np.ndarray) -> None:
+        """Session index of every user's upcoming trial."""
+        self.session = np.asarray(session, dtype=float)
+
+    def probabilities(self, targets: np.ndarray) -> np.ndarray:
+        """(B, 3) probabilities of menu, hotkey, learn for each user's target."""
+        rows = np.arange(len(targets))
+        cols = [np.ones(len(targets))]
+        for c in self.agent.covariates:
+            cols.append(np.log1p(self.exposures[rows, targets]) if c == "log_exposure" else self.session)
+        u = np.column_stack(cols) @ self.coef
+        full = np.column_stack([np.zeros(len(targets)), u])
+        full -= full.max(axis=1, keepdims=True)
+        p = np.exp(full)
+        return p / p.sum(axis=1, keepdims=True)
+
+    def actions(self, targets: np.ndarray, obs: np.ndarray) -> np.ndarray:
+        """One action per user, sampled like :meth:`Agent.act` with each user's generator."""
+        p = self.probabilities(np.asarray(targets, dtype=np.int64))
+        return np.array([int(g.choice(3, p=pb)) for g, pb in zip(self.rngs, p, strict=True)], dtype=np.int64)
+
+    def observe(self, targets: np.ndarray, actions: np.ndarray, outcomes: np.ndarray, durations_s: np.ndarray) -> None:
+        """Count the trial's exposure."""
+        self.exposures[np.arange(len(targets)), np.asarray(targets, dtype=np.int64)] += 1

@@ -202,15 +202,18 @@ def participants(log: pd.DataFrame) -> list[str]:
 def participant_trials(log: pd.DataFrame, participant: str) -> pd.DataFrame:
     """One participant's trials as the frame learning models read (command = int index).
 
-    Columns: trial, session, onset_s, command (int index), action, outcome, duration_s.
-    ``log`` must be validated (it has ``command_index``).
+    Columns: trial (0-based position in the participant's history, what agents see as
+    ``next_trial``), session, onset_s, command (int index), action, outcome, duration_s, and
+    log_trial (the log's own trial number). ``log`` must be validated (it has ``command_index``).
     """
     rows = log[log["participant"].astype(str) == str(participant)]
     if rows.empty:
         raise KeyError(f"participant {participant!r} is not in the log")
-    out = rows[["trial", "session", "onset_s", "action", "outcome", "duration_s"]].copy()
+    out = rows[["session", "onset_s", "action", "outcome", "duration_s"]].copy().reset_index(drop=True)
+    out.insert(0, "trial", np.arange(len(out), dtype=np.int64))
     out.insert(3, "command", rows["command_index"].to_numpy(dtype=np.int64))
-    return out.reset_index(drop=True)
+    out["log_trial"] = rows["trial"].to_numpy()
+    return out
 
 
 def schedule_of(trials: pd.DataFrame) -> Schedule:
