@@ -11,6 +11,7 @@ per command (``record="blocks"``), which stay small for 100,000 users.
 
 from __future__ import annotations
 
+import copy
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -43,7 +44,9 @@ class BlockSums:
 
 
 def _context(world: World) -> AgentContext:
-    return AgentContext(world.commands.n_commands, world.horizon, world.commands.names)
+    """The context ``run_episode`` binds on a ``CommandSelection-v0`` env of this world."""
+    return AgentContext(world.commands.n_commands, world.horizon, world.commands.names,
+                        tuple(world.observation_names()), world)
 
 
 def build_agent(spec: dict[str, Any] | Agent, world: World) -> Agent:
@@ -54,13 +57,19 @@ def build_agent(spec: dict[str, Any] | Agent, world: World) -> Agent:
 
 
 class _PerUserDriver:
-    """One agent object per user, fed the same obs/info/Transition as ``run_episode``."""
+    """One agent object per user, fed the same obs/info/Transition as ``run_episode``.
 
-    def __init__(self, spec: dict[str, Any], world: World, seeds: Sequence[int]) -> None:
+    The users' agents are copies of one prototype reset once (so costly set-up such as a
+    planner's solved plan is done once); each copy is then reset with its user's seed, as
+    ``run_episode`` resets one agent object for every seed.
+    """
+
+    def __init__(self, agent: Agent, world: World, seeds: Sequence[int]) -> None:
         self.world = world
-        self.agents = [build_agent(spec, world) for _ in seeds]
-        for agent, seed in zip(self.agents, seeds, strict=True):
-            agent.reset(int(seed))
+        agent.reset(int(seeds[0]))
+        self.agents = [copy.deepcopy(agent) for _ in seeds]
+        for a, seed in zip(self.agents, seeds, strict=True):
+            a.reset(int(seed))
         self.names = world.commands.names
         self.infos: list[dict[str, Any]] = []
 
@@ -135,7 +144,7 @@ def simulate_users(
     if use_batch_policy and callable(getattr(agent, "batch_policy", None)):
         driver = _BatchDriver(agent, seeds.tolist())
     else:
-        driver = _PerUserDriver(agent.spec(), world, seeds.tolist())
+        driver = _PerUserDriver(agent, world, seeds.tolist())
     driver.start(sim)
     n, h, c = sim.n_users, sim.horizon, world.commands.n_commands
     sessions = np.stack([s.session for s in sim.schedules]).astype(np.int64)
