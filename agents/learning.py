@@ -332,8 +332,8 @@ class LearningAgent(Agent):
         for key, value in (options or {}).items():
             if key not in opts:
                 raise ValueError(f"{self.name}: unknown option {key!r}; known: {sorted(opts)}")
-            if not (isinstance(value, (int, float)) and value > 0 and math.isfinite(value)):
-                raise ValueError(f"{self.name}: option {key}={value!r} must be a positive number of seconds")
+            if not (isinstance(value, (int, float)) and value >= 0 and math.isfinite(value)):
+                raise ValueError(f"{self.name}: option {key}={value!r} must be a number of seconds >= 0")
             opts[key] = float(value)
         self.options = opts
         super().__init__(context, **params)
@@ -422,6 +422,14 @@ class LearningAgent(Agent):
         outcome = OUTCOME_NAMES.index(info["outcome"]) if isinstance(info["outcome"], str) else int(info["outcome"])
         dt = self._dt_from_obs(transition.obs)
         _update(0, c, a, outcome, float(info["duration_s"]), dt, self._par, self._flags, *self._state)
+
+    def action_values(self, command: int) -> np.ndarray:
+        """Current delta-rule values Q[command, (menu, hotkey, learn)] (-seconds) of the single agent."""
+        return self._state[0][0, int(command)].copy()
+
+    def recall_belief(self, command: int) -> float:
+        """Current recall belief of ``command`` (before forgetting since its last use)."""
+        return float(self._state[3][0, int(command)])
 
     # -- compiled paths
     def likelihood_function(self, trials: TrialArrays) -> Callable[[np.ndarray], float]:

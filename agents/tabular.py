@@ -1,0 +1,153 @@
+"""Tabular Q-learning and SARSA over a discretised observation (own numpy code, seeded).
+
+Q-learning: Watkins & Dayan (1992), "Q-learning", Machine Learning 8; SARSA: Rummery & Niranjan
+(1994), "On-line Q-learning using connectionist systems"; both as in Sutton & Barto (2018),
+*Reinforcement Learning*, 2nd ed., ch. 6.
+
+State = (target command, learn count 0/1/2+, hotkey successes 0/1/2-4/5+, hotkey failures 0/1+,
+time since the command's last use: never / < 1 h / >= 1 h), read from the observation's
+``log1p_*`` features (located through ``context.obs_names``). Behaviour: epsilon-greedy, so
+``action_probabilities`` gives epsilon/3 to every action plus 1 - epsilon to the greedy one
+(ties: lowest index). The end of the horizon is a true end (no bootstrap past the last trial).
+``reset`` starts a new episode and keeps the learned table; :meth:`clear` forgets it; updates
+happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from tqdm.auto import tqdm
+
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.rollout import run_episode
+
+_FEATURES = ("log1p_learn_count", "log1p_hotkey_successes", "log1p_hotkey_failures", "log1p_seconds_since_last_use")
+_EDGES = {  # bucket upper edges (counts or seconds), in feature order
+    "log1p_learn_count": [0.5, 1.5],
+    "log1p_hotkey_successes": [0.5, 1.5, 4.5],
+    "log1p_hotkey_failures": [0.5],
+    "log1p_seconds_since_last_use": [0.5, 3600.0],
+}
+_SIZES = tuple(len(_EDGES[f]) + 1 for f in _FEATURES)
+
+
+class TabularAgent(Agent):
+    """Shared machinery of the tabular learners; subclasses set the bootstrap target."""
+
+    name = "tabular"
+
+    def param_specs(self) -> dict[str, ParamSpec]:
+        return {
+            "learning_rate": ParamSpec("learning_rate", 0.1, 0.0, 1.0, "logit", "step size of the TD update"),
+            "discount": ParamSpec("discount", 0.99, 0.0, 1.0, "logit", "discount per trial"),
+            "epsilon": ParamSpec("epsilon", 0.1, 0.0, 1.0, "logit", "exploration probability"),
+            "initial_value": ParamSpec("initial_value", 0.0, -100.0, 100.0, "none", "initial Q (-seconds)"),
+        }
+
+    def __init__(self, context: AgentContext | None = None, **params: float) -> None:
+        super().__init__(context, **params)
+        self.learning = False
+        self.q: np.ndarray | None = None
+        self._index: list[int] | None = None
+        self._pending: tuple[int, int, float] | None = None
+
+    def clear(self) -> None:
+        """Forget the learned table."""
+        if self.context is None:
+            raise ValueError(f"{self.name}: bind a context before use")
+        self.q = np.full((self.context.n_commands, *_SIZES, 3), self.params["initial_value"])
+
+    def reset(self, seed: int | None = None) -> None:
+        super().reset(seed)
+        if self.q is None:
+            self.clear()
+        self._pending = None
+
+    def state(self, obs: np.ndarray, info: dict[str, Any]) -> tuple[int, ...]:
+        """Discrete state of the upcoming trial."""
+        if self._index is None:
+            names = list(getattr(self.context, "obs_names", ()) or ())
+            if not names:
+                raise ValueError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
+            self._index = [names.index(f) for f in _FEATURES]
+        raw = np.expm1(np.asarray(obs, dtype=np.float64)[self._index])
+        cells = tuple(int(np.searchsorted(_EDGES[f], v, side="right")) for f, v in zip(_FEATURES, raw))
+        return (int(info["target"]), *cells)
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        if self.q is None:
+            self.reset()
+        q = self.q[self.state(obs, info)]  # type: ignore[index]
+        eps = self.params["epsilon"]
+        p = np.full(3, eps / 3)
+        p[int(np.argmax(q))] += 1 - eps
+        return p
+
+    def _bootstrap(self, state: tuple[int, ...], next_action: int | None) -> float:
+        raise NotImplementedError
+
+    def observe(self, transition: Transition) -> None:
+        if not self.learning:
+            return
+        info = transition.info
+        s = self.state(transition.obs, {"target": info["command"]})
+        done = transition.terminated or transition.truncated
+        if done:
+            self._td(s, transition.action, transition.reward, 0.0)
+            self._pending = None
+        else:
+            s2 = self.state(transition.next_obs, info)
+            self._pending = (s, transition.action, transition.reward)
+            self._next_state = s2
+            if self.bootstrap_on_observe:
+                self._td(s, transition.action, transition.reward, float(np.max(self.q[s2])))  # type: ignore[index]
+                self._pending = None
+
+    bootstrap_on_observe = True
+
+    def _td(self, s: tuple[int, ...], a: int, r: float, next_value: float) -> None:
+        q = self.q[s]  # type: ignore[index]
+        q[a] += self.params["learning_rate"] * (r + self.params["discount"] * next_value - q[a])
+
+    def train(self, env: Any, episodes: int, seed: int = 0, progress_bar: bool = True) -> pd.DataFrame:
+        """Learn for ``episodes`` simulated users (seeds seed, seed+1, ...); returns total time per episode."""
+        from shortcut_gym.agents.rollout import context_of
+
+        if self.context is None:
+            self.bind(context_of(env))
+        self.learning = True
+        totals = []
+        try:
+            for i in tqdm(range(episodes), desc=f"train {self.name}", disable=not progress_bar):
+                df = run_episode(env, self, seed=seed + i)
+                totals.append(df["duration_s"].sum())
+        finally:
+            self.learning = False
+        return pd.DataFrame({"episode": np.arange(episodes), "total_time_s": totals})
+
+    def spec(self) -> dict[str, Any]:
+        return {"name": self.name, "params": dict(self.params)}
+
+
+class QLearningAgent(TabularAgent):
+    """Off-policy TD control: target r + gamma max_a' Q(s', a')."""
+
+    name = "q_learning"
+
+
+class SarsaAgent(TabularAgent):
+    """On-policy TD control: target r + gamma Q(s', a') with a' the action actually taken next."""
+
+    name = "sarsa"
+    bootstrap_on_observe = False
+
+    def act(self, obs: np.ndarray, info: dict[str, Any]) -> int:
+        a = super().act(obs, info)
+        if self.learning and self._pending is not None:
+            s, pa, r = self._pending
+            self._td(s, pa, r, float(self.q[self._next_state][a]))  # type: ignore[index]
+            self._pending = None
+        return a

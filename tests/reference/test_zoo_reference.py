@@ -1,0 +1,125 @@
+"""Reference checks of the agent zoo against published closed forms and an outside MDP solver."""
+
+from __future__ import annotations
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+import scipy.special
+
+from shortcut_gym.agents import make_agent
+from shortcut_gym.agents.base import AgentContext, Transition
+from shortcut_gym.agents.planner import break_even_table, build_command_mdp, plan_world, solve_finite_horizon
+from shortcut_gym.envs.kernel import LEARN, MENU
+from shortcut_gym.envs.world import make_world
+
+
+def _feed(agent, command: int, action: int, outcome: str, duration_s: float, trial: int) -> None:
+    info = {"command": command, "action": action, "outcome": outcome, "duration_s": duration_s,
+            "onset_s": 45.0 * trial, "trial": trial, "session": 0}
+    agent.observe(Transition(np.zeros(0), action, -duration_s, np.zeros(0), info))
+
+
+def test_rescorla_wagner_acquisition_closed_form():
+    """Rescorla & Wagner (1972), "A theory of Pavlovian conditioning": with V_0 = 0 and a constant
+    outcome lambda, the delta rule V <- V + alpha (lambda - V) gives V_n = lambda (1 - (1 - alpha)^n)."""
+    alpha, duration = 0.23, 3.7
+    lam = -duration  # reward = -seconds
+    agent = make_agent("rescorla_wagner", mechanisms=["value"], options={"prior_time_s": 0.0}, alpha=alpha)
+    agent.bind(AgentContext(n_commands=3, horizon=50))
+    agent.reset(0)
+    for n in range(1, 21):
+        _feed(agent, 1, MENU, "menu", duration, n)
+        expected = lam * (1 - (1 - alpha) ** n)
+        assert agent.action_values(1)[MENU] == pytest.approx(expected, rel=1e-12, abs=1e-12)
+    # other commands and actions untouched
+    assert agent.action_values(0)[MENU] == 0.0 and agent.action_values(1)[LEARN] == 0.0
+
+
+def test_softmax_probabilities_equal_scipy():
+    """Softmax choice rule P(a) = exp(beta Q_a) / sum_b exp(beta Q_b) (Wilson & Collins 2019, eLife,
+    "Ten simple rules for the computational modeling of behavioral data", eq. for model 3)
+    equals scipy.special.softmax on beta * Q."""
+    beta = 1.7
+    agent = make_agent("rescorla_wagner", mechanisms=["value"], alpha=0.4, beta=beta)
+    agent.bind(AgentContext(n_commands=2, horizon=50))
+    agent.reset(0)
+    for t, (a, outcome, d) in enumerate([(0, "menu", 3.4), (1, "hotkey_forgotten", 6.1), (2, "learned", 5.0),
+                                         (1, "hotkey", 2.2), (0, "menu", 3.1)]):
+        _feed(agent, 0, a, outcome, d, t)
+        p = agent.action_probabilities(np.zeros(0), {"target": 0, "next_trial": t + 1})
+        np.testing.assert_allclose(p, scipy.special.softmax(beta * agent.action_values(0)), rtol=1e-12)
+
+
+def _small_world(**memory):
+    return make_world(schedule={"sessions": 3, "trials_per_session": 20}, memory=memory or None)
+
+
+@pytest.mark.parametrize("memory", [{}, {"kind": "exponential", "exponential_rate_per_s": 1e-5}])
+def test_planner_equals_pymdptoolbox_finite_horizon(memory):
+    """Backward induction (Bellman 1957; Puterman 1994, ch. 4) on the planner's own discretised MDP
+    equals pymdptoolbox's FiniteHorizon (Chades et al. 2014, "MDPtoolbox: a multi-platform toolbox to
+    solve stochastic dynamic programming problems", Ecography 37): V is states x (N+1) with column
+    N - n holding our V_n, policy is states x N."""
+    mdptoolbox_mdp = pytest.importorskip("mdptoolbox.mdp")
+    world = _small_world(**memory)
+    actions_seen: set[int] = set()
+    for command in (0, 5):
+        mdp = build_command_mdp(world, command, n_bins=12)
+        np.testing.assert_allclose(mdp.P.sum(axis=2), 1.0, atol=1e-12)
+        n = 25
+        V, policy = solve_finite_horizon(mdp.P, mdp.R, n)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            fh = mdptoolbox_mdp.FiniteHorizon(mdp.P, mdp.R, 1.0, n)
+            fh.run()
+        for stages_left in range(1, n + 1):
+            np.testing.assert_allclose(V[stages_left], fh.V[:, n - stages_left], rtol=1e-10, atol=1e-10)
+            # compare actions wherever the best action is not a near-tie
+            Q = mdp.R.T + mdp.P @ V[stages_left - 1]
+            top2 = np.sort(Q, axis=0)[-2:]
+            clear = (top2[1] - top2[0]) > 1e-9
+            assert np.array_equal(policy[stages_left][clear], np.asarray(fh.policy[:, n - stages_left])[clear])
+        actions_seen |= set(np.unique(policy[1:]).tolist())
+    # the solutions are not trivial: some state learns and some state uses the menu
+    assert {LEARN, MENU} <= actions_seen
+
+
+def test_break_even_matches_planner_switch_point_worked_by_hand():
+    """Analytic break-even (learning pays when U (menu - hotkey) > learning cost) against the
+    planner's switch point, in a world where recall after one learning trace is certain.
+
+    Set-up: exponential memory with negligible decay (1e-9 /s), threshold -20 (so p = 1 once a
+    trace exists), failed attempts and menu use lay no trace, no commission errors, hand always on
+    the mouse (keyboard_share 0), encoding 2.5 s. Command 0 ("New pool record", Ctrl+N) is item 0
+    of the 4-item Survey menu. Defaults: Card, Moran & Newell (1980) M 1.35, P 1.1, B 0.1, H 0.4,
+    K 0.20 (average skilled typist); Fitts a = -0.107, b = 0.223 s/bit; Hick-Hyman 0.08 + 0.15 log2(1/p).
+    Zipf over 12 commands: Survey holds ranks 1-4, weights 1, 1/2, 1/3, 1/4 (sum 2.0833),
+    so command 0's within-menu probability is 0.48.
+      decision = 0.08 + 0.15 log2(1/0.48) = 0.08 + 0.15 * 1.0589 = 0.2388 s
+      pointing = -0.107 + 0.223 log2(0.5 + 1) = -0.107 + 0.223 * 0.5850 = 0.0235 s
+      menu     = M + P + 4B + decision + pointing = 1.35 + 1.1 + 0.4 + 0.2388 + 0.0235 = 3.1123 s
+      hotkey   = M + H + 2K (+ recall latency ~0) = 1.35 + 0.4 + 0.4 = 2.15 s
+      U*       = 2.5 / (3.1123 - 2.15) = 2.5 / 0.9623 = 2.598 future uses
+    So learning pays from 3 future uses on: with n uses left (this one included), learn iff
+    n - 1 >= 3, i.e. the planner switches from menu to learn at n = 4.
+    """
+    world = make_world(
+        costs={"learn": {"encoding_s": 2.5}, "errors": {"commission_share": 0.0}},
+        memory={"kind": "exponential", "exponential_rate_per_s": 1e-9, "threshold": -20.0,
+                "latency_factor_s": 1e-12, "weights": {"hotkey_failure": 0.0, "menu": 0.0}},
+        schedule={"sessions": 2, "trials_per_session": 40},
+    )
+    table = break_even_table(world, keyboard_share=0.0)
+    row = table.iloc[0]
+    assert row["menu_s"] == pytest.approx(3.1123, abs=1e-3)
+    assert row["hotkey_recalled_s"] == pytest.approx(2.15, abs=1e-3)
+    assert row["break_even_uses"] == pytest.approx(2.598, abs=5e-3)
+    plan = plan_world(world, max_uses=10, keyboard_share=0.0)
+    no_trace = plan.policy[0][1:, 0]  # uses left 1..10, no-trace state
+    switch = 1 + int(np.argmax(no_trace == LEARN))
+    assert switch == 4
+    assert math.floor(row["break_even_uses"]) + 2 == switch
+    assert np.all(no_trace[:3] == MENU) and np.all(no_trace[3:] == LEARN)
