@@ -85,6 +85,8 @@ class ModelSpec:
 
 
 def _value(text: str) -> Any:
+    if "+" in text:
+        return [t for t in text.split("+") if t]
     low = text.lower()
     if low in ("true", "yes", "on"):
         return True
@@ -99,7 +101,8 @@ def _value(text: str) -> Any:
 def parse_model(text: str) -> ModelSpec:
     """'[label=]name[:key=value,...]' -> ModelSpec; keys that are parameters are held fixed.
 
-    Example: ``logit2=static_softmax:covariates=log_exposure+session,b_learn=-3``.
+    Example: ``logit2=static_softmax:covariates=log_exposure+session,b_learn=-3``; a value with
+    '+' is a list (``mechanisms=value+memory_aware+lapse``).
     """
     label, eq, rest = text.partition("=")
     if not eq or ":" in label:
