@@ -1,0 +1,272 @@
+"""Sweep specs (``configs/sweeps/*.yaml``): schema, loading and dotted-path overrides.
+
+A spec names a base setting (the arguments of ``make_world``), the parameters to vary by dotted
+path into the scenario / costs / memory / schedule settings, the design (grid, random or Latin
+hypercube), the agents, the simulated users' seeds, an optional horizon and the outputs. Every
+fault is reported as ``<source>: <dotted.field>: <message>``.
+"""
+
+from __future__ import annotations
+
+import copy
+from pathlib import Path
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+
+from shortcut_gym.envs.config import format_validation_error, load_settings, read_yaml
+from shortcut_gym.envs.costs import CostSettings
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.memory import MemorySettings
+from shortcut_gym.envs.task import ScenarioSettings
+
+#: Settings sections a dotted path may start with.
+SECTIONS = ("scenario", "costs", "memory", "schedule")
+
+
+class SweepSpecError(ConfigError):
+    """A sweep spec is invalid; the message names the file and the dotted field."""
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class BaseSetting(_Strict):
+    """The setting every run starts from (``make_world`` arguments; presets, paths or mappings)."""
+
+    scenario: str | dict[str, Any] | None = None
+    costs: str | dict[str, Any] | None = None
+    memory: str | dict[str, Any] | None = None
+    schedule: dict[str, Any] | None = None
+    observe_recall: bool = False
+    target_encoding: Literal["onehot", "index"] = "onehot"
+
+
+class ParameterRange(_Strict):
+    """Values of one varied parameter: an explicit list, or ``low``..``high`` (linear or log)."""
+
+    values: list[float | int | str] | None = None
+    low: float | None = None
+    high: float | None = None
+    steps: int | None = Field(default=None, ge=2)
+    scale: Literal["linear", "log"] = "linear"
+
+    @model_validator(mode="after")
+    def _one_form(self) -> ParameterRange:
+        if self.values is not None:
+            if len(self.values) == 0:
+                raise ValueError("values is empty: give at least one value")
+            if self.low is not None or self.high is not None or self.steps is not None:
+                raise ValueError("give either values or low/high(/steps), not both")
+            return self
+        if self.low is None or self.high is None:
+            raise ValueError("give values, or both low and high")
+        if not self.low < self.high:
+            raise ValueError(f"low ({self.low}) must be below high ({self.high})")
+        if self.scale == "log" and self.low <= 0:
+            raise ValueError(f"a log scale needs low > 0, got {self.low}")
+        return self
+
+
+class Variation(_Strict):
+    """The design over the varied parameters."""
+
+    design: Literal["grid", "random", "lhs"] = "grid"
+    points: int | None = Field(default=None, ge=1, description="number of points (random, lhs)")
+    seed: int = 0
+    parameters: dict[str, ParameterRange] = Field(default_factory=dict)
+
+    @model_validator(mode="after")
+    def _design_fields(self) -> Variation:
+        if self.design == "grid":
+            if self.points is not None:
+                raise ValueError("points applies to the random and lhs designs only (a grid has its own size)")
+            for path, r in self.parameters.items():
+                if r.values is None and r.steps is None:
+                    raise ValueError(f"parameters.{path}: a grid over low..high needs steps")
+        else:
+            if self.points is None:
+                raise ValueError(f"the {self.design} design needs points")
+            for path, r in self.parameters.items():
+                if r.steps is not None:
+                    raise ValueError(f"parameters.{path}: steps applies to the grid design only")
+            if not self.parameters:
+                raise ValueError(f"the {self.design} design needs at least one parameter")
+        return self
+
+
+class AgentEntry(_Strict):
+    """One agent: a registered name and its parameters; ``label`` names it in the outputs."""
+
+    model_config = ConfigDict(extra="allow", frozen=True)
+    name: str = Field(min_length=1)
+    params: dict[str, Any] = Field(default_factory=dict)
+    label: str | None = None
+
+
+class SeedBlock(_Strict):
+    """Simulated users: seeds ``first``, ``first + 1``, ... (``count`` of them)."""
+
+    first: int = Field(default=0, ge=0)
+    count: int = Field(ge=1)
+
+
+class Horizon(_Strict):
+    """Overrides of the schedule's length."""
+
+    sessions: int | None = Field(default=None, ge=1)
+    trials_per_session: int | None = Field(default=None, ge=1)
+
+
+class BreakEvenMap(_Strict):
+    """The break-even map: two varied cost parameters, the learner and the command it is read for."""
+
+    x: str
+    y: str
+    learner: str | None = None
+    command: int | str = 0
+
+
+class Outputs(_Strict):
+    """What to write besides the result table and the summary."""
+
+    trial_tables: bool = False
+    plots: bool = True
+    adoption_by: str | None = None
+    break_even: BreakEvenMap | None = None
+    reference_agent: str | None = None
+
+
+class SweepSpec(_Strict):
+    """A whole sweep."""
+
+    name: str = Field(min_length=1, pattern=r"^[A-Za-z0-9_.-]+$")
+    description: str = ""
+    base: BaseSetting = BaseSetting()
+    vary: Variation = Variation()
+    agents: list[AgentEntry] = Field(min_length=1)
+    seeds: SeedBlock | list[int]
+    horizon: Horizon | None = None
+    outputs: Outputs = Outputs()
+
+    @field_validator("seeds")
+    @classmethod
+    def _seed_list(cls, v: SeedBlock | list[int]) -> SeedBlock | list[int]:
+        if isinstance(v, list):
+            if not v:
+                raise ValueError("the seed list is empty")
+            if len(set(v)) != len(v):
+                raise ValueError("the seed list repeats a seed")
+            if any(s < 0 for s in v):
+                raise ValueError("seeds must be >= 0")
+        return v
+
+    def seed_list(self) -> list[int]:
+        """Seeds of the simulated users (the same users in every run)."""
+        if isinstance(self.seeds, list):
+            return list(self.seeds)
+        return list(range(self.seeds.first, self.seeds.first + self.seeds.count))
+
+
+def parse_spec(data: Any, source: str = "<sweep spec>") -> SweepSpec:
+    """Validate a mapping into a :class:`SweepSpec`, then check dotted paths and agents."""
+    if not isinstance(data, dict):
+        raise SweepSpecError(f"{source}: a sweep spec must be a mapping, got {type(data).__name__}")
+    try:
+        spec = SweepSpec.model_validate(data)
+    except ValidationError as err:
+        raise SweepSpecError(format_validation_error(err, source)) from None
+    base = base_settings(spec, source)
+    for path in spec.vary.parameters:
+        resolve_path(base, path, f"{source}: vary.parameters.{path}")
+    out = spec.outputs
+    varied = list(spec.vary.parameters)
+    for field, path in (("adoption_by", out.adoption_by),
+                        ("break_even.x", out.break_even.x if out.break_even else None),
+                        ("break_even.y", out.break_even.y if out.break_even else None)):
+        if path is not None and path not in varied:
+            raise SweepSpecError(f"{source}: outputs.{field}: {path!r} is not a varied parameter; varied: {varied}")
+    return spec
+
+
+def load_spec(path: str | Path) -> SweepSpec:
+    """Read and validate a sweep spec YAML file (a bare name looks in the bundled configs/sweeps)."""
+    p = Path(path)
+    if not p.exists() and p.suffix == "" and "/" not in str(path):
+        from shortcut_gym.envs.config import bundled_config_dir
+
+        p = bundled_config_dir() / "sweeps" / f"{path}.yaml"
+    try:
+        data = read_yaml(p)
+    except ConfigError as err:
+        raise SweepSpecError(str(err)) from None
+    return parse_spec(data, str(p))
+
+
+def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, Any]:
+    """The base setting resolved into plain dicts per section (what overrides apply to)."""
+    b = spec.base
+    try:
+        scenario = load_settings(ScenarioSettings, "tidepool_logbook" if b.scenario is None else b.scenario)
+        costs = load_settings(CostSettings, "average_skilled_mouse" if b.costs is None else b.costs)
+        memory = load_settings(MemorySettings, b.memory)
+    except ConfigError as err:
+        raise SweepSpecError(f"{source}: base: {err}") from None
+    schedule = {**scenario.schedule.model_dump(), **(b.schedule or {})}
+    if spec.horizon is not None:
+        schedule.update({k: v for k, v in spec.horizon.model_dump().items() if v is not None})
+    scen = scenario.model_dump()
+    scen.pop("schedule")
+    return {
+        "scenario": scen,
+        "costs": costs.model_dump(),
+        "memory": memory.model_dump(),
+        "schedule": schedule,
+        "observe_recall": b.observe_recall,
+        "target_encoding": b.target_encoding,
+    }
+
+
+def _step(node: Any, key: str, where: str, done: str) -> Any:
+    if isinstance(node, dict):
+        if key not in node:
+            raise SweepSpecError(f"{where}: unknown setting {key!r} under {done}; known: {sorted(node)}")
+        return node[key]
+    if isinstance(node, list):
+        if not key.isdigit() or int(key) >= len(node):
+            raise SweepSpecError(f"{where}: {done} is a list of {len(node)}; {key!r} is not an index in it")
+        return node[int(key)]
+    raise SweepSpecError(f"{where}: {done} is a value, not a group of settings; cannot go on to {key!r}")
+
+
+def resolve_path(settings: dict[str, Any], path: str, where: str) -> Any:
+    """Current value at dotted ``path`` (``costs.klm.keystroke_s``); unknown paths raise naming it."""
+    parts = path.split(".")
+    if parts[0] not in SECTIONS:
+        raise SweepSpecError(f"{where}: a dotted path starts with one of {list(SECTIONS)}, got {parts[0]!r}")
+    if len(parts) < 2 or any(p == "" for p in parts):
+        raise SweepSpecError(f"{where}: {path!r} is not a dotted path to one setting")
+    node: Any = settings
+    for i, key in enumerate(parts):
+        node = _step(node, key, where, ".".join(parts[:i]) or "the settings")
+    if isinstance(node, (dict, list)) and not (parts[0] == "schedule" and parts[-1] == "gap_h"):
+        raise SweepSpecError(f"{where}: {path!r} is a group of settings, not one setting")
+    return node
+
+
+def apply_overrides(settings: dict[str, Any], point: dict[str, Any]) -> dict[str, Any]:
+    """A deep copy of ``settings`` with each dotted path of ``point`` set to its value."""
+    out = copy.deepcopy(settings)
+    for path, value in point.items():
+        resolve_path(out, path, f"override {path}")
+        parts = path.split(".")
+        node: Any = out
+        for key in parts[:-1]:
+            node = node[int(key)] if isinstance(node, list) else node[key]
+        last = parts[-1]
+        if isinstance(node, list):
+            node[int(last)] = value
+        else:
+            node[last] = value
+    return out
