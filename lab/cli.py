@@ -13,6 +13,7 @@ import sys
 
 COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cmd_simulate",
+    "shortcut_gym.lab.cmd_sweep",
 ]
 
 
