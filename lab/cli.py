@@ -14,6 +14,10 @@ import sys
 COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cmd_simulate",
     "shortcut_gym.lab.cmd_sweep",
+    "shortcut_gym.lab.cmd_fit",
+    "shortcut_gym.lab.cmd_compare",
+    "shortcut_gym.lab.cmd_recover",
+    "shortcut_gym.lab.cmd_report",
 ]
 
 

@@ -1,0 +1,46 @@
+"""``shortcut-gym compare``: compare fitted models (summed criteria, random-effects BMS)."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+import pandas as pd
+
+from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
+from shortcut_gym.lab.report import plot_comparison, write_index, write_table
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``compare`` subcommand."""
+    p = sub.add_parser("compare", help="compare models from a fits.csv written by 'fit'")
+    p.add_argument("fits", type=Path, help="fits.csv from 'shortcut-gym fit'")
+    p.add_argument("--prior-count", type=float, default=1.0,
+                   help="Dirichlet prior count per model for the BMS (default 1)")
+    p.add_argument("--out", type=Path, required=True, help="output folder (created)")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Write comparison.csv, summed_criteria.csv, bms.csv and comparison.png."""
+    if not args.fits.is_file():
+        raise FileNotFoundError(f"{args.fits}: no such fits file")
+    if not args.prior_count > 0:
+        raise ValueError(f"--prior-count must be > 0, got {args.prior_count}")
+    fits = pd.read_csv(args.fits, dtype={"participant": str})
+    try:
+        table, summed, bms = comparison_table(fits), summed_criteria(fits), bms_of_fits(fits, args.prior_count)
+    except ValueError as err:
+        raise ValueError(f"{args.fits}: {err}") from None
+    args.out.mkdir(parents=True, exist_ok=True)
+    entries = [
+        (write_table(table, args.out, "comparison"), "per participant x model criteria"),
+        (write_table(summed, args.out, "summed_criteria"), "summed criteria per model"),
+        (write_table(bms.table(), args.out, "bms"), "random-effects BMS"),
+        (plot_comparison(summed, bms, args.out / "comparison.png"), "summed BIC and BMS plot"),
+    ]
+    index = write_index(args.out, entries, "Model comparison")
+    print(summed.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
+    print(bms.table().to_string(index=False, float_format=lambda v: f"{v:.3f}"))
+    print(f"wrote {index.parent}")
+    return 0
