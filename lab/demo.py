@@ -38,6 +38,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     args.out.mkdir(parents=True, exist_ok=True)
     baseline_section(args.out, args.users)
+    __import__("shortcut_gym.lab.demo_lab", fromlist=["lab_section"]).lab_section(args.out, args.users)
     print(f"\ndemo outputs in {args.out.resolve()}")
     return 0
 
