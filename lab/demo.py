@@ -8,6 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.demo_lab import lab_section
 from shortcut_gym.lab.simulate import session_summary, simulate_agents
 
 
@@ -38,7 +39,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     args.out.mkdir(parents=True, exist_ok=True)
     baseline_section(args.out, args.users)
-    __import__("shortcut_gym.lab.demo_lab", fromlist=["lab_section"]).lab_section(args.out, args.users)
+    lab_section(args.out, args.users)
     print(f"\ndemo outputs in {args.out.resolve()}")
     return 0
 
