@@ -5,8 +5,11 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.sweep_backends import BackendError
+
+
+class SweepArgumentError(ValueError):
+    """A bad ``sweep`` option (a ValueError, so the CLI exits 2 however it was started)."""
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -30,9 +33,9 @@ def run(args: argparse.Namespace) -> int:
     from shortcut_gym.lab.sweep_spec import load_spec
 
     if args.workers is not None and args.workers < 1:
-        raise CLIError(f"--workers must be >= 1, got {args.workers}")
+        raise SweepArgumentError(f"--workers must be >= 1, got {args.workers}")
     if args.address is not None and args.backend != "ray":
-        raise CLIError("--address applies to --backend ray only")
+        raise SweepArgumentError("--address applies to --backend ray only")
     spec = load_spec(args.spec)
     if args.plan_only:
         runs = plan_runs(spec, args.spec)
@@ -46,6 +49,6 @@ def run(args: argparse.Namespace) -> int:
         report = run_sweep(spec, out, backend=args.backend, workers=args.workers, address=args.address,
                            retry_failed=args.retry_failed, progress=not args.quiet)
     except BackendError as err:
-        raise CLIError(str(err)) from None
+        raise SweepArgumentError(str(err)) from None
     print("\n".join(report.lines()))
     return 1 if report.failed else 0
