@@ -1,0 +1,147 @@
+"""Learning models: probabilities, equality of the three compiled paths, likelihood, bad input."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from shortcut_gym.agents import make_agent, run_episode
+from shortcut_gym.agents.learning import TrialArrays, sample_action
+from shortcut_gym.agents.rollout import context_of
+from shortcut_gym.envs import BatchSimulator, CommandSelectionEnv, make_world
+
+MODELS = ["rescorla_wagner", "choice_kernel", "rw_choice_kernel"]
+WORLD = make_world(schedule={"sessions": 3, "trials_per_session": 40})
+
+
+@pytest.fixture(scope="module")
+def env():
+    return CommandSelectionEnv(world=WORLD)
+
+
+def _simulate_with_probs(env, agent, seed):
+    """Drive the env like run_episode, recording each trial's probabilities."""
+    agent.bind(context_of(env))
+    obs, info = env.reset(seed=seed)
+    agent.reset(seed)
+    from shortcut_gym.agents.base import Transition
+
+    probs, actions = [], []
+    done = False
+    while not done:
+        p = agent.action_probabilities(obs, info)
+        a = sample_action(p, float(agent.rng.random()))
+        nobs, r, term, trunc, step_info = env.step(a)
+        agent.observe(Transition(obs, a, r, nobs, step_info, term, trunc))
+        probs.append(p)
+        actions.append(a)
+        obs, info, done = nobs, step_info, term or trunc
+    return np.array(probs), np.array(actions)
+
+
+@pytest.mark.parametrize("name", MODELS)
+def test_probabilities_sum_to_one_and_act_matches(env, name):
+    agent = make_agent(name)
+    probs, actions = _simulate_with_probs(env, agent, seed=3)
+    np.testing.assert_allclose(probs.sum(axis=1), 1.0, atol=1e-12)
+    assert (probs >= 0).all()
+    # act() samples the same actions as the recorded loop
+    df = run_episode(env, make_agent(name), seed=3)
+    assert df["action"].tolist() == [("menu", "hotkey", "learn")[a] for a in actions]
+
+
+@pytest.mark.parametrize("name", MODELS)
+def test_single_agent_batch_policy_and_likelihood_agree(env, name):
+    seeds = [11, 12, 13]
+    agent = make_agent(name)
+    agent.bind(context_of(env))
+    singles = [_simulate_with_probs(env, make_agent(name), s) for s in seeds]
+    tables = [run_episode(env, make_agent(name), seed=s) for s in seeds]
+    # batch policy on the batched simulator: same actions, same probabilities
+    sim = BatchSimulator(WORLD)
+    sim.reset(seeds=seeds)
+    policy = agent.batch_policy(len(seeds), seeds)
+    for t in range(WORLD.horizon):
+        targets = sim.targets().copy()
+        acts = policy.actions(targets, sim.obs)
+        for b, (p, a) in enumerate(singles):
+            assert acts[b] == a[t]
+            np.testing.assert_array_equal(policy.probabilities[b], p[t])
+        rewards = sim.step(acts)
+        policy.observe(targets, acts, sim.outcome, -rewards)
+    # compiled likelihood over the logged table = sum of log single-agent probabilities
+    for (p, a), df in zip(singles, tables):
+        f = agent.likelihood_function(TrialArrays.from_frame(df, WORLD.commands.n_commands))
+        theta = np.array([agent.params[n] for n in agent.param_specs()])
+        expected = np.log(p[np.arange(len(a)), a]).sum()
+        assert f(theta) == pytest.approx(expected, rel=1e-12, abs=1e-9)
+
+
+DISTANT = {
+    "rescorla_wagner": {"alpha": 0.9, "beta": 0.2, "recall_rate": 0.05, "horizon_uses": 300.0, "lapse": 0.5},
+    "choice_kernel": {"alpha_ck": 0.9, "beta_ck": 20.0, "stickiness": -5.0, "lapse": 0.6},
+    "rw_choice_kernel": {"alpha": 0.9, "beta": 0.2, "beta_ck": 15.0, "stickiness": -4.0, "lapse": 0.5},
+}
+
+
+@pytest.mark.parametrize("name", MODELS)
+def test_true_parameters_beat_distant_ones(env, name):
+    agent = make_agent(name)
+    df = run_episode(env, agent, seed=21)
+    f = agent.likelihood_function(TrialArrays.from_frame(df, WORLD.commands.n_commands))
+    order = list(agent.param_specs())
+    true = np.array([agent.params[n] for n in order])
+    far = true.copy()
+    for k, v in DISTANT[name].items():
+        far[order.index(k)] = v
+    assert f(true) > f(far) + 5.0
+
+
+def test_switching_a_mechanism_off_removes_its_parameters():
+    full = make_agent("rescorla_wagner")
+    assert {"horizon_uses", "forget_rate_per_h"} <= set(full.param_specs())
+    knocked = make_agent("rescorla_wagner", without=["planning", "forgetting"])
+    assert "horizon_uses" not in knocked.param_specs() and "forget_rate_per_h" not in knocked.param_specs()
+    assert "planning" not in knocked.spec()["mechanisms"]
+    rebuilt = make_agent(knocked.spec()["name"], mechanisms=knocked.spec()["mechanisms"])
+    assert list(rebuilt.param_specs()) == list(knocked.param_specs())
+
+
+def test_myopic_learner_learns_less_than_planning_learner(env):
+    def learn_share(agent):
+        return np.mean([(run_episode(env, agent, seed=s)["action"] == "learn").mean() for s in range(4)])
+
+    assert learn_share(make_agent("rescorla_wagner")) > 1.5 * learn_share(make_agent("rescorla_wagner",
+                                                                                    without=["planning"]))
+
+
+@pytest.mark.parametrize("kwargs, message", [
+    ({"mechanisms": ["value", "telepathy"]}, "unknown mechanism 'telepathy'"),
+    ({"without": ["choice_kernel"]}, "cannot switch off 'choice_kernel'"),
+    ({"mechanisms": ["planning", "value"]}, "'planning' needs 'memory_aware'"),
+    ({"mechanisms": ["lapse"]}, "needs 'value' or 'choice_kernel'"),
+    ({"without": ["lapse"], "lapse": 0.1}, "belongs to mechanism 'lapse'"),
+    ({"alpha": 1.5}, "alpha=1.5 is outside [0.0, 1.0]"),
+    ({"gamma": 0.3}, "unknown parameter(s) ['gamma']"),
+    ({"options": {"prior_time_s": -1.0}}, "prior_time_s=-1.0"),
+    ({"without": "planning"}, "lists of names"),
+])
+def test_bad_configuration_errors(kwargs, message):
+    with pytest.raises(ValueError) as err:
+        make_agent("rescorla_wagner", **kwargs)
+    assert message in str(err.value)
+
+
+def test_bad_trial_table_errors(env):
+    df = run_episode(env, make_agent("always_menu"), seed=0)
+    bad = df.copy()
+    bad.loc[5, "action"] = "shout"
+    with pytest.raises(ValueError, match="row 5: column 'action' value 'shout'"):
+        TrialArrays.from_frame(bad)
+    with pytest.raises(ValueError, match=r"lacks column\(s\) \['duration_s'\]"):
+        TrialArrays.from_frame(df.drop(columns=["duration_s"]))
+    agent = make_agent("rescorla_wagner")
+    agent.bind(context_of(env))
+    f = agent.likelihood_function(TrialArrays.from_frame(df))
+    with pytest.raises(ValueError, match="theta must have 8 entries"):
+        f(np.zeros(3))
