@@ -10,6 +10,7 @@ import pandas as pd
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.demo_lab import lab_section
 from shortcut_gym.lab.demo_sweep import sweep_section
+from shortcut_gym.lab.demo_zoo import zoo_section
 from shortcut_gym.lab.simulate import session_summary, simulate_agents
 
 
@@ -40,6 +41,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     args.out.mkdir(parents=True, exist_ok=True)
     baseline_section(args.out, args.users)
+    zoo_section(args.out, args.users)
     lab_section(args.out, args.users)
     sweep_section(args.out)
     print(f"\ndemo outputs in {args.out.resolve()}")

@@ -1,0 +1,65 @@
+"""Score agents against the bounded-optimal planner on the same simulated users (same seeds).
+
+Time lost versus bounded-optimal = agent's mean total time per user minus the planner's, over the
+same seeds (so both meet the same schedules). Hotkey adoption trial = the 1-based trial of a
+user's first successful hotkey (NaN when it never happens), averaged over users who adopt.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+
+import pandas as pd
+
+from shortcut_gym.agents.base import Agent
+from shortcut_gym.agents.planner import BoundedOptimalPlanner
+from shortcut_gym.agents.rollout import run_episode
+from shortcut_gym.envs.env import CommandSelectionEnv
+from shortcut_gym.envs.world import World
+
+
+def simulate_trials(world: World, agents: Mapping[str, Agent], seeds: Sequence[int]) -> pd.DataFrame:
+    """Trial table of every labelled agent x seed (columns agent, user + run_episode's)."""
+    env = CommandSelectionEnv(world=world)
+    frames = []
+    for label, agent in agents.items():
+        for s in seeds:
+            df = run_episode(env, agent, seed=int(s))
+            df.insert(0, "user", int(s))
+            df.insert(0, "agent", label)
+            frames.append(df)
+    return pd.concat(frames, ignore_index=True)
+
+
+def score_trials(trials: pd.DataFrame, reference: str) -> pd.DataFrame:
+    """Per agent: time per trial, total per user, adoption trial, hotkey share, time lost vs ``reference``."""
+    if reference not in set(trials["agent"]):
+        raise ValueError(f"reference agent {reference!r} is not in the trial table ({sorted(set(trials['agent']))})")
+    per_user = trials.groupby(["agent", "user"], sort=False).agg(
+        total_time_s=("duration_s", "sum"), time_per_trial_s=("duration_s", "mean"),
+        hotkey_share=("outcome", lambda o: float((o == "hotkey").mean())),
+        learn_trials=("action", lambda a: int((a == "learn").sum())),
+    )
+    first = trials[trials["outcome"] == "hotkey"].groupby(["agent", "user"], sort=False)["trial"].min() + 1
+    per_user["adoption_trial"] = first.reindex(per_user.index).astype(float)
+    ref = per_user.loc[reference, "total_time_s"]
+    per_user["time_lost_s"] = per_user["total_time_s"] - ref.reindex(per_user.index.get_level_values("user")).values
+    out = per_user.groupby(level="agent", sort=False).agg(
+        time_per_trial_s=("time_per_trial_s", "mean"), total_time_s=("total_time_s", "mean"),
+        adoption_trial=("adoption_trial", "mean"), hotkey_share=("hotkey_share", "mean"),
+        learn_trials=("learn_trials", "mean"), time_lost_s=("time_lost_s", "mean"),
+    )
+    out["users"] = per_user.groupby(level="agent", sort=False).size()
+    return out.reset_index()
+
+
+def time_lost_vs_planner(world: World, agents: Mapping[str, Agent], seeds: Sequence[int],
+                         planner_label: str = "bounded_optimal") -> pd.DataFrame:
+    """Simulate the agents and the planner on the same seeds and score them against the planner."""
+    runs = dict(agents)
+    if planner_label not in runs:
+        runs[planner_label] = BoundedOptimalPlanner(world=world)
+    return score_trials(simulate_trials(world, runs, seeds), planner_label)
+
+
+__all__ = ["score_trials", "simulate_trials", "time_lost_vs_planner"]
