@@ -136,18 +136,17 @@ class StaticSoftmax(Agent):
         y = _action_codes(get("action"))
         k = 2 * x.shape[1]
 
+        rows = np.arange(len(y))
+        p = x.shape[1]
+
         def loglik(theta: np.ndarray) -> float | np.ndarray:
             t = np.asarray(theta, dtype=float)
-            single = t.ndim == 1
-            t = t.reshape(-1, k)
-            b = t.reshape(len(t), x.shape[1], 2)
-            u = np.einsum("np,spa->sna", x, b)  # starts x trials x (hotkey, learn)
-            full = np.concatenate([np.zeros(u.shape[:2] + (1,)), u], axis=2)
-            m = full.max(axis=2, keepdims=True)
-            lse = (m[..., 0] + np.log(np.exp(full - m).sum(axis=2)))
-            chosen = np.take_along_axis(full, y[None, :, None], axis=2)[..., 0]
-            ll = (chosen - lse).sum(axis=1)
-            return float(ll[0]) if single else ll
+            if t.ndim == 1:
+                u = x @ t.reshape(p, 2)  # trials x (hotkey, learn); menu utility is 0
+                lse = np.logaddexp(0.0, np.logaddexp(u[:, 0], u[:, 1]))
+                chosen = np.where(y == 0, 0.0, u[rows, np.maximum(y - 1, 0)])
+                return float((chosen - lse).sum())
+            return np.array([loglik(row) for row in t.reshape(-1, k)])
 
         return loglik
 
