@@ -15,6 +15,7 @@ happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -127,6 +128,37 @@ class TabularAgent(Agent):
         finally:
             self.learning = False
         return pd.DataFrame({"episode": np.arange(episodes), "total_time_s": totals})
+
+    def save(self, path: str | Path) -> Path:
+        """Write the Q table and parameters to ``path`` (.npz)."""
+        if self.q is None:
+            raise ValueError(f"{self.name}: nothing to save, train first")
+        p = Path(path).with_suffix(".npz")
+        np.savez(p, q=self.q, name=self.name)
+        return p
+
+    def load(self, path: str | Path) -> TabularAgent:
+        """Read a Q table written by :meth:`save` (shape must fit the bound context)."""
+        p = Path(path)
+        if not p.is_file():
+            raise ValueError(f"{self.name}: no Q table at {p}")
+        with np.load(p) as d:
+            if str(d["name"]) != self.name:
+                raise ValueError(f"{self.name}: {p} holds a {d['name']} table")
+            q = d["q"]
+        if self.context is not None and q.shape[0] != self.context.n_commands:
+            raise ValueError(f"{self.name}: {p} has {q.shape[0]} commands, the context {self.context.n_commands}")
+        self.q = q.copy()
+        return self
+
+    def evaluate(self, env: Any, seeds: Any) -> pd.DataFrame:
+        """Total time (s) and hotkey share per simulated user, learning switched off."""
+        rows = []
+        for s in seeds:
+            df = run_episode(env, self, seed=int(s))
+            rows.append({"seed": int(s), "total_time_s": df["duration_s"].sum(),
+                         "hotkey_share": float((df["outcome"] == "hotkey").mean())})
+        return pd.DataFrame(rows)
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "params": dict(self.params)}

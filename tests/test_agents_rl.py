@@ -22,7 +22,7 @@ def _menu_time(env):
 
 
 @pytest.mark.parametrize("name", ["q_learning", "sarsa"])
-def test_tabular_learns_and_is_seeded(env, name):
+def test_tabular_learns_is_seeded_and_round_trips(env, name, tmp_path):
     a, b = make_agent(name), make_agent(name)
     curve_a = a.train(env, 40, seed=0, progress_bar=False)
     curve_b = b.train(env, 40, seed=0, progress_bar=False)
@@ -31,6 +31,12 @@ def test_tabular_learns_and_is_seeded(env, name):
     assert np.count_nonzero(a.q) > 20  # the table was updated
     p = a.action_probabilities(*env.reset(seed=1))
     assert p.sum() == pytest.approx(1.0) and p.min() == pytest.approx(a.params["epsilon"] / 3)
+    path = a.save(tmp_path / name)
+    c = make_agent(name)
+    c.bind(a.context)
+    c.load(path)
+    np.testing.assert_array_equal(c.q, a.q)
+    assert c.evaluate(env, [7])["total_time_s"].iloc[0] == a.evaluate(env, [7])["total_time_s"].iloc[0]
 
 
 def test_ppo_short_training_beats_always_menu_and_round_trips(env, tmp_path):
