@@ -6,7 +6,8 @@ same object serves simulation and likelihood fitting.
 
 Conventions for what an agent may read, so that a trial log can be replayed through it:
 
-* before a trial, ``info`` holds ``target`` (command index), ``target_name`` and ``next_trial``;
+* before a trial, ``info`` holds ``target`` (command index), ``target_name``, ``next_trial``,
+  ``next_onset_s`` and ``next_session`` (all about the upcoming trial);
   the observation vector is also given but log-replayable agents rely on ``info``;
 * after a trial, ``Transition.info`` holds ``trial``, ``session``, ``onset_s``, ``command``,
   ``action``, ``outcome`` (one of ``OUTCOME_NAMES``) and ``duration_s``; simulation adds

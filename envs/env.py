@@ -137,7 +137,14 @@ class CommandSelectionEnv(gym.Env):
         t = int(sim.us[0, k.U_TRIAL])
         tt = min(t, sim.horizon - 1)
         c = int(sim.sched_cmd[0, tt])
-        return {"target": c, "target_name": self.world.commands.names[c], "next_trial": t}
+        sched = sim.schedules[0]
+        return {
+            "target": c,
+            "target_name": self.world.commands.names[c],
+            "next_trial": t,
+            "next_onset_s": float(sched.onset_s[tt]),
+            "next_session": int(sched.session[tt]),
+        }
 
     @property
     def schedule(self) -> Schedule:

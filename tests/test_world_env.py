@@ -182,3 +182,15 @@ def test_registered_id_makes_the_env() -> None:
     env = gym.make(ENV_ID, schedule=SHORT, observe_recall=True)
     assert isinstance(env.unwrapped, CommandSelectionEnv)
     assert env.unwrapped.world.observe_recall
+
+
+def test_info_describes_the_upcoming_trial_separately() -> None:
+    env = _env()
+    _, info = env.reset(seed=2)
+    sched = env.schedule
+    assert (info["next_trial"], info["next_onset_s"], info["next_session"]) == (0, sched.onset_s[0], 0)
+    for t in range(1, 20):
+        step = env.step(0)[4]
+        assert step["trial"] == t - 1 and step["onset_s"] == sched.onset_s[t - 1]
+        assert step["next_trial"] == t and step["next_onset_s"] == sched.onset_s[t]
+        assert step["target"] == sched.command[t] and step["next_session"] == sched.session[t]
