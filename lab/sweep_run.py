@@ -86,7 +86,7 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
     result["compute_s"] = time.perf_counter() - start
     result["pid"] = os.getpid()
     log = os.environ.get(COMPUTE_LOG_ENV)
-    if log:
+    if log and not run.get("warm_up"):
         with open(log, "a") as fh:
             fh.write(f"{run['run_id']}\n")
     return result

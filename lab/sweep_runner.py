@@ -15,7 +15,7 @@ from typing import Any
 
 from tqdm import tqdm
 
-from shortcut_gym.lab.sweep_backends import make_backend
+from shortcut_gym.lab.sweep_backends import LocalBackend, RayBackend, make_backend
 from shortcut_gym.lab.sweep_plan import plan_digest, plan_runs
 from shortcut_gym.lab.sweep_spec import SweepSpec, load_spec, parse_spec
 from shortcut_gym.lab.sweep_store import SweepStore
@@ -53,7 +53,7 @@ def _spec_and_source(spec: SweepSpec | dict | str | Path) -> tuple[SweepSpec, st
 def run_sweep(
     spec: SweepSpec | dict | str | Path,
     folder: str | Path,
-    backend: str = "local",
+    backend: str | LocalBackend | RayBackend = "local",
     workers: int | None = None,
     address: str | None = None,
     retry_failed: bool = False,
@@ -78,7 +78,7 @@ def run_sweep(
         print(msg, file=sys.stderr)
         store.log({"event": "resume", "kept": kept, "failed_before": len(failed_before), "to_run": len(todo)})
     else:
-        store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": backend})
+        store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": engine.name})
     computed = 0
     if todo:
         engine.start()
@@ -92,7 +92,7 @@ def run_sweep(
             bar.close()
         finally:
             engine.stop()
-    status = store.update_status(runs, {"backend": backend})
+    status = store.update_status(runs, {"backend": engine.name})
     report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0)
     store.log({"event": "finish", **status})
     if write_outputs:
