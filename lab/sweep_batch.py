@@ -126,17 +126,37 @@ def has_batch_policy(spec: dict[str, Any] | Agent, world: World) -> bool:
     return callable(getattr(build_agent(spec, world), "batch_policy", None))
 
 
+#: Users simulated together in one block sum; larger batches are cut into chunks of this size,
+#: which keeps the per-trial working set in cache and the schedule arrays small (users are
+#: independent, so chunking does not change any number).
+CHUNK_USERS = 4096
+
+
 def simulate_users(
     world: World,
     spec: dict[str, Any] | Agent,
     seeds: Sequence[int],
     record: str = "blocks",
     use_batch_policy: bool = True,
+    chunk_users: int = CHUNK_USERS,
 ) -> BlockSums:
     """Simulate one user per seed with the agent of ``spec``; per-user sums (+ trial rows if asked)."""
     if record not in ("blocks", "trials"):
         raise ValueError(f"record must be 'blocks' or 'trials', got {record!r}")
     seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)
+    if len(seeds) == 0:
+        raise ValueError("need at least one seed")
+    if record == "blocks" and len(seeds) > chunk_users:
+        parts = [_simulate_chunk(world, spec, seeds[i:i + chunk_users], record, use_batch_policy)
+                 for i in range(0, len(seeds), chunk_users)]
+        return BlockSums(seeds=seeds, **{f: np.concatenate([getattr(p, f) for p in parts])
+                                         for f in ("trials", "time_s", "outcomes", "actions", "command_time_s",
+                                                   "command_uses")})
+    return _simulate_chunk(world, spec, seeds, record, use_batch_policy)
+
+
+def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarray, record: str,
+                    use_batch_policy: bool) -> BlockSums:
     sim = BatchSimulator(world)
     sim.reset(seeds=seeds.tolist())
     agent = build_agent(spec if not isinstance(spec, Agent) else spec.spec(), world)

@@ -110,3 +110,14 @@ def test_batch_policy_path_equals_per_user_path() -> None:
     looped = simulate_users(world, spec, SEEDS, record="trials", use_batch_policy=False)
     pd.testing.assert_frame_equal(trial_table(world, batched, "x"), trial_table(world, looped, "x"), check_exact=True)
     assert (trial_table(world, batched, "x")["action"] == "learn").sum() > 0
+
+
+def test_chunked_batches_equal_one_batch() -> None:
+    world = make_world(schedule=SCHEDULE)
+    seeds = list(range(9))
+    for spec in ({"name": "rescorla_wagner"}, {"name": "random"}):
+        whole = simulate_users(world, spec, seeds)
+        chunked = simulate_users(world, spec, seeds, chunk_users=4)
+        for f in ("trials", "time_s", "outcomes", "actions", "command_time_s", "command_uses"):
+            np.testing.assert_array_equal(getattr(chunked, f), getattr(whole, f), err_msg=f)
+        assert whole.outcomes[:, :, 1].sum() > 0
