@@ -24,6 +24,17 @@ from typing import Any
 import numpy as np
 
 N_ACTIONS = 3
+#: Extra entropy word that separates an agent's random stream from the environment's: the env
+#: seeded with s draws from default_rng(s), an agent reset with s from default_rng([s, AGENT_STREAM]),
+#: so the agent's choices are independent of the schedule drawn for the same seed.
+AGENT_STREAM = 0x5A6E
+
+
+def agent_rng(seed: int | None) -> np.random.Generator:
+    """The agent's own generator for ``seed`` (independent of the env's stream for that seed)."""
+    if seed is None:
+        return np.random.default_rng()
+    return np.random.default_rng([int(seed), AGENT_STREAM])
 
 
 @dataclass(frozen=True)
@@ -121,7 +132,7 @@ class Agent(ABC):
 
     def reset(self, seed: int | None = None) -> None:
         """Forget everything learned; reseed the agent's own random generator."""
-        self.rng = np.random.default_rng(seed)
+        self.rng = agent_rng(seed)
 
     @abstractmethod
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:

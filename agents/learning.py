@@ -40,7 +40,7 @@ import pandas as pd
 from numba import njit
 
 from shortcut_gym.agents import mechanisms as mech
-from shortcut_gym.agents.base import N_ACTIONS, Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import N_ACTIONS, Agent, AgentContext, ParamSpec, Transition, agent_rng
 from shortcut_gym.envs.kernel import ACTION_NAMES, HOTKEY, LEARN, OBS_FEATURES, OUT_HOTKEY, OUTCOME_NAMES
 
 _DT_FEATURE = "log1p_seconds_since_last_use"
@@ -491,7 +491,7 @@ class BatchLearningPolicy:
         self.horizon = agent.context.horizon
         self.state = _new_state(n_users, agent.context.n_commands)
         _init_state(self.par, *self.state)
-        self.gens = [np.random.default_rng(int(s)) for s in seeds]
+        self.gens = [agent_rng(int(s)) for s in seeds]
         self._u = np.zeros((n_users, self._BLOCK))
         self._u_pos = self._BLOCK
         self.probabilities = np.zeros((n_users, N_ACTIONS))

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, agent_rng
 from shortcut_gym.envs.kernel import ACTION_NAMES
 
 COVARIATES: tuple[str, ...] = ("log_exposure", "session")
@@ -170,7 +170,7 @@ class StaticSoftmaxBatch:
             raise ValueError(f"{agent.name}: bind a context before batch_policy")
         self.agent = agent
         self.coef = agent.coefficient_matrix()
-        self.rngs = [np.random.default_rng(int(s)) for s in seeds]
+        self.rngs = [agent_rng(int(s)) for s in seeds]
         self.exposures = np.zeros((n_users, n_cmd))
         self.session = np.zeros(n_users)
 

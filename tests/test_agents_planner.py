@@ -85,3 +85,18 @@ def test_registry_errors():
         make_agent("bounded_optimal", keyboard_share=2)
     with pytest.raises(ValueError, match="memory kinds"):
         plan_world(make_world(memory={"kind": "pavlik_anderson"}), max_uses=3)
+
+
+def test_agent_stream_is_independent_of_the_env_stream_for_the_same_seed():
+    """A random agent reset with the env's seed must not pick actions tied to the drawn targets."""
+    import numpy as np
+
+    from shortcut_gym.agents import make_agent, run_episode
+    from shortcut_gym.envs import CommandSelectionEnv
+
+    env = CommandSelectionEnv(schedule={"sessions": 4, "trials_per_session": 50})
+    agent = make_agent("random", p_hotkey=0.0, p_learn=0.25)
+    trials = [run_episode(env, agent, seed=s) for s in range(20)]
+    top = np.concatenate([t.loc[t["command"] == 0, "action"].eq("learn").to_numpy() for t in trials])
+    # about 1,300 trials of the most frequent command: sd of the share about 0.012
+    assert abs(top.mean() - 0.25) < 0.05
