@@ -30,5 +30,8 @@ lint: $(STAMP)
 bench: $(STAMP)
 	for s in scripts/bench_*.py; do echo "== $$s"; $(PY) $$s || exit 1; done
 
+docs: $(STAMP)
+	$(PY) scripts/build_api_docs.py site/api
+
 clean:
-	rm -rf $(VENV) out build *.egg-info
+	rm -rf $(VENV) out site build *.egg-info
