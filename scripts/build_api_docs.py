@@ -15,18 +15,16 @@ from pathlib import Path
 
 import pdoc
 
-
 SUBPACKAGES = ("shortcut_gym.envs", "shortcut_gym.agents", "shortcut_gym.lab")
 
 
 def module_names() -> list[str]:
-    """The root, each subpackage, and the modules of subpackages whose __all__ lists names only
+    """The root package and the modules of subpackages whose __all__ lists names only
 
     (pdoc follows ``__all__``, so it would skip those modules; it finds the others itself).
     """
-    names = ["shortcut_gym"]
+    names = ["shortcut_gym"]  # its __all__ brings in the subpackages
     for pkg in SUBPACKAGES:
-        names.append(pkg)
         mod = importlib.import_module(pkg)
         if hasattr(mod, "__all__"):
             names += [f"{pkg}.{m.name}" for m in pkgutil.iter_modules(mod.__path__) if not m.name.startswith("_")]
