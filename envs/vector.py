@@ -142,7 +142,11 @@ class CommandSelectionVectorEnv(VectorEnv):
         items: dict[str, Any] = {"target": targets}
         if self.full_info:
             items["target_name"] = self._names[targets]
-        items["next_trial"] = np.full(self.num_envs, sim.trial, dtype=np.int64)
+        t = sim.trial
+        tt = min(t, sim.horizon - 1)
+        items["next_trial"] = np.full(self.num_envs, t, dtype=np.int64)
+        items["next_onset_s"] = sim.sched_onset[:, tt].copy()
+        items["next_session"] = self._sessions[:, tt].copy()
         return self._masked(items)
 
     def _step_info(self, t: int, acts: np.ndarray) -> dict[str, Any]:

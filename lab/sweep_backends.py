@@ -13,8 +13,10 @@ from collections.abc import Iterator
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from typing import Any
 
-from shortcut_gym.lab.sweep_run import compute_run
+from shortcut_gym.lab.sweep_run import compute_run, compute_runs
 
+#: Most runs in one Ray task (see :meth:`RayBackend.run`).
+MAX_RUNS_PER_TASK = 16
 #: Seconds to wait for a Ray head's port before giving up.
 RAY_CONNECT_TIMEOUT_S = 3.0
 
@@ -125,17 +127,23 @@ class RayBackend:
         self._warm = True
 
     def run(self, runs: list[dict[str, Any]]) -> Iterator[dict[str, Any]]:
-        """Submit every run as a Ray task; yield results as they complete."""
+        """Submit the runs as Ray tasks of a few runs each; yield results as each task completes.
+
+        Runs are grouped so that there are about eight tasks per CPU (at most 16 runs a task): short
+        runs then do not pay Ray's per-task cost one by one, and long sweeps still land in small steps.
+        """
         import ray
 
         if not self._warm and runs:
             self.warm_up(runs[0])
-        task = ray.remote(num_cpus=1, max_retries=0)(compute_run)
-        refs = [task.remote(run) for run in runs]
+        cpus = max(1, int(ray.cluster_resources().get("CPU", self.workers)))
+        size = max(1, min(MAX_RUNS_PER_TASK, len(runs) // (8 * cpus)))
+        task = ray.remote(num_cpus=1, max_retries=0)(compute_runs)
+        refs = [task.remote(runs[i:i + size]) for i in range(0, len(runs), size)]
         while refs:
             ready, refs = ray.wait(refs, num_returns=1)
             for ref in ready:
-                yield ray.get(ref)
+                yield from ray.get(ref)
 
     def stop(self) -> None:
         """Shut Ray down if this backend started it."""

@@ -79,8 +79,10 @@ class _PerUserDriver:
 
     def _upcoming(self, sim: BatchSimulator, b: int) -> dict[str, Any]:
         t = sim.trial
-        c = int(sim.sched_cmd[b, min(t, sim.horizon - 1)])
-        return {"target": c, "target_name": self.names[c], "next_trial": t}
+        tt = min(t, sim.horizon - 1)
+        c = int(sim.sched_cmd[b, tt])
+        return {"target": c, "target_name": self.names[c], "next_trial": t,
+                "next_onset_s": float(sim.sched_onset[b, tt]), "next_session": int(sim.schedules[b].session[tt])}
 
     def actions(self, sim: BatchSimulator) -> np.ndarray:
         return np.array([a.act(self.obs[b], self.infos[b]) for b, a in enumerate(self.agents)], dtype=np.int64)

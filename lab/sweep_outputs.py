@@ -93,6 +93,8 @@ def break_even_grid(spec: SweepSpec, runs: list[dict[str, Any]], commands: pd.Da
     if roles["menu"] is None or roles["learner"] is None or commands.empty:
         return None
     xs, ys = grid_values(params[xp]), grid_values(params[yp])
+    if not all(isinstance(v, (int, float)) for v in xs + ys):
+        return None  # a map needs numeric axes (a spec's own break_even is checked on load)
     world0 = world_from_settings(runs[0]["settings"])
     cmd = be.command if be else 0
     c = world0.commands.index(cmd) if isinstance(cmd, str) else int(cmd)

@@ -90,3 +90,8 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
         with open(log, "a") as fh:
             fh.write(f"{run['run_id']}\n")
     return result
+
+
+def compute_runs(runs: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Several runs in one task, in order (each recorded on its own, failures included)."""
+    return [compute_run(run) for run in runs]

@@ -67,7 +67,14 @@ def run_sweep(
     digest = plan_digest(runs)
     engine = make_backend(backend, workers, address)  # checks workers and the address first
     store = SweepStore(Path(folder))
-    previous = store.open(sweep.model_dump(mode="json"), runs, digest)
+    already = store.finished_ids() if store.read_manifest() is not None else set()
+    if any(r["run_id"] not in already for r in runs):
+        engine.start()  # before the folder is touched: a backend that cannot start writes nothing
+    try:
+        previous = store.open(sweep.model_dump(mode="json"), runs, digest)
+    except BaseException:
+        engine.stop()
+        raise
     done = store.finished_ids()
     failed_before = store.failed_ids()
     todo = [r for r in runs if r["run_id"] not in done and (retry_failed or r["run_id"] not in failed_before)]
@@ -80,11 +87,12 @@ def run_sweep(
     else:
         store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": engine.name})
     computed = 0
+    if not todo:
+        engine.stop()
     if todo:
-        engine.start()
         try:
-            bar = tqdm(total=len(runs), initial=kept, desc=f"sweep {sweep.name}", unit="run", disable=not progress,
-                       file=sys.stderr, dynamic_ncols=True)
+            bar = tqdm(total=kept + len(todo), initial=kept, desc=f"sweep {sweep.name}", unit="run",
+                       disable=not progress, file=sys.stderr, dynamic_ncols=True)
             for result in engine.run(todo):
                 store.write_result(result)
                 computed += 1

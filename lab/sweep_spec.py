@@ -187,6 +187,16 @@ def parse_spec(data: Any, source: str = "<sweep spec>") -> SweepSpec:
                         ("break_even.y", out.break_even.y if out.break_even else None)):
         if path is not None and path not in varied:
             raise SweepSpecError(f"{source}: outputs.{field}: {path!r} is not a varied parameter; varied: {varied}")
+    if out.break_even is not None:
+        if spec.vary.design != "grid":
+            raise SweepSpecError(f"{source}: outputs.break_even: the break-even map needs the grid design, "
+                                 f"got {spec.vary.design!r}")
+        if out.break_even.x == out.break_even.y:
+            raise SweepSpecError(f"{source}: outputs.break_even: x and y are the same parameter {out.break_even.x!r}")
+        for axis in ("x", "y"):
+            r = spec.vary.parameters[getattr(out.break_even, axis)]
+            if r.values is not None and not all(isinstance(v, (int, float)) for v in r.values):
+                raise SweepSpecError(f"{source}: outputs.break_even.{axis}: the map needs numeric values")
     return spec
 
 

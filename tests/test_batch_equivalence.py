@@ -121,3 +121,32 @@ def test_chunked_batches_equal_one_batch() -> None:
         for f in ("trials", "time_s", "outcomes", "actions", "command_time_s", "command_uses"):
             np.testing.assert_array_equal(getattr(chunked, f), getattr(whole, f), err_msg=f)
         assert whole.outcomes[:, :, 1].sum() > 0
+
+
+class _Recorder(Agent):
+    """Test agent: always menu; records every obs and info it is given (class-level log)."""
+
+    name = "_test_recorder"
+    log: list[Any] = []
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        type(self).log.append(("act", obs.tolist(), dict(info)))
+        return np.array([0.2, 0.5, 0.3])
+
+    def observe(self, transition: Any) -> None:
+        t = transition
+        type(self).log.append(("observe", t.obs.tolist(), t.action, t.reward, t.next_obs.tolist(), dict(t.info),
+                               t.terminated, t.truncated))
+
+
+def test_per_user_agents_see_exactly_what_the_env_gives() -> None:
+    if _Recorder.name not in AGENTS:
+        register_agent(_Recorder)
+    _Recorder.log = []
+    env = gym.make(ENV_ID, schedule=SCHEDULE)
+    run_episode(env, agent_from_spec({"name": _Recorder.name}), seed=5)
+    ref = list(_Recorder.log)
+    _Recorder.log = []
+    simulate_users(make_world(schedule=SCHEDULE), {"name": _Recorder.name}, [5])
+    assert len(_Recorder.log) == len(ref) == 2 * 45
+    assert _Recorder.log == ref  # same keys and values, in the same order of calls

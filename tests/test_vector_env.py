@@ -33,7 +33,7 @@ def test_vector_env_equals_sync_vector_of_single_envs(mode: str) -> None:
     o1, i1 = mine.reset(seed=11)
     o2, i2 = ref.reset(seed=11)
     np.testing.assert_array_equal(o1, o2)
-    _compare_info(i1, i2, ("target", "target_name", "next_trial"))
+    _compare_info(i1, i2, ("target", "target_name", "next_trial", "next_onset_s", "next_session"))
     rng = np.random.default_rng(0)
     horizon = SHORT["sessions"] * SHORT["trials_per_session"]
     saw_truncation = 0
@@ -44,7 +44,7 @@ def test_vector_env_equals_sync_vector_of_single_envs(mode: str) -> None:
             np.testing.assert_array_equal(x, y)
         if "trial" in b[4]:
             _compare_info(a[4], b[4], ("trial", "session", "onset_s", "command", "command_name", "action",
-                                       "outcome", "duration_s", "p_recall", "target"))
+                                       "outcome", "duration_s", "p_recall", "target", "next_onset_s", "next_session"))
             for op in b[4]["time_s"]:
                 if op.startswith("_"):
                     continue
