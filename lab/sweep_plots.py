@@ -32,9 +32,10 @@ def adoption_plot(spec: SweepSpec, blocks: pd.DataFrame, path: Path) -> Path:
         blocks = blocks.assign(**{by: pd.qcut(blocks[by], 6, duplicates="drop").astype(str)})
         levels = sorted(blocks[by].unique())
     n = len(levels)
-    cols = min(n, 3)
+    cols = min(n, int(np.ceil(np.sqrt(n))))
     rows = -(-n // cols)
-    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.2 * rows), squeeze=False, sharey=True)
+    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.2 * rows), squeeze=False, sharey=True,
+                             constrained_layout=True)
     for ax, level in zip(axes.ravel(), levels, strict=False):
         part = blocks if by is None else blocks[blocks[by] == level]
         curve = part.groupby(["agent", "session"])["hotkey_share"].mean().reset_index()
@@ -102,7 +103,7 @@ def time_saved_plot(summary: pd.DataFrame, reference: str, path: Path) -> Path:
         if agent == reference:
             continue
         ax.scatter(g["point_index"].map(ref), g["time_saved_vs_menu_s"], s=14, label=agent)
-    lo, hi = float(np.nanmin(summary["time_saved_vs_menu_s"])), float(np.nanmax(summary["time_saved_vs_menu_s"]))
+    lo, hi = float(np.nanmin(ref)), float(np.nanmax(ref))
     ax.plot([lo, hi], [lo, hi], "k--", lw=1, label="as good as the reference")
     ax.axhline(0, color="grey", lw=0.5)
     ax.set_xlabel(f"time saved over always-menu by {reference} (s per user)")

@@ -42,6 +42,21 @@ class SweepReport:
         return out
 
 
+def code_digest() -> str:
+    """Digest of the world's and the agents' source files: results depend on these."""
+    import hashlib
+
+    import shortcut_gym.agents
+    import shortcut_gym.envs
+
+    h = hashlib.sha1()
+    for pkg in (shortcut_gym.envs, shortcut_gym.agents):
+        for f in sorted(Path(pkg.__file__).parent.glob("*.py")):
+            h.update(f.name.encode())
+            h.update(f.read_bytes())
+    return h.hexdigest()[:12]
+
+
 def _spec_and_source(spec: SweepSpec | dict | str | Path) -> tuple[SweepSpec, str]:
     if isinstance(spec, SweepSpec):
         return spec, "<sweep spec>"
@@ -79,12 +94,17 @@ def run_sweep(
     failed_before = store.failed_ids()
     todo = [r for r in runs if r["run_id"] not in done and (retry_failed or r["run_id"] not in failed_before)]
     kept = sum(r["run_id"] in done for r in runs)
+    code = code_digest()
     if previous is not None:
+        if previous.get("code_digest") not in (None, code):
+            print(f"warning: {store.folder}: its finished runs were computed with other envs/agents code "
+                  f"({previous.get('code_digest')}, now {code}); they are kept as they are", file=sys.stderr)
         msg = (f"resuming {store.folder}: {kept} of {len(runs)} runs already finished, "
                f"{len(failed_before)} recorded as failed{' (retrying)' if retry_failed else ''}, {len(todo)} to run")
         print(msg, file=sys.stderr)
         store.log({"event": "resume", "kept": kept, "failed_before": len(failed_before), "to_run": len(todo)})
     else:
+        store.update_status(runs, {"backend": engine.name, "code_digest": code})
         store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": engine.name})
     computed = 0
     if not todo:
@@ -100,7 +120,7 @@ def run_sweep(
             bar.close()
         finally:
             engine.stop()
-    status = store.update_status(runs, {"backend": engine.name})
+    status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
     report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0)
     store.log({"event": "finish", **status})
     if write_outputs:
