@@ -143,3 +143,15 @@ def test_cli_bad_input_exits_2_naming_the_fault(tmp_path: Path) -> None:
     res = subprocess.run(cmd[:4] + [str(tmp_path / "missing.yaml"), "--workers", "0"], capture_output=True,
                          text=True, timeout=120)
     assert res.returncode == 2 and "--workers" in res.stderr
+
+
+def test_every_bundled_sweep_spec_validates_and_plans() -> None:
+    from shortcut_gym.envs.config import bundled_config_dir
+
+    specs = sorted((bundled_config_dir() / "sweeps").glob("*.yaml"))
+    assert len(specs) >= 2
+    for path in specs:
+        spec = load_spec(path)
+        runs = plan_runs(spec, str(path))
+        assert len(runs) == len(design_points(spec.vary)) * len(spec.agents)
+    assert load_spec("typing_vs_learning").name == "typing_vs_learning"  # a bare name finds the bundled spec
