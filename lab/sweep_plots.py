@@ -29,8 +29,9 @@ def adoption_plot(spec: SweepSpec, blocks: pd.DataFrame, path: Path) -> Path:
     by = spec.outputs.adoption_by or (next(iter(spec.vary.parameters)) if spec.vary.parameters else None)
     levels = sorted(blocks[by].unique()) if by else [None]
     if len(levels) > 9:  # many random / LHS values: bin them
-        blocks = blocks.assign(**{by: pd.qcut(blocks[by], 6, duplicates="drop").astype(str)})
-        levels = sorted(blocks[by].unique())
+        bins = pd.qcut(blocks[by], 6, duplicates="drop")
+        levels = [str(c) for c in bins.cat.categories]  # in increasing order
+        blocks = blocks.assign(**{by: bins.astype(str)})
     n = len(levels)
     cols = min(n, int(np.ceil(np.sqrt(n))))
     rows = -(-n // cols)
