@@ -145,7 +145,7 @@ def _timed_sweep(spec: dict, folder: Path, backend: str | RayBackend) -> tuple[f
     return wall, compute
 
 
-def part_two(users: int, skip_ray: bool, repeats: int = 2) -> None:
+def part_two(users: int, skip_ray: bool, repeats: int = 3) -> None:
     """A 200-run sweep on local processes and on Ray, 2 workers each; best of ``repeats`` (shared machines
     are noisy), the backends alternating."""
     spec = sweep_spec(100, users)
