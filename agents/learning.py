@@ -56,8 +56,19 @@ _RULE_JIT = {"cache": True, "_nrt": False}
 
 
 @njit(**_RULE_JIT)
-def _decide(b, c, dt_s, trial, horizon, par, flags, q, ck, last_a, belief, count, tk, seen, out):
-    """Write P(menu, hotkey, learn) of user ``b`` for target ``c`` into ``out``."""
+def _belief_now(b, c, dt_s, par, flags, belief):
+    """User ``b``'s recall belief for command ``c`` after ``dt_s`` seconds since its last use
+    (decayed when ``forgetting`` is on); the same value for the decision and the update."""
+    p = belief[b, c]
+    if flags[mech.M_FORGETTING] == 1:
+        p *= math.exp(-par[mech.P_FORGET] * dt_s / 3600.0)
+    return p
+
+
+@njit(**_RULE_JIT)
+def _decide(b, c, p, trial, horizon, par, flags, q, ck, last_a, count, tk, seen, out):
+    """Write P(menu, hotkey, learn) of user ``b`` for target ``c`` into ``out``; ``p`` is
+    :func:`_belief_now` (unused without ``memory_aware``)."""
     n_cmd = q.shape[1]
     logit0 = 0.0
     logit1 = 0.0
@@ -67,9 +78,6 @@ def _decide(b, c, dt_s, trial, horizon, par, flags, q, ck, last_a, belief, count
         t_hk = -q[b, c, 1]
         t_learn = -q[b, c, 2]
         if flags[mech.M_MEMORY_AWARE] == 1:
-            p = belief[b, c]
-            if flags[mech.M_FORGETTING] == 1:
-                p *= math.exp(-par[mech.P_FORGET] * dt_s / 3600.0)
             t_ok = tk[b, 0]
             t_fail = tk[b, 1]
             t_hk = p * t_ok + (1.0 - p) * t_fail
@@ -124,15 +132,13 @@ def _decide(b, c, dt_s, trial, horizon, par, flags, q, ck, last_a, belief, count
 
 
 @njit(**_RULE_JIT)
-def _update(b, c, a, outcome, dur_s, dt_s, par, flags, q, ck, last_a, belief, count, tk, seen):
-    """Learn from user ``b``'s finished trial: command c, action a, outcome code, duration (s)."""
+def _update(b, c, a, outcome, dur_s, p, par, flags, q, ck, last_a, belief, count, tk, seen):
+    """Learn from user ``b``'s finished trial: command c, action a, outcome code, duration (s);
+    ``p`` is :func:`_belief_now` before the trial."""
     alpha = par[mech.P_ALPHA]
     if flags[mech.M_VALUE] == 1:
         q[b, c, a] += alpha * (-dur_s - q[b, c, a])
     if flags[mech.M_MEMORY_AWARE] == 1:
-        p = belief[b, c]
-        if flags[mech.M_FORGETTING] == 1:
-            p *= math.exp(-par[mech.P_FORGET] * dt_s / 3600.0)
         rate = par[mech.P_RECALL_RATE]
         if a == LEARN:
             p += rate * (1.0 - p)
@@ -183,20 +189,22 @@ def log_likelihood_kernel(command, action, outcome, duration_s, dt_s, trial, hor
     total = 0.0
     for t in range(command.shape[0]):
         c = command[t]
-        _decide(0, c, dt_s[t], trial[t], horizon, par, flags, q, ck, last_a, belief, count, tk, seen, out)
+        p = _belief_now(0, c, dt_s[t], par, flags, belief)
+        _decide(0, c, p, trial[t], horizon, par, flags, q, ck, last_a, count, tk, seen, out)
         total += math.log(max(out[action[t]], 1e-300))
-        _update(0, c, action[t], outcome[t], duration_s[t], dt_s[t], par, flags, q, ck, last_a, belief,
-                count, tk, seen)
+        _update(0, c, action[t], outcome[t], duration_s[t], p, par, flags, q, ck, last_a, belief, count, tk, seen)
     return total
 
 
 @njit(cache=True)
 def batch_decide(targets, dt_s, trial, horizon, par, flags, q, ck, last_a, belief, count, tk, seen,
-                 uniforms, probs, actions):
-    """Probabilities (B, 3) and sampled actions (B,) of every user for its target."""
+                 uniforms, probs, actions, beliefs_now):
+    """Probabilities (B, 3) and sampled actions (B,) of every user for its target; writes each
+    user's :func:`_belief_now` into ``beliefs_now`` (B,) for :func:`batch_update`."""
     for b in range(targets.shape[0]):
-        _decide(b, targets[b], dt_s[b], trial, horizon, par, flags, q, ck, last_a, belief, count, tk, seen,
-                probs[b])
+        p = _belief_now(b, targets[b], dt_s[b], par, flags, belief)
+        beliefs_now[b] = p
+        _decide(b, targets[b], p, trial, horizon, par, flags, q, ck, last_a, count, tk, seen, probs[b])
         u = uniforms[b]
         if u < probs[b, 0]:
             actions[b] = 0
@@ -207,11 +215,11 @@ def batch_decide(targets, dt_s, trial, horizon, par, flags, q, ck, last_a, belie
 
 
 @njit(cache=True)
-def batch_update(targets, actions, outcomes, durations_s, dt_s, par, flags, q, ck, last_a, belief, count, tk,
-                 seen):
-    """Learn from every user's finished trial."""
+def batch_update(targets, actions, outcomes, durations_s, beliefs_now, par, flags, q, ck, last_a, belief, count,
+                 tk, seen):
+    """Learn from every user's finished trial (``beliefs_now`` as written by :func:`batch_decide`)."""
     for b in range(targets.shape[0]):
-        _update(b, targets[b], actions[b], outcomes[b], durations_s[b], dt_s[b], par, flags, q, ck, last_a,
+        _update(b, targets[b], actions[b], outcomes[b], durations_s[b], beliefs_now[b], par, flags, q, ck, last_a,
                 belief, count, tk, seen)
 
 
@@ -416,7 +424,9 @@ class LearningAgent(Agent):
             raise ValueError(f"{self.name}: bind a context before use")
         c, trial = int(info["target"]), int(info["next_trial"])
         dt = self._dt_from_obs(obs)
-        _decide(0, c, dt, trial, self.context.horizon, self._par, self._flags, *self._state, self._p)
+        q, ck, last_a, belief, count, tk, seen = self._state
+        p = _belief_now(0, c, dt, self._par, self._flags, belief)
+        _decide(0, c, p, trial, self.context.horizon, self._par, self._flags, q, ck, last_a, count, tk, seen, self._p)
         self._last_decision = (c, trial, dt)
         return self._p.copy()
 
@@ -429,7 +439,8 @@ class LearningAgent(Agent):
         c, a = int(info["command"]), int(transition.action)
         outcome = OUTCOME_NAMES.index(info["outcome"]) if isinstance(info["outcome"], str) else int(info["outcome"])
         dt = self._dt_from_obs(transition.obs)
-        _update(0, c, a, outcome, float(info["duration_s"]), dt, self._par, self._flags, *self._state)
+        p = _belief_now(0, c, dt, self._par, self._flags, self._state[3])
+        _update(0, c, a, outcome, float(info["duration_s"]), p, self._par, self._flags, *self._state)
 
     def action_values(self, command: int) -> np.ndarray:
         """Current delta-rule values Q[command, (menu, hotkey, learn)] (-seconds) of the single agent."""
@@ -505,6 +516,7 @@ class BatchLearningPolicy:
         self.probabilities = np.zeros((n_users, N_ACTIONS))
         self._actions = np.zeros(n_users, dtype=np.int64)
         self._dt = np.zeros(n_users)
+        self._beliefs_now = np.zeros(n_users)
         self.trial = 0
         self._dt_index: int | None = None
 
@@ -521,14 +533,14 @@ class BatchLearningPolicy:
         u = np.ascontiguousarray(self._u[:, self._u_pos])
         self._u_pos += 1
         batch_decide(targets, self._dt, self.trial, self.horizon, self.par, self.flags, *self.state, u,
-                     self.probabilities, self._actions)
+                     self.probabilities, self._actions, self._beliefs_now)
         return self._actions.copy()
 
     def observe(self, targets: np.ndarray, actions: np.ndarray, outcomes: np.ndarray, durations_s: np.ndarray) -> None:
         """Learn from the trial just run (outcome int codes, durations in seconds)."""
         batch_update(np.asarray(targets, dtype=np.int64), np.asarray(actions, dtype=np.int64),
-                     np.asarray(outcomes, dtype=np.int64), np.asarray(durations_s, dtype=np.float64), self._dt,
-                     self.par, self.flags, *self.state)
+                     np.asarray(outcomes, dtype=np.int64), np.asarray(durations_s, dtype=np.float64),
+                     self._beliefs_now, self.par, self.flags, *self.state)
         self.trial += 1
 
 

@@ -55,10 +55,10 @@ def main() -> int:
     assert fast
     f(theta)  # compile
     compiled = median_time(lambda: f(theta), 200)
-    rules = ("_decide", "_update", "_init_state", "log_likelihood_kernel")
+    rules = ("_belief_now", "_decide", "_update", "_init_state", "log_likelihood_kernel")
     saved = {r: getattr(learning, r) for r in rules}
     try:
-        for r in rules[:3]:
+        for r in rules[:-1]:
             setattr(learning, r, saved[r].py_func)
         arrays = learning.TrialArrays.from_frame(trials, ctx.n_commands)
         par, flags = agent.full_parameters(theta), agent.flags()
