@@ -13,6 +13,7 @@ Run: .venv/bin/python scripts/bench_fit.py [--participants 50] [--starts 10] [--
 from __future__ import annotations
 
 import argparse
+import os
 import time
 
 import numpy as np
@@ -41,6 +42,8 @@ def main() -> int:
     parser.add_argument("--starts", type=int, default=10)
     parser.add_argument("--jobs", type=int, default=2)
     args = parser.parse_args()
+    print("load average (1, 5, 15 min) at start: " + ", ".join(f"{v:.2f}" for v in os.getloadavg())
+          + f" on {os.cpu_count()} cores")
     world = make_world(schedule={"sessions": 25, "trials_per_session": 40})  # 1,000 trials per person
     rng = np.random.default_rng(0)
     rw = ModelSpec("rescorla_wagner")
@@ -97,6 +100,7 @@ def main() -> int:
     print(f"wall time {wall:.1f} s (target < 120 s); converged {int(fits['converged'].sum())}/{len(fits)}; "
           f"{wall / len(fits):.2f} s per participant x model")
     print(fits.groupby("model")[["loglik", "bic"]].sum().to_string(float_format=lambda v: f"{v:.1f}"))
+    print("load average (1, 5, 15 min) at end: " + ", ".join(f"{v:.2f}" for v in os.getloadavg()))
     return 0
 
 
