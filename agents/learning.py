@@ -47,12 +47,23 @@ _DT_FEATURE = "log1p_seconds_since_last_use"
 
 
 # ---- compiled rules ---------------------------------------------------------------------------
-#: Compilation options of the two per-trial rules. They allocate nothing and return no array, so
-#: they run without numba's reference-counting runtime (``_nrt=False``): with it, every call
-#: increfs/decrefs each of its nine array arguments (atomic operations the refcount pruning pass
-#: cannot remove across the mechanism branches, numba issue #2350), which cost ~150 ns of the
-#: ~240 ns per trial. Same code and results; only the bookkeeping goes.
-_RULE_JIT = {"cache": True, "_nrt": False}
+def _rule_jit_options() -> dict[str, bool]:
+    """Compilation options of the per-trial rules.
+
+    They allocate nothing and return no array, so they run without numba's reference-counting
+    runtime (``_nrt=False``): with it, every call increfs/decrefs each of its array arguments
+    (atomic operations the refcount pruning cannot remove across the mechanism branches, numba
+    issue #2350), ~150 ns of the ~240 ns per trial. Same code and results. ``_nrt`` is a private
+    numba option: if a numba version no longer knows it, the rules compile with the runtime on.
+    """
+    try:
+        from numba.core.cpu import CPUTargetOptions
+    except ImportError:
+        return {"cache": True}
+    return {"cache": True, "_nrt": False} if hasattr(CPUTargetOptions, "_nrt") else {"cache": True}
+
+
+_RULE_JIT = _rule_jit_options()
 
 
 @njit(**_RULE_JIT)
