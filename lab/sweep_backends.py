@@ -86,8 +86,25 @@ def check_ray_reachable(address: str, timeout_s: float = RAY_CONNECT_TIMEOUT_S) 
         raise BackendError(f"cannot reach the Ray cluster at {address!r} within {timeout_s:g} s: {err}") from None
 
 
+class _RunWorker:
+    """A Ray actor: one long-lived process per CPU that keeps the package imported and compiled."""
+
+    def compute_runs(self, runs: list[dict[str, Any]]) -> list[dict[str, Any]]:
+        return compute_runs(runs)
+
+
+def _failed(runs: list[dict[str, Any]], err: BaseException) -> list[dict[str, Any]]:
+    """Failure results for runs whose worker was lost (the runs themselves may be fine)."""
+    return [{"run_id": r["run_id"], "status": "failed", "error": f"worker lost: {type(err).__name__}: {err}",
+             "traceback": "", "compute_s": 0.0, "pid": None} for r in runs]
+
+
 class RayBackend:
-    """Runs as Ray tasks: on a local Ray started here, or on the cluster at ``address``."""
+    """Runs on Ray actors (one per CPU): on a local Ray started here, or on the cluster at ``address``.
+
+    Actors rather than plain tasks: Ray may retire idle task workers between sweeps, and each new
+    worker imports the package and loads its compiled functions again (seconds per worker).
+    """
 
     name = "ray"
 
@@ -97,61 +114,105 @@ class RayBackend:
         if address is not None:
             check_ray_reachable(address)
         self._started = False
+        self._actors: list[Any] = []
         self._warm = False
 
     def start(self) -> None:
         """Start (or attach to) Ray; a failure to connect raises :class:`BackendError`."""
         import ray
 
-        if ray.is_initialized():
-            return
-        try:
-            if self.address is None:
-                ray.init(num_cpus=self.workers, include_dashboard=False, log_to_driver=False,
-                         configure_logging=False)
-            else:
-                ray.init(address=self.address, log_to_driver=False, configure_logging=False)
-        except (ConnectionError, RuntimeError, ValueError) as err:
-            where = self.address or "this machine"
-            raise BackendError(f"cannot start Ray on {where}: {err}") from None
-        self._started = True
+        if not ray.is_initialized():
+            try:
+                if self.address is None:
+                    ray.init(num_cpus=self.workers, include_dashboard=False, log_to_driver=False,
+                             configure_logging=False)
+                else:
+                    ray.init(address=self.address, log_to_driver=False, configure_logging=False)
+            except (ConnectionError, RuntimeError, ValueError) as err:
+                where = self.address or "this machine"
+                raise BackendError(f"cannot start Ray on {where}: {err}") from None
+            self._started = True
+        self._ensure_actors()
 
-    def warm_up(self, run: dict[str, Any]) -> None:
-        """Have each worker import the package and load its compiled functions once, on a tiny copy of
-        ``run`` (one user, two trials), so start-up is not charged to the first real runs."""
+    def _ensure_actors(self) -> None:
         import ray
 
         n = max(1, int(ray.cluster_resources().get("CPU", self.workers)))
-        task = ray.remote(num_cpus=1, max_retries=0)(compute_run)
-        ray.get([task.remote(warm_up_copy(run)) for _ in range(n)])
+        actor = ray.remote(num_cpus=1, max_restarts=0)(_RunWorker)
+        while len(self._actors) < n:
+            self._actors.append(actor.remote())
+
+    def warm_up(self, run: dict[str, Any]) -> None:
+        """Have each actor import the package and load its compiled functions once, on a tiny copy of
+        ``run`` (one user, two trials), so start-up is not charged to the first real runs."""
+        import ray
+
+        self._ensure_actors()
+        ray.get([a.compute_runs.remote([warm_up_copy(run)]) for a in self._actors])
         self._warm = True
 
     def run(self, runs: list[dict[str, Any]]) -> Iterator[dict[str, Any]]:
-        """Submit the runs as Ray tasks of a few runs each; yield results as each task completes.
+        """Hand the runs to the actors in groups, two groups in flight per actor; yield results as
+        each group completes. A lost actor's runs come back failed and the actor is replaced.
 
-        Runs are grouped so that there are about eight tasks per CPU (at most 16 runs a task): short
-        runs then do not pay Ray's per-task cost one by one, and long sweeps still land in small steps.
+        Groups hold about an eighth of a CPU's share of the runs (at most 16 runs): short runs then
+        do not pay Ray's per-call cost one by one, and long sweeps still land in small steps.
         """
         import ray
 
-        if not self._warm and runs:
+        if not runs:
+            return
+        self._ensure_actors()
+        if not self._warm:
             self.warm_up(runs[0])
-        cpus = max(1, int(ray.cluster_resources().get("CPU", self.workers)))
-        size = max(1, min(MAX_RUNS_PER_TASK, len(runs) // (8 * cpus)))
-        task = ray.remote(num_cpus=1, max_retries=0)(compute_runs)
-        refs = [task.remote(runs[i:i + size]) for i in range(0, len(runs), size)]
-        while refs:
-            ready, refs = ray.wait(refs, num_returns=1)
+        size = max(1, min(MAX_RUNS_PER_TASK, len(runs) // (8 * len(self._actors))))
+        groups = [runs[i:i + size] for i in range(0, len(runs), size)]
+        nxt = 0
+        in_flight: dict[Any, tuple[int, list[dict[str, Any]]]] = {}
+
+        def submit(slot: int) -> None:
+            nonlocal nxt
+            if nxt < len(groups):
+                in_flight[self._actors[slot].compute_runs.remote(groups[nxt])] = (slot, groups[nxt])
+                nxt += 1
+
+        for slot in range(len(self._actors)):
+            submit(slot)
+            submit(slot)
+        while in_flight:
+            ready, _ = ray.wait(list(in_flight), num_returns=1)
             for ref in ready:
-                yield from ray.get(ref)
+                slot, group = in_flight.pop(ref)
+                try:
+                    results = ray.get(ref)
+                except ray.exceptions.RayError as err:
+                    results = _failed(group, err)
+                    if isinstance(err, ray.exceptions.RayActorError):
+                        actor = ray.remote(num_cpus=1, max_restarts=0)(_RunWorker)
+                        self._actors[slot] = actor.remote()
+                submit(slot)
+                yield from results
 
     def stop(self) -> None:
-        """Shut Ray down if this backend started it."""
+        """Shut Ray down if this backend started it; otherwise keep the warm actors for the next sweep."""
         if self._started:
             import ray
 
             ray.shutdown()
             self._started = False
+            self._actors = []
+            self._warm = False
+
+    def close(self) -> None:
+        """Kill the actors (for a Ray session this backend did not start)."""
+        import ray
+
+        if ray.is_initialized():
+            for a in self._actors:
+                ray.kill(a)
+        self._actors = []
+        self._warm = False
+        self.stop()
 
 
 def warm_up_copy(run: dict[str, Any]) -> dict[str, Any]:
