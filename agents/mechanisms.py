@@ -96,7 +96,10 @@ MECHANISMS: dict[str, Mechanism] = {
                                 "logit bonus for repeating the command's last action")),
         ), doc="repeat the last action chosen for the same command"),
         Mechanism("lapse", M_LAPSE, (
-            (P_LAPSE, ParamSpec("lapse", 0.02, 0.0, 1.0, "logit", "probability of a uniform random action")),
+            (P_LAPSE, ParamSpec("lapse", 0.02, 0.0, 0.5, "logit",
+                                "probability of a uniform random action; at most 0.5, since beyond it the "
+                                "choices carry little information and fits stall on a flat likelihood "
+                                "(an assumption of this project)")),
         ), doc="uniform random action with a small probability"),
     )
 }

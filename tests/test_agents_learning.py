@@ -79,7 +79,7 @@ def test_single_agent_batch_policy_and_likelihood_agree(env, name):
 
 DISTANT = {
     "rescorla_wagner": {"alpha": 0.9, "beta": 0.2, "recall_rate": 0.05, "horizon_uses": 300.0, "lapse": 0.5},
-    "choice_kernel": {"alpha_ck": 0.9, "beta_ck": 20.0, "stickiness": -5.0, "lapse": 0.6},
+    "choice_kernel": {"alpha_ck": 0.9, "beta_ck": 20.0, "stickiness": -5.0, "lapse": 0.5},
     "rw_choice_kernel": {"alpha": 0.9, "beta": 0.2, "beta_ck": 15.0, "stickiness": -4.0, "lapse": 0.5},
 }
 
