@@ -23,7 +23,11 @@ def register_envs() -> None:
 
     if ENV_ID in registry:
         return
-    register(id=ENV_ID, entry_point="shortcut_gym.envs.env:CommandSelectionEnv")
+    register(
+        id=ENV_ID,
+        entry_point="shortcut_gym.envs.env:CommandSelectionEnv",
+        vector_entry_point="shortcut_gym.envs.vector:CommandSelectionVectorEnv",
+    )
 
 
 class _RegisterAfterLoad(importlib.abc.Loader):

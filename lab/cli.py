@@ -21,7 +21,7 @@ COMMAND_MODULES: list[str] = [
 ]
 
 
-class CLIError(Exception):
+class CLIError(ValueError):
     """A bad command-line value; the message names the option and the value."""
 
 

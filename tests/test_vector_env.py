@@ -97,3 +97,15 @@ def test_sb3_vec_env_equals_dummy_vec_env_and_trains() -> None:
                 seed=0, device="cpu")
     model.learn(total_timesteps=128)
     assert model.num_timesteps >= 128
+
+
+def test_make_vec_uses_the_native_vector_env():
+    import gymnasium as gym
+
+    from shortcut_gym.envs.vector import CommandSelectionVectorEnv
+
+    venv = gym.make_vec("shortcut_gym/CommandSelection-v0", num_envs=3, vectorization_mode="vector_entry_point",
+                        schedule={"sessions": 1, "trials_per_session": 10})
+    assert isinstance(venv.unwrapped, CommandSelectionVectorEnv) and venv.num_envs == 3
+    obs, _ = venv.reset(seed=0)
+    assert obs.shape == (3, venv.single_observation_space.shape[0])
