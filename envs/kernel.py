@@ -189,6 +189,101 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
 
 
 @njit(cache=True)
+def step_user(
+    b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, ops, full,
+):
+    """Advance user ``b`` one trial with action ``act``; returns (duration_s, outcome code, p_recall).
+
+    Writes the operator breakdown into ``ops`` (10,). With ``full`` False the recall probability is
+    computed only when the action needs it (a hotkey attempt) and returned as -1.0 otherwise; the
+    duration, outcome and memory state are the same either way. Writes no observation.
+    """
+    t = us[b, U_TRIAL]
+    c = sched_cmd[b, t]
+    now = sched_clock[b, t]
+    f = fs[b, c]
+    s = ist[b, c]
+    trc = tr[b, c]
+    o = ops
+    o[:] = 0.0
+    hand = us[b, U_HAND]
+    if full or act == HOTKEY:
+        a = activation(ipar, par, f, s, trc, now)
+        p = recall_p(par, a)
+    else:
+        a = -np.inf
+        p = -1.0
+    if act == MENU:
+        dur = _menu(par, cmdc[c], s, hand, True, o)
+        res = OUT_MENU
+        w = par[W_MENU]
+        us[b, U_HAND] = HAND_MOUSE
+    elif act == LEARN:
+        dur = _menu(par, cmdc[c], s, hand, True, o) + par[P_ENC]
+        o[O_ENCODING] += par[P_ENC]
+        res = OUT_LEARNED
+        w = par[W_LEARN]
+        s[S_LEARN] += 1
+        us[b, U_HAND] = HAND_MOUSE
+    else:
+        dur = par[P_M]
+        o[O_M] += par[P_M]
+        if hand == HAND_MOUSE:
+            dur += par[P_H]
+            o[O_H] += par[P_H]
+        u = sched_u[b, t]
+        keys = cmdc[c, C_KEYS] * par[P_K]
+        if u < p:
+            lat = par[P_F] * math.exp(-a)
+            dur += lat + keys
+            o[O_RETRIEVAL] += lat
+            o[O_K] += keys
+            res = OUT_HOTKEY
+            w = par[W_HK_OK]
+            s[S_HK_OK] += 1
+            us[b, U_HAND] = HAND_KEYBOARD
+        else:
+            lat = par[P_F] * math.exp(-par[P_TAU])
+            dur += lat
+            o[O_RETRIEVAL] += lat
+            if u < p + (1.0 - p) * par[P_COMM]:
+                undo_keys = par[P_UNDOK] * par[P_K]
+                dur += keys + par[P_M] + undo_keys
+                o[O_K] += keys + undo_keys
+                o[O_M] += par[P_M]
+                res = OUT_WRONG
+            else:
+                res = OUT_FORGOTTEN
+            dur += _menu(par, cmdc[c], s, HAND_KEYBOARD, False, o)
+            w = par[W_HK_FAIL]
+            s[S_HK_FAIL] += 1
+            us[b, U_HAND] = HAND_MOUSE
+    add_trace(ipar, par, f, s, trc, now, w)
+    s[S_EXPOSURE] += 1
+    f[F_LAST_USE] = sched_onset[b, t]
+    us[b, U_TRIAL] = t + 1
+    return dur, res, p
+
+
+@njit(cache=True)
+def seconds_since_last_use_feature(ist, fs, b, c, onset_s):
+    """The ``log1p_seconds_since_last_use`` entry :func:`write_obs` stores (float32) for user ``b``'s
+    upcoming target ``c`` with onset ``onset_s``."""
+    if ist[b, c, S_EXPOSURE] > 0:
+        return np.float32(math.log1p(max(onset_s - fs[b, c, F_LAST_USE], 0.0)))
+    return np.float32(0.0)
+
+
+@njit(cache=True)
+def write_obs_users(ipar, par, n_cmd, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, obs):
+    """:func:`write_obs` for every user (rows of the state and schedule arrays)."""
+    horizon = sched_cmd.shape[1]
+    for b in range(obs.shape[0]):
+        write_obs(ipar, par, n_cmd, horizon, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b],
+                  sched_onset[b], obs[b])
+
+
+@njit(cache=True)
 def step_users(
     actions, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
     reward, outcome, ops, p_recall, obs,
@@ -198,69 +293,10 @@ def step_users(
     n_cmd = cmdc.shape[0]
     horizon = sched_cmd.shape[1]
     for b in range(n_users):
-        t = us[b, U_TRIAL]
-        c = sched_cmd[b, t]
-        now = sched_clock[b, t]
-        f = fs[b, c]
-        s = ist[b, c]
-        trc = tr[b, c]
-        o = ops[b]
-        o[:] = 0.0
-        hand = us[b, U_HAND]
-        a = activation(ipar, par, f, s, trc, now)
-        p = recall_p(par, a)
+        dur, res, p = step_user(b, actions[b], ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock,
+                                sched_onset, sched_u, ops[b], True)
         p_recall[b] = p
-        act = actions[b]
-        if act == MENU:
-            dur = _menu(par, cmdc[c], s, hand, True, o)
-            res = OUT_MENU
-            w = par[W_MENU]
-            us[b, U_HAND] = HAND_MOUSE
-        elif act == LEARN:
-            dur = _menu(par, cmdc[c], s, hand, True, o) + par[P_ENC]
-            o[O_ENCODING] += par[P_ENC]
-            res = OUT_LEARNED
-            w = par[W_LEARN]
-            s[S_LEARN] += 1
-            us[b, U_HAND] = HAND_MOUSE
-        else:
-            dur = par[P_M]
-            o[O_M] += par[P_M]
-            if hand == HAND_MOUSE:
-                dur += par[P_H]
-                o[O_H] += par[P_H]
-            u = sched_u[b, t]
-            keys = cmdc[c, C_KEYS] * par[P_K]
-            if u < p:
-                lat = par[P_F] * math.exp(-a)
-                dur += lat + keys
-                o[O_RETRIEVAL] += lat
-                o[O_K] += keys
-                res = OUT_HOTKEY
-                w = par[W_HK_OK]
-                s[S_HK_OK] += 1
-                us[b, U_HAND] = HAND_KEYBOARD
-            else:
-                lat = par[P_F] * math.exp(-par[P_TAU])
-                dur += lat
-                o[O_RETRIEVAL] += lat
-                if u < p + (1.0 - p) * par[P_COMM]:
-                    undo_keys = par[P_UNDOK] * par[P_K]
-                    dur += keys + par[P_M] + undo_keys
-                    o[O_K] += keys + undo_keys
-                    o[O_M] += par[P_M]
-                    res = OUT_WRONG
-                else:
-                    res = OUT_FORGOTTEN
-                dur += _menu(par, cmdc[c], s, HAND_KEYBOARD, False, o)
-                w = par[W_HK_FAIL]
-                s[S_HK_FAIL] += 1
-                us[b, U_HAND] = HAND_MOUSE
-        add_trace(ipar, par, f, s, trc, now, w)
-        s[S_EXPOSURE] += 1
-        f[F_LAST_USE] = sched_onset[b, t]
         reward[b] = -dur
         outcome[b] = res
-        us[b, U_TRIAL] = t + 1
         write_obs(ipar, par, n_cmd, horizon, fs[b], ist[b], tr[b], us[b], sched_cmd[b],
                   sched_clock[b], sched_onset[b], obs[b])

@@ -8,13 +8,44 @@ both step through :func:`shortcut_gym.envs.kernel.step_users`, so trajectories a
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import overload
 
 import numpy as np
 
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ActionError
-from shortcut_gym.envs.task import Schedule
+from shortcut_gym.envs.task import Schedule, session_onsets
 from shortcut_gym.envs.world import World
+
+
+class _LazySchedules(Sequence[Schedule]):
+    """The users' :class:`Schedule` objects, built on first access from the simulator's arrays
+    (a given schedule is returned as the object that was given)."""
+
+    def __init__(self, sim: BatchSimulator, given: list[Schedule | None]) -> None:
+        self._sim = sim
+        self._made: list[Schedule | None] = given
+
+    def __len__(self) -> int:
+        return len(self._made)
+
+    @overload
+    def __getitem__(self, i: int) -> Schedule: ...
+
+    @overload
+    def __getitem__(self, i: slice) -> list[Schedule]: ...
+
+    def __getitem__(self, i: int | slice) -> Schedule | list[Schedule]:
+        if isinstance(i, slice):
+            return [self[j] for j in range(*i.indices(len(self)))]
+        b = range(len(self))[i]
+        made = self._made[b]
+        if made is None:
+            sim = self._sim
+            made = Schedule(command=sim.sched_cmd[b].copy(), onset_s=sim.sched_onset[b].copy(),
+                            session=sim.sched_session[b].copy(), gap_total_s=sim.sched_gap[b].copy())
+            self._made[b] = made
+        return made
 
 
 class BatchSimulator:
@@ -25,7 +56,14 @@ class BatchSimulator:
         self.par, self.ipar = world.parameters()
         self.cmdc = world.command_constants()
         self.n_users = 0
-        self.schedules: list[Schedule] = []
+        self.schedules: Sequence[Schedule] = []
+        # the sampled schedules' fixed part, the same for every user (computed once per world)
+        self._onset, self._session, self._gap = session_onsets(world.schedule)
+        self._clock = self._onset - (1.0 - world.memory.gap_time_scale) * self._gap
+        p = world.commands.probability
+        # Generator.choice(n, size, p=p) draws ``random(size)`` and looks each draw up in this cdf
+        self._cdf = p.cumsum()
+        self._cdf /= self._cdf[-1]
 
     def reset(
         self,
@@ -43,19 +81,49 @@ class BatchSimulator:
         given = list(schedules) if schedules is not None else [None] * n
         if len(given) != n:
             raise ValueError(f"{len(given)} schedules for {n} users")
-        drawn = [self.world.draw(g, s) for g, s in zip(gens, given)]
-        self.schedules = [d[0] for d in drawn]
-        horizons = {s.horizon for s in self.schedules}
+        replayed = [b for b, s in enumerate(given) if s is not None]
+        horizons = {given[b].horizon for b in replayed}  # type: ignore[union-attr]
+        if len(replayed) < n:
+            horizons.add(self.world.horizon)
         if len(horizons) != 1:
             raise ValueError(f"all users of a batch need the same horizon, got {sorted(horizons)}")
         h = horizons.pop()
-        scale = self.world.memory.gap_time_scale
-        self.sched_cmd = np.stack([s.command for s in self.schedules]).astype(np.int64)
-        self.sched_onset = np.stack([s.onset_s for s in self.schedules]).astype(np.float64)
-        self.sched_clock = np.stack([s.memory_clock_s(scale) for s in self.schedules]).astype(np.float64)
-        self.sched_u = np.stack([d[1] for d in drawn])
         c = self.world.commands.n_commands
-        cap = self.world.trace_capacity(self.schedules)
+        self.sched_cmd = np.empty((n, h), dtype=np.int64)
+        self.sched_onset = np.empty((n, h))
+        self.sched_clock = np.empty((n, h))
+        self.sched_session = np.empty((n, h), dtype=np.int64)
+        self.sched_gap = np.empty((n, h))
+        self.sched_u = np.empty((n, h))
+        # per sampled user exactly world.draw's calls: choice(c, size=h, p) is random(h) looked up in
+        # the cdf, then random(h); one random(2 h) call yields the same doubles and generator state.
+        # Users draw in order, so generators shared between users advance as in world.draw.
+        scale = self.world.memory.gap_time_scale
+        sampled: list[int] = []
+        draws: list[np.ndarray] = []
+        for b, g in enumerate(gens):
+            if given[b] is None:
+                sampled.append(b)
+                draws.append(g.random(2 * h))
+                continue
+            sch, u = self.world.draw(g, given[b])
+            self.sched_cmd[b] = sch.command
+            self.sched_onset[b] = sch.onset_s
+            self.sched_clock[b] = sch.memory_clock_s(scale)
+            self.sched_session[b] = sch.session
+            self.sched_gap[b] = sch.gap_total_s
+            self.sched_u[b] = u
+        if sampled:
+            drawn = np.stack(draws)
+            rows = np.asarray(sampled) if len(sampled) < n else slice(None)
+            self.sched_cmd[rows] = self._cdf.searchsorted(drawn[:, :h], side="right")
+            self.sched_u[rows] = drawn[:, h:]
+            self.sched_onset[rows] = self._onset
+            self.sched_clock[rows] = self._clock
+            self.sched_session[rows] = self._session
+            self.sched_gap[rows] = self._gap
+        self.schedules = _LazySchedules(self, given)
+        cap = self._trace_capacity(c)
         self.n_users, self.horizon = n, h
         self.fs = np.zeros((n, c, k.N_FS))
         self.ist = np.zeros((n, c, k.N_IS), dtype=np.int64)
@@ -66,10 +134,17 @@ class BatchSimulator:
         self.ops = np.zeros((n, k.N_OPS))
         self.p_recall = np.zeros(n)
         self.obs = np.zeros((n, self.world.obs_dim), dtype=np.float32)
-        for b in range(n):
-            k.write_obs(self.ipar, self.par, c, h, self.fs[b], self.ist[b], self.tr[b], self.us[b],
-                        self.sched_cmd[b], self.sched_clock[b], self.sched_onset[b], self.obs[b])
+        k.write_obs_users(self.ipar, self.par, c, self.fs, self.ist, self.tr, self.us, self.sched_cmd,
+                          self.sched_clock, self.sched_onset, self.obs)
         return self.obs
+
+    def _trace_capacity(self, n_cmd: int) -> int:
+        """:meth:`World.trace_capacity` of the users' schedules, from the command array."""
+        if self.world.memory.kind in ("actr", "exponential"):
+            return self.world.trace_capacity([])
+        n = self.sched_cmd.shape[0]
+        flat = (self.sched_cmd + n_cmd * np.arange(n)[:, None]).ravel()
+        return max(int(np.bincount(flat, minlength=n * n_cmd).max()), 1)
 
     @property
     def trial(self) -> int:
