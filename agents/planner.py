@@ -19,7 +19,8 @@ The MDP of command c (states s, actions menu/hotkey/learn, stages = uses of c le
   interval and the between-session gaps (a gap of k trials crosses k / trials_per_session session
   boundaries, the fractional part as a probability), discretised by 8 equal-probability quantiles.
   The new activation is spread linearly over the two neighbouring grid points.
-* Reward: minus the expected seconds of the action in that state.
+* Reward: minus the expected seconds of the action in that state, plus the homing time the
+  action causes on the next trial (below): the marginal cost of the decision.
 
 Approximations (each makes the planner exact only for its own model, not for the simulator):
 
@@ -27,17 +28,29 @@ Approximations (each makes the planner exact only for its own model, not for the
    were one trace laid one mean gap before the current use: S' = S ((a + g)/a)^-d + w g^-d with
    a = E[gap]; exponential decay needs no approximation (S' = (S + w) e^{-lambda g});
    power forgetting uses the same effective-age rule. Spacing-sensitive decay is not supported.
-2. The hand position is its stationary expectation: before a trial the hand is on the keyboard
-   with probability ``keyboard_share`` (default 0.5), so a menu costs keyboard_share x H and a
-   hotkey (1 - keyboard_share) x H in expectation; a failed hotkey always homes back (H).
-3. Menu selections are costed at full menu expertise (e = 1, Hick-Hyman decision time); the first
-   few selections really cost up to |search - decision| more, on every menu-using action alike.
-4. Recall latency uses the grid activation of the state; commands are planned independently.
+   The state at decision time is exact (the agent's own copy of the world's memory, the O(1)
+   hybrid base level for kind "actr"); only the predicted future strength is approximate.
+2. The hand position is shared by all commands, so it is a mean field. With ``keyboard_share``
+   None (default) the plan finds its own shares by fixed point: start from a menu-only world,
+   solve, measure the plan's usage-weighted share of uses that recall a hotkey (ks: the hand is
+   on the keyboard before a trial) and that attempt one (q: the next trial wants the keyboard),
+   solve again (at most 6 rounds). A menu then costs ks H, a hotkey (1 - ks) H, and the action
+   is charged the next trial's homing: q H if it leaves the hand on the mouse (menu, learn, failed
+   hotkey), (1 - q) H if on the keyboard. Each switch is thus counted by both trials next to it:
+   right for decisions (both cause it), so plan values overstate total homing time. A number
+   fixes ks = q. The shares of the other trials are taken as independent of this command's state.
+   At decision time the known hand position replaces ks for the current trial.
+3. Menu selections in the MDP are costed at full menu expertise (e = 1, Hick-Hyman decision
+   time); at decision time the current trial's novice term (search - decision) / t for its t-th
+   menu selection is added to menu-using paths, but later uses keep e = 1.
+4. Recall latency uses the grid activation of the state; commands are planned independently;
+   the gap to the next use is drawn from the usage probability, not the agent's schedule.
+5. Uses left = 1 + round(p_c x trials after this one), not the realised count.
 
-The agent tracks each command's actual activation with the world's exact memory formula from its
+The agent tracks each command's actual activation with the world's memory formula from its
 own history (when it learned, recalled or failed, at the schedule's onsets), maps it to the
-nearest grid state, and looks up the optimal action for (command, state, expected uses left),
-uses left = 1 + round(p_c x trials after this one).
+nearest grid state, and takes the action of best Q = R + P V for (command, state, expected uses
+left) with the current trial's hand and menu-expertise terms made exact.
 """
 
 from __future__ import annotations
@@ -52,7 +65,7 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.envs.memory import actr_activation, exponential_activation, power_activation
+from shortcut_gym.envs.memory import HybridBaseLevel, actr_activation, exponential_activation, power_activation
 from shortcut_gym.envs.task import session_onsets
 from shortcut_gym.envs.world import World, make_world
 
@@ -62,19 +75,35 @@ GRID_HALF_WIDTH = 8.0  # in units of the retrieval noise s
 
 @dataclass(frozen=True)
 class ActionTimes:
-    """Expected seconds of each path for one command (see module approximations 2 and 3)."""
+    """Expected seconds of each path for one command (see module approximations 2 and 3).
+
+    ``menu_s``, ``learn_s``, ``hotkey_fixed_s`` and ``failure_s`` are the trial's own time, with the
+    hand on the keyboard before the trial with probability ``keyboard_share``. ``return_after_mouse_s``
+    and ``return_after_keyboard_s`` are the homing time the *next* trial pays because this one left
+    the hand on the mouse (menu, learn, failed hotkey) or on the keyboard (recalled hotkey).
+    """
 
     menu_s: float
     learn_s: float
     hotkey_fixed_s: float  # M + expected H + keys x K of a recalled hotkey, without the latency
     latency_factor_s: float
     failure_s: float  # a failed attempt including the menu that follows (omission/commission mix)
+    return_after_mouse_s: float = 0.0
+    return_after_keyboard_s: float = 0.0
 
 
-def action_times(world: World, command: int, keyboard_share: float = 0.5) -> ActionTimes:
-    """Per-path expected times (s) of ``command`` from the world's cost settings."""
-    if not 0.0 <= keyboard_share <= 1.0:
-        raise ValueError(f"keyboard_share must be in [0, 1], got {keyboard_share}")
+def action_times(world: World, command: int, keyboard_share: float = 0.5,
+                 next_hotkey_share: float | None = None) -> ActionTimes:
+    """Per-path expected times (s) of ``command`` from the world's cost settings.
+
+    ``keyboard_share``: probability that the hand is on the keyboard before the trial;
+    ``next_hotkey_share``: probability that the next trial (any command) starts with a hotkey
+    attempt (default: ``keyboard_share``), which prices the hand's return.
+    """
+    q = keyboard_share if next_hotkey_share is None else next_hotkey_share
+    for label, v in (("keyboard_share", keyboard_share), ("next_hotkey_share", q)):
+        if not 0.0 <= v <= 1.0:
+            raise ValueError(f"{label} must be in [0, 1], got {v}")
     c = world.costs
     klm = c.klm
     cmdc = world.command_constants()[command]
@@ -86,7 +115,8 @@ def action_times(world: World, command: int, keyboard_share: float = 0.5) -> Act
     fail_latency = world.memory.latency_factor_s * math.exp(-world.memory.threshold)
     commission = c.errors.commission_share * (keys + klm.mental_s + c.errors.undo_keystrokes * klm.k_s)
     failure = hotkey_fixed - keys + fail_latency + commission + klm.home_s + menu_core
-    return ActionTimes(menu, menu + c.learn.encoding_s, hotkey_fixed, world.memory.latency_factor_s, failure)
+    return ActionTimes(menu, menu + c.learn.encoding_s, hotkey_fixed, world.memory.latency_factor_s, failure,
+                       q * klm.home_s, (1.0 - q) * klm.home_s)
 
 
 def gap_distribution(world: World, command: int) -> tuple[np.ndarray, np.ndarray]:
@@ -150,15 +180,20 @@ def _spread(activations: np.ndarray, probs: np.ndarray, grid: np.ndarray, row: n
         row[2 + i] += w * f
 
 
-def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_share: float = 0.5) -> CommandMDP:
-    """The discretised MDP of ``command`` (see the module docstring for every approximation)."""
+def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_share: float = 0.5,
+                      next_hotkey_share: float | None = None) -> CommandMDP:
+    """The discretised MDP of ``command`` (see the module docstring for every approximation).
+
+    R is the marginal cost of the action: its own expected time plus the hand's return paid by the
+    next trial (``next_hotkey_share``, default ``keyboard_share``, see :func:`action_times`).
+    """
     if n_bins < 2:
         raise ValueError(f"n_bins must be >= 2, got {n_bins}")
     m = world.memory
     grid = np.linspace(m.threshold - GRID_HALF_WIDTH * m.noise_s, m.threshold + GRID_HALF_WIDTH * m.noise_s, n_bins)
     act = np.concatenate([[-np.inf], grid])
     p_rec = np.concatenate([[0.0], 1.0 / (1.0 + np.exp(-(grid - m.threshold) / m.noise_s))])
-    times = action_times(world, command, keyboard_share)
+    times = action_times(world, command, keyboard_share, next_hotkey_share)
     gaps, gp = gap_distribution(world, command)
     mean_gap = float(np.dot(gaps, gp))
     w = m.weights
@@ -176,9 +211,10 @@ def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_sha
                 with np.errstate(divide="ignore"):
                     _spread(np.log(np.asarray(nxt, dtype=float) * np.ones_like(gaps)), prob * gp, grid, P[a, s])
         ok = times.hotkey_fixed_s + (times.latency_factor_s * math.exp(-act[s]) if s > 0 else 0.0)
-        R[s, k.MENU] = -times.menu_s
-        R[s, k.LEARN] = -times.learn_s
-        R[s, k.HOTKEY] = -(p_rec[s] * ok + (1 - p_rec[s]) * times.failure_s)
+        R[s, k.MENU] = -(times.menu_s + times.return_after_mouse_s)
+        R[s, k.LEARN] = -(times.learn_s + times.return_after_mouse_s)
+        R[s, k.HOTKEY] = -(p_rec[s] * (ok + times.return_after_keyboard_s)
+                           + (1 - p_rec[s]) * (times.failure_s + times.return_after_mouse_s))
     return CommandMDP(command, act, p_rec, P, R)
 
 
@@ -196,54 +232,143 @@ def solve_finite_horizon(P: np.ndarray, R: np.ndarray, n_stages: int) -> tuple[n
     return V, policy
 
 
+def expected_uses(world: World, command: int) -> int:
+    """Uses of ``command`` in one simulated user's horizon, p_c x horizon rounded (at least 1)."""
+    return max(1, int(round(float(world.commands.probability[command]) * world.horizon)))
+
+
+def hotkey_shares(mdp: CommandMDP, actions: np.ndarray) -> tuple[float, float]:
+    """(share of uses that attempt a hotkey, share that recall it) when use j of ``len(actions)``
+    takes ``actions[j]`` (an action per state, shape (uses, S)), starting from the no-trace state."""
+    dist = np.zeros(mdp.n_states)
+    dist[0] = 1.0
+    attempt = success = 0.0
+    cols = np.arange(mdp.n_states)
+    for row in actions:
+        hot = dist * (row == k.HOTKEY)
+        attempt += hot.sum()
+        success += float(np.dot(hot, mdp.p_recall))
+        dist = np.einsum("s,st->t", dist, mdp.P[row, cols])
+    n = max(len(actions), 1)
+    return attempt / n, success / n
+
+
 @dataclass
 class Plan:
-    """Optimal values and actions per command: ``policy[c][n, s]`` with n uses left."""
+    """Optimal values and actions per command: ``policy[c][n, s]`` with n uses left.
+
+    ``keyboard_share`` / ``next_hotkey_share``: the hand-position shares the plan was solved with.
+    """
 
     mdps: list[CommandMDP]
     values: list[np.ndarray]
     policy: list[np.ndarray]
     max_uses: int
+    keyboard_share: float = 0.5
+    next_hotkey_share: float = 0.5
 
 
-def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40, keyboard_share: float = 0.5) -> Plan:
-    """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon)."""
+def _solve(world: World, n: int, n_bins: int, ks: float, q: float) -> Plan:
+    mdps = [build_command_mdp(world, c, n_bins, ks, q) for c in range(world.commands.n_commands)]
+    solved = [solve_finite_horizon(m.P, m.R, n) for m in mdps]
+    return Plan(mdps, [v for v, _ in solved], [p for _, p in solved], n, ks, q)
+
+
+def _plan_shares(world: World, plan: Plan) -> tuple[float, float]:
+    """Usage-weighted (success, attempt) hotkey shares of a plan's own policy over the horizon."""
+    prob = world.commands.probability
+    ks = q = 0.0
+    for c, mdp in enumerate(plan.mdps):
+        n_c = min(expected_uses(world, c), plan.max_uses)
+        rows = plan.policy[c][np.arange(n_c, 0, -1)]
+        attempt, success = hotkey_shares(mdp, rows)
+        ks += float(prob[c]) * success
+        q += float(prob[c]) * attempt
+    return ks, q
+
+
+def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
+               keyboard_share: float | None = None, iterations: int = 6) -> Plan:
+    """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon).
+
+    ``keyboard_share`` None (default): the hand shares are the plan's own (approximation 2): start
+    from a menu-only world (shares 0), solve, measure the plan's usage-weighted hotkey success and
+    attempt shares, and solve again, ``iterations`` times at most (stops once both move < 0.005).
+    A number fixes both shares to it.
+    """
     n = world.horizon if max_uses is None else int(max_uses)
     if n < 1:
         raise ValueError(f"max_uses must be >= 1, got {max_uses}")
-    mdps = [build_command_mdp(world, c, n_bins, keyboard_share) for c in range(world.commands.n_commands)]
-    solved = [solve_finite_horizon(m.P, m.R, n) for m in mdps]
-    return Plan(mdps, [v for v, _ in solved], [p for _, p in solved], n)
+    if keyboard_share is not None:
+        return _solve(world, n, n_bins, float(keyboard_share), float(keyboard_share))
+    ks = q = 0.0
+    plan = _solve(world, n, n_bins, ks, q)
+    for _ in range(iterations):
+        new_ks, new_q = _plan_shares(world, plan)
+        if abs(new_ks - ks) < 0.005 and abs(new_q - q) < 0.005:
+            break
+        ks, q = new_ks, new_q
+        plan = _solve(world, n, n_bins, ks, q)
+    return plan
 
 
-def break_even_table(world: World, keyboard_share: float = 0.5, n_bins: int = 40) -> pd.DataFrame:
+def _learn_once_recall(world: World, n_bins: int) -> list[np.ndarray]:
+    """Per command, the expected recall probability and latency at each later use when the first
+    use learns and every later one tries the hotkey (the planner's transition model)."""
+    out = []
+    for c in range(world.commands.n_commands):
+        mdp = build_command_mdp(world, c, n_bins, 0.0)
+        dist = mdp.P[k.LEARN, 0].copy()
+        lat = np.where(np.isfinite(mdp.activation), world.memory.latency_factor_s * np.exp(-mdp.activation), 0.0)
+        rows = []
+        for _ in range(max(expected_uses(world, c) - 1, 1)):
+            p_j = float(np.dot(dist, mdp.p_recall))
+            rows.append((p_j, float(np.dot(dist * mdp.p_recall, lat)) / p_j if p_j > 0 else 0.0))
+            dist = dist @ mdp.P[k.HOTKEY]
+        out.append(np.asarray(rows))
+    return out
+
+
+def break_even_table(world: World, keyboard_share: float | None = None, n_bins: int = 40) -> pd.DataFrame:
     """Analytic break-even per command: learning pays when expected future uses U satisfy
     U (menu - E[hotkey]) > learning cost, E[hotkey] = p ok + (1 - p) failure, i.e. when
     U x saving > learning cost + U x expected error cost, so U* = learning cost / (saving - error cost).
 
-    p is the expected recall probability at the next use after one learning trace (the planner's
-    transition from the no-trace state); the rule treats p as constant over the later uses.
+    It compares two worlds: every command by menu, and every command learned at its first use and
+    tried by hotkey after that. p and the recall latency are the means over the command's
+    expected later uses (p_c x horizon - 1) in the planner's memory model, starting from one
+    learning trace and laying the hotkey traces; ``p_recall_after_learning`` is p at the next use.
+    Hand: ``keyboard_share`` None (default) puts the hand on the mouse throughout the menu world
+    and, in the learning world, on the keyboard before a trial with the usage-weighted share of
+    recalled hotkeys there; a number is the share before every trial of both worlds.
     """
+    recall = _learn_once_recall(world, n_bins)
+    if keyboard_share is None:
+        prob = world.commands.probability
+        learner_share = float(sum(prob[c] * r[:, 0].sum() / (len(r) + 1) for c, r in enumerate(recall)))
+        menu_share = 0.0
+    else:
+        learner_share = menu_share = float(keyboard_share)
     rows = []
     for c in range(world.commands.n_commands):
-        times = action_times(world, c, keyboard_share)
-        mdp = build_command_mdp(world, c, n_bins, keyboard_share)
-        nxt = mdp.P[k.LEARN, 0]
-        p = float(np.dot(nxt, mdp.p_recall))
-        latency = float(sum(w * times.latency_factor_s * math.exp(-a) for w, a in zip(nxt[1:], mdp.activation[1:])))
-        latency = latency / max(1e-300, float(nxt[1:].sum())) if nxt[1:].sum() > 0 else 0.0
+        menu_world = action_times(world, c, menu_share)
+        times = action_times(world, c, learner_share)
+        p = float(recall[c][:, 0].mean())
+        pw = recall[c][:, 0]
+        latency = float(np.dot(pw, recall[c][:, 1]) / pw.sum()) if pw.sum() > 0 else 0.0
         ok = times.hotkey_fixed_s + latency
-        saving = times.menu_s - ok
+        saving = menu_world.menu_s - ok
         error = (1 - p) * (times.failure_s - ok)
         net = saving - error
-        cost = times.learn_s - times.menu_s
+        cost = times.learn_s - menu_world.menu_s
         be = cost / net if net > 0 else math.inf
         expected = float(world.commands.probability[c] * world.horizon)
         rows.append({
             "command": c, "command_name": world.commands.names[c],
             "usage_probability": float(world.commands.probability[c]), "expected_uses": expected,
-            "menu_s": times.menu_s, "learn_s": times.learn_s, "hotkey_recalled_s": ok,
-            "hotkey_failed_s": times.failure_s, "p_recall_after_learning": p, "learning_cost_s": cost,
+            "menu_s": menu_world.menu_s, "learn_s": times.learn_s, "hotkey_recalled_s": ok,
+            "hotkey_failed_s": times.failure_s, "p_recall_after_learning": float(recall[c][0, 0]),
+            "mean_p_recall": p, "keyboard_share_learning": learner_share, "learning_cost_s": cost,
             "saving_per_use_s": saving, "error_cost_per_use_s": error, "break_even_uses": be,
             "learning_pays": expected - 1 > be,
         })
@@ -254,26 +379,28 @@ class BoundedOptimalPlanner(Agent):
     """Looks up the exact optimal action of its discretised MDP (see module docstring).
 
     Build with ``world=`` (a World, or a dict of :func:`make_world` arguments, e.g. from YAML);
-    without it the bound context's ``world`` is used. Options: ``keyboard_share`` (0..1),
-    ``n_bins``. Deterministic: ``action_probabilities`` is one-hot.
+    without it the bound context's ``world`` is used. Options: ``keyboard_share`` (0..1, or None
+    for the plan's own shares), ``n_bins``. Deterministic: ``action_probabilities`` is one-hot.
+    At decision time the plan's expected hand and menu-expertise costs of the current trial are
+    replaced by the known ones (where the last trial left the hand; this command's menu count).
     """
 
     name = "bounded_optimal"
 
     def __init__(self, context: AgentContext | None = None, world: World | dict | str | Path | None = None,
-                 keyboard_share: float = 0.5, n_bins: int = 40, **params: float) -> None:
+                 keyboard_share: float | None = None, n_bins: int = 40, **params: float) -> None:
         super().__init__(context, **params)
         if isinstance(world, (dict, str, Path)):
             world = make_world(**world) if isinstance(world, dict) else make_world(world)
         if world is not None and not isinstance(world, World):
             raise ValueError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
                              f"{type(world).__name__}")
-        if not 0.0 <= float(keyboard_share) <= 1.0:
-            raise ValueError(f"{self.name}: keyboard_share={keyboard_share} must be in [0, 1]")
+        if keyboard_share is not None and not 0.0 <= float(keyboard_share) <= 1.0:
+            raise ValueError(f"{self.name}: keyboard_share={keyboard_share} must be in [0, 1] (or None)")
         if int(n_bins) != n_bins or n_bins < 2:
             raise ValueError(f"{self.name}: n_bins={n_bins} must be a whole number >= 2")
         self.world = world
-        self.keyboard_share = float(keyboard_share)
+        self.keyboard_share = None if keyboard_share is None else float(keyboard_share)
         self.n_bins = int(n_bins)
         self.plan: Plan | None = None
 
@@ -295,15 +422,22 @@ class BoundedOptimalPlanner(Agent):
         world = self._world()
         if self.plan is None:
             self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share)
+            self._cmdc = world.command_constants()
         onset, _, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
         self._traces: dict[int, tuple[list[float], list[float]]] = {}
+        self._hybrid: dict[int, HybridBaseLevel] = {}
+        self._menu_count = np.zeros(world.commands.n_commands, dtype=np.int64)
+        self._hand_on_keyboard = False  # the simulator starts every user with the hand on the mouse
 
     def _activation(self, c: int, now: float) -> float:
+        m = self._world().memory
+        if m.kind == "actr":  # the simulator's O(1) hybrid base level (Petrov 2006)
+            h = self._hybrid.get(c)
+            return -math.inf if h is None or not h.times else h.activation(now)
         times, weights = self._traces.get(c, ([], []))
         if not times:
             return -math.inf
-        m = self._world().memory
         if m.kind == "exponential":
             return exponential_activation(now, times, m.exponential_rate_per_s, weights)
         if m.kind == "power":
@@ -319,15 +453,32 @@ class BoundedOptimalPlanner(Agent):
         grid = self.plan.mdps[c].activation[1:]
         return 1 + int(np.argmin(np.abs(grid - a)))
 
-    def decide(self, c: int, trial: int) -> int:
-        """Optimal action for command ``c`` at ``trial``."""
+    def action_values(self, c: int, trial: int) -> np.ndarray:
+        """Q (minus expected seconds, this use and the later ones) of menu, hotkey, learn now."""
         if self.plan is None:
             self.reset()
         assert self.plan is not None
         world = self._world()
         after = max(world.horizon - trial - 1, 0)
         uses = min(1 + int(round(world.commands.probability[c] * after)), self.plan.max_uses)
-        return int(self.plan.policy[c][uses, self.state_of(c, trial)])
+        s = self.state_of(c, trial)
+        mdp = self.plan.mdps[c]
+        q = mdp.R[s] + mdp.P[:, s, :] @ self.plan.values[c][uses - 1]
+        # the current trial's hand and menu expertise are known: swap the plan's expectations for them
+        home = world.costs.klm.home_s
+        ks = self.plan.keyboard_share
+        on_kb = 1.0 if self._hand_on_keyboard else 0.0
+        cmdc = self._cmdc[c]
+        novice = (cmdc[k.C_SEARCH] - cmdc[k.C_DECISION]) / (self._menu_count[c] + 1)
+        p = mdp.p_recall[s]
+        q[k.MENU] -= home * (on_kb - ks) + novice
+        q[k.LEARN] -= home * (on_kb - ks) + novice
+        q[k.HOTKEY] -= home * ((1.0 - on_kb) - (1.0 - ks)) + (1.0 - p) * novice
+        return q
+
+    def decide(self, c: int, trial: int) -> int:
+        """Optimal action for command ``c`` at ``trial`` (ties to the lowest action index)."""
+        return int(np.argmax(self.action_values(c, trial)))
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         p = np.zeros(3)
@@ -340,9 +491,20 @@ class BoundedOptimalPlanner(Agent):
     def observe(self, transition: Transition) -> None:
         info = transition.info
         c, t = int(info["command"]), int(info["trial"])
-        w = self._world().memory.weights
-        weight = {"menu": w.menu, "learned": w.learn, "hotkey": w.hotkey_success}.get(info["outcome"], w.hotkey_failure)
+        if self.plan is None:
+            self.reset()
+        m = self._world().memory
+        w = m.weights
+        outcome = info["outcome"]
+        weight = {"menu": w.menu, "learned": w.learn, "hotkey": w.hotkey_success}.get(outcome, w.hotkey_failure)
+        self._hand_on_keyboard = outcome == "hotkey"
+        if outcome != "hotkey":
+            self._menu_count[c] += 1
         if weight > 0:
-            times, weights = self._traces.setdefault(c, ([], []))
-            times.append(float(self._clock[t]))
-            weights.append(weight)
+            now = float(self._clock[t])
+            if m.kind == "actr":
+                self._hybrid.setdefault(c, HybridBaseLevel(m.decay, m.recent_traces)).add(now, weight)
+            else:
+                times, weights = self._traces.setdefault(c, ([], []))
+                times.append(now)
+                weights.append(weight)

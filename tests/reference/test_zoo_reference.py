@@ -103,8 +103,16 @@ def test_break_even_matches_planner_switch_point_worked_by_hand():
       menu     = M + P + 4B + decision + pointing = 1.35 + 1.1 + 0.4 + 0.2388 + 0.0235 = 3.1123 s
       hotkey   = M + H + 2K (+ recall latency ~0) = 1.35 + 0.4 + 0.4 = 2.15 s
       U*       = 2.5 / (3.1123 - 2.15) = 2.5 / 0.9623 = 2.598 future uses
-    So learning pays from 3 future uses on: with n uses left (this one included), learn iff
-    n - 1 >= 3, i.e. the planner switches from menu to learn at n = 4.
+    That is the break-even table's rule, which compares two worlds trial by trial (each trial pays
+    its own homing). The planner prices one decision inside a world whose other trials keep the
+    hand on the mouse (keyboard_share 0 is also the share of next trials that start with a
+    hotkey), so a recalled hotkey also costs the next trial's return to the mouse, H:
+      hotkey (marginal) = 2.15 + H = 2.15 + 0.4 = 2.55 s
+      U*_plan           = 2.5 / (3.1123 - 2.55) = 2.5 / 0.5623 = 4.446 future uses
+    So the planner learns from 5 future uses on: with n uses left (this one included), learn iff
+    n - 1 >= 5, i.e. it switches from menu to learn at n = 6. With H = 0 the two rules coincide:
+    menu = 3.1123 - 0 (no H in it either way), hotkey = 1.75 s, U* = 2.5 / 1.3623 = 1.835, so
+    the planner learns iff n - 1 >= 2, switching at n = 3.
     """
     world = make_world(
         costs={"learn": {"encoding_s": 2.5}, "errors": {"commission_share": 0.0}},
@@ -120,6 +128,14 @@ def test_break_even_matches_planner_switch_point_worked_by_hand():
     plan = plan_world(world, max_uses=10, keyboard_share=0.0)
     no_trace = plan.policy[0][1:, 0]  # uses left 1..10, no-trace state
     switch = 1 + int(np.argmax(no_trace == LEARN))
-    assert switch == 4
-    assert math.floor(row["break_even_uses"]) + 2 == switch
-    assert np.all(no_trace[:3] == MENU) and np.all(no_trace[3:] == LEARN)
+    assert switch == 6
+    assert math.floor(2.5 / (row["menu_s"] - row["hotkey_recalled_s"] - 0.4)) + 2 == switch
+    assert np.all(no_trace[:5] == MENU) and np.all(no_trace[5:] == LEARN)
+    # without homing time the table's break-even and the planner's switch point are the same rule
+    flat = world.with_changes(costs=world.costs.model_copy(update={"klm": world.costs.klm.model_copy(
+        update={"home_s": 0.0})}))
+    row0 = break_even_table(flat, keyboard_share=0.0).iloc[0]
+    assert row0["hotkey_recalled_s"] == pytest.approx(1.75, abs=1e-3)
+    assert row0["break_even_uses"] == pytest.approx(1.835, abs=5e-3)
+    no_trace0 = plan_world(flat, max_uses=10, keyboard_share=0.0).policy[0][1:, 0]
+    assert 1 + int(np.argmax(no_trace0 == LEARN)) == math.floor(row0["break_even_uses"]) + 2 == 3
