@@ -62,10 +62,17 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from scipy import sparse
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.envs.memory import HybridBaseLevel, actr_activation, exponential_activation, power_activation
+from shortcut_gym.envs.memory import (
+    HybridBaseLevel,
+    actr_activation,
+    exponential_activation,
+    power_activation,
+    recall_probability,
+)
 from shortcut_gym.envs.task import session_onsets
 from shortcut_gym.envs.world import World, make_world
 
@@ -139,49 +146,143 @@ def gap_distribution(world: World, command: int) -> tuple[np.ndarray, np.ndarray
 
 @dataclass
 class CommandMDP:
-    """The discretised MDP of one command: P (actions x S x S), R (S x actions, -seconds)."""
+    """The discretised MDP of one command: P (actions x S x S), R (S x actions, -seconds).
+
+    State 0 holds no trace; state 1 + i * n_w + j has grid activation ``activation`` (index i) and
+    total trace weight ``weight`` (index j of the weight grid, n_w = ``n_weight_bins``).
+    """
 
     command: int
     activation: np.ndarray  # (S,) grid activation, -inf for state 0
     p_recall: np.ndarray  # (S,)
     P: np.ndarray
     R: np.ndarray
+    weight: np.ndarray | None = None  # (S,) total trace weight of each state, 0 for state 0
+    activation_grid: np.ndarray | None = None  # (n_bins,)
+    weight_grid: np.ndarray | None = None  # (n_w,)
 
     @property
     def n_states(self) -> int:
         """Number of states (no-trace state included)."""
         return len(self.p_recall)
 
+    def state_index(self, activation: float, weight: float) -> int:
+        """Nearest state of a memory with this activation and total trace weight."""
+        if activation == -math.inf:
+            return 0
+        ag, wg = self._grids()
+        i = int(np.argmin(np.abs(ag - activation)))
+        j = int(np.argmin(np.abs(np.log(wg) - math.log(max(weight, 1e-300))))) if len(wg) > 1 else 0
+        return 1 + i * len(wg) + j
 
-def _next_strength(world: World, strength: float, weight: float, gaps: np.ndarray, mean_gap: float) -> np.ndarray:
+    def interpolate(self, values: np.ndarray, activation: float, weight: float) -> float:
+        """``values`` (S,) at a memory with this activation and total trace weight: bilinear
+        between grid points (activation linear, weight in log), clamped to the grid; state 0 at -inf."""
+        if activation == -math.inf:
+            return float(values[0])
+        ag, wg = self._grids()
+        x = (min(max(activation, ag[0]), ag[-1]) - ag[0]) / (ag[1] - ag[0])
+        i = min(int(math.floor(x)), len(ag) - 2)
+        fx = x - i
+        n_w = len(wg)
+        if n_w == 1:
+            return float((1 - fx) * values[1 + i] + fx * values[2 + i])
+        lw = np.log(wg)
+        y = (min(max(math.log(max(weight, 1e-300)), lw[0]), lw[-1]) - lw[0]) / (lw[1] - lw[0])
+        j = min(int(math.floor(y)), n_w - 2)
+        fy = y - j
+        base = 1 + i * n_w + j
+        return float((1 - fx) * ((1 - fy) * values[base] + fy * values[base + 1])
+                     + fx * ((1 - fy) * values[base + n_w] + fy * values[base + n_w + 1]))
+
+    def _grids(self) -> tuple[np.ndarray, np.ndarray]:
+        ag = self.activation[1:] if self.activation_grid is None else self.activation_grid
+        wg = np.ones(1) if self.weight_grid is None else self.weight_grid
+        return ag, wg
+
+
+def weight_grid(world: World, n_weight_bins: int) -> np.ndarray:
+    """Total-trace-weight grid: geometric from the smallest trace weight to the largest weight
+    times the most frequent command's expected uses; one point for exponential memory (no need)."""
+    w = world.memory.weights
+    pos = [x for x in (w.learn, w.hotkey_success, w.hotkey_failure, w.menu) if x > 0]
+    if world.memory.kind == "exponential" or not pos or n_weight_bins == 1:
+        return np.ones(1)
+    lo = min(pos)
+    hi = max(pos) * max(2.0, float(world.commands.probability.max()) * world.horizon)
+    return np.geomspace(lo, max(hi, 2 * lo), n_weight_bins)
+
+
+def _aged_strength(world: World, strength: np.ndarray, weight: np.ndarray, new: float,
+                   gaps: np.ndarray) -> np.ndarray:
+    """Strength at the next use, (states, gaps): the old traces as one lump of total weight W at the
+    effective age a that gives the current strength (S = W a^-d, or W (1 + a/u)^-b), aged by the
+    gap, plus the new trace of weight ``new`` laid now; exponential decay is exact."""
     m = world.memory
-    if m.kind in ("actr", "actr_exact"):
-        old = strength * ((mean_gap + gaps) / mean_gap) ** (-m.decay) if strength > 0 else 0.0
-        return old + weight * gaps ** (-m.decay)
+    S = strength[:, None]
+    g = gaps[None, :]
     if m.kind == "exponential":
-        return (strength + weight) * np.exp(-m.exponential_rate_per_s * gaps)
-    if m.kind == "power":
-        u = m.power_time_unit_s
-        old = strength * ((1 + (mean_gap + gaps) / u) / (1 + mean_gap / u)) ** (-m.decay) if strength > 0 else 0.0
-        return old + weight * (1 + gaps / u) ** (-m.decay)
+        return (S + new) * np.exp(-m.exponential_rate_per_s * g)
+    W = weight[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if m.kind in ("actr", "actr_exact"):
+            age = np.where(S > 0, (W / np.where(S > 0, S, 1.0)) ** (1.0 / m.decay), 0.0)
+            old = np.where(S > 0, W * (age + g) ** (-m.decay), 0.0)
+            return old + new * g ** (-m.decay)
+        if m.kind == "power":
+            u, b = m.power_time_unit_s, m.decay
+            ratio = np.clip(np.where(S > 0, S / np.where(W > 0, W, 1.0), 1.0), 1e-300, 1.0)
+            age = u * (ratio ** (-1.0 / b) - 1.0)
+            old = np.where(S > 0, W * (1 + (age + g) / u) ** (-b), 0.0)
+            return old + new * (1 + g / u) ** (-b)
     raise ValueError(f"the planner supports memory kinds actr, actr_exact, exponential, power; got {m.kind!r}")
 
 
-def _spread(activations: np.ndarray, probs: np.ndarray, grid: np.ndarray, row: np.ndarray) -> None:
-    """Add probability mass of each activation to ``row`` (state 0 = -inf), linear between grid points."""
-    for a, w in zip(activations, probs):
-        if a == -np.inf:
-            row[0] += w
-            continue
-        x = (min(max(a, grid[0]), grid[-1]) - grid[0]) / (grid[1] - grid[0])
-        i = min(int(math.floor(x)), len(grid) - 2)
-        f = x - i
-        row[1 + i] += w * (1 - f)
-        row[2 + i] += w * f
+def _spread(act_next: np.ndarray, w_next: np.ndarray, mass: np.ndarray, ag: np.ndarray, wg: np.ndarray,
+            P: np.ndarray) -> None:
+    """Add ``mass`` (states, gaps) to rows of P (states x S) at the next (activation, weight),
+    bilinear between grid points (activation linear, weight linear in log), -inf to state 0."""
+    n_s, n_g = act_next.shape
+    rows = np.repeat(np.arange(n_s), n_g)
+    a = act_next.ravel()
+    w = np.broadcast_to(w_next, act_next.shape).ravel()
+    m = mass.ravel()
+    empty = ~np.isfinite(a)
+    np.add.at(P, (rows[empty], np.zeros(int(empty.sum()), dtype=np.int64)), m[empty])
+    rows, a, w, m = rows[~empty], a[~empty], w[~empty], m[~empty]
+    x = (np.clip(a, ag[0], ag[-1]) - ag[0]) / (ag[1] - ag[0])
+    i = np.minimum(np.floor(x).astype(np.int64), len(ag) - 2)
+    fx = x - i
+    n_w = len(wg)
+    if n_w == 1:
+        j, fy = np.zeros(len(a), dtype=np.int64), np.zeros(len(a))
+    else:
+        lw = np.log(wg)
+        y = (np.clip(np.log(np.maximum(w, 1e-300)), lw[0], lw[-1]) - lw[0]) / (lw[1] - lw[0])
+        j = np.minimum(np.floor(y).astype(np.int64), n_w - 2)
+        fy = y - j
+    for di, wi in ((0, 1 - fx), (1, fx)):
+        for dj, wj in ((0, 1 - fy), (1, fy)):
+            if dj == 1 and n_w == 1:
+                continue
+            np.add.at(P, (rows, 1 + (i + di) * n_w + np.minimum(j + dj, n_w - 1)), m * wi * wj)
+
+
+def _rewards(times: ActionTimes, act: np.ndarray, p_rec: np.ndarray) -> np.ndarray:
+    """R (S x actions): minus the marginal expected seconds of each action in each state."""
+    with np.errstate(over="ignore"):
+        lat = np.where(np.isfinite(act), times.latency_factor_s * np.exp(-act), 0.0)
+    ok = times.hotkey_fixed_s + lat
+    R = np.zeros((len(act), 3))
+    R[:, k.MENU] = -(times.menu_s + times.return_after_mouse_s)
+    R[:, k.LEARN] = -(times.learn_s + times.return_after_mouse_s)
+    R[:, k.HOTKEY] = -(p_rec * (ok + times.return_after_keyboard_s)
+                       + (1 - p_rec) * (times.failure_s + times.return_after_mouse_s))
+    return R
 
 
 def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_share: float = 0.5,
-                      next_hotkey_share: float | None = None) -> CommandMDP:
+                      next_hotkey_share: float | None = None, n_weight_bins: int = 10) -> CommandMDP:
     """The discretised MDP of ``command`` (see the module docstring for every approximation).
 
     R is the marginal cost of the action: its own expected time plus the hand's return paid by the
@@ -189,44 +290,44 @@ def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_sha
     """
     if n_bins < 2:
         raise ValueError(f"n_bins must be >= 2, got {n_bins}")
+    if n_weight_bins < 1:
+        raise ValueError(f"n_weight_bins must be >= 1, got {n_weight_bins}")
     m = world.memory
-    grid = np.linspace(m.threshold - GRID_HALF_WIDTH * m.noise_s, m.threshold + GRID_HALF_WIDTH * m.noise_s, n_bins)
-    act = np.concatenate([[-np.inf], grid])
-    p_rec = np.concatenate([[0.0], 1.0 / (1.0 + np.exp(-(grid - m.threshold) / m.noise_s))])
-    times = action_times(world, command, keyboard_share, next_hotkey_share)
+    if m.kind not in ("actr", "actr_exact", "exponential", "power"):
+        raise ValueError(f"the planner supports memory kinds actr, actr_exact, exponential, power; got {m.kind!r}")
+    ag = np.linspace(m.threshold - GRID_HALF_WIDTH * m.noise_s, m.threshold + GRID_HALF_WIDTH * m.noise_s, n_bins)
+    wg = weight_grid(world, n_weight_bins)
+    n_w = len(wg)
+    act = np.concatenate([[-np.inf], np.repeat(ag, n_w)])
+    wts = np.concatenate([[0.0], np.tile(wg, n_bins)])
+    p_rec = np.concatenate([[0.0], 1.0 / (1.0 + np.exp(-(np.repeat(ag, n_w) - m.threshold) / m.noise_s))])
     gaps, gp = gap_distribution(world, command)
-    mean_gap = float(np.dot(gaps, gp))
+    strength = np.where(np.isfinite(act), np.exp(act), 0.0)
     w = m.weights
-    n = n_bins + 1
+    n = len(act)
     P = np.zeros((3, n, n))
-    R = np.zeros((n, 3))
-    for s in range(n):
-        strength = 0.0 if s == 0 else math.exp(act[s])
-        for a, outcomes in ((k.MENU, [(1.0, w.menu)]), (k.LEARN, [(1.0, w.learn)]),
-                            (k.HOTKEY, [(p_rec[s], w.hotkey_success), (1 - p_rec[s], w.hotkey_failure)])):
-            for prob, weight in outcomes:
-                if prob <= 0:
-                    continue
-                nxt = _next_strength(world, strength, weight, gaps, mean_gap)
-                with np.errstate(divide="ignore"):
-                    _spread(np.log(np.asarray(nxt, dtype=float) * np.ones_like(gaps)), prob * gp, grid, P[a, s])
-        ok = times.hotkey_fixed_s + (times.latency_factor_s * math.exp(-act[s]) if s > 0 else 0.0)
-        R[s, k.MENU] = -(times.menu_s + times.return_after_mouse_s)
-        R[s, k.LEARN] = -(times.learn_s + times.return_after_mouse_s)
-        R[s, k.HOTKEY] = -(p_rec[s] * (ok + times.return_after_keyboard_s)
-                           + (1 - p_rec[s]) * (times.failure_s + times.return_after_mouse_s))
-    return CommandMDP(command, act, p_rec, P, R)
+    for a, outcomes in ((k.MENU, [(np.ones(n), w.menu)]), (k.LEARN, [(np.ones(n), w.learn)]),
+                        (k.HOTKEY, [(p_rec, w.hotkey_success), (1 - p_rec, w.hotkey_failure)])):
+        for prob, weight in outcomes:
+            nxt = _aged_strength(world, strength, wts, weight, gaps)
+            with np.errstate(divide="ignore"):
+                a_next = np.log(nxt)
+            _spread(a_next, (wts + weight)[:, None], prob[:, None] * gp[None, :], ag, wg, P[a])
+    R = _rewards(action_times(world, command, keyboard_share, next_hotkey_share), act, p_rec)
+    return CommandMDP(command, act, p_rec, P, R, wts, ag, wg)
 
 
 def solve_finite_horizon(P: np.ndarray, R: np.ndarray, n_stages: int) -> tuple[np.ndarray, np.ndarray]:
     """Exact backward induction. Returns V (n_stages + 1, S), V[n] the optimal value with n
     stages left (V[0] = 0), and policy (n_stages + 1, S) (row 0 unused, -1); ties go to the
-    lowest action index."""
+    lowest action index. ``P`` is dense (actions x S x S) or a list of scipy sparse matrices."""
     n_states = R.shape[0]
     V = np.zeros((n_stages + 1, n_states))
     policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
+    dense = isinstance(P, np.ndarray)
     for n in range(1, n_stages + 1):
-        Q = R.T + P @ V[n - 1]  # (actions, S)
+        future = P @ V[n - 1] if dense else np.stack([Pa @ V[n - 1] for Pa in P])
+        Q = R.T + future  # (actions, S)
         policy[n] = np.argmax(Q, axis=0)
         V[n] = Q[policy[n], np.arange(n_states)]
     return V, policy
@@ -268,10 +369,17 @@ class Plan:
     next_hotkey_share: float = 0.5
 
 
-def _solve(world: World, n: int, n_bins: int, ks: float, q: float) -> Plan:
-    mdps = [build_command_mdp(world, c, n_bins, ks, q) for c in range(world.commands.n_commands)]
-    solved = [solve_finite_horizon(m.P, m.R, n) for m in mdps]
-    return Plan(mdps, [v for v, _ in solved], [p for _, p in solved], n, ks, q)
+def _solve(world: World, n: int, mdps: list[CommandMDP], ks: float, q: float) -> Plan:
+    """Set every MDP's rewards for hand shares (ks, q) and solve it (sparse P: rows are short)."""
+    values, policies = [], []
+    for c, mdp in enumerate(mdps):
+        mdp.R = _rewards(action_times(world, c, ks, q), mdp.activation, mdp.p_recall)
+        if not hasattr(mdp, "_sparse"):
+            mdp._sparse = [sparse.csr_matrix(mdp.P[a]) for a in range(3)]  # type: ignore[attr-defined]
+        V, pol = solve_finite_horizon(mdp._sparse, mdp.R, n)  # type: ignore[attr-defined, arg-type]
+        values.append(V)
+        policies.append(pol)
+    return Plan(mdps, values, policies, n, ks, q)
 
 
 def _plan_shares(world: World, plan: Plan) -> tuple[float, float]:
@@ -288,7 +396,7 @@ def _plan_shares(world: World, plan: Plan) -> tuple[float, float]:
 
 
 def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
-               keyboard_share: float | None = None, iterations: int = 6) -> Plan:
+               keyboard_share: float | None = None, iterations: int = 6, n_weight_bins: int = 10) -> Plan:
     """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon).
 
     ``keyboard_share`` None (default): the hand shares are the plan's own (approximation 2): start
@@ -299,25 +407,28 @@ def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
     n = world.horizon if max_uses is None else int(max_uses)
     if n < 1:
         raise ValueError(f"max_uses must be >= 1, got {max_uses}")
+    if keyboard_share is not None and not 0.0 <= float(keyboard_share) <= 1.0:
+        raise ValueError(f"keyboard_share must be in [0, 1] or None, got {keyboard_share}")
+    mdps = [build_command_mdp(world, c, n_bins, 0.0, 0.0, n_weight_bins) for c in range(world.commands.n_commands)]
     if keyboard_share is not None:
-        return _solve(world, n, n_bins, float(keyboard_share), float(keyboard_share))
+        return _solve(world, n, mdps, float(keyboard_share), float(keyboard_share))
     ks = q = 0.0
-    plan = _solve(world, n, n_bins, ks, q)
+    plan = _solve(world, n, mdps, ks, q)
     for _ in range(iterations):
         new_ks, new_q = _plan_shares(world, plan)
         if abs(new_ks - ks) < 0.005 and abs(new_q - q) < 0.005:
             break
         ks, q = new_ks, new_q
-        plan = _solve(world, n, n_bins, ks, q)
+        plan = _solve(world, n, mdps, ks, q)
     return plan
 
 
-def _learn_once_recall(world: World, n_bins: int) -> list[np.ndarray]:
+def _learn_once_recall(world: World, n_bins: int, n_weight_bins: int = 10) -> list[np.ndarray]:
     """Per command, the expected recall probability and latency at each later use when the first
     use learns and every later one tries the hotkey (the planner's transition model)."""
     out = []
     for c in range(world.commands.n_commands):
-        mdp = build_command_mdp(world, c, n_bins, 0.0)
+        mdp = build_command_mdp(world, c, n_bins, 0.0, 0.0, n_weight_bins)
         dist = mdp.P[k.LEARN, 0].copy()
         lat = np.where(np.isfinite(mdp.activation), world.memory.latency_factor_s * np.exp(-mdp.activation), 0.0)
         rows = []
@@ -388,7 +499,8 @@ class BoundedOptimalPlanner(Agent):
     name = "bounded_optimal"
 
     def __init__(self, context: AgentContext | None = None, world: World | dict | str | Path | None = None,
-                 keyboard_share: float | None = None, n_bins: int = 40, **params: float) -> None:
+                 keyboard_share: float | None = None, n_bins: int = 40, n_weight_bins: int = 10,
+                 **params: float) -> None:
         super().__init__(context, **params)
         if isinstance(world, (dict, str, Path)):
             world = make_world(**world) if isinstance(world, dict) else make_world(world)
@@ -399,16 +511,20 @@ class BoundedOptimalPlanner(Agent):
             raise ValueError(f"{self.name}: keyboard_share={keyboard_share} must be in [0, 1] (or None)")
         if int(n_bins) != n_bins or n_bins < 2:
             raise ValueError(f"{self.name}: n_bins={n_bins} must be a whole number >= 2")
+        if int(n_weight_bins) != n_weight_bins or n_weight_bins < 1:
+            raise ValueError(f"{self.name}: n_weight_bins={n_weight_bins} must be a whole number >= 1")
         self.world = world
         self.keyboard_share = None if keyboard_share is None else float(keyboard_share)
         self.n_bins = int(n_bins)
+        self.n_weight_bins = int(n_weight_bins)
         self.plan: Plan | None = None
 
     def param_specs(self) -> dict[str, ParamSpec]:
         return {}
 
     def spec(self) -> dict[str, Any]:
-        return {"name": self.name, "keyboard_share": self.keyboard_share, "n_bins": self.n_bins, "params": {}}
+        return {"name": self.name, "keyboard_share": self.keyboard_share, "n_bins": self.n_bins,
+                "n_weight_bins": self.n_weight_bins, "params": {}}
 
     def _world(self) -> World:
         w = self.world or getattr(self.context, "world", None)
@@ -421,12 +537,18 @@ class BoundedOptimalPlanner(Agent):
         super().reset(seed)
         world = self._world()
         if self.plan is None:
-            self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share)
+            self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
+                                   n_weight_bins=self.n_weight_bins)
             self._cmdc = world.command_constants()
+        if getattr(self, "_times_for", None) is not self.plan:
+            self._times = [action_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share)
+                           for c in range(world.commands.n_commands)]
+            self._times_for = self.plan
         onset, _, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
         self._traces: dict[int, tuple[list[float], list[float]]] = {}
         self._hybrid: dict[int, HybridBaseLevel] = {}
+        self._weight = np.zeros(world.commands.n_commands)
         self._menu_count = np.zeros(world.commands.n_commands, dtype=np.int64)
         self._hand_on_keyboard = False  # the simulator starts every user with the hand on the mouse
 
@@ -445,35 +567,73 @@ class BoundedOptimalPlanner(Agent):
         return actr_activation(now, times, m.decay, weights)
 
     def state_of(self, c: int, trial: int) -> int:
-        """Nearest grid state of command ``c``'s current activation at ``trial``."""
+        """Nearest grid state of command ``c``'s current activation and total trace weight at ``trial``."""
         assert self.plan is not None
         a = self._activation(c, float(self._clock[min(trial, len(self._clock) - 1)]))
-        if a == -math.inf:
-            return 0
-        grid = self.plan.mdps[c].activation[1:]
-        return 1 + int(np.argmin(np.abs(grid - a)))
+        return self.plan.mdps[c].state_index(a, float(self._weight[c]))
 
     def action_values(self, c: int, trial: int) -> np.ndarray:
-        """Q (minus expected seconds, this use and the later ones) of menu, hotkey, learn now."""
+        """Q (minus expected seconds, this use and the later ones) of menu, hotkey, learn now.
+
+        This trial is costed exactly (its recall probability and latency from the tracked memory,
+        where the last trial left the hand, this command's menu count); the next use is reached
+        with the exact memory and the schedule's clock after k more trials, k geometric(p_c)
+        given that it falls in the horizon (N_GAP_QUANTILES quantiles), and valued by the plan's
+        V there (bilinear in activation and log weight); the plan's shares price the homing the
+        next trial pays.
+        """
         if self.plan is None:
             self.reset()
         assert self.plan is not None
         world = self._world()
-        after = max(world.horizon - trial - 1, 0)
-        uses = min(1 + int(round(world.commands.probability[c] * after)), self.plan.max_uses)
-        s = self.state_of(c, trial)
+        m = world.memory
         mdp = self.plan.mdps[c]
-        q = mdp.R[s] + mdp.P[:, s, :] @ self.plan.values[c][uses - 1]
-        # the current trial's hand and menu expertise are known: swap the plan's expectations for them
+        after = max(world.horizon - trial - 1, 0)
+        p_c = float(world.commands.probability[c])
+        uses = min(1 + int(round(p_c * after)), self.plan.max_uses)
+        now = float(self._clock[min(trial, len(self._clock) - 1)])
+        a_now = self._activation(c, now)
+        p = recall_probability(a_now, m.threshold, m.noise_s)
+        lat = m.latency_factor_s * math.exp(-a_now) if a_now > -math.inf else 0.0
+        times = self._times[c]
         home = world.costs.klm.home_s
         ks = self.plan.keyboard_share
         on_kb = 1.0 if self._hand_on_keyboard else 0.0
         cmdc = self._cmdc[c]
         novice = (cmdc[k.C_SEARCH] - cmdc[k.C_DECISION]) / (self._menu_count[c] + 1)
-        p = mdp.p_recall[s]
-        q[k.MENU] -= home * (on_kb - ks) + novice
-        q[k.LEARN] -= home * (on_kb - ks) + novice
-        q[k.HOTKEY] -= home * ((1.0 - on_kb) - (1.0 - ks)) + (1.0 - p) * novice
+        start_menu = home * (on_kb - ks) + novice
+        start_hot = home * ((1.0 - on_kb) - (1.0 - ks))
+        ok = times.hotkey_fixed_s + start_hot + lat + times.return_after_keyboard_s
+        fail = times.failure_s + start_hot + novice + times.return_after_mouse_s
+        q = np.array([-(times.menu_s + start_menu + times.return_after_mouse_s),
+                      -(p * ok + (1.0 - p) * fail),
+                      -(times.learn_s + start_menu + times.return_after_mouse_s)])
+        if uses <= 1 or after == 0:
+            return q
+        V = self.plan.values[c][uses - 1]
+        F = 1.0 - (1.0 - p_c) ** after if p_c < 1 else 1.0
+        u = (np.arange(N_GAP_QUANTILES) + 0.5) / N_GAP_QUANTILES * F
+        ks_ = np.ones(N_GAP_QUANTILES) if p_c >= 1 else np.ceil(np.log1p(-u) / math.log1p(-p_c))
+        nxt = trial + np.clip(ks_, 1, after).astype(np.int64)
+        t_next = self._clock[nxt]
+        old = np.array([math.exp(v) if v > -math.inf else 0.0 for v in (self._activation(c, t) for t in t_next)])
+        age = t_next - now
+        if m.kind == "exponential":
+            fresh = np.exp(-m.exponential_rate_per_s * age)
+        elif m.kind == "power":
+            fresh = (1.0 + age / m.power_time_unit_s) ** (-m.decay)
+        else:
+            fresh = age ** (-m.decay)
+        w = m.weights
+        W = float(self._weight[c])
+
+        def future(weight: float) -> float:
+            s = old + weight * fresh
+            return float(np.mean([mdp.interpolate(V, math.log(x) if x > 0 else -math.inf, W + weight) for x in s]))
+
+        q[k.MENU] += future(w.menu)
+        q[k.LEARN] += future(w.learn)
+        q[k.HOTKEY] += p * future(w.hotkey_success) + (1.0 - p) * future(w.hotkey_failure)
         return q
 
     def decide(self, c: int, trial: int) -> int:
@@ -501,6 +661,7 @@ class BoundedOptimalPlanner(Agent):
         if outcome != "hotkey":
             self._menu_count[c] += 1
         if weight > 0:
+            self._weight[c] += weight
             now = float(self._clock[t])
             if m.kind == "actr":
                 self._hybrid.setdefault(c, HybridBaseLevel(m.decay, m.recent_traces)).add(now, weight)
