@@ -100,3 +100,32 @@ def test_agent_stream_is_independent_of_the_env_stream_for_the_same_seed():
     top = np.concatenate([t.loc[t["command"] == 0, "action"].eq("learn").to_numpy() for t in trials])
     # about 1,300 trials of the most frequent command: sd of the share about 0.012
     assert abs(top.mean() - 0.25) < 0.05
+
+
+# K (s) and encoding time (s) of a learn trial: the defaults, the setting where the planner once lost
+# about 15 s per user to always-menu (slow typing, dear learning), cheap learning for a fast typist,
+# and the slowest typist with cheap learning (the menu should win outright).
+NEVER_WORSE_CELLS = [(None, None), (0.5, 8.0), (0.08, 0.5), (0.5, 0.5), (1.2, 0.5)]
+NEVER_WORSE_SEEDS = range(10)
+
+
+@pytest.mark.parametrize("keystroke_s,encoding_s", NEVER_WORSE_CELLS)
+def test_planner_is_never_worse_than_its_own_policy_class(keystroke_s, encoding_s):
+    """always_menu and learn_first_k(k=1) are policies the planner's MDP contains, so on the same
+    simulated users the planner's total time must not exceed theirs by more than noise. Tolerance:
+    2 standard errors of the paired per-user difference over the seeds (the mean difference of a
+    policy that is really no worse exceeds that about 2.5% of the time), plus 0.5 s per user
+    (0.4% of a 3-session user's ~400 s) for ties the discretised model cannot split."""
+    costs = None if keystroke_s is None else {"klm": {"keystroke_s": keystroke_s},
+                                              "learn": {"encoding_s": encoding_s}}
+    world = make_world(costs=costs, schedule={"sessions": 3, "trials_per_session": 40})
+    env = CommandSelectionEnv(world=world)
+
+    def totals(agent):
+        return np.array([run_episode(env, agent, seed=s)["duration_s"].sum() for s in NEVER_WORSE_SEEDS])
+
+    planner = totals(make_agent("bounded_optimal", world=world))
+    for name, kw in [("always_menu", {}), ("learn_first_k", {"k": 1})]:
+        diff = planner - totals(make_agent(name, **kw))
+        tolerance = 2 * diff.std(ddof=1) / np.sqrt(len(diff)) + 0.5
+        assert diff.mean() <= tolerance, (name, diff.mean(), tolerance)
