@@ -521,7 +521,8 @@ class BatchLearningPolicy:
         self.horizon = agent.context.horizon
         self.state = _new_state(n_users, agent.context.n_commands)
         _init_state(self.par, *self.state)
-        self.gens = [agent_rng(int(s)) for s in seeds]
+        self.seeds = [int(s) for s in seeds]
+        self._gens: list[np.random.Generator] | None = None
         self._u = np.zeros((n_users, self._BLOCK))
         self._u_pos = self._BLOCK
         self.probabilities = np.zeros((n_users, N_ACTIONS))
@@ -530,6 +531,13 @@ class BatchLearningPolicy:
         self._beliefs_now = np.zeros(n_users)
         self.trial = 0
         self._dt_index: int | None = None
+
+    @property
+    def gens(self) -> list[np.random.Generator]:
+        """Each user's generator (``agent_rng(seed)``), made on first use."""
+        if self._gens is None:
+            self._gens = [agent_rng(s) for s in self.seeds]
+        return self._gens
 
     def actions(self, targets: np.ndarray, obs: np.ndarray) -> np.ndarray:
         """Sampled action (B,) of every user for its target command."""
@@ -553,6 +561,15 @@ class BatchLearningPolicy:
                      np.asarray(outcomes, dtype=np.int64), np.asarray(durations_s, dtype=np.float64),
                      self._beliefs_now, self.par, self.flags, *self.state)
         self.trial += 1
+
+    def run(self, sim: Any, parallel: bool = False) -> Any:
+        """Run a just-reset :class:`~shortcut_gym.envs.simulator.BatchSimulator` to its horizon in one
+        compiled loop; per-user sums (:class:`~shortcut_gym.agents.learning_fused.FusedSums`) equal to
+        stepping ``actions`` / ``sim.step`` / ``observe`` trial by trial (``parallel``: users over
+        numba's threads, see :func:`~shortcut_gym.agents.learning_fused.simulate_fused`)."""
+        from shortcut_gym.agents.learning_fused import simulate_fused
+
+        return simulate_fused(self, sim, parallel)
 
 
 class RescorlaWagnerAgent(LearningAgent):

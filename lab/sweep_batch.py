@@ -141,24 +141,31 @@ def simulate_users(
     record: str = "blocks",
     use_batch_policy: bool = True,
     chunk_users: int = CHUNK_USERS,
+    fused: bool = True,
+    parallel: bool = False,
 ) -> BlockSums:
-    """Simulate one user per seed with the agent of ``spec``; per-user sums (+ trial rows if asked)."""
+    """Simulate one user per seed with the agent of ``spec``; per-user sums (+ trial rows if asked).
+
+    With ``record="blocks"``, a batch policy offering ``run(sim)`` (the learning models) runs the
+    whole simulation in one compiled loop unless ``fused`` is False (same numbers either way);
+    ``parallel`` runs that loop's users on numba's threads (see ``learning_fused.simulate_fused``)."""
     if record not in ("blocks", "trials"):
         raise ValueError(f"record must be 'blocks' or 'trials', got {record!r}")
     seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)
     if len(seeds) == 0:
         raise ValueError("need at least one seed")
     if record == "blocks" and len(seeds) > chunk_users:
-        parts = [_simulate_chunk(world, spec, seeds[i:i + chunk_users], record, use_batch_policy)
-                 for i in range(0, len(seeds), chunk_users)]
+        parts = [_simulate_chunk(world, spec, seeds[i:i + chunk_users], record, use_batch_policy, fused,
+                                 parallel) for i in range(0, len(seeds), chunk_users)]
         return BlockSums(seeds=seeds, **{f: np.concatenate([getattr(p, f) for p in parts])
                                          for f in ("trials", "time_s", "outcomes", "actions", "command_time_s",
                                                    "command_uses")})
-    return _simulate_chunk(world, spec, seeds, record, use_batch_policy)
+    return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused, parallel)
 
 
 def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarray, record: str,
-                    use_batch_policy: bool) -> BlockSums:
+                    use_batch_policy: bool, fused: bool = True,
+                    parallel: bool = False) -> BlockSums:
     sim = BatchSimulator(world)
     sim.reset(seeds=seeds.tolist())
     agent = build_agent(spec if not isinstance(spec, Agent) else spec.spec(), world)
@@ -167,9 +174,15 @@ def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarra
         driver = _BatchDriver(agent, seeds.tolist())
     else:
         driver = _PerUserDriver(agent, world, seeds.tolist())
+    runs_fused = isinstance(driver, _BatchDriver) and callable(getattr(driver.policy, "run", None))
+    if fused and record == "blocks" and runs_fused:
+        # one compiled loop over users and trials, same numbers as the per-trial loop below
+        done = driver.policy.run(sim, parallel)  # type: ignore[union-attr]
+        return BlockSums(seeds=seeds, trials=done.trials, time_s=done.time_s, outcomes=done.outcomes,
+                         actions=done.actions, command_time_s=done.command_time_s, command_uses=done.command_uses)
     driver.start(sim)
     n, h, c = sim.n_users, sim.horizon, world.commands.n_commands
-    sessions = np.stack([s.session for s in sim.schedules]).astype(np.int64)
+    sessions = sim.sched_session
     n_sess = int(sessions.max()) + 1
     shared = bool((sessions == sessions[0]).all())
     rows = np.arange(n)

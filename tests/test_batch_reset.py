@@ -58,3 +58,31 @@ def test_reset_rejects_mixed_horizons() -> None:
         schedule=world.schedule.model_copy(update={"sessions": 1, "gap_h": 24.0})).schedule, np.random.default_rng(1))
     with pytest.raises(ValueError, match="same horizon"):
         BatchSimulator(world).reset(seeds=[1, 2], schedules=[None, short])
+
+
+def test_compiled_seeding_equals_numpy_default_rng() -> None:
+    from shortcut_gym.agents.base import AGENT_STREAM
+    from shortcut_gym.envs.simulator import seed_words, seeded_uniforms
+
+    seeds = list(range(200)) + [2**32 - 1, 2**32, 2**40 + 7, 2**63 + 11, 2**64 - 1, 987654321]
+    arr = np.array(seeds, dtype=np.uint64)
+    for extra in ((), (AGENT_STREAM,), (3, 2**33 + 1)):
+        words = seed_words(arr, extra)
+        assert words is not None
+        out = np.empty((len(seeds), 70))
+        seeded_uniforms(words[0], words[1], 70, out)
+        ref = np.stack([np.random.default_rng([s, *extra] if extra else s).random(70) for s in seeds])
+        np.testing.assert_array_equal(out, ref, err_msg=str(extra))
+    assert seed_words(np.array([3, -1])) is None
+
+
+def test_reset_by_seeds_equals_reset_by_generators() -> None:
+    world = make_world(schedule=SCHEDULE, memory="spacing")
+    seeds = [0, 5, 2**35 + 1, 77]
+    a, b = BatchSimulator(world), BatchSimulator(world)
+    a.reset(seeds=seeds)
+    b.reset(rngs=[np.random.default_rng(s) for s in seeds])
+    for attr in ("sched_cmd", "sched_u", "sched_onset", "sched_clock", "sched_session", "obs", "tr"):
+        np.testing.assert_array_equal(getattr(a, attr), getattr(b, attr), err_msg=attr)
+    with pytest.raises(ValueError, match="negative"):
+        BatchSimulator(world).reset(seeds=[1, -2])
