@@ -1,35 +1,43 @@
 """Bounded-optimal planner: finite-horizon dynamic programming over a discretised hotkey memory.
 
 For each command separately the planner builds a small Markov decision process whose state is the
-command's memory strength at the moment it is needed, and solves it exactly for every number of
-uses left. Sources: the cost formulas of :mod:`shortcut_gym.envs.costs` (KLM, Card, Moran & Newell
-1980; Fitts' law, MacKenzie 1992; menu model, Cockburn, Gutwin & Greenberg 2007) and the memory
-model of :mod:`shortcut_gym.envs.memory` (ACT-R base level, Anderson & Lebiere 1998; exponential
-and power forgetting, Wixted & Ebbesen 1991). Finite-horizon DP: Bellman (1957), *Dynamic
-Programming*; Puterman (1994), *Markov Decision Processes*, ch. 4.
+command's memory at the moment it is needed, and solves it exactly for every number of uses left.
+Sources: the cost formulas of :mod:`shortcut_gym.envs.costs` (KLM, Card, Moran & Newell 1980;
+Fitts' law, MacKenzie 1992; menu model, Cockburn, Gutwin & Greenberg 2007) and the memory model of
+:mod:`shortcut_gym.envs.memory` (ACT-R base level, Anderson & Lebiere 1998; O(1) hybrid form,
+Petrov 2006; exponential and power forgetting, Wixted & Ebbesen 1991). Finite-horizon DP:
+Bellman (1957), *Dynamic Programming*; Puterman (1994), *Markov Decision Processes*, ch. 4.
+The world's semantics it follows are those of :mod:`shortcut_gym.envs.kernel`.
 
 The MDP of command c (states s, actions menu/hotkey/learn, stages = uses of c left):
 
-* State 0: no trace (strength S = 0, recall probability 0). States 1..K: activation A = ln S on a
-  uniform grid from tau - 8 s to tau + 8 s (tau, s: the world's retrieval threshold and noise);
-  the recall probability of a state is the logistic of its grid activation.
+* State 0: no trace (strength S = 0, recall probability 0). States 1..: a pair (activation
+  A = ln S on a uniform grid of ``n_bins`` points from tau - 8 s to tau + 8 s, tau and s the
+  world's retrieval threshold and noise; total trace weight W on a geometric grid of
+  ``n_weight_bins`` points from the smallest trace weight to the largest weight times the top
+  command's expected uses; one point for exponential memory, which needs no W).
+  The recall probability of a state is the logistic of its grid activation.
 * Transition: the action lays a trace of the world's weight (learn; hotkey recalled with
   probability p or failed with 1 - p; menu), then the time to the command's next use passes.
   The gap is drawn from the usage probability (trials between uses ~ geometric(p_c)), the trial
   interval and the between-session gaps (a gap of k trials crosses k / trials_per_session session
   boundaries, the fractional part as a probability), discretised by 8 equal-probability quantiles.
-  The new activation is spread linearly over the two neighbouring grid points.
+  The new (A, W) is spread bilinearly (A linear, W in log) over the neighbouring grid points.
 * Reward: minus the expected seconds of the action in that state, plus the homing time the
-  action causes on the next trial (below): the marginal cost of the decision.
+  action causes on the next trial (approximation 2): the marginal cost of the decision.
 
 Approximations (each makes the planner exact only for its own model, not for the simulator):
 
-1. Memory history collapses to one number. Under power-law decay the old strength S ages as if it
-   were one trace laid one mean gap before the current use: S' = S ((a + g)/a)^-d + w g^-d with
-   a = E[gap]; exponential decay needs no approximation (S' = (S + w) e^{-lambda g});
-   power forgetting uses the same effective-age rule. Spacing-sensitive decay is not supported.
-   The state at decision time is exact (the agent's own copy of the world's memory, the O(1)
-   hybrid base level for kind "actr"); only the predicted future strength is approximate.
+1. Memory history collapses to two numbers. Under ACT-R decay the old traces age as one lump of
+   their total weight W at the effective age a that gives the current strength (S = W a^-d), so
+   S' = W (a + g)^-d + w g^-d and W' = W + w: a command practised over days keeps more of its
+   strength across a night than one learned a minute ago (the one-number rule this replaces,
+   aging S as if laid one mean gap ago, put next-day recall after a session's practice at about
+   0.97 against a simulated 0.45). Power forgetting uses the same lump with (1 + a/u)^-b;
+   exponential decay is exact (S' = (S + w) e^{-lambda g}). Spacing-sensitive decay is not
+   supported. Within-session versus overnight gaps are mixed by the unconditional gap law in
+   later stages (a first use early in a session is followed by a same-day use more often than
+   that law says), which the decision-time step below corrects for the next use only.
 2. The hand position is shared by all commands, so it is a mean field. With ``keyboard_share``
    None (default) the plan finds its own shares by fixed point: start from a menu-only world,
    solve, measure the plan's usage-weighted share of uses that recall a hotkey (ks: the hand is
@@ -38,19 +46,28 @@ Approximations (each makes the planner exact only for its own model, not for the
    is charged the next trial's homing: q H if it leaves the hand on the mouse (menu, learn, failed
    hotkey), (1 - q) H if on the keyboard. Each switch is thus counted by both trials next to it:
    right for decisions (both cause it), so plan values overstate total homing time. A number
-   fixes ks = q. The shares of the other trials are taken as independent of this command's state.
-   At decision time the known hand position replaces ks for the current trial.
+   fixes ks = q. The shares of the other trials are taken as independent of this command's state
+   and constant over the horizon (the plan's average, not its early or late share).
 3. Menu selections in the MDP are costed at full menu expertise (e = 1, Hick-Hyman decision
-   time); at decision time the current trial's novice term (search - decision) / t for its t-th
-   menu selection is added to menu-using paths, but later uses keep e = 1.
-4. Recall latency uses the grid activation of the state; commands are planned independently;
-   the gap to the next use is drawn from the usage probability, not the agent's schedule.
-5. Uses left = 1 + round(p_c x trials after this one), not the realised count.
+   time); only the current trial's novice term (search - decision) / t for its t-th menu
+   selection is added at decision time, later uses keep e = 1.
+4. Recall latency and probability of a future use come from the grid state; commands are
+   planned independently; failure costs use the world's commission share as an expectation.
+5. Uses left = 1 + round(p_c x trials after this one), not the realised count; the value of the
+   next use is read at that count minus one whatever the gap drawn.
 
-The agent tracks each command's actual activation with the world's memory formula from its
-own history (when it learned, recalled or failed, at the schedule's onsets), maps it to the
-nearest grid state, and takes the action of best Q = R + P V for (command, state, expected uses
-left) with the current trial's hand and menu-expertise terms made exact.
+The agent tracks each command's memory with the world's formula from its own history (when it
+learned, recalled or failed, at the schedule's memory clock; the O(1) hybrid base level for
+kind "actr", as the simulator) and its total trace weight, where the last trial left the hand,
+and the command's menu count. Its Q for this trial is exact in the trial's own cost (recall
+probability and latency of the tracked activation, the known hand, the menu expertise), reaches
+the next use with the exact memory at the schedule's clock after k ~ geometric(p_c) trials given
+k within the horizon (8 quantiles), and values it by the plan's V (bilinear in A and log W).
+
+The analytic break-even (:func:`break_even_table`) compares the world where every command uses
+the menu with the one where every command is learned at its first use and tried by hotkey after
+that, each trial paying its own homing; p and the latency are the means over the command's
+expected later uses in the planner's memory model. It ignores menu expertise (e = 1 in both).
 """
 
 from __future__ import annotations
