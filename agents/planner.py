@@ -73,7 +73,7 @@ expected later uses in the planner's memory model. It ignores menu expertise (e 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -384,6 +384,11 @@ class Plan:
     max_uses: int
     keyboard_share: float = 0.5
     next_hotkey_share: float = 0.5
+    predicted_time_s: float = math.nan  # expected seconds per user, see predicted_time_s()
+
+    def __deepcopy__(self, memo: dict) -> Plan:
+        # read-only once solved: copies of a planner agent (one per simulated user) share it
+        return self
 
 
 def _solve(world: World, n: int, mdps: list[CommandMDP], ks: float, q: float) -> Plan:
@@ -412,13 +417,47 @@ def _plan_shares(world: World, plan: Plan) -> tuple[float, float]:
     return ks, q
 
 
+def predicted_time_s(world: World, plan: Plan) -> float:
+    """Expected seconds per simulated user under the plan in its own model: every command's uses
+    (p_c x horizon of them) from the no-trace state, each trial paying its own homing at the plan's
+    keyboard share (each switch counted once), full menu expertise."""
+    total = 0.0
+    for c, mdp in enumerate(plan.mdps):
+        own = replace(action_times(world, c, plan.keyboard_share, plan.next_hotkey_share),
+                      return_after_mouse_s=0.0, return_after_keyboard_s=0.0)
+        R = _rewards(own, mdp.activation, mdp.p_recall)
+        dist = np.zeros(mdp.n_states)
+        dist[0] = 1.0
+        cols = np.arange(mdp.n_states)
+        for n_left in range(min(expected_uses(world, c), plan.max_uses), 0, -1):
+            row = plan.policy[c][n_left]
+            total -= float(np.dot(dist, R[cols, row]))
+            dist = np.einsum("s,st->t", dist, mdp.P[row, cols])
+    return total
+
+
+def _fixed_point(world: World, n: int, mdps: list[CommandMDP], start: float, iterations: int) -> Plan:
+    ks = q = start
+    plan = _solve(world, n, mdps, ks, q)
+    for _ in range(iterations):
+        new_ks, new_q = _plan_shares(world, plan)
+        if abs(new_ks - ks) < 0.005 and abs(new_q - q) < 0.005:
+            break
+        ks, q = new_ks, new_q
+        plan = _solve(world, n, mdps, ks, q)
+    return plan
+
+
 def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
                keyboard_share: float | None = None, iterations: int = 6, n_weight_bins: int = 10) -> Plan:
     """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon).
 
-    ``keyboard_share`` None (default): the hand shares are the plan's own (approximation 2): start
-    from a menu-only world (shares 0), solve, measure the plan's usage-weighted hotkey success and
-    attempt shares, and solve again, ``iterations`` times at most (stops once both move < 0.005).
+    ``keyboard_share`` None (default): the hand shares are the plan's own (approximation 2). The
+    shares are found by fixed point twice, from a menu-only world (shares 0) and from a
+    keyboard-only one (shares 1): solve, measure the plan's usage-weighted hotkey success and
+    attempt shares, solve again, ``iterations`` times at most (stops once both move < 0.005);
+    the plan with the smaller :func:`predicted_time_s` is kept (a hotkey pays for one command only
+    if others keep the hand on the keyboard, so both ends can be self-consistent).
     A number fixes both shares to it.
     """
     n = world.horizon if max_uses is None else int(max_uses)
@@ -428,16 +467,20 @@ def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
         raise ValueError(f"keyboard_share must be in [0, 1] or None, got {keyboard_share}")
     mdps = [build_command_mdp(world, c, n_bins, 0.0, 0.0, n_weight_bins) for c in range(world.commands.n_commands)]
     if keyboard_share is not None:
-        return _solve(world, n, mdps, float(keyboard_share), float(keyboard_share))
-    ks = q = 0.0
-    plan = _solve(world, n, mdps, ks, q)
-    for _ in range(iterations):
-        new_ks, new_q = _plan_shares(world, plan)
-        if abs(new_ks - ks) < 0.005 and abs(new_q - q) < 0.005:
-            break
-        ks, q = new_ks, new_q
-        plan = _solve(world, n, mdps, ks, q)
-    return plan
+        plan = _solve(world, n, mdps, float(keyboard_share), float(keyboard_share))
+        plan.predicted_time_s = predicted_time_s(world, plan)
+        return plan
+    best = None
+    for start in (0.0, 1.0):
+        plan = _fixed_point(world, n, mdps, start, iterations)
+        plan.predicted_time_s = predicted_time_s(world, plan)
+        if best is None or plan.predicted_time_s < best.predicted_time_s - 1e-9:
+            best = plan
+    assert best is not None
+    for c, mdp in enumerate(mdps):  # the shared MDPs' R back to the kept plan's shares
+        mdp.R = _rewards(action_times(world, c, best.keyboard_share, best.next_hotkey_share), mdp.activation,
+                         mdp.p_recall)
+    return best
 
 
 def _learn_once_recall(world: World, n_bins: int, n_weight_bins: int = 10) -> list[np.ndarray]:
@@ -556,7 +599,7 @@ class BoundedOptimalPlanner(Agent):
         if self.plan is None:
             self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
                                    n_weight_bins=self.n_weight_bins)
-            self._cmdc = world.command_constants()
+        self._cmdc = world.command_constants()
         if getattr(self, "_times_for", None) is not self.plan:
             self._times = [action_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share)
                            for c in range(world.commands.n_commands)]
