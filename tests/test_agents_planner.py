@@ -154,3 +154,18 @@ def test_break_even_verdict_agrees_with_simulated_learn_once_vs_menu(keystroke_s
     pays = break_even_table(world)["learning_pays"].to_numpy()
     assert clear.sum() >= 1
     assert np.array_equal((mean > 0)[clear], pays[clear]), (mean.round(1), se.round(1), pays)
+
+
+def test_planner_finds_the_keyboard_equilibrium_when_it_pays():
+    """Slow typing (K = 0.5 s) with cheap learning (1 s): a hotkey pays only if the other commands
+    keep the hand on the keyboard too. Planned from a menu-only hand share alone, the planner ties
+    always-menu exactly; it must find the shared-keyboard plan and beat the menu by more than 2
+    paired standard errors on the same 10 users."""
+    world = make_world(costs={"klm": {"keystroke_s": 0.5}, "learn": {"encoding_s": 1.0}},
+                       schedule={"sessions": 3, "trials_per_session": 40})
+    env = CommandSelectionEnv(world=world)
+    agent = make_agent("bounded_optimal", world=world)
+    diff = np.array([run_episode(env, agent, seed=s)["duration_s"].sum()
+                     - run_episode(env, make_agent("always_menu"), seed=s)["duration_s"].sum() for s in range(10)])
+    assert agent.plan is not None and agent.plan.keyboard_share > 0.3
+    assert diff.mean() < -2 * diff.std(ddof=1) / np.sqrt(len(diff))
