@@ -33,7 +33,7 @@ from shortcut_gym.agents.learning import (
     _update,
 )
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.envs.simulator import BatchSimulator, seed_words, seeded_uniforms
+from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded, seed_words
 
 
 @dataclass
@@ -51,10 +51,18 @@ class FusedSums:
 @njit(**_RULE_JIT)
 def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
               reward, outcome, ops, p_recall, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen, agent_u,
-              trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch):
-    """Every trial of user ``b``: decide, step, learn, add to the sums (see module docstring)."""
+              trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch, words, n_words, pool,
+              state32):
+    """Every trial of user ``b``: decide, step, learn, add to the sums (see module docstring).
+
+    The agent's uniforms are ``agent_u[b]`` when it has a row per user, else drawn trial by trial
+    from ``default_rng`` of entropy ``words[b, :n_words[b]]`` (the same doubles)."""
     h = sched_cmd.shape[1]
     forgetting = flags[mech.M_FORGETTING] == 1
+    drawn = agent_u.shape[0] == sched_cmd.shape[0]
+    g_hi = g_lo = g_ihi = g_ilo = np.uint64(0)
+    if not drawn:
+        g_hi, g_lo, g_ihi, g_ilo = pcg64_seeded(words, n_words[b], b, pool, state32)
     for t in range(h):
         c = sched_cmd[b, t]
         dt = 0.0
@@ -62,7 +70,10 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
             dt = math.expm1(np.float64(k.seconds_since_last_use_feature(ist, fs, b, c, sched_onset[b, t])))
         p = _belief_now(b, c, dt, apar, flags, belief)
         _decide(b, c, p, t, horizon, apar, flags, q, ck, last_a, count, tk, seen, probs)
-        u = agent_u[b, t]
+        if drawn:
+            u = agent_u[b, t]
+        else:
+            g_hi, g_lo, u = pcg64_next_double(g_hi, g_lo, g_ihi, g_ilo)
         if u < probs[0]:
             a = 0
         elif u < probs[0] + probs[1]:
@@ -90,16 +101,19 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
 @njit(cache=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                reward, outcome, ops, p_recall, obs, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen,
-               agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses):
+               agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, words, n_words):
     """:func:`_run_user` for every user, then each user's final observation."""
     n_users, h = sched_cmd.shape
     n_cmd = cmdc.shape[0]
     for b in range(n_users):
         probs = np.empty(3)
         scratch = np.empty(k.N_OPS)
+        pool = np.empty(4, dtype=np.uint64)
+        state32 = np.empty(8, dtype=np.uint64)
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                   reward, outcome, ops, p_recall, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen,
-                  agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch)
+                  agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch, words,
+                  n_words, pool, state32)
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
@@ -108,7 +122,7 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
 def _run_users_parallel(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
                         sched_session, reward, outcome, ops, p_recall, obs, apar, flags, horizon, q, ck, last_a,
                         belief, count, tk, seen, agent_u, trials, time_s, outcomes, actions, command_time_s,
-                        command_uses):
+                        command_uses, words, n_words):
     """:func:`_run_user` for every user (users in parallel over numba's threads; they share nothing),
     then each user's final observation."""
     n_users, h = sched_cmd.shape
@@ -116,9 +130,12 @@ def _run_users_parallel(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock
     for b in prange(n_users):
         probs = np.empty(3)
         scratch = np.empty(k.N_OPS)
+        pool = np.empty(4, dtype=np.uint64)
+        state32 = np.empty(8, dtype=np.uint64)
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                   reward, outcome, ops, p_recall, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen,
-                  agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch)
+                  agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch, words,
+                  n_words, pool, state32)
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
@@ -146,14 +163,14 @@ def simulate_fused(policy: BatchLearningPolicy, sim: BatchSimulator, parallel: b
             raise ValueError(f"the agent reads {_DT_FEATURE!r} at observation index {got}, the simulator writes it "
                              f"at {want}; bind the agent to this world's context")
     n, h = sim.n_users, sim.horizon
-    # each user's agent uniforms in generator order, as the policy draws them block by block; seeded
-    # in one compiled call unless the generators are already in use
+    # each user's agent uniforms in generator order, as the policy draws them block by block; drawn
+    # inside the compiled loop unless the generators are already in use
     words = seed_words(np.asarray(policy.seeds), (AGENT_STREAM,)) if policy._gens is None else None
     if words is None:
         agent_u = np.stack([g.random(h) for g in policy.gens])
+        words = (np.zeros((n, 1), dtype=np.uint64), np.zeros(n, dtype=np.int64))
     else:
-        agent_u = np.empty((n, h))
-        seeded_uniforms(words[0], words[1], h, agent_u)
+        agent_u = np.empty((0, h))
     policy._u_pos = policy._BLOCK
     n_sess = int(sim.sched_session.max()) + 1
     c = sim.world.commands.n_commands
@@ -167,6 +184,7 @@ def simulate_fused(policy: BatchLearningPolicy, sim: BatchSimulator, parallel: b
     run(sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us, sim.sched_cmd, sim.sched_clock,
                sim.sched_onset, sim.sched_u, sim.sched_session, sim.reward, sim.outcome, sim.ops, sim.p_recall,
                sim.obs, policy.par, policy.flags, policy.horizon, *policy.state, agent_u,
-               out.trials, out.time_s, out.outcomes, out.actions, out.command_time_s, out.command_uses)
+               out.trials, out.time_s, out.outcomes, out.actions, out.command_time_s, out.command_uses, words[0],
+               words[1].astype(np.int64))
     policy.trial = h
     return out

@@ -99,11 +99,20 @@ class BatchSimulator:
         h = horizons.pop()
         c = self.world.commands.n_commands
         self.sched_cmd = np.empty((n, h), dtype=np.int64)
-        self.sched_onset = np.empty((n, h))
-        self.sched_clock = np.empty((n, h))
-        self.sched_session = np.empty((n, h), dtype=np.int64)
-        self.sched_gap = np.empty((n, h))
         self.sched_u = np.empty((n, h))
+        if compiled is not None:  # World.draw's doubles for every user, seeded in one compiled call
+            seeded_schedules(compiled[0], compiled[1], self._cdf, self.sched_cmd, self.sched_u)
+        if len(replayed) == 0:
+            # every user's onsets, sessions and gaps are the world's: read-only views of one row
+            self.sched_onset = np.broadcast_to(self._onset, (n, h))
+            self.sched_clock = np.broadcast_to(self._clock, (n, h))
+            self.sched_session = np.broadcast_to(self._session, (n, h))
+            self.sched_gap = np.broadcast_to(self._gap, (n, h))
+        else:
+            self.sched_onset = np.empty((n, h))
+            self.sched_clock = np.empty((n, h))
+            self.sched_session = np.empty((n, h), dtype=np.int64)
+            self.sched_gap = np.empty((n, h))
         # per sampled user exactly world.draw's calls: choice(c, size=h, p) is random(h) looked up in
         # the cdf, then random(h); one random(2 h) call yields the same doubles and generator state.
         # Users draw in order, so generators shared between users advance as in world.draw.
@@ -122,20 +131,16 @@ class BatchSimulator:
             self.sched_session[b] = sch.session
             self.sched_gap[b] = sch.gap_total_s
             self.sched_u[b] = u
-        if compiled is not None:  # the same doubles, seeded in one compiled call
-            sampled = list(range(n))
-            drawn = np.empty((n, 2 * h))
-            seeded_uniforms(compiled[0], compiled[1], 2 * h, drawn)
-        elif sampled:
-            drawn = np.stack(draws)
         if sampled:
+            drawn = np.stack(draws)
             rows = np.asarray(sampled) if len(sampled) < n else slice(None)
             self.sched_cmd[rows] = self._cdf.searchsorted(drawn[:, :h], side="right")
             self.sched_u[rows] = drawn[:, h:]
-            self.sched_onset[rows] = self._onset
-            self.sched_clock[rows] = self._clock
-            self.sched_session[rows] = self._session
-            self.sched_gap[rows] = self._gap
+            if replayed:
+                self.sched_onset[rows] = self._onset
+                self.sched_clock[rows] = self._clock
+                self.sched_session[rows] = self._session
+                self.sched_gap[rows] = self._gap
         self.schedules = _LazySchedules(self, given)
         cap = self._trace_capacity(c)
         self.n_users, self.horizon = n, h
@@ -225,6 +230,62 @@ def _pcg_step(s_hi, s_lo, i_hi, i_lo):
 
 
 @njit(cache=True)
+def pcg64_seeded(words, n, b, pool, state32):
+    """PCG64 (state hi, lo, increment hi, lo) of ``default_rng(entropy)`` for row ``b`` of ``words``."""
+    hc = _INIT_A
+    for i in range(4):
+        v = words[b, i] if i < n else np.uint64(0)
+        v = (v ^ hc) & _M32
+        hc = (hc * _MULT_A) & _M32
+        v = (v * hc) & _M32
+        pool[i] = v ^ (v >> _U16)
+    for i_src in range(4):
+        for i_dst in range(4):
+            if i_src != i_dst:
+                v = (pool[i_src] ^ hc) & _M32
+                hc = (hc * _MULT_A) & _M32
+                v = (v * hc) & _M32
+                v ^= v >> _U16
+                r = (_MIX_L * pool[i_dst] - _MIX_R * v) & _M32
+                pool[i_dst] = r ^ (r >> _U16)
+    for i_src in range(4, n):
+        for i_dst in range(4):
+            v = (words[b, i_src] ^ hc) & _M32
+            hc = (hc * _MULT_A) & _M32
+            v = (v * hc) & _M32
+            v ^= v >> _U16
+            r = (_MIX_L * pool[i_dst] - _MIX_R * v) & _M32
+            pool[i_dst] = r ^ (r >> _U16)
+    hc = _INIT_B
+    for i in range(8):
+        v = (pool[i % 4] ^ hc) & _M32
+        hc = (hc * _MULT_B) & _M32
+        v = (v * hc) & _M32
+        state32[i] = v ^ (v >> _U16)
+    seed_hi = state32[0] | (state32[1] << _U32)
+    seed_lo = state32[2] | (state32[3] << _U32)
+    inc_hi0 = state32[4] | (state32[5] << _U32)
+    inc_lo0 = state32[6] | (state32[7] << _U32)
+    i_hi = (inc_hi0 << _U1) | (inc_lo0 >> _U63)
+    i_lo = (inc_lo0 << _U1) | _U1
+    s_hi, s_lo = _pcg_step(np.uint64(0), np.uint64(0), i_hi, i_lo)
+    lo = s_lo + seed_lo
+    s_hi = s_hi + seed_hi + (np.uint64(1) if lo < s_lo else np.uint64(0))
+    s_hi, s_lo = _pcg_step(s_hi, lo, i_hi, i_lo)
+    return s_hi, s_lo, i_hi, i_lo
+
+
+@njit(cache=True)
+def pcg64_next_double(s_hi, s_lo, i_hi, i_lo):
+    """Advance PCG64 once; (new state hi, lo, Generator.random's double)."""
+    s_hi, s_lo = _pcg_step(s_hi, s_lo, i_hi, i_lo)
+    value = s_hi ^ s_lo
+    rot = s_hi >> _U58
+    x = (value >> rot) | (value << ((np.uint64(64) - rot) & _U63))
+    return s_hi, s_lo, np.float64(x >> _U11) * (1.0 / 9007199254740992.0)
+
+
+@njit(cache=True)
 def seeded_uniforms(words, n_words, n_draws, out):
     """Row b of ``out`` = ``np.random.default_rng(entropy_b).random(n_draws)`` where entropy_b's
     32-bit words (little end first, as SeedSequence coerces ints and lists of ints) are
@@ -232,54 +293,30 @@ def seeded_uniforms(words, n_words, n_draws, out):
     pool = np.empty(4, dtype=np.uint64)
     state32 = np.empty(8, dtype=np.uint64)
     for b in range(words.shape[0]):
-        n = n_words[b]
-        hc = _INIT_A
-        for i in range(4):
-            v = words[b, i] if i < n else np.uint64(0)
-            v = (v ^ hc) & _M32
-            hc = (hc * _MULT_A) & _M32
-            v = (v * hc) & _M32
-            pool[i] = v ^ (v >> _U16)
-        for i_src in range(4):
-            for i_dst in range(4):
-                if i_src != i_dst:
-                    v = (pool[i_src] ^ hc) & _M32
-                    hc = (hc * _MULT_A) & _M32
-                    v = (v * hc) & _M32
-                    v ^= v >> _U16
-                    r = (_MIX_L * pool[i_dst] - _MIX_R * v) & _M32
-                    pool[i_dst] = r ^ (r >> _U16)
-        for i_src in range(4, n):
-            for i_dst in range(4):
-                v = (words[b, i_src] ^ hc) & _M32
-                hc = (hc * _MULT_A) & _M32
-                v = (v * hc) & _M32
-                v ^= v >> _U16
-                r = (_MIX_L * pool[i_dst] - _MIX_R * v) & _M32
-                pool[i_dst] = r ^ (r >> _U16)
-        hc = _INIT_B
-        for i in range(8):
-            v = (pool[i % 4] ^ hc) & _M32
-            hc = (hc * _MULT_B) & _M32
-            v = (v * hc) & _M32
-            state32[i] = v ^ (v >> _U16)
-        seed_hi = state32[0] | (state32[1] << _U32)
-        seed_lo = state32[2] | (state32[3] << _U32)
-        inc_hi0 = state32[4] | (state32[5] << _U32)
-        inc_lo0 = state32[6] | (state32[7] << _U32)
-        i_hi = (inc_hi0 << _U1) | (inc_lo0 >> _U63)
-        i_lo = (inc_lo0 << _U1) | _U1
-        s_hi, s_lo = _pcg_step(np.uint64(0), np.uint64(0), i_hi, i_lo)
-        lo = s_lo + seed_lo
-        s_hi = s_hi + seed_hi + (np.uint64(1) if lo < s_lo else np.uint64(0))
-        s_lo = lo
-        s_hi, s_lo = _pcg_step(s_hi, s_lo, i_hi, i_lo)
+        s_hi, s_lo, i_hi, i_lo = pcg64_seeded(words, n_words[b], b, pool, state32)
         for j in range(n_draws):
-            s_hi, s_lo = _pcg_step(s_hi, s_lo, i_hi, i_lo)
-            value = s_hi ^ s_lo
-            rot = s_hi >> _U58
-            x = (value >> rot) | (value << ((np.uint64(64) - rot) & _U63))
-            out[b, j] = np.float64(x >> _U11) * (1.0 / 9007199254740992.0)
+            s_hi, s_lo, out[b, j] = pcg64_next_double(s_hi, s_lo, i_hi, i_lo)
+
+
+@njit(cache=True)
+def seeded_schedules(words, n_words, cdf, command, uniforms):
+    """Per user b (entropy as in :func:`seeded_uniforms`): ``command[b]`` = ``rng.choice(len(cdf),
+    size=h, p)`` (``random(h)`` looked up as ``cdf.searchsorted(u, side='right')``), then
+    ``uniforms[b]`` = ``rng.random(h)``: :meth:`World.draw`'s draws."""
+    pool = np.empty(4, dtype=np.uint64)
+    state32 = np.empty(8, dtype=np.uint64)
+    h = command.shape[1]
+    m = cdf.shape[0]
+    for b in range(words.shape[0]):
+        s_hi, s_lo, i_hi, i_lo = pcg64_seeded(words, n_words[b], b, pool, state32)
+        for j in range(h):
+            s_hi, s_lo, u = pcg64_next_double(s_hi, s_lo, i_hi, i_lo)
+            below = 0  # searchsorted(side='right') on the non-decreasing cdf: the count of entries <= u
+            while below < m and cdf[below] <= u:
+                below += 1
+            command[b, j] = below
+        for j in range(h):
+            s_hi, s_lo, uniforms[b, j] = pcg64_next_double(s_hi, s_lo, i_hi, i_lo)
 
 
 def seed_words(seeds: np.ndarray, extra: Sequence[int] = ()) -> tuple[np.ndarray, np.ndarray] | None:

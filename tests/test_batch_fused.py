@@ -73,6 +73,12 @@ def test_fused_run_leaves_simulator_and_policy_as_stepping(name: str, memory: st
         sims.append(sim)
         policies.append(agent.batch_policy(len(SEEDS), SEEDS))
     policies[0].run(sims[0])
+    # a third run whose agent generators were made beforehand draws its uniforms from them
+    sim2 = BatchSimulator(world)
+    sim2.reset(seeds=SEEDS)
+    pol2 = agent.batch_policy(len(SEEDS), SEEDS)
+    assert len(pol2.gens) == len(SEEDS)
+    pol2.run(sim2)
     sim, pol = sims[1], policies[1]
     for _ in range(sim.horizon):
         targets = sim.targets().copy()
@@ -81,6 +87,7 @@ def test_fused_run_leaves_simulator_and_policy_as_stepping(name: str, memory: st
         pol.observe(targets, acts, sim.outcome, -sim.reward)
     for attr in ("fs", "ist", "tr", "us", "obs", "reward", "outcome", "ops", "p_recall"):
         np.testing.assert_array_equal(getattr(sims[0], attr), getattr(sim, attr), err_msg=attr)
+        np.testing.assert_array_equal(getattr(sim2, attr), getattr(sim, attr), err_msg=attr)
     for i, (a, b) in enumerate(zip(policies[0].state, pol.state, strict=True)):
         np.testing.assert_array_equal(a, b, err_msg=f"policy state {i}")
     assert policies[0].trial == pol.trial == sim.horizon
