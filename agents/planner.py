@@ -42,7 +42,11 @@ Approximations (each makes the planner exact only for its own model, not for the
    None (default) the plan finds its own shares by fixed point: start from a menu-only world,
    solve, measure the plan's usage-weighted share of uses that recall a hotkey (ks: the hand is
    on the keyboard before a trial) and that attempt one (q: the next trial wants the keyboard),
-   solve again (at most 6 rounds). A menu then costs ks H, a hotkey (1 - ks) H, and the action
+   solve again (at most 6 rounds); the same from a keyboard-only start; keep the plan of smaller
+   :func:`predicted_time_s`. That prediction is optimistic by about 10-20 s per 6-session user
+   and overstates the keyboard plan's advantage over the menu one by about 7-11 s at K = 0.5 s
+   (measured on the demo scenario), so near that tie the kept plan can be the slightly worse one.
+   A menu then costs ks H, a hotkey (1 - ks) H, and the action
    is charged the next trial's homing: q H if it leaves the hand on the mouse (menu, learn, failed
    hotkey), (1 - q) H if on the keyboard. Each switch is thus counted by both trials next to it:
    right for decisions (both cause it), so plan values overstate total homing time. A number
