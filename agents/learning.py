@@ -562,14 +562,13 @@ class BatchLearningPolicy:
                      self._beliefs_now, self.par, self.flags, *self.state)
         self.trial += 1
 
-    def run(self, sim: Any, parallel: bool = False) -> Any:
+    def run(self, sim: Any) -> Any:
         """Run a just-reset :class:`~shortcut_gym.envs.simulator.BatchSimulator` to its horizon in one
         compiled loop; per-user sums (:class:`~shortcut_gym.agents.learning_fused.FusedSums`) equal to
-        stepping ``actions`` / ``sim.step`` / ``observe`` trial by trial (``parallel``: users over
-        numba's threads, see :func:`~shortcut_gym.agents.learning_fused.simulate_fused`)."""
+        stepping ``actions`` / ``sim.step`` / ``observe`` trial by trial."""
         from shortcut_gym.agents.learning_fused import simulate_fused
 
-        return simulate_fused(self, sim, parallel)
+        return simulate_fused(self, sim)
 
 
 class RescorlaWagnerAgent(LearningAgent):

@@ -20,7 +20,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from shortcut_gym.agents import mechanisms as mech
 from shortcut_gym.agents.base import AGENT_STREAM
@@ -98,18 +98,19 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
             p_recall[b] = pr
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                reward, outcome, ops, p_recall, obs, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen,
                agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, words, n_words):
-    """:func:`_run_user` for every user, then each user's final observation."""
+    """:func:`_run_user` for every user, then each user's final observation (without the GIL, so
+    chunks of users can run on several Python threads)."""
     n_users, h = sched_cmd.shape
     n_cmd = cmdc.shape[0]
+    probs = np.empty(3)
+    scratch = np.empty(k.N_OPS)
+    pool = np.empty(4, dtype=np.uint64)
+    state32 = np.empty(8, dtype=np.uint64)
     for b in range(n_users):
-        probs = np.empty(3)
-        scratch = np.empty(k.N_OPS)
-        pool = np.empty(4, dtype=np.uint64)
-        state32 = np.empty(8, dtype=np.uint64)
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                   reward, outcome, ops, p_recall, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen,
                   agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch, words,
@@ -118,35 +119,8 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
                     obs[b])
 
 
-@njit(cache=True, parallel=True)
-def _run_users_parallel(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
-                        sched_session, reward, outcome, ops, p_recall, obs, apar, flags, horizon, q, ck, last_a,
-                        belief, count, tk, seen, agent_u, trials, time_s, outcomes, actions, command_time_s,
-                        command_uses, words, n_words):
-    """:func:`_run_user` for every user (users in parallel over numba's threads; they share nothing),
-    then each user's final observation."""
-    n_users, h = sched_cmd.shape
-    n_cmd = cmdc.shape[0]
-    for b in prange(n_users):
-        probs = np.empty(3)
-        scratch = np.empty(k.N_OPS)
-        pool = np.empty(4, dtype=np.uint64)
-        state32 = np.empty(8, dtype=np.uint64)
-        _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-                  reward, outcome, ops, p_recall, apar, flags, horizon, q, ck, last_a, belief, count, tk, seen,
-                  agent_u, trials, time_s, outcomes, actions, command_time_s, command_uses, probs, scratch, words,
-                  n_words, pool, state32)
-        k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
-                    obs[b])
-
-
-def simulate_fused(policy: BatchLearningPolicy, sim: BatchSimulator, parallel: bool = False) -> FusedSums:
-    """Run ``sim`` (just reset) to its horizon with ``policy`` (just made, one user per sim user).
-
-    ``parallel`` spreads the users over numba's threads (same numbers). Off by default: sweeps
-    already run one process per core, and numba's OpenMP layer makes a later ``fork`` unsafe
-    (choose ``NUMBA_THREADING_LAYER=workqueue`` or tbb in processes that fork afterwards).
-    """
+def simulate_fused(policy: BatchLearningPolicy, sim: BatchSimulator) -> FusedSums:
+    """Run ``sim`` (just reset) to its horizon with ``policy`` (just made, one user per sim user)."""
     if sim.n_users == 0 or sim.trial != 0:
         raise RuntimeError("simulate_fused needs a simulator just reset (trial 0)")
     if policy.trial != 0:
@@ -180,8 +154,7 @@ def simulate_fused(policy: BatchLearningPolicy, sim: BatchSimulator, parallel: b
         actions=np.zeros((n, n_sess, 3), dtype=np.int64), command_time_s=np.zeros((n, c)),
         command_uses=np.zeros((n, c), dtype=np.int64),
     )
-    run = _run_users_parallel if parallel else _run_users
-    run(sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us, sim.sched_cmd, sim.sched_clock,
+    _run_users(sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us, sim.sched_cmd, sim.sched_clock,
                sim.sched_onset, sim.sched_u, sim.sched_session, sim.reward, sim.outcome, sim.ops, sim.p_recall,
                sim.obs, policy.par, policy.flags, policy.horizon, *policy.state, agent_u,
                out.trials, out.time_s, out.outcomes, out.actions, out.command_time_s, out.command_uses, words[0],

@@ -274,7 +274,7 @@ def seconds_since_last_use_feature(ist, fs, b, c, onset_s):
     return np.float32(0.0)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def write_obs_users(ipar, par, n_cmd, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, obs):
     """:func:`write_obs` for every user (rows of the state and schedule arrays)."""
     horizon = sched_cmd.shape[1]

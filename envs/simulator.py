@@ -298,7 +298,7 @@ def seeded_uniforms(words, n_words, n_draws, out):
             s_hi, s_lo, out[b, j] = pcg64_next_double(s_hi, s_lo, i_hi, i_lo)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def seeded_schedules(words, n_words, cdf, command, uniforms):
     """Per user b (entropy as in :func:`seeded_uniforms`): ``command[b]`` = ``rng.choice(len(cdf),
     size=h, p)`` (``random(h)`` looked up as ``cdf.searchsorted(u, side='right')``), then

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import copy
 from collections.abc import Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -142,30 +143,44 @@ def simulate_users(
     use_batch_policy: bool = True,
     chunk_users: int = CHUNK_USERS,
     fused: bool = True,
-    parallel: bool = False,
+    threads: int = 1,
 ) -> BlockSums:
     """Simulate one user per seed with the agent of ``spec``; per-user sums (+ trial rows if asked).
 
     With ``record="blocks"``, a batch policy offering ``run(sim)`` (the learning models) runs the
-    whole simulation in one compiled loop unless ``fused`` is False (same numbers either way);
-    ``parallel`` runs that loop's users on numba's threads (see ``learning_fused.simulate_fused``)."""
+    whole simulation in one compiled loop unless ``fused`` is False (same numbers either way).
+    ``threads`` > 1 runs chunks of users on that many Python threads at once (block sums only; it
+    pays where the work is compiled code that releases the GIL, as the fused loop and the
+    simulator's reset do); users are independent, so the numbers do not change."""
     if record not in ("blocks", "trials"):
         raise ValueError(f"record must be 'blocks' or 'trials', got {record!r}")
+    if not (isinstance(threads, int) and threads >= 1):
+        raise ValueError(f"threads must be an integer >= 1, got {threads!r}")
     seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)
     if len(seeds) == 0:
         raise ValueError("need at least one seed")
-    if record == "blocks" and len(seeds) > chunk_users:
-        parts = [_simulate_chunk(world, spec, seeds[i:i + chunk_users], record, use_batch_policy, fused,
-                                 parallel) for i in range(0, len(seeds), chunk_users)]
-        return BlockSums(seeds=seeds, **{f: np.concatenate([getattr(p, f) for p in parts])
-                                         for f in ("trials", "time_s", "outcomes", "actions", "command_time_s",
-                                                   "command_uses")})
-    return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused, parallel)
+    if record == "trials":
+        return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)
+    size = min(chunk_users, -(-len(seeds) // threads))
+    if len(seeds) <= size:
+        return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)
+    chunks = [seeds[i:i + size] for i in range(0, len(seeds), size)]
+
+    def run(part: np.ndarray) -> BlockSums:
+        return _simulate_chunk(world, spec, part, record, use_batch_policy, fused)
+
+    if threads > 1:
+        with ThreadPoolExecutor(max_workers=threads) as pool:
+            parts = list(pool.map(run, chunks))
+    else:
+        parts = [run(part) for part in chunks]
+    return BlockSums(seeds=seeds, **{f: np.concatenate([getattr(p, f) for p in parts])
+                                     for f in ("trials", "time_s", "outcomes", "actions", "command_time_s",
+                                               "command_uses")})
 
 
 def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarray, record: str,
-                    use_batch_policy: bool, fused: bool = True,
-                    parallel: bool = False) -> BlockSums:
+                    use_batch_policy: bool, fused: bool = True) -> BlockSums:
     sim = BatchSimulator(world)
     sim.reset(seeds=seeds.tolist())
     agent = build_agent(spec if not isinstance(spec, Agent) else spec.spec(), world)
@@ -177,7 +192,7 @@ def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarra
     runs_fused = isinstance(driver, _BatchDriver) and callable(getattr(driver.policy, "run", None))
     if fused and record == "blocks" and runs_fused:
         # one compiled loop over users and trials, same numbers as the per-trial loop below
-        done = driver.policy.run(sim, parallel)  # type: ignore[union-attr]
+        done = driver.policy.run(sim)  # type: ignore[union-attr]
         return BlockSums(seeds=seeds, trials=done.trials, time_s=done.time_s, outcomes=done.outcomes,
                          actions=done.actions, command_time_s=done.command_time_s, command_uses=done.command_uses)
     driver.start(sim)

@@ -5,7 +5,6 @@ from __future__ import annotations
 from typing import Any
 
 import gymnasium as gym
-import numba
 import numpy as np
 import pandas as pd
 import pytest
@@ -47,9 +46,7 @@ def test_fused_sums_equal_per_trial_batch_and_looped_env(name: str, memory: str 
     world = make_world(schedule=SCHEDULE, memory=memory)
     spec = {"name": name}
     fused = simulate_users(world, spec, SEEDS)
-    # numba's fork-safe thread pool: later tests in this process fork sweep workers
-    numba.config.THREADING_LAYER = "workqueue"
-    threaded = simulate_users(world, spec, SEEDS, parallel=True)
+    threaded = simulate_users(world, spec, SEEDS, threads=2, chunk_users=2)
     stepped = simulate_users(world, spec, SEEDS, fused=False)
     looped = _looped_sums(spec, memory, fused.trials.shape[1], world.commands.n_commands)
     for f in FIELDS:
