@@ -24,7 +24,8 @@ class _LazySchedules(Sequence[Schedule]):
     (a given schedule is returned as the object that was given)."""
 
     def __init__(self, sim: BatchSimulator, given: list[Schedule | None]) -> None:
-        self._sim = sim
+        # this reset's arrays (a later reset makes new ones, so these stay this batch's)
+        self._rows = (sim.sched_cmd, sim.sched_onset, sim.sched_session, sim.sched_gap)
         self._made: list[Schedule | None] = given
 
     def __len__(self) -> int:
@@ -42,9 +43,9 @@ class _LazySchedules(Sequence[Schedule]):
         b = range(len(self))[i]
         made = self._made[b]
         if made is None:
-            sim = self._sim
-            made = Schedule(command=sim.sched_cmd[b].copy(), onset_s=sim.sched_onset[b].copy(),
-                            session=sim.sched_session[b].copy(), gap_total_s=sim.sched_gap[b].copy())
+            cmd, onset, session, gap = self._rows
+            made = Schedule(command=cmd[b].copy(), onset_s=onset[b].copy(), session=session[b].copy(),
+                            gap_total_s=gap[b].copy())
             self._made[b] = made
         return made
 

@@ -86,3 +86,16 @@ def test_reset_by_seeds_equals_reset_by_generators() -> None:
         np.testing.assert_array_equal(getattr(a, attr), getattr(b, attr), err_msg=attr)
     with pytest.raises(ValueError, match="negative"):
         BatchSimulator(world).reset(seeds=[1, -2])
+
+
+def test_schedules_of_an_earlier_reset_keep_their_users() -> None:
+    world = make_world(schedule=SCHEDULE)
+    sim = BatchSimulator(world)
+    sim.reset(seeds=[1, 2])
+    first = sim.schedules
+    first_cmd = sim.sched_cmd.copy()
+    sim.reset(seeds=[3, 4])
+    assert not np.array_equal(sim.sched_cmd, first_cmd)
+    np.testing.assert_array_equal(first[1].command, first_cmd[1])
+    np.testing.assert_array_equal(sim.schedules[1].command, sim.sched_cmd[1])
+    assert [s.horizon for s in first[0:2]] == [world.horizon] * 2
