@@ -1,7 +1,9 @@
 """Many simulated users of one agent on the batched simulator, one kernel call per trial.
 
 An agent that offers ``batch_policy(n_users, seeds)`` (compiled, see CONTRACTS.md) is driven as a
-whole batch; any other agent is driven as one agent object per user (a Python loop over users
+whole batch; when only block sums are asked for and its policy offers ``run(sim)`` (the learning
+models, :mod:`shortcut_gym.agents.learning_fused`), all trials of all users run in one compiled
+call instead, with the same numbers. Any other agent is driven as one agent object per user (a Python loop over users
 inside each trial), given exactly the observations and info dicts ``run_episode`` gives it on
 ``CommandSelection-v0``, so both paths reproduce the single-env trial tables bit for bit.
 
