@@ -132,9 +132,10 @@ def _decide(b, c, p, trial, horizon, par, flags, q, ck, last_a, count, tk, seen,
         elif last == 2:
             logit2 += par[mech.P_STICK]
     top = max(logit0, max(logit1, logit2))
-    e0 = math.exp(logit0 - top)
-    e1 = math.exp(logit1 - top)
-    e2 = math.exp(logit2 - top)
+    # exp(0) is exactly 1: the largest logit's term needs no exp call (same numbers, one call fewer)
+    e0 = 1.0 if logit0 == top else math.exp(logit0 - top)
+    e1 = 1.0 if logit1 == top else math.exp(logit1 - top)
+    e2 = 1.0 if logit2 == top else math.exp(logit2 - top)
     z = e0 + e1 + e2
     lapse = par[mech.P_LAPSE] if flags[mech.M_LAPSE] == 1 else 0.0
     out[0] = (1.0 - lapse) * e0 / z + lapse / 3.0
