@@ -59,6 +59,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
     from ``default_rng`` of entropy ``words[b, :n_words[b]]`` (the same doubles)."""
     h = sched_cmd.shape[1]
     forgetting = flags[mech.M_FORGETTING] == 1
+    fail_lat = k.failed_retrieval_s(par)
     drawn = agent_u.shape[0] == sched_cmd.shape[0]
     g_hi = g_lo = g_ihi = g_ilo = np.uint64(0)
     if not drawn:
@@ -83,7 +84,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         last = t == h - 1
         o = ops[b] if last else scratch
         dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, o, last)
+                                   sched_u, o, last, fail_lat)
         _update(b, c, a, res, dur, p, apar, flags, q, ck, last_a, belief, count, tk, seen)
         s = sched_session[b, t]
         trials[b, s] += 1

@@ -190,13 +190,14 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
 
 @njit(cache=True)
 def step_user(
-    b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, ops, full,
+    b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, ops, full, fail_lat,
 ):
     """Advance user ``b`` one trial with action ``act``; returns (duration_s, outcome code, p_recall).
 
     Writes the operator breakdown into ``ops`` (10,). With ``full`` False the recall probability is
     computed only when the action needs it (a hotkey attempt) and returned as -1.0 otherwise; the
     duration, outcome and memory state are the same either way. Writes no observation.
+    ``fail_lat`` is :func:`failed_retrieval_s` of ``par`` (computed once by the caller).
     """
     t = us[b, U_TRIAL]
     c = sched_cmd[b, t]
@@ -243,7 +244,7 @@ def step_user(
             s[S_HK_OK] += 1
             us[b, U_HAND] = HAND_KEYBOARD
         else:
-            lat = par[P_F] * math.exp(-par[P_TAU])
+            lat = fail_lat
             dur += lat
             o[O_RETRIEVAL] += lat
             if u < p + (1.0 - p) * par[P_COMM]:
@@ -263,6 +264,12 @@ def step_user(
     f[F_LAST_USE] = sched_onset[b, t]
     us[b, U_TRIAL] = t + 1
     return dur, res, p
+
+
+@njit(cache=True)
+def failed_retrieval_s(par):
+    """Latency of a failed retrieval, F e^-tau (s)."""
+    return par[P_F] * math.exp(-par[P_TAU])
 
 
 @njit(cache=True)
@@ -292,9 +299,10 @@ def step_users(
     n_users = actions.shape[0]
     n_cmd = cmdc.shape[0]
     horizon = sched_cmd.shape[1]
+    fail_lat = failed_retrieval_s(par)
     for b in range(n_users):
         dur, res, p = step_user(b, actions[b], ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock,
-                                sched_onset, sched_u, ops[b], True)
+                                sched_onset, sched_u, ops[b], True, fail_lat)
         p_recall[b] = p
         reward[b] = -dur
         outcome[b] = res
