@@ -103,7 +103,7 @@ class CommandSelectionEnv(gym.Env):
         info = self._upcoming_info()
         info.update(
             trial=t,
-            session=int(self._sim.schedules[0].session[t]),
+            session=int(sim.sched_session[0, t]),
             onset_s=float(sim.sched_onset[0, t]),
             command=c,
             command_name=self.world.commands.names[c],
@@ -137,13 +137,12 @@ class CommandSelectionEnv(gym.Env):
         t = int(sim.us[0, k.U_TRIAL])
         tt = min(t, sim.horizon - 1)
         c = int(sim.sched_cmd[0, tt])
-        sched = sim.schedules[0]
         return {
             "target": c,
             "target_name": self.world.commands.names[c],
             "next_trial": t,
-            "next_onset_s": float(sched.onset_s[tt]),
-            "next_session": int(sched.session[tt]),
+            "next_onset_s": float(sim.sched_onset[0, tt]),
+            "next_session": int(sim.sched_session[0, tt]),
         }
 
     @property
