@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterable, Sequence
+
 import gymnasium as gym
 import pandas as pd
 
@@ -42,3 +44,25 @@ def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials:
         done = terminated or truncated or (max_trials is not None and len(rows) >= max_trials)
     cols = ["trial", "session", "onset_s", "command", "command_name", "action", "outcome", "duration_s", "p_recall"]
     return pd.DataFrame(rows)[cols + [f"t_{op}" for op in OPERATOR_NAMES]]
+
+
+def evaluate_agent(env: gym.Env, agent: Agent, seeds: Iterable[int]) -> pd.DataFrame:
+    """Total time (s) and hotkey share per simulated user, one row per seed."""
+    rows = []
+    for s in seeds:
+        df = run_episode(env, agent, seed=int(s))
+        rows.append({"seed": int(s), "total_time_s": df["duration_s"].sum(),
+                     "hotkey_share": float((df["outcome"] == "hotkey").mean())})
+    return pd.DataFrame(rows)
+
+
+def labelled_trial_table(env: gym.Env, agents: Iterable[tuple[str, Agent]], seeds: Sequence[int]) -> pd.DataFrame:
+    """Trial table of every (label, agent) x seed: columns agent, user, then run_episode's."""
+    frames = []
+    for label, agent in agents:
+        for s in seeds:
+            df = run_episode(env, agent, seed=int(s))
+            df.insert(0, "user", int(s))
+            df.insert(0, "agent", label)
+            frames.append(df)
+    return pd.concat(frames, ignore_index=True)

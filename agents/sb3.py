@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext
-from shortcut_gym.agents.rollout import context_of, run_episode
+from shortcut_gym.agents.rollout import context_of, evaluate_agent
 
 MAX_TORCH_THREADS = 1  # <= 2 as the project asks; 1 is far faster when the 2 cores are shared
 DEFAULT_HYPERPARAMETERS: dict[str, dict[str, Any]] = {
@@ -184,12 +184,7 @@ class SB3Agent(Agent):
 
     def evaluate(self, env: Any, seeds: list[int] | range) -> pd.DataFrame:
         """Total time (s) and hotkey share per simulated user."""
-        rows = []
-        for s in seeds:
-            df = run_episode(env, self, seed=int(s))
-            rows.append({"seed": int(s), "total_time_s": df["duration_s"].sum(),
-                         "hotkey_share": float((df["outcome"] == "hotkey").mean())})
-        return pd.DataFrame(rows)
+        return evaluate_agent(env, self, seeds)
 
 
 def _norm_path(model_zip: Path) -> Path:

@@ -13,22 +13,14 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.planner import BoundedOptimalPlanner
-from shortcut_gym.agents.rollout import run_episode
+from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.world import World
 
 
 def simulate_trials(world: World, agents: Mapping[str, Agent], seeds: Sequence[int]) -> pd.DataFrame:
     """Trial table of every labelled agent x seed (columns agent, user + run_episode's)."""
-    env = CommandSelectionEnv(world=world)
-    frames = []
-    for label, agent in agents.items():
-        for s in seeds:
-            df = run_episode(env, agent, seed=int(s))
-            df.insert(0, "user", int(s))
-            df.insert(0, "agent", label)
-            frames.append(df)
-    return pd.concat(frames, ignore_index=True)
+    return labelled_trial_table(CommandSelectionEnv(world=world), agents.items(), seeds)
 
 
 def score_trials(trials: pd.DataFrame, reference: str) -> pd.DataFrame:

@@ -23,7 +23,7 @@ import pandas as pd
 from tqdm.auto import tqdm
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
-from shortcut_gym.agents.rollout import run_episode
+from shortcut_gym.agents.rollout import evaluate_agent, run_episode
 
 _FEATURES = ("log1p_learn_count", "log1p_hotkey_successes", "log1p_hotkey_failures", "log1p_seconds_since_last_use")
 _EDGES = {  # bucket upper edges (counts or seconds), in feature order
@@ -153,12 +153,7 @@ class TabularAgent(Agent):
 
     def evaluate(self, env: Any, seeds: Any) -> pd.DataFrame:
         """Total time (s) and hotkey share per simulated user, learning switched off."""
-        rows = []
-        for s in seeds:
-            df = run_episode(env, self, seed=int(s))
-            rows.append({"seed": int(s), "total_time_s": df["duration_s"].sum(),
-                         "hotkey_share": float((df["outcome"] == "hotkey").mean())})
-        return pd.DataFrame(rows)
+        return evaluate_agent(env, self, seeds)
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "params": dict(self.params)}

@@ -9,7 +9,7 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.registry import agent_from_spec
-from shortcut_gym.agents.rollout import run_episode
+from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.world import World
 
@@ -42,17 +42,8 @@ def label_of(spec: dict[str, Any]) -> str:
 
 def simulate_agents(world: World, specs: Sequence[dict[str, Any] | Agent], seeds: Sequence[int]) -> pd.DataFrame:
     """Trial table of every agent x seed (one simulated user per seed, same seeds per agent)."""
-    env = CommandSelectionEnv(world=world)
-    frames = []
-    for spec in specs:
-        agent = spec if isinstance(spec, Agent) else agent_from_spec(spec)
-        label = label_of(agent.spec())
-        for seed in seeds:
-            df = run_episode(env, agent, seed=int(seed))
-            df.insert(0, "user", int(seed))
-            df.insert(0, "agent", label)
-            frames.append(df)
-    return pd.concat(frames, ignore_index=True)
+    agents = [spec if isinstance(spec, Agent) else agent_from_spec(spec) for spec in specs]
+    return labelled_trial_table(CommandSelectionEnv(world=world), [(label_of(a.spec()), a) for a in agents], seeds)
 
 
 def session_summary(trials: pd.DataFrame) -> pd.DataFrame:

@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext, Transition
+from shortcut_gym.agents.learning_fused import FusedSums
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.simulator import BatchSimulator
@@ -33,16 +34,11 @@ TRIAL_COLUMNS = ["trial", "session", "onset_s", "command", "command_name", "acti
 
 
 @dataclass
-class BlockSums:
-    """Per-user sums: by session (users x sessions [x codes]) and by command (users x commands)."""
+class BlockSums(FusedSums):
+    """Per-user sums (the fields of :class:`FusedSums`) with the users' seeds and, if recorded,
+    the per-trial columns."""
 
     seeds: np.ndarray
-    trials: np.ndarray  # (B, S) int
-    time_s: np.ndarray  # (B, S)
-    outcomes: np.ndarray  # (B, S, 5) int, codes of kernel.OUTCOME_NAMES
-    actions: np.ndarray  # (B, S, 3) int
-    command_time_s: np.ndarray  # (B, C)
-    command_uses: np.ndarray  # (B, C) int
     trial_rows: dict[str, list[np.ndarray]] = field(default_factory=dict)
 
 
@@ -195,8 +191,7 @@ def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarra
     if fused and record == "blocks" and runs_fused:
         # one compiled loop over users and trials, same numbers as the per-trial loop below
         done = driver.policy.run(sim)  # type: ignore[union-attr]
-        return BlockSums(seeds=seeds, trials=done.trials, time_s=done.time_s, outcomes=done.outcomes,
-                         actions=done.actions, command_time_s=done.command_time_s, command_uses=done.command_uses)
+        return BlockSums(seeds=seeds, **vars(done))
     driver.start(sim)
     n, h, c = sim.n_users, sim.horizon, world.commands.n_commands
     sessions = sim.sched_session
