@@ -68,7 +68,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         c = sched_cmd[b, t]
         dt = 0.0
         if forgetting:
-            dt = math.expm1(np.float64(k.seconds_since_last_use_feature(ist, fs, b, c, sched_onset[b, t])))
+            dt = math.expm1(np.float64(k.seconds_since_last_use_feature(ist[b], fs[b], c, sched_onset[b, t])))
         p = _belief_now(b, c, dt, apar, flags, belief)
         _decide(b, c, p, t, horizon, apar, flags, q, ck, last_a, count, tk, seen, probs)
         if drawn:

@@ -173,8 +173,7 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
         obs[0] = c / max(n_cmd - 1, 1)
         k = 1
     obs[k] = math.log1p(ist[c, S_EXPOSURE])
-    if ist[c, S_EXPOSURE] > 0:
-        obs[k + 1] = math.log1p(max(sched_onset[tt] - fs[c, F_LAST_USE], 0.0))
+    obs[k + 1] = seconds_since_last_use_feature(ist, fs, c, sched_onset[tt])
     obs[k + 2] = math.log1p(ist[c, S_HK_OK])
     obs[k + 3] = math.log1p(ist[c, S_HK_FAIL])
     obs[k + 4] = math.log1p(ist[c, S_LEARN])
@@ -273,11 +272,11 @@ def failed_retrieval_s(par):
 
 
 @njit(cache=True)
-def seconds_since_last_use_feature(ist, fs, b, c, onset_s):
-    """The ``log1p_seconds_since_last_use`` entry :func:`write_obs` stores (float32) for user ``b``'s
-    upcoming target ``c`` with onset ``onset_s``."""
-    if ist[b, c, S_EXPOSURE] > 0:
-        return np.float32(math.log1p(max(onset_s - fs[b, c, F_LAST_USE], 0.0)))
+def seconds_since_last_use_feature(ist, fs, c, onset_s):
+    """The ``log1p_seconds_since_last_use`` observation entry (float32) of one user's command ``c``
+    at onset ``onset_s`` (``ist``, ``fs``: that user's per-command state); 0 before its first use."""
+    if ist[c, S_EXPOSURE] > 0:
+        return np.float32(math.log1p(max(onset_s - fs[c, F_LAST_USE], 0.0)))
     return np.float32(0.0)
 
 
