@@ -81,12 +81,13 @@ def activation(ipar, par, fs, ist, tr, now):
             total += tr[j, 1] * age ** (-par[P_DECAY])
     if kind == K_ACTR and fs[F_OLD_W] > 0.0:
         d = par[P_DECAY]
-        a_o = now - fs[F_OLD_FIRST]
         a_n = now - fs[F_OLD_LAST]
-        if a_o - a_n <= 1e-9 * a_o:
+        r = (fs[F_OLD_LAST] - fs[F_OLD_FIRST]) / a_n  # (a_o - a_n) / a_n, without cancellation
+        if r <= 1e-12:  # mean of age^-d is a_n^-d (1 - d r / 2 + ...); avoids subnormal r
             total += fs[F_OLD_W] * a_n ** (-d)
         else:
-            total += fs[F_OLD_W] * (a_o ** (1.0 - d) - a_n ** (1.0 - d)) / ((1.0 - d) * (a_o - a_n))
+            # a_o^{1-d} - a_n^{1-d} = a_n^{1-d} expm1((1-d) log1p(r)), stable for small r
+            total += fs[F_OLD_W] * a_n ** (-d) * math.expm1((1.0 - d) * math.log1p(r)) / ((1.0 - d) * r)
     if total <= 0.0:
         return -np.inf
     return math.log(total)

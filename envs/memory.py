@@ -201,10 +201,13 @@ class HybridBaseLevel:
         if self.old_weight == 0.0:
             return 0.0
         d = self.decay
-        a_o, a_n = now - self.old_first, now - self.old_last
-        if a_o - a_n <= 1e-9 * a_o:
+        a_n = now - self.old_last
+        r = (self.old_last - self.old_first) / a_n  # (a_o - a_n) / a_n, without cancellation
+        if r <= 1e-12:  # mean of age^-d is a_n^-d (1 - d r / 2 + ...); avoids subnormal r
             return self.old_weight * a_n ** (-d)
-        return self.old_weight * (a_o ** (1 - d) - a_n ** (1 - d)) / ((1 - d) * (a_o - a_n))
+        # a_o^{1-d} - a_n^{1-d} = a_n^{1-d} expm1((1-d) log1p(r)): no catastrophic cancellation
+        x = (1 - d) * math.log1p(r)
+        return self.old_weight * a_n ** (-d) * math.expm1(x) / ((1 - d) * r)
 
     def activation(self, now: float) -> float:
         """Approximate base-level activation at ``now`` (s); -inf with no trace."""
