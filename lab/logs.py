@@ -76,11 +76,18 @@ def read_log_table(path: str | Path) -> pd.DataFrame:
     if not p.is_file():
         raise FileNotFoundError(f"{p}: no such trial log file")
     suffix = p.suffix.lower()
-    if suffix == ".csv":
-        return pd.read_csv(p, dtype={"participant": str, "command": str, "action": str, "outcome": str},
-                           keep_default_na=True)
-    if suffix in (".parquet", ".pq"):
-        return pd.read_parquet(p)
+    try:
+        if suffix == ".csv":
+            return pd.read_csv(p, dtype={"participant": str, "command": str, "action": str, "outcome": str},
+                               keep_default_na=True)
+        if suffix in (".parquet", ".pq"):
+            return pd.read_parquet(p)
+    except pd.errors.EmptyDataError:
+        raise LogError([LogFault(str(p), None, None, "the file is empty (no header line)")]) from None
+    except (pd.errors.ParserError, UnicodeDecodeError, OSError, ValueError) as exc:
+        kind = "CSV" if suffix == ".csv" else "Parquet"
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        raise LogError([LogFault(str(p), None, None, f"cannot be read as {kind}: {first}")]) from exc
     raise LogError([LogFault(str(p), None, None, f"unknown file type {suffix!r}; use .csv or .parquet")])
 
 

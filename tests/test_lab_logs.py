@@ -120,6 +120,20 @@ def test_unknown_file_type(tmp_path):
         read_log(p, WORLD.commands)
 
 
+@pytest.mark.parametrize(("name", "content", "expected"), [
+    ("log.csv", b"", "log.csv: the file is empty (no header line)"),
+    ("log.csv", b"participant,session,trial\n1,2,3\n4,5,6,7\n", "log.csv: cannot be read as CSV: Error tokenizing"),
+    ("log.csv", b"\xff\xfe\x00 not text", "log.csv: cannot be read as CSV: 'utf-8' codec"),
+    ("log.parquet", b"not a parquet file", "log.parquet: cannot be read as Parquet:"),
+])
+def test_unreadable_file_names_the_file_and_the_reason(tmp_path, name, content, expected):
+    p = tmp_path / name
+    p.write_bytes(content)
+    with pytest.raises(LogError) as err:
+        read_log(p, WORLD.commands)
+    assert expected in str(err.value).replace(str(tmp_path) + "/", "")
+
+
 def test_schedule_replays_the_log(good_log):
     trials = participant_trials(validate_log(good_log, WORLD.commands), "P-0")
     sched = schedule_of(trials)
