@@ -15,6 +15,11 @@ PTH = "shortcut_gym_startup.pth"
 class BuildPyWithStartupHook(build_py):
     """build_py that also places the .pth file at the top of the install."""
 
+    def find_package_modules(self, package: str, package_dir: str) -> list:
+        # the root package maps to the project folder: ship its modules, not this build script
+        found = super().find_package_modules(package, package_dir)
+        return [m for m in found if not (package == "shortcut_gym" and m[1] == "setup")]
+
     def run(self) -> None:
         super().run()
         self.copy_file(PTH, os.path.join(self.build_lib, PTH), preserve_mode=0)

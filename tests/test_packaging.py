@@ -56,6 +56,8 @@ def test_regular_wheel_install_imports_every_subpackage(tmp_path: Path) -> None:
     assert inst.returncode == 0, inst.stderr
     assert (target / "shortcut_gym_startup.pth").is_file()
     assert not (target / "envs").exists() and not (target / "agents").exists()  # no plain top-level names
+    assert not (target / "shortcut_gym" / "setup.py").exists()  # the build script is not a module of ours
+    assert not (target / "shortcut_gym" / "tests").exists()
     # site.addsitedir processes the .pth start-up hook as site-packages would
     code = f"import site; site.addsitedir({str(target)!r})\n" + PROBE
     env = {**os.environ, "PYTHONPATH": str(target)}
