@@ -8,7 +8,7 @@ import gymnasium as gym
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext, Transition
-from shortcut_gym.envs.kernel import ACTION_NAMES, OPERATOR_NAMES
+from shortcut_gym.envs.wrappers import TRIAL_COLUMNS, trial_row
 
 
 def context_of(env: gym.Env) -> AgentContext:
@@ -34,16 +34,10 @@ def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials:
         action = agent.act(obs, info)
         next_obs, reward, terminated, truncated, step_info = env.step(action)
         agent.observe(Transition(obs, action, reward, next_obs, step_info, terminated, truncated))
-        row = {key: step_info[key] for key in ("trial", "session", "onset_s", "command", "command_name",
-                                               "outcome", "duration_s", "p_recall")}
-        row["action"] = ACTION_NAMES[action]
-        for op in OPERATOR_NAMES:
-            row[f"t_{op}"] = step_info["time_s"][op]
-        rows.append(row)
+        rows.append(trial_row(step_info))
         obs, info = next_obs, step_info
         done = terminated or truncated or (max_trials is not None and len(rows) >= max_trials)
-    cols = ["trial", "session", "onset_s", "command", "command_name", "action", "outcome", "duration_s", "p_recall"]
-    return pd.DataFrame(rows)[cols + [f"t_{op}" for op in OPERATOR_NAMES]]
+    return pd.DataFrame(rows, columns=list(TRIAL_COLUMNS))
 
 
 def evaluate_agent(env: gym.Env, agent: Agent, seeds: Iterable[int]) -> pd.DataFrame:

@@ -9,6 +9,7 @@ from shortcut_gym.envs.registration import ENV_ID, register_envs
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings
 from shortcut_gym.envs.world import World, make_world
+from shortcut_gym.envs.wrappers import ScheduleReplay, TrialRecorder
 
 register_envs()
 
@@ -27,7 +28,9 @@ __all__ = [
     "OUTCOME_NAMES",
     "ScenarioSettings",
     "Schedule",
+    "ScheduleReplay",
     "ScheduleSettings",
+    "TrialRecorder",
     "World",
     "make_world",
     "register_envs",
