@@ -8,7 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
-from shortcut_gym.lab.report import plot_comparison, write_index, write_table
+from shortcut_gym.lab.report import comparison_sections, plot_comparison, write_index, write_table
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -39,7 +39,7 @@ def run(args: argparse.Namespace) -> int:
         (write_table(bms.table(), args.out, "bms"), "random-effects BMS"),
         (plot_comparison(summed, bms, args.out / "comparison.png"), "summed BIC and BMS plot"),
     ]
-    index = write_index(args.out, entries, "Model comparison")
+    index = write_index(args.out, entries, "Model comparison", comparison_sections(summed, bms))
     print(summed.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(bms.table().to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     print(f"wrote {index.parent}")

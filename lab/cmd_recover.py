@@ -7,7 +7,14 @@ import argparse
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cmd_fit import add_common, check_counts, models_of
 from shortcut_gym.lab.recovery import model_recovery, parameter_recovery
-from shortcut_gym.lab.report import plot_confusion, plot_parameter_recovery, write_index, write_table
+from shortcut_gym.lab.report import (
+    model_recovery_section,
+    parameter_recovery_section,
+    plot_confusion,
+    plot_parameter_recovery,
+    write_index,
+    write_table,
+)
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -27,6 +34,7 @@ def run(args: argparse.Namespace) -> int:
     specs = models_of(args)
     args.out.mkdir(parents=True, exist_ok=True)
     entries = []
+    sections = []
     if args.study in ("parameters", "both"):
         for spec in specs:
             pairs, summary = parameter_recovery(world, spec, args.participants, args.seed, args.starts, args.jobs,
@@ -36,6 +44,7 @@ def run(args: argparse.Namespace) -> int:
             entries.append((write_table(pairs, args.out, f"parameter_pairs_{spec.label}"), "true vs fitted values"))
             entries.append((plot_parameter_recovery(pairs, summary, args.out / f"parameter_recovery_{spec.label}.png"),
                             "true vs fitted scatter"))
+            sections.append(parameter_recovery_section(spec.label, summary))
             print(summary.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     if args.study in ("models", "both"):
         if len(specs) < 2:
@@ -46,7 +55,8 @@ def run(args: argparse.Namespace) -> int:
                         "rows generating model, columns winning model (fractions)"))
         entries.append((write_table(fits, args.out, "model_recovery_fits"), "all fits of the model-recovery study"))
         entries.append((plot_confusion(confusion, args.out / "model_confusion.png"), "confusion heat map"))
+        sections.append(model_recovery_section(confusion))
         print(confusion.to_string(float_format=lambda v: f"{v:.2f}"))
-    index = write_index(args.out, entries, "Recovery studies")
+    index = write_index(args.out, entries, "Recovery studies", sections)
     print(f"wrote {index.parent}")
     return 0

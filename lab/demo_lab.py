@@ -15,7 +15,14 @@ from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.fitting import ModelSpec
 from shortcut_gym.lab.logs import validate_log, write_log
 from shortcut_gym.lab.recovery import model_recovery, parameter_recovery, simulate_known
-from shortcut_gym.lab.report import analyse_log, plot_confusion, plot_parameter_recovery, write_table
+from shortcut_gym.lab.report import (
+    analyse_log,
+    model_recovery_section,
+    parameter_recovery_section,
+    plot_confusion,
+    plot_parameter_recovery,
+    write_table,
+)
 
 DEMO_MODELS = (
     ModelSpec("static_softmax", "static_softmax"),
@@ -52,18 +59,22 @@ def lab_section(out: Path, users: int) -> Path:
     write_table(truth, folder, "synthetic_truth")
     log = validate_log(log, world.commands, source="synthetic log")
     specs = list(DEMO_MODELS)
-    index, tables = analyse_log(log, specs, world, folder, n_starts=3, seed=0, n_jobs=2, n_sims=20,
-                                knockout="rescorla_wagner")
     pairs, summary = parameter_recovery(world, specs[0], n_participants=12, seed=1, n_starts=2, n_jobs=1)
-    write_table(summary, folder, "parameter_recovery_static_softmax")
-    plot_parameter_recovery(pairs, summary, folder / "parameter_recovery_static_softmax.png")
     confusion, _ = model_recovery(world, specs, n_participants=3, seed=2, n_starts=2, n_jobs=2)
-    write_table(confusion, folder, "model_confusion", index=True)
-    plot_confusion(confusion, folder / "model_confusion.png")
-    with open(index, "a") as fh:
-        fh.write("- `synthetic_log.csv`, `synthetic_truth.csv`: the invented participants and their generating models\n"
-                 "- `parameter_recovery_static_softmax.csv/.png`: parameter recovery (12 simulated participants)\n"
-                 "- `model_confusion.csv/.png`: model recovery (3 simulated participants per model)\n")
+    entries = [
+        (folder / "synthetic_log.csv", "the invented participants' trial log"),
+        (folder / "synthetic_truth.csv", "their generating models and parameters"),
+        (write_table(summary, folder, f"parameter_recovery_{specs[0].label}"),
+         f"parameter recovery of {specs[0].label} (12 simulated participants)"),
+        (plot_parameter_recovery(pairs, summary, folder / f"parameter_recovery_{specs[0].label}.png"),
+         "true vs fitted scatter"),
+        (write_table(confusion, folder, "model_confusion", index=True),
+         "model recovery (3 simulated participants per model)"),
+        (plot_confusion(confusion, folder / "model_confusion.png"), "confusion heat map"),
+    ]
+    sections = [parameter_recovery_section(specs[0].label, summary), model_recovery_section(confusion)]
+    index, tables = analyse_log(log, specs, world, folder, n_starts=3, seed=0, n_jobs=2, n_sims=20,
+                                knockout="rescorla_wagner", extra_sections=sections, extra_entries=entries)
     fmt = {"float_format": lambda v: f"{v:.2f}"}
     print(f"\n== Lab: {log['participant'].nunique()} invented participants, models fitted by maximum likelihood")
     print(tables["summed"].to_string(index=False, **fmt))

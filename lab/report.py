@@ -1,11 +1,13 @@
 """Report folders: tables (CSV) and plots (PNG) of fits, comparisons, recovery and predictive checks.
 
-Every writer takes the folder and returns the paths it wrote; :func:`write_index` lists them in
-``index.md`` with a line of explanation each.
+Every writer takes the folder and returns the paths it wrote; :func:`write_index` writes
+``index.md``: the findings as Markdown (verdict, tables, plots), then each file with a line of
+explanation.
 """
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
@@ -90,9 +92,29 @@ def plot_confusion(confusion: pd.DataFrame, path: Path) -> Path:
     return path
 
 
-def write_index(folder: Path, entries: list[tuple[Path, str]], title: str) -> Path:
-    """``index.md``: one line per written file with what it holds."""
+def markdown_table(table: pd.DataFrame, index: bool = False, digits: int = 2) -> str:
+    """A pipe table of ``table`` (floats to ``digits`` decimals, NaN as a dash, numbers right-aligned)."""
+    df = table.reset_index() if index else table
+    def cell(v: object) -> str:
+        if isinstance(v, (float, np.floating)):
+            return "-" if np.isnan(v) else f"{v:.{digits}f}"
+        return str(v).replace("|", "\\|")
+    numeric = [pd.api.types.is_numeric_dtype(df[c]) for c in df.columns]
+    head = "| " + " | ".join(str(c) for c in df.columns) + " |"
+    rule = "|" + "|".join("---:" if n else "---" for n in numeric) + "|"
+    rows = ["| " + " | ".join(cell(v) for v in row) + " |" for row in df.itertuples(index=False)]
+    return "\n".join([head, rule, *rows])
+
+
+def write_index(folder: Path, entries: list[tuple[Path, str]], title: str,
+                sections: list[tuple[str, str]] | None = None) -> Path:
+    """``index.md``: the findings (``sections``: heading and Markdown body each), then one line per
+    written file with what it holds."""
     lines = [f"# {title}", ""]
+    for heading, body in sections or []:
+        lines += [f"## {heading}", "", body.strip(), ""]
+    if sections:
+        lines += ["## Files", ""]
     for p, what in entries:
         lines.append(f"- `{Path(p).relative_to(folder)}`: {what}")
     path = folder / "index.md"
@@ -100,12 +122,52 @@ def write_index(folder: Path, entries: list[tuple[Path, str]], title: str) -> Pa
     return path
 
 
+def parameter_recovery_section(label: str, summary: pd.DataFrame) -> tuple[str, str]:
+    """Report section of one model's parameter recovery (correlation, bias, RMSE per parameter)."""
+    cols = [c for c in ("parameter", "correlation", "bias", "rmse", "true_sd", "n") if c in summary.columns]
+    worst = summary.sort_values("correlation").iloc[0]
+    words = (f"Lowest true-fitted correlation: {worst['parameter']} ({worst['correlation']:.2f}). "
+             f"![true vs fitted](parameter_recovery_{label}.png)")
+    return (f"Parameter recovery ({label})", markdown_table(summary[cols]) + "\n\n" + words)
+
+
+def model_recovery_section(confusion: pd.DataFrame) -> tuple[str, str]:
+    """Report section of a model-recovery confusion matrix (rows generating, columns winning)."""
+    diagonal = float(np.mean([confusion.loc[m, m] for m in confusion.index if m in confusion.columns]))
+    return ("Model recovery", "Share of simulated participants won by each model (rows: the model that "
+            f"generated the data; columns: the winner by BIC). Mean diagonal {diagonal:.2f}.\n\n"
+            + markdown_table(confusion, index=True) + "\n\n![confusion](model_confusion.png)")
+
+
+def comparison_sections(summed: pd.DataFrame, bms: BMSResult) -> list[tuple[str, str]]:
+    """Report sections of a model comparison: the verdict in words, summed criteria, BMS, the plot."""
+    best = summed.sort_values("bic").reset_index(drop=True)
+    bms_table = bms.table()
+    top = bms_table.sort_values("protected_exceedance", ascending=False).iloc[0]
+    words = f"Lowest summed BIC: **{best.loc[0, 'model']}**"
+    if len(best) > 1:
+        words += f" ({best.loc[1, 'bic'] - best.loc[0, 'bic']:.1f} below {best.loc[1, 'model']})"
+    words += (f". Random-effects model selection: **{top['model']}** has the highest protected exceedance "
+              f"probability ({top['protected_exceedance']:.2f}; Bayesian omnibus risk {top['bor']:.2f}, the "
+              "probability that the models are equally frequent). Summed BIC assumes one model for "
+              "everyone; the random-effects view allows each participant their own.")
+    return [
+        ("Verdict", words),
+        ("Summed criteria", markdown_table(summed)),
+        ("Random-effects Bayesian model selection", markdown_table(bms_table, digits=3)
+         + "\n\n![summed BIC differences and BMS](comparison.png)"),
+    ]
+
+
 def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int = 10, seed: int = 0,
                 n_jobs: int = 1, n_sims: int = 50, block: str | int = "session", priors: dict | None = None,
-                knockout: str | None = None, progress: bool = False) -> tuple[Path, dict[str, pd.DataFrame]]:
+                knockout: str | None = None, progress: bool = False,
+                extra_sections: Sequence[tuple[str, str]] = (), extra_entries: Sequence[tuple[Path, str]] = (),
+                ) -> tuple[Path, dict[str, pd.DataFrame]]:
     """Fit, compare, posterior-predictive check (and optional knock-out) of a validated log into ``out``.
 
-    Returns (index path, the tables by name).
+    ``index.md`` gives the findings (verdict, tables, plots) then the files; ``extra_sections`` and
+    ``extra_entries`` (already written) are added to it. Returns (index path, the tables by name).
     """
     from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
     from shortcut_gym.lab.fitting import context_for, fit_log
@@ -129,6 +191,11 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
         (plot_predictive(group, out / "predictive.png"), "posterior-predictive check of hotkey use per block"),
     ]
     tables = {"fits": fits, "comparison": table, "summed": summed, "bms": bms.table(), "predictive": group}
+    sections = comparison_sections(summed, bms)
+    sections.append(("Posterior-predictive check",
+                     f"Hotkey share per {block} block, data against {n_sims} simulations of each fitted model "
+                     "on each participant's own schedule (`predictive_group.csv`).\n\n"
+                     "![posterior-predictive check](predictive.png)"))
     if knockout is not None:
         by_label = {s.label: s for s in specs}
         if knockout not in by_label:
@@ -137,4 +204,10 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
         entries.append((write_table(ko, out, "knockout"), f"BIC change when each mechanism of {knockout} is removed"))
         entries.append((write_table(ko_fits, out, "knockout_fits"), "fits of the knock-out variants"))
         tables["knockout"] = ko
-    return write_index(out, entries, "Model analysis"), tables
+        sections.append((f"Mechanism knock-out ({knockout})",
+                         "Summed BIC change when each mechanism is removed and the model refitted "
+                         "(positive: the data need the mechanism).\n\n"
+                         + markdown_table(ko[["mechanism", "delta_bic", "participants_worse", "participants"]])))
+    sections += list(extra_sections)
+    entries += list(extra_entries)
+    return write_index(out, entries, "Model analysis", sections), tables

@@ -114,6 +114,12 @@ def test_cli_fit_compare_and_errors(tmp_path, capsys):
     assert len(fits) == 4 and fits["converged"].all()
     assert main(["compare", str(tmp_path / "f" / "fits.csv"), "--out", str(tmp_path / "c")]) == 0
     assert (tmp_path / "c" / "bms.csv").is_file() and (tmp_path / "c" / "comparison.png").is_file()
+    summed = pd.read_csv(tmp_path / "c" / "summed_criteria.csv")
+    index = (tmp_path / "c" / "index.md").read_text()
+    best, other = summed.sort_values("bic")["model"].tolist()
+    assert f"Lowest summed BIC: **{best}**" in index and f"below {other})" in index
+    assert index.index("## Verdict") < index.index("## Files")  # findings first, then the file list
+    assert sum(line.startswith(f"| {best} |") for line in index.splitlines()) == 2  # summed and BMS tables
     capsys.readouterr()
     bad = log.copy()
     bad.loc[3, "action"] = "voice"
@@ -131,3 +137,15 @@ def test_cli_help(sub, capsys):
         main([sub, "--help"])
     assert exit_.value.code == 0
     assert "--out" in capsys.readouterr().out
+
+
+def test_markdown_table_formats_numbers_nan_and_pipes():
+    from shortcut_gym.lab.report import markdown_table
+
+    table = pd.DataFrame({"model": ["a|b", "c"], "bic": [1.23456, float("nan")], "n": [3, 4]})
+    assert markdown_table(table, digits=1).splitlines() == [
+        "| model | bic | n |",
+        "|---|---:|---:|",
+        "| a\\|b | 1.2 | 3 |",
+        "| c | - | 4 |",
+    ]
