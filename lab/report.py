@@ -93,16 +93,21 @@ def plot_confusion(confusion: pd.DataFrame, path: Path) -> Path:
 
 
 def markdown_table(table: pd.DataFrame, index: bool = False, digits: int = 2) -> str:
-    """A pipe table of ``table`` (floats to ``digits`` decimals, NaN as a dash, numbers right-aligned)."""
+    """A pipe table of ``table``: floats to ``digits`` decimals (index values, e.g. swept settings, in
+    full), NaN as a dash, numbers right-aligned."""
+    n_index = table.index.nlevels if index else 0
     df = table.reset_index() if index else table
-    def cell(v: object) -> str:
+
+    def cell(v: object, is_index: bool) -> str:
         if isinstance(v, (float, np.floating)):
-            return "-" if np.isnan(v) else f"{v:.{digits}f}"
+            return "-" if np.isnan(v) else (f"{v:g}" if is_index else f"{v:.{digits}f}")
         return str(v).replace("|", "\\|")
+
     numeric = [pd.api.types.is_numeric_dtype(df[c]) for c in df.columns]
     head = "| " + " | ".join(str(c) for c in df.columns) + " |"
     rule = "|" + "|".join("---:" if n else "---" for n in numeric) + "|"
-    rows = ["| " + " | ".join(cell(v) for v in row) + " |" for row in df.itertuples(index=False)]
+    rows = ["| " + " | ".join(cell(v, i < n_index) for i, v in enumerate(row)) + " |"
+            for row in df.itertuples(index=False)]
     return "\n".join([head, rule, *rows])
 
 

@@ -171,7 +171,54 @@ def write_outputs(spec: SweepSpec, runs: list[dict[str, Any]], store: SweepStore
         grid = break_even_grid(spec, runs, commands, refine=2 if n_points <= 36 else 1)
         roles = agent_roles(spec, [r["label"] for r in runs[: len(spec.agents)]])
         written.update(sweep_plots.write_plots(spec, blocks, summary, grid, folder / "plots", roles))
+    else:
+        grid = None
+    atomic_write_text(folder / "index.md", sweep_index(spec, folder, runs, summary, grid, written, len(failures)))
+    written["index"] = folder / "index.md"
     return written
+
+
+#: What each written output holds, for the sweep's index.md.
+_OUTPUT_NOTES = {
+    "results": "per run x block: time, hotkey share, learn trials (tidy)",
+    "commands": "per run x command: time and hotkey use",
+    "trials": "every simulated trial",
+    "summary": "per run: total time, time saved over always-menu, gap to the reference agent",
+    "failures": "runs that raised, with their error",
+    "adoption_plot": "hotkey adoption curves per condition",
+    "break_even_plot": "break-even map with the bounded-optimal boundary",
+    "time_saved_plot": "time saved per agent versus the reference",
+}
+
+
+def sweep_index(spec: SweepSpec, folder: Path, runs: list[dict[str, Any]], summary: pd.DataFrame,
+                grid: dict[str, Any] | None, written: dict[str, Path], n_failed: int) -> str:
+    """The sweep folder's ``index.md``: what ran, time saved per agent and condition, the break-even
+    agreement, the plots, then every file."""
+    from shortcut_gym.lab.report import markdown_table
+
+    lines = [f"# Sweep {spec.name}", "", spec.description or "", "",
+             f"{len(runs)} runs planned; {len(summary)} finished, {n_failed} failed.", ""]
+    params = list(spec.vary.parameters)
+    saved = summary.get("time_saved_vs_menu_s")
+    if saved is not None and saved.notna().any():
+        table = summary.pivot_table(index=params, columns="agent", values="time_saved_vs_menu_s")
+        lines += ["## Time saved over always-menu (s per simulated user)", ""]
+        lines += [markdown_table(table, index=True, digits=1) if len(table) <= 60
+                  else f"{len(table)} conditions: see `summary.csv`.", ""]
+    if grid is not None:
+        share = fraction_agreeing(grid)
+        lines += ["## Break-even", "",
+                  f"On '{grid['command_name']}', the simulated verdict of {grid['learner']} against {grid['menu']} "
+                  f"agrees with the planner's analytic break-even rule on {share:.0%} of the swept cells.", ""]
+    plots = [k for k in ("adoption_plot", "break_even_plot", "time_saved_plot") if k in written]
+    if plots:
+        lines += ["## Plots", ""]
+        lines += [f"![{_OUTPUT_NOTES[k]}]({written[k].relative_to(folder).as_posix()})" for k in plots] + [""]
+    lines += ["## Files", ""]
+    lines += [f"- `{p.relative_to(folder).as_posix()}`: {_OUTPUT_NOTES.get(k, k)}" for k, p in written.items()]
+    lines += ["- `manifest.json`, `runs/`: the run plan and each finished run (used to resume)", ""]
+    return "\n".join(lines)
 
 
 def fraction_agreeing(grid: dict[str, Any], margin_s: float = 0.0) -> float:

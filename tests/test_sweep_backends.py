@@ -98,6 +98,8 @@ def test_a_failing_run_is_recorded_and_the_others_finish(tmp_path: Path, workers
     assert set(res["agent"]) == {"always_menu"} and res["run_id"].nunique() == 3
     manifest = json.loads((tmp_path / "s" / "manifest.json").read_text())
     assert manifest["status"] == {"done": 3, "failed": 3, "pending": 0}
+    index = (tmp_path / "s" / "index.md").read_text()
+    assert "6 runs planned; 3 finished, 3 failed." in index and "- `failures.csv`: runs that raised" in index
     again = run_sweep(spec, tmp_path / "s", workers=workers, progress=False)  # failures kept, not rerun
     assert again.computed == 0 and again.kept == 3 and len(again.failed) == 3
     retried = run_sweep(spec, tmp_path / "s", workers=workers, progress=False, retry_failed=True)

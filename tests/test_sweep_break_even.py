@@ -51,3 +51,12 @@ def test_break_even_map_boundary_matches_the_analytic_rule(tmp_path: Path) -> No
     assert sav[-1, -1] < 0 and not direct[-1, -1]
     # the saving falls as learning gets dearer (same users, same trials: only the encoding time differs)
     assert (np.diff(sav, axis=0) < 0).all()
+    # the folder's index.md states the agreement and tabulates the saving per swept cell
+    index = (tmp_path / "s" / "index.md").read_text()
+    share = float(((sav > 0) == direct).mean())
+    assert f"on {share:.0%} of the swept cells" in index
+    assert "![break-even map with the bounded-optimal boundary](plots/break_even.png)" in index
+    summary = pd.read_csv(tmp_path / "s" / "summary.csv")
+    row = summary[(summary["agent"] == "learn_first_k(k=1)") & (summary["costs.klm.keystroke_s"] == 0.08)
+                  & (summary["costs.learn.encoding_s"] == 0.5)]
+    assert f"| 0.08 | 0.5 | 0.0 | {row['time_saved_vs_menu_s'].iloc[0]:.1f} |" in index
