@@ -41,9 +41,13 @@ def label_of(spec: dict[str, Any]) -> str:
 
 
 def simulate_agents(world: World, specs: Sequence[dict[str, Any] | Agent], seeds: Sequence[int]) -> pd.DataFrame:
-    """Trial table of every agent x seed (one simulated user per seed, same seeds per agent)."""
-    agents = [spec if isinstance(spec, Agent) else agent_from_spec(spec) for spec in specs]
-    return labelled_trial_table(CommandSelectionEnv(world=world), [(label_of(a.spec()), a) for a in agents], seeds)
+    """Trial table of every agent x seed (one simulated user per seed, same seeds per agent).
+
+    A spec dict is labelled by the parameters it sets (``rescorla_wagner(alpha=0.5)``); an agent
+    object by its full spec.
+    """
+    labelled = [(label_of(s.spec()), s) if isinstance(s, Agent) else (label_of(s), agent_from_spec(s)) for s in specs]
+    return labelled_trial_table(CommandSelectionEnv(world=world), labelled, seeds)
 
 
 def session_summary(trials: pd.DataFrame) -> pd.DataFrame:
