@@ -18,6 +18,7 @@ COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cmd_compare",
     "shortcut_gym.lab.cmd_recover",
     "shortcut_gym.lab.cmd_report",
+    "shortcut_gym.lab.cmd_bench",
 ]
 
 

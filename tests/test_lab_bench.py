@@ -1,0 +1,65 @@
+"""``shortcut-gym bench``: the suites run from the installed package and print ratios (no timing asserts)."""
+
+from __future__ import annotations
+
+import importlib
+import inspect
+import math
+import re
+
+import pytest
+
+from shortcut_gym.lab.cli import main
+from shortcut_gym.lab.cmd_bench import SUITES, chosen_suites
+
+OURS = "shortcut_gym/CommandSelection-v0 (actr O(1))"
+
+
+def _ratios(text: str) -> dict[int, float]:
+    """Horizon -> ratio to CartPole-v1 from the env suite's rows for our env."""
+    out = {}
+    for line in text.splitlines():
+        if line.startswith(OURS):
+            horizon, _us, ratio = line[len(OURS):].split()
+            out[int(horizon)] = float(ratio)
+    return out
+
+
+def test_quick_env_suite_prints_a_positive_finite_ratio_per_horizon(capsys) -> None:
+    assert main(["bench", "--suite", "env", "--quick"]) == 0
+    text = capsys.readouterr().out
+    assert "=== bench env (quick)" in text
+    ratios = _ratios(text)
+    assert sorted(ratios) == [100, 1_000]  # quick stops short of the 10,000-trial horizon
+    for horizon, ratio in ratios.items():
+        assert math.isfinite(ratio) and ratio > 0, (horizon, ratio)
+    took = re.search(r"=== bench env took ([0-9.]+) s", text)
+    assert took is not None and float(took.group(1)) > 0
+
+
+def test_suite_lines_go_to_the_given_output_only(capsys) -> None:
+    lines: list[str] = []
+    importlib.import_module(SUITES["env"]).run(quick=True, out=lines.append)
+    assert capsys.readouterr().out == ""
+    assert lines[0].split() == ["environment", "horizon", "us/step", "ratio"]
+    assert len(_ratios("\n".join(lines))) == 2
+
+
+def test_unknown_suite_exits_2_naming_it_and_the_known_ones(capsys) -> None:
+    assert main(["bench", "--suite", "env", "--suite", "warp_drive"]) == 2
+    captured = capsys.readouterr()
+    assert captured.out == ""  # nothing ran, not even the valid suite
+    assert "'warp_drive'" in captured.err
+    for name in SUITES:
+        assert name in captured.err
+
+
+def test_suites_default_to_all_in_order_and_run_once_each() -> None:
+    assert chosen_suites(None) == ["env", "agents", "fit", "sweep"]
+    assert chosen_suites(["fit", "env", "fit"]) == ["fit", "env"]
+
+
+@pytest.mark.parametrize("name", list(SUITES))
+def test_every_suite_module_takes_quick_and_out(name: str) -> None:
+    params = inspect.signature(importlib.import_module(SUITES[name]).run).parameters
+    assert list(params)[:2] == ["quick", "out"]
