@@ -77,12 +77,13 @@ expected later uses in the planner's memory model. It ignores menu expertise (e 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
+from numba import njit
 from scipy import sparse
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
@@ -99,6 +100,7 @@ from shortcut_gym.envs.world import World, make_world
 
 N_GAP_QUANTILES = 8
 GRID_HALF_WIDTH = 8.0  # in units of the retrieval noise s
+_QUANTILE_MIDPOINTS = (np.arange(N_GAP_QUANTILES) + 0.5) / N_GAP_QUANTILES
 
 
 @dataclass(frozen=True)
@@ -181,6 +183,7 @@ class CommandMDP:
     weight: np.ndarray | None = None  # (S,) total trace weight of each state, 0 for state 0
     activation_grid: np.ndarray | None = None  # (n_bins,)
     weight_grid: np.ndarray | None = None  # (n_w,)
+    _constants: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
     @property
     def n_states(self) -> int:
@@ -198,28 +201,103 @@ class CommandMDP:
 
     def interpolate(self, values: np.ndarray, activation: float, weight: float) -> float:
         """``values`` (S,) at a memory with this activation and total trace weight: bilinear
-        between grid points (activation linear, weight in log), clamped to the grid; state 0 at -inf."""
+        between grid points (activation linear, weight in log), clamped to the grid; state 0 at -inf.
+        The scalar reference of :meth:`interpolate_many` and :meth:`mean_after_traces`."""
         if activation == -math.inf:
             return float(values[0])
-        ag, wg = self._grids()
-        x = (min(max(activation, ag[0]), ag[-1]) - ag[0]) / (ag[1] - ag[0])
-        i = min(int(math.floor(x)), len(ag) - 2)
+        ag_lo, ag_hi, ag_step, n_ag, lw, lw_lo, lw_hi, lw_step, n_w = self._grid_constants()
+        x = (min(max(activation, ag_lo), ag_hi) - ag_lo) / ag_step
+        i = min(int(math.floor(x)), n_ag - 2)
         fx = x - i
-        n_w = len(wg)
         if n_w == 1:
             return float((1 - fx) * values[1 + i] + fx * values[2 + i])
-        lw = np.log(wg)
-        y = (min(max(math.log(max(weight, 1e-300)), lw[0]), lw[-1]) - lw[0]) / (lw[1] - lw[0])
+        y = (min(max(math.log(max(weight, 1e-300)), lw_lo), lw_hi) - lw_lo) / lw_step
         j = min(int(math.floor(y)), n_w - 2)
         fy = y - j
         base = 1 + i * n_w + j
         return float((1 - fx) * ((1 - fy) * values[base] + fy * values[base + 1])
                      + fx * ((1 - fy) * values[base + n_w] + fy * values[base + n_w + 1]))
 
+    def interpolate_many(self, values: np.ndarray, activation: np.ndarray, weight: np.ndarray | float) -> np.ndarray:
+        """:meth:`interpolate` at many points (``activation`` and ``weight`` broadcast together),
+        compiled with the same operations in the same order."""
+        a, w = np.broadcast_arrays(np.asarray(activation, dtype=np.float64), np.asarray(weight, dtype=np.float64))
+        flat = _interpolate_points(np.ascontiguousarray(values, dtype=np.float64), np.ascontiguousarray(a).reshape(-1),
+                                   np.ascontiguousarray(w).reshape(-1), *self._grid_constants())
+        return flat.reshape(a.shape)
+
+    def mean_after_traces(self, values: np.ndarray, activation: np.ndarray, fresh: np.ndarray, weight: float,
+                          new_weights: np.ndarray) -> np.ndarray:
+        """For each new trace weight w_j, the mean over points g of ``values`` at the memory
+        (ln(e^{A_g} + w_j fresh_g), ``weight`` + w_j): the old memory ``activation`` (G,) seen at
+        point g plus a trace of weight w_j laid now, decayed to ``fresh`` (G,) of its weight there.
+        Returns (len(new_weights),); equal to the mean of :meth:`interpolate` at those points."""
+        f64 = np.float64
+        pts = _interpolate_after_traces(np.ascontiguousarray(values, dtype=f64), np.ascontiguousarray(activation, f64),
+                                        np.ascontiguousarray(fresh, f64), float(weight),
+                                        np.ascontiguousarray(new_weights, f64), *self._grid_constants())
+        return np.add.reduce(pts, axis=1) / pts.shape[1]  # np.mean(axis=1) without its call overhead
+
     def _grids(self) -> tuple[np.ndarray, np.ndarray]:
         ag = self.activation[1:] if self.activation_grid is None else self.activation_grid
         wg = np.ones(1) if self.weight_grid is None else self.weight_grid
         return ag, wg
+
+    def _grid_constants(self) -> tuple:
+        """(A low, A high, A step, n_A, ln W grid, its low, high and step, n_W), computed once."""
+        if self._constants is None:
+            ag, wg = self._grids()
+            lw = np.log(wg)
+            lw_step = float(lw[1] - lw[0]) if len(wg) > 1 else 1.0
+            self._constants = (float(ag[0]), float(ag[-1]), float(ag[1] - ag[0]), len(ag), lw, float(lw[0]),
+                               float(lw[-1]), lw_step, len(wg))
+        return self._constants
+
+
+@njit(cache=True)
+def _bilinear_point(values: np.ndarray, a: float, weight: float, ag_lo: float, ag_hi: float, ag_step: float,
+                    n_ag: int, lw: np.ndarray, lw_lo: float, lw_hi: float, lw_step: float, n_w: int) -> float:
+    """CommandMDP.interpolate at one point, operation for operation."""
+    if a == -np.inf:
+        return values[0]
+    x = (min(max(a, ag_lo), ag_hi) - ag_lo) / ag_step
+    i = min(int(math.floor(x)), n_ag - 2)
+    fx = x - i
+    if n_w == 1:
+        return (1 - fx) * values[1 + i] + fx * values[2 + i]
+    y = (min(max(math.log(max(weight, 1e-300)), lw_lo), lw_hi) - lw_lo) / lw_step
+    j = min(int(math.floor(y)), n_w - 2)
+    fy = y - j
+    base = 1 + i * n_w + j
+    return ((1 - fx) * ((1 - fy) * values[base] + fy * values[base + 1])
+            + fx * ((1 - fy) * values[base + n_w] + fy * values[base + n_w + 1]))
+
+
+@njit(cache=True)
+def _interpolate_points(values: np.ndarray, act: np.ndarray, weight: np.ndarray, ag_lo: float, ag_hi: float,
+                        ag_step: float, n_ag: int, lw: np.ndarray, lw_lo: float, lw_hi: float, lw_step: float,
+                        n_w: int) -> np.ndarray:
+    """_bilinear_point at each (act[p], weight[p])."""
+    out = np.empty(len(act))
+    for p in range(len(act)):
+        out[p] = _bilinear_point(values, act[p], weight[p], ag_lo, ag_hi, ag_step, n_ag, lw, lw_lo, lw_hi, lw_step,
+                                 n_w)
+    return out
+
+
+@njit(cache=True)
+def _interpolate_after_traces(values: np.ndarray, act: np.ndarray, fresh: np.ndarray, weight: float,
+                              new_weights: np.ndarray, ag_lo: float, ag_hi: float, ag_step: float, n_ag: int,
+                              lw: np.ndarray, lw_lo: float, lw_hi: float, lw_step: float, n_w: int) -> np.ndarray:
+    """(new weights, points): _bilinear_point at (ln(e^act + w fresh), weight + w), as CommandMDP.mean_after_traces."""
+    out = np.empty((len(new_weights), len(act)))
+    for g in range(len(act)):
+        old = math.exp(act[g]) if act[g] > -np.inf else 0.0
+        for j in range(len(new_weights)):
+            s = old + new_weights[j] * fresh[g]
+            out[j, g] = _bilinear_point(values, math.log(s) if s > 0 else -np.inf, weight + new_weights[j], ag_lo,
+                                        ag_hi, ag_step, n_ag, lw, lw_lo, lw_hi, lw_step, n_w)
+    return out
 
 
 def weight_grid(world: World, n_weight_bins: int) -> np.ndarray:
@@ -550,6 +628,50 @@ def break_even_table(world: World, keyboard_share: float | None = None, n_bins: 
     return pd.DataFrame(rows)
 
 
+@dataclass(frozen=True)
+class NextUses:
+    """The next uses a decision averages over (see :func:`next_use_points`), read-only: the copies
+    of a planner agent (one per simulated user) share them, as they share the plan."""
+
+    clock_s: np.ndarray  # (commands, horizon - 1, N_GAP_QUANTILES) memory clock of the next use
+    fresh: np.ndarray  # same shape: share of its weight a trace laid now keeps there
+
+    def __deepcopy__(self, memo: dict) -> NextUses:
+        return self
+
+
+def next_use_points(world: World, clock: np.ndarray) -> NextUses:
+    """The next uses the planner's decision averages over, for every command c and trial t before
+    the last: the memory clock (s) of the N_GAP_QUANTILES quantiles of k ~ geometric(p_c) given
+    k <= trials after t, and the share of its weight a trace laid at t keeps there (age^-d, or
+    e^{-lambda age}, or (1 + age/u)^-b); ``clock`` is the schedule's memory clock of each trial (s)."""
+    m = world.memory
+    horizon = world.horizon
+    trials = np.arange(horizon - 1)
+    after = horizon - trials - 1
+    n_cmd = world.commands.n_commands
+    t_next = np.empty((n_cmd, len(trials), N_GAP_QUANTILES))
+    for c in range(n_cmd):
+        p_c = float(world.commands.probability[c])
+        if p_c >= 1:
+            steps = np.ones((len(trials), N_GAP_QUANTILES), dtype=np.int64)
+        else:
+            F = np.array([1.0 - (1.0 - p_c) ** int(a) for a in after])  # scalar pow, as numpy's may differ
+            k_ = np.ceil(np.log1p(-(_QUANTILE_MIDPOINTS[None, :] * F[:, None])) / math.log1p(-p_c))
+            steps = np.clip(k_, 1, after[:, None]).astype(np.int64)
+        t_next[c] = clock[trials[:, None] + steps]
+    age = t_next - clock[trials][None, :, None]
+    if m.kind == "exponential":
+        fresh = np.exp(-m.exponential_rate_per_s * age)
+    elif m.kind == "power":
+        fresh = (1.0 + age / m.power_time_unit_s) ** (-m.decay)
+    else:
+        fresh = age ** (-m.decay)
+    t_next.setflags(write=False)
+    fresh.setflags(write=False)
+    return NextUses(t_next, fresh)
+
+
 class BoundedOptimalPlanner(Agent):
     """Looks up the exact optimal action of its discretised MDP (see module docstring).
 
@@ -604,12 +726,20 @@ class BoundedOptimalPlanner(Agent):
             self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
                                    n_weight_bins=self.n_weight_bins)
         self._cmdc = world.command_constants()
+        onset, _, gap_total = session_onsets(world.schedule)
+        self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
         if getattr(self, "_times_for", None) is not self.plan:
             self._times = [action_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share)
                            for c in range(world.commands.n_commands)]
+            self._next_uses = next_use_points(world, self._clock)
             self._times_for = self.plan
-        onset, _, gap_total = session_onsets(world.schedule)
-        self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
+        m = world.memory
+        self._memory = m
+        self._horizon = world.horizon
+        self._p_use = [float(x) for x in world.commands.probability]
+        self._home_s = world.costs.klm.home_s
+        self._new_weights = np.array([m.weights.menu, m.weights.learn, m.weights.hotkey_success,
+                                      m.weights.hotkey_failure])
         self._traces: dict[int, tuple[list[float], list[float]]] = {}
         self._hybrid: dict[int, HybridBaseLevel] = {}
         self._weight = np.zeros(world.commands.n_commands)
@@ -617,7 +747,7 @@ class BoundedOptimalPlanner(Agent):
         self._hand_on_keyboard = False  # the simulator starts every user with the hand on the mouse
 
     def _activation(self, c: int, now: float) -> float:
-        m = self._world().memory
+        m = self._memory
         if m.kind == "actr":  # the simulator's O(1) hybrid base level (Petrov 2006)
             h = self._hybrid.get(c)
             return -math.inf if h is None or not h.times else h.activation(now)
@@ -629,6 +759,13 @@ class BoundedOptimalPlanner(Agent):
         if m.kind == "power":
             return power_activation(now, times, m.decay, m.power_time_unit_s, weights)
         return actr_activation(now, times, m.decay, weights)
+
+    def _activations(self, c: int, now: np.ndarray) -> np.ndarray:
+        """:meth:`_activation` at each clock of ``now`` (s, 1-D)."""
+        h = self._hybrid.get(c)
+        if self._memory.kind == "actr" and h is not None and h.times:
+            return h.activations(now)
+        return np.array([self._activation(c, t) for t in now])
 
     def state_of(self, c: int, trial: int) -> int:
         """Nearest grid state of command ``c``'s current activation and total trace weight at ``trial``."""
@@ -644,23 +781,22 @@ class BoundedOptimalPlanner(Agent):
         with the exact memory and the schedule's clock after k more trials, k geometric(p_c)
         given that it falls in the horizon (N_GAP_QUANTILES quantiles), and valued by the plan's
         V there (bilinear in activation and log weight); the plan's shares price the homing the
-        next trial pays.
+        next trial pays. The next uses' clocks and decay shares are tabulated once per plan
+        (:func:`next_use_points`) and the future term is compiled (:meth:`CommandMDP.mean_after_traces`).
         """
         if self.plan is None:
             self.reset()
         assert self.plan is not None
-        world = self._world()
-        m = world.memory
-        mdp = self.plan.mdps[c]
-        after = max(world.horizon - trial - 1, 0)
-        p_c = float(world.commands.probability[c])
+        m = self._memory
+        after = max(self._horizon - trial - 1, 0)
+        p_c = self._p_use[c]
         uses = min(1 + int(round(p_c * after)), self.plan.max_uses)
         now = float(self._clock[min(trial, len(self._clock) - 1)])
         a_now = self._activation(c, now)
         p = recall_probability(a_now, m.threshold, m.noise_s)
         lat = m.latency_factor_s * math.exp(-a_now) if a_now > -math.inf else 0.0
         times = self._times[c]
-        home = world.costs.klm.home_s
+        home = self._home_s
         ks = self.plan.keyboard_share
         on_kb = 1.0 if self._hand_on_keyboard else 0.0
         cmdc = self._cmdc[c]
@@ -669,40 +805,26 @@ class BoundedOptimalPlanner(Agent):
         start_hot = home * ((1.0 - on_kb) - (1.0 - ks))
         ok = times.hotkey_fixed_s + start_hot + lat + times.return_after_keyboard_s
         fail = times.failure_s + start_hot + novice + times.return_after_mouse_s
-        q = np.array([-(times.menu_s + start_menu + times.return_after_mouse_s),
-                      -(p * ok + (1.0 - p) * fail),
-                      -(times.learn_s + start_menu + times.return_after_mouse_s)])
-        if uses <= 1 or after == 0:
-            return q
-        V = self.plan.values[c][uses - 1]
-        F = 1.0 - (1.0 - p_c) ** after if p_c < 1 else 1.0
-        u = (np.arange(N_GAP_QUANTILES) + 0.5) / N_GAP_QUANTILES * F
-        ks_ = np.ones(N_GAP_QUANTILES) if p_c >= 1 else np.ceil(np.log1p(-u) / math.log1p(-p_c))
-        nxt = trial + np.clip(ks_, 1, after).astype(np.int64)
-        t_next = self._clock[nxt]
-        old = np.array([math.exp(v) if v > -math.inf else 0.0 for v in (self._activation(c, t) for t in t_next)])
-        age = t_next - now
-        if m.kind == "exponential":
-            fresh = np.exp(-m.exponential_rate_per_s * age)
-        elif m.kind == "power":
-            fresh = (1.0 + age / m.power_time_unit_s) ** (-m.decay)
-        else:
-            fresh = age ** (-m.decay)
-        w = m.weights
-        W = float(self._weight[c])
-
-        def future(weight: float) -> float:
-            s = old + weight * fresh
-            return float(np.mean([mdp.interpolate(V, math.log(x) if x > 0 else -math.inf, W + weight) for x in s]))
-
-        q[k.MENU] += future(w.menu)
-        q[k.LEARN] += future(w.learn)
-        q[k.HOTKEY] += p * future(w.hotkey_success) + (1.0 - p) * future(w.hotkey_failure)
+        q_menu = -(times.menu_s + start_menu + times.return_after_mouse_s)
+        q_hot = -(p * ok + (1.0 - p) * fail)
+        q_learn = -(times.learn_s + start_menu + times.return_after_mouse_s)
+        if uses > 1 and after > 0:
+            V = self.plan.values[c][uses - 1]
+            t_next = self._next_uses.clock_s[c, trial]
+            # mean V at the next use after a menu, learn, recalled and failed hotkey trace
+            f_menu, f_learn, f_ok, f_fail = self.plan.mdps[c].mean_after_traces(
+                V, self._activations(c, t_next), self._next_uses.fresh[c, trial], float(self._weight[c]),
+                self._new_weights)
+            q_menu += f_menu
+            q_learn += f_learn
+            q_hot += p * f_ok + (1.0 - p) * f_fail
+        q = np.empty(3)
+        q[k.MENU], q[k.HOTKEY], q[k.LEARN] = q_menu, q_hot, q_learn
         return q
 
     def decide(self, c: int, trial: int) -> int:
         """Optimal action for command ``c`` at ``trial`` (ties to the lowest action index)."""
-        return int(np.argmax(self.action_values(c, trial)))
+        return int(self.action_values(c, trial).argmax())
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         p = np.zeros(3)
@@ -717,7 +839,7 @@ class BoundedOptimalPlanner(Agent):
         c, t = int(info["command"]), int(info["trial"])
         if self.plan is None:
             self.reset()
-        m = self._world().memory
+        m = self._memory
         w = m.weights
         outcome = info["outcome"]
         weight = {"menu": w.menu, "learned": w.learn, "hotkey": w.hotkey_success}.get(outcome, w.hotkey_failure)
@@ -728,7 +850,10 @@ class BoundedOptimalPlanner(Agent):
             self._weight[c] += weight
             now = float(self._clock[t])
             if m.kind == "actr":
-                self._hybrid.setdefault(c, HybridBaseLevel(m.decay, m.recent_traces)).add(now, weight)
+                h = self._hybrid.get(c)
+                if h is None:
+                    h = self._hybrid[c] = HybridBaseLevel(m.decay, m.recent_traces)
+                h.add(now, weight)
             else:
                 times, weights = self._traces.setdefault(c, ([], []))
                 times.append(now)

@@ -21,6 +21,8 @@ import math
 from collections.abc import Sequence
 from typing import Literal
 
+import numpy as np
+from numba import njit
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 MemoryKind = Literal["actr", "actr_exact", "pavlik_anderson", "exponential", "power"]
@@ -215,6 +217,15 @@ class HybridBaseLevel:
         total += self._old_sum(now)
         return math.log(total) if total > 0 else -math.inf
 
+    def activations(self, now: np.ndarray) -> np.ndarray:
+        """:meth:`activation` at each clock of ``now`` (s, any shape), compiled: the same operations
+        in the same order, so equal elementwise (bit for bit where numba and Python share the libm)."""
+        now = np.asarray(now, dtype=np.float64)
+        flat = _hybrid_activations(np.ascontiguousarray(now).reshape(-1), np.asarray(self.times, dtype=np.float64),
+                                   np.asarray(self.weights, dtype=np.float64), self.decay, self.old_weight,
+                                   self.old_first, self.old_last)
+        return flat.reshape(now.shape)
+
     def error_bound(self, now: float) -> float:
         """Upper bound on |A_exact - A_hybrid| at ``now``: ln((S_r + W a_n^-d)/(S_r + W a_o^-d))."""
         if self.old_weight == 0.0:
@@ -224,3 +235,25 @@ class HybridBaseLevel:
         hi = recent + self.old_weight * (now - self.old_last) ** (-d)
         lo = recent + self.old_weight * (now - self.old_first) ** (-d)
         return math.log(hi / lo)
+
+
+@njit(cache=True)
+def _hybrid_activations(now: np.ndarray, times: np.ndarray, weights: np.ndarray, decay: float,
+                        old_weight: float, old_first: float, old_last: float) -> np.ndarray:
+    """HybridBaseLevel.activation at each clock of ``now`` (1-D), term by term as there."""
+    out = np.empty(len(now))
+    d = decay
+    for i in range(len(now)):
+        total = 0.0
+        for j in range(len(times)):
+            total += weights[j] * (now[i] - times[j]) ** (-d)
+        if old_weight != 0.0:
+            a_n = now[i] - old_last
+            r = (old_last - old_first) / a_n
+            if r <= 1e-12:
+                total += old_weight * a_n ** (-d)
+            else:
+                x = (1 - d) * math.log1p(r)
+                total += old_weight * a_n ** (-d) * math.expm1(x) / ((1 - d) * r)
+        out[i] = math.log(total) if total > 0 else -np.inf
+    return out

@@ -2,15 +2,18 @@
 
 from __future__ import annotations
 
+import copy
+import math
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from shortcut_gym.agents import agent_from_spec, make_agent, run_episode
-from shortcut_gym.agents.planner import break_even_table, plan_world
+from shortcut_gym.agents.planner import N_GAP_QUANTILES, break_even_table, build_command_mdp, plan_world
 from shortcut_gym.envs import CommandSelectionEnv, make_world
-from shortcut_gym.envs.kernel import LEARN
+from shortcut_gym.envs.kernel import C_DECISION, C_SEARCH, HOTKEY, LEARN, MENU
+from shortcut_gym.envs.memory import recall_probability
 
 CONFIGS = Path(__file__).resolve().parents[1] / "configs" / "agents"
 
@@ -169,3 +172,128 @@ def test_planner_finds_the_keyboard_equilibrium_when_it_pays():
                      - run_episode(env, make_agent("always_menu"), seed=s)["duration_s"].sum() for s in range(10)])
     assert agent.plan is not None and agent.plan.keyboard_share > 0.3
     assert diff.mean() < -2 * diff.std(ddof=1) / np.sqrt(len(diff))
+
+
+# ---- the compiled decision against the scalar reference ------------------------------------------------
+
+
+def _mdp_and_values(**world_kwargs):
+    """One command's MDP (of the planner's plan) and a random value vector over its states."""
+    world = make_world(schedule={"sessions": 2, "trials_per_session": 30}, **world_kwargs)
+    mdp = build_command_mdp(world, 0, n_bins=12, n_weight_bins=1 if world.memory.kind == "exponential" else 6)
+    return mdp, np.random.default_rng(5).normal(-20.0, 5.0, mdp.n_states)
+
+
+@pytest.mark.parametrize("kind", ["actr", "exponential"])  # 6 weight points, and 1 (no weight axis)
+def test_interpolate_many_and_mean_after_traces_equal_the_scalar_interpolate(kind):
+    mdp, V = _mdp_and_values(memory={"kind": kind})
+    ag, wg = mdp.activation_grid, mdp.weight_grid
+    rng = np.random.default_rng(2)
+    # inside the grid, beyond both ends of both axes (clamped), on grid points, and the no-trace state
+    act = np.concatenate([rng.uniform(ag[0] - 3, ag[-1] + 3, 200), ag, [ag[0] - 50, ag[-1] + 50, -np.inf, -np.inf]])
+    weight = np.concatenate([np.exp(rng.uniform(np.log(wg[0]) - 2, np.log(wg[-1]) + 2, 200)),
+                             np.resize(wg, len(ag)), [0.0, 1e9, 1.0, 0.0]])
+    ref = np.array([mdp.interpolate(V, float(a), float(w)) for a, w in zip(act, weight)])
+    fast = mdp.interpolate_many(V, act, weight)
+    np.testing.assert_allclose(fast, ref, rtol=1e-12, atol=0)
+    assert fast[-1] == V[0] and len(np.unique(fast.round(6))) > 100  # the points are not all clamped alike
+    two_d = mdp.interpolate_many(V, act.reshape(2, -1), weight.reshape(2, -1))
+    assert two_d.shape == (2, len(act) // 2) and np.array_equal(two_d.ravel(), fast)
+    # the decision's future term: old memory seen at 8 points plus a new trace of each weight
+    old = np.concatenate([rng.uniform(ag[0] - 1, ag[-1] + 1, 7), [-np.inf]])
+    fresh = rng.uniform(1e-3, 0.5, 8)
+    new_w = np.array([0.0, 2.0, 1.0, 0.5])
+    W = 3.0
+    means = mdp.mean_after_traces(V, old, fresh, W, new_w)
+    for j, w in enumerate(new_w):
+        s = [math.exp(a) + w * f if a > -math.inf else w * f for a, f in zip(old, fresh)]
+        expect = np.mean([mdp.interpolate(V, math.log(x) if x > 0 else -math.inf, W + w) for x in s])
+        assert means[j] == pytest.approx(expect, rel=1e-12, abs=0)
+
+
+def _reference_action_values(agent, c: int, trial: int) -> np.ndarray:
+    """The planner's Q of this trial computed the straightforward way: each of the 8 next-use
+    activations by the scalar memory formula, each point by the scalar ``interpolate``, the next
+    uses' clocks recomputed from the usage probability (not the agent's table)."""
+    world = agent._world()
+    m = world.memory
+    mdp = agent.plan.mdps[c]
+    after = max(world.horizon - trial - 1, 0)
+    p_c = float(world.commands.probability[c])
+    uses = min(1 + int(round(p_c * after)), agent.plan.max_uses)
+    now = float(agent._clock[min(trial, len(agent._clock) - 1)])
+    a_now = agent._activation(c, now)
+    p = recall_probability(a_now, m.threshold, m.noise_s)
+    lat = m.latency_factor_s * math.exp(-a_now) if a_now > -math.inf else 0.0
+    times = agent._times[c]
+    home = world.costs.klm.home_s
+    ks = agent.plan.keyboard_share
+    on_kb = 1.0 if agent._hand_on_keyboard else 0.0
+    cmdc = agent._cmdc[c]
+    novice = (cmdc[C_SEARCH] - cmdc[C_DECISION]) / (agent._menu_count[c] + 1)
+    start_menu = home * (on_kb - ks) + novice
+    start_hot = home * ((1.0 - on_kb) - (1.0 - ks))
+    ok = times.hotkey_fixed_s + start_hot + lat + times.return_after_keyboard_s
+    fail = times.failure_s + start_hot + novice + times.return_after_mouse_s
+    q = np.array([-(times.menu_s + start_menu + times.return_after_mouse_s), -(p * ok + (1.0 - p) * fail),
+                  -(times.learn_s + start_menu + times.return_after_mouse_s)])
+    if uses <= 1 or after == 0:
+        return q
+    V = agent.plan.values[c][uses - 1]
+    F = 1.0 - (1.0 - p_c) ** after if p_c < 1 else 1.0
+    u = (np.arange(N_GAP_QUANTILES) + 0.5) / N_GAP_QUANTILES * F
+    k_ = np.ones(N_GAP_QUANTILES) if p_c >= 1 else np.ceil(np.log1p(-u) / math.log1p(-p_c))
+    t_next = agent._clock[trial + np.clip(k_, 1, after).astype(np.int64)]
+    old = np.array([math.exp(a) if a > -math.inf else 0.0 for a in (agent._activation(c, float(t)) for t in t_next)])
+    age = t_next - now
+    if m.kind == "exponential":
+        fresh = np.exp(-m.exponential_rate_per_s * age)
+    elif m.kind == "power":
+        fresh = (1.0 + age / m.power_time_unit_s) ** (-m.decay)
+    else:
+        fresh = age ** (-m.decay)
+    W = float(agent._weight[c])
+
+    def future(weight: float) -> float:
+        s = old + weight * fresh
+        return float(np.mean([mdp.interpolate(V, math.log(x) if x > 0 else -math.inf, W + weight) for x in s]))
+
+    w = m.weights
+    q[MENU] += future(w.menu)
+    q[LEARN] += future(w.learn)
+    q[HOTKEY] += p * future(w.hotkey_success) + (1.0 - p) * future(w.hotkey_failure)
+    return q
+
+
+@pytest.mark.parametrize("world_kwargs,n_weight_bins", [
+    ({}, 10),  # the demo world, full horizon
+    ({"memory": {"weights": {"menu": 0.3}, "recent_traces": 1}, "schedule": {"sessions": 3, "trials_per_session": 50}},
+     10),
+    ({"memory": {"kind": "power"}, "schedule": {"sessions": 3, "trials_per_session": 40}}, 10),
+    ({"memory": {"kind": "exponential"}, "schedule": {"sessions": 3, "trials_per_session": 40}}, 1),
+], ids=["demo", "menu_traces", "power", "exponential"])
+def test_compiled_decisions_equal_the_scalar_reference_over_an_episode(world_kwargs, n_weight_bins):
+    """At every trial of a simulated episode the planner's Q equals the reference's to 1e-12 and
+    its action is the reference's argmax, so the whole episode is the reference planner's."""
+    world = make_world(**world_kwargs)
+    agent = make_agent("bounded_optimal", world=world, n_weight_bins=n_weight_bins)
+    fast = agent.action_values
+    with_future = []
+
+    def checked(c, trial):
+        q = fast(c, trial)
+        ref = _reference_action_values(agent, c, trial)
+        np.testing.assert_allclose(q, ref, rtol=1e-12, atol=0, err_msg=f"command {c}, trial {trial}")
+        assert int(np.argmax(q)) == int(np.argmax(ref)), (c, trial, q, ref)
+        after = world.horizon - trial - 1
+        with_future.append(after > 0 and 1 + round(float(world.commands.probability[c]) * after) > 1)
+        return q
+
+    agent.action_values = checked
+    df = run_episode(CommandSelectionEnv(world=world), agent, seed=1)
+    assert len(with_future) == world.horizon and np.mean(with_future) > 0.8  # the future term was compared
+    assert {"hotkey", "learned"} <= set(df["outcome"])  # memory was built and used, not only the menu
+    if world.memory.kind == "actr":  # some command's old traces were lumped (the hybrid's old part)
+        assert any(h.old_weight > 0 for h in agent._hybrid.values())
+    twin = copy.deepcopy(agent)  # a per-user copy shares the read-only tables, as it shares the plan
+    assert twin.plan is agent.plan and twin._next_uses is agent._next_uses

@@ -35,6 +35,29 @@ def test_hybrid_error_within_its_bound(times: list[float], lag: float, recent: i
         assert approx == pytest.approx(exact, abs=1e-12)
 
 
+@settings(max_examples=200, deadline=None)
+@given(times=trace_times, weights=st.lists(st.sampled_from([0.5, 1.0, 2.0, 3.7]), min_size=60, max_size=60),
+       lags=st.lists(st.floats(min_value=1e-3, max_value=1e7), min_size=1, max_size=9), recent=st.integers(1, 6),
+       decay=st.floats(min_value=0.1, max_value=0.9))
+# old traces 8 ms apart (the expm1/log1p branch at tiny r) and old traces at one instant (r = 0)
+@example(times=[0.0, 1.0, 1.0, 1.5, 0.0078125], weights=[1.0] * 60, lags=[723591.0, 3.0], recent=3, decay=0.5)
+@example(times=[5.0] * 6 + [9.0], weights=[2.0] * 60, lags=[0.5, 1e6], recent=1, decay=0.5)
+def test_hybrid_activations_equal_activation_elementwise(times: list[float], weights: list[float],
+                                                         lags: list[float], recent: int, decay: float) -> None:
+    ts = sorted(times)
+    hyb = Mem.HybridBaseLevel(decay, recent)
+    nows = np.array([ts[-1] + lag for lag in lags])
+    assert np.all(hyb.activations(nows) == -np.inf)  # no trace yet, as activation
+    for t, w in zip(ts, weights):
+        hyb.add(t, w)
+    ref = np.array([hyb.activation(float(now)) for now in nows])
+    fast = hyb.activations(nows)
+    np.testing.assert_allclose(fast, ref, rtol=0, atol=1e-12 * max(1.0, float(np.abs(ref).max())))
+    assert fast.shape == nows.shape
+    grid = hyb.activations(nows.reshape(1, -1).repeat(2, axis=0))  # any shape, elementwise
+    assert grid.shape == (2, len(nows)) and np.array_equal(grid[1], fast)
+
+
 def test_hybrid_is_close_for_evenly_spaced_practice() -> None:
     """Petrov (2006)'s approximation assumes evenly spread old traces: then the error is tiny."""
     ts = [60.0 * i for i in range(200)]
