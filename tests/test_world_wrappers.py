@@ -106,12 +106,14 @@ def test_sb3_evaluation_on_replayed_schedules_is_recorded() -> None:
     """Stable-Baselines3 drives the wrapped env through its own VecEnv; the recorder sees it all."""
     from stable_baselines3 import PPO
     from stable_baselines3.common.evaluation import evaluate_policy
+    from stable_baselines3.common.monitor import Monitor
 
     schedules = [_schedule([0, 1] * 10), _schedule([5] * 20)]
     recorder = TrialRecorder(ScheduleReplay(_env(), schedules))
-    model = PPO("MlpPolicy", recorder, n_steps=64, batch_size=32, seed=0, device="cpu")
+    monitored = Monitor(recorder)
+    model = PPO("MlpPolicy", monitored, n_steps=64, batch_size=32, seed=0, device="cpu")
     recorder.clear()
-    rewards, lengths = evaluate_policy(model, recorder, n_eval_episodes=2, deterministic=True,
+    rewards, lengths = evaluate_policy(model, monitored, n_eval_episodes=2, deterministic=True,
                                        return_episode_rewards=True)
     table = recorder.trials()
     assert lengths == [20, 20]
