@@ -419,16 +419,47 @@ def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_sha
 def solve_finite_horizon(P: np.ndarray, R: np.ndarray, n_stages: int) -> tuple[np.ndarray, np.ndarray]:
     """Exact backward induction. Returns V (n_stages + 1, S), V[n] the optimal value with n
     stages left (V[0] = 0), and policy (n_stages + 1, S) (row 0 unused, -1); ties go to the
-    lowest action index. ``P`` is dense (actions x S x S) or a list of scipy sparse matrices."""
+    lowest action index. ``P`` is dense (actions x S x S; the readable numpy loop, kept as the
+    reference) or a list of scipy sparse matrices (a compiled loop over their CSR arrays that
+    adds in the same order as scipy's product, so both give the same numbers bit for bit)."""
+    if not isinstance(P, np.ndarray):
+        stacked = sparse.vstack([sparse.csr_matrix(Pa) for Pa in P], format="csr")
+        stacked.sort_indices()
+        return _backward_induction_csr(stacked.indptr.astype(np.int64), stacked.indices.astype(np.int64),
+                                       stacked.data.astype(np.float64), np.ascontiguousarray(R, dtype=np.float64),
+                                       int(n_stages))
     n_states = R.shape[0]
     V = np.zeros((n_stages + 1, n_states))
     policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
-    dense = isinstance(P, np.ndarray)
     for n in range(1, n_stages + 1):
-        future = P @ V[n - 1] if dense else np.stack([Pa @ V[n - 1] for Pa in P])
+        future = P @ V[n - 1]
         Q = R.T + future  # (actions, S)
         policy[n] = np.argmax(Q, axis=0)
         V[n] = Q[policy[n], np.arange(n_states)]
+    return V, policy
+
+
+@njit(cache=True)
+def _backward_induction_csr(indptr, indices, data, R, n_stages):
+    """Backward induction over the row-stacked CSR arrays of P (row a * S + s)."""
+    n_states, n_actions = R.shape
+    V = np.zeros((n_stages + 1, n_states))
+    policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
+    for n in range(1, n_stages + 1):
+        prev = V[n - 1]
+        for s in range(n_states):
+            best = -np.inf
+            best_a = -1
+            for a in range(n_actions):
+                row = a * n_states + s
+                acc = 0.0
+                for jj in range(indptr[row], indptr[row + 1]):
+                    acc += data[jj] * prev[indices[jj]]
+                q = R[s, a] + acc
+                if best_a < 0 or q > best:
+                    best, best_a = q, a
+            policy[n, s] = best_a
+            V[n, s] = best
     return V, policy
 
 

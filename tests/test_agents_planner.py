@@ -10,7 +10,13 @@ import numpy as np
 import pytest
 
 from shortcut_gym.agents import agent_from_spec, make_agent, run_episode
-from shortcut_gym.agents.planner import N_GAP_QUANTILES, break_even_table, build_command_mdp, plan_world
+from shortcut_gym.agents.planner import (
+    N_GAP_QUANTILES,
+    break_even_table,
+    build_command_mdp,
+    plan_world,
+    solve_finite_horizon,
+)
 from shortcut_gym.envs import CommandSelectionEnv, make_world
 from shortcut_gym.envs.kernel import C_DECISION, C_SEARCH, HOTKEY, LEARN, MENU
 from shortcut_gym.envs.memory import recall_probability
@@ -297,3 +303,37 @@ def test_compiled_decisions_equal_the_scalar_reference_over_an_episode(world_kwa
         assert any(h.old_weight > 0 for h in agent._hybrid.values())
     twin = copy.deepcopy(agent)  # a per-user copy shares the read-only tables, as it shares the plan
     assert twin.plan is agent.plan and twin._next_uses is agent._next_uses
+
+
+def _scipy_backward_induction(P: list, R: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """The planner's former solver: numpy over scipy sparse products (ties to the lowest action)."""
+    S = R.shape[0]
+    V, pol = np.zeros((n + 1, S)), np.full((n + 1, S), -1, dtype=np.int64)
+    for i in range(1, n + 1):
+        Q = R.T + np.stack([Pa @ V[i - 1] for Pa in P])
+        pol[i] = np.argmax(Q, axis=0)
+        V[i] = Q[pol[i], np.arange(S)]
+    return V, pol
+
+
+def test_compiled_backward_induction_equals_the_sparse_numpy_loop_bit_for_bit() -> None:
+    from scipy import sparse
+
+    world = make_world(schedule={"sessions": 6, "trials_per_session": 40})
+    for c in (0, 5, 11):
+        mdp = build_command_mdp(world, c, 40, 0.3, 0.4)
+        sp = [sparse.csr_matrix(mdp.P[a]) for a in range(3)]
+        V_ref, pol_ref = _scipy_backward_induction(sp, mdp.R, 200)
+        V, pol = solve_finite_horizon(sp, mdp.R, 200)
+        np.testing.assert_array_equal(V, V_ref)
+        np.testing.assert_array_equal(pol, pol_ref)
+        V_dense, pol_dense = solve_finite_horizon(mdp.P, mdp.R, 200)  # BLAS adds in another order
+        np.testing.assert_allclose(V, V_dense, rtol=1e-12, atol=1e-9)
+    # exact ties (identical actions) go to the lowest action index, as np.argmax does
+    rng = np.random.default_rng(0)
+    P1 = rng.random((6, 6))
+    P1 /= P1.sum(axis=1, keepdims=True)
+    R = np.repeat(rng.random((6, 1)), 3, axis=1)
+    V, pol = solve_finite_horizon([sparse.csr_matrix(P1)] * 3, R, 5)
+    assert (pol[1:] == 0).all()
+    np.testing.assert_array_equal(V, _scipy_backward_induction([sparse.csr_matrix(P1)] * 3, R, 5)[0])
