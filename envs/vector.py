@@ -124,7 +124,7 @@ class CommandSelectionVectorEnv(VectorEnv):
     def _start(self) -> np.ndarray:
         """Draw the next user of every sub-environment from its generator."""
         obs = self.sim.reset(rngs=self._rngs).copy()
-        self._sessions = np.stack([sc.session for sc in self.sim.schedules]).astype(np.int64)
+        self._sessions = self.sim.sched_session  # (users, horizon), no per-user Schedule object
         return obs
 
     # ---- info dicts in gymnasium's vector layout (arrays plus '_key' masks) ------------------
