@@ -471,17 +471,46 @@ def expected_uses(world: World, command: int) -> int:
 def hotkey_shares(mdp: CommandMDP, actions: np.ndarray) -> tuple[float, float]:
     """(share of uses that attempt a hotkey, share that recall it) when use j of ``len(actions)``
     takes ``actions[j]`` (an action per state, shape (uses, S)), starting from the no-trace state."""
-    dist = np.zeros(mdp.n_states)
-    dist[0] = 1.0
-    attempt = success = 0.0
-    cols = np.arange(mdp.n_states)
-    for row in actions:
-        hot = dist * (row == k.HOTKEY)
-        attempt += hot.sum()
-        success += float(np.dot(hot, mdp.p_recall))
-        dist = np.einsum("s,st->t", dist, mdp.P[row, cols])
+    occupancy = state_occupancy(mdp, actions)  # (uses, S)
+    hot = occupancy * (actions == k.HOTKEY)
     n = max(len(actions), 1)
-    return attempt / n, success / n
+    return float(hot.sum()) / n, float((hot * mdp.p_recall).sum()) / n
+
+
+def _stacked_csr(mdp: CommandMDP) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """P's three actions stacked by rows (row a * S + s) as CSR arrays, built once per MDP."""
+    cached = getattr(mdp, "_csr", None)
+    if cached is None:
+        stacked = sparse.vstack([sparse.csr_matrix(mdp.P[a]) for a in range(3)], format="csr")
+        stacked.sort_indices()
+        cached = (stacked.indptr.astype(np.int64), stacked.indices.astype(np.int64), stacked.data.astype(np.float64))
+        mdp._csr = cached  # type: ignore[attr-defined]
+    return cached
+
+
+def state_occupancy(mdp: CommandMDP, actions: np.ndarray) -> np.ndarray:
+    """(uses, S): the state distribution at each use from the no-trace state when use j takes
+    ``actions[j]`` (an action per state), compiled over P's sparse rows."""
+    indptr, indices, data = _stacked_csr(mdp)
+    return _occupancy_csr(indptr, indices, data, np.ascontiguousarray(actions, dtype=np.int64))
+
+
+@njit(cache=True)
+def _occupancy_csr(indptr, indices, data, actions):
+    n_uses, n_states = actions.shape
+    out = np.zeros((n_uses, n_states))
+    if n_uses == 0:
+        return out
+    out[0, 0] = 1.0
+    for j in range(n_uses - 1):
+        for s in range(n_states):
+            mass = out[j, s]
+            if mass == 0.0:
+                continue
+            row = actions[j, s] * n_states + s
+            for jj in range(indptr[row], indptr[row + 1]):
+                out[j + 1, indices[jj]] += mass * data[jj]
+    return out
 
 
 @dataclass
@@ -509,9 +538,7 @@ def _solve(world: World, n: int, mdps: list[CommandMDP], ks: float, q: float) ->
     values, policies = [], []
     for c, mdp in enumerate(mdps):
         mdp.R = _rewards(action_times(world, c, ks, q), mdp.activation, mdp.p_recall)
-        if not hasattr(mdp, "_sparse"):
-            mdp._sparse = [sparse.csr_matrix(mdp.P[a]) for a in range(3)]  # type: ignore[attr-defined]
-        V, pol = solve_finite_horizon(mdp._sparse, mdp.R, n)  # type: ignore[attr-defined, arg-type]
+        V, pol = _backward_induction_csr(*_stacked_csr(mdp), np.ascontiguousarray(mdp.R, dtype=np.float64), n)
         values.append(V)
         policies.append(pol)
     return Plan(mdps, values, policies, n, ks, q)
@@ -539,13 +566,9 @@ def predicted_time_s(world: World, plan: Plan) -> float:
         own = replace(action_times(world, c, plan.keyboard_share, plan.next_hotkey_share),
                       return_after_mouse_s=0.0, return_after_keyboard_s=0.0)
         R = _rewards(own, mdp.activation, mdp.p_recall)
-        dist = np.zeros(mdp.n_states)
-        dist[0] = 1.0
-        cols = np.arange(mdp.n_states)
-        for n_left in range(min(expected_uses(world, c), plan.max_uses), 0, -1):
-            row = plan.policy[c][n_left]
-            total -= float(np.dot(dist, R[cols, row]))
-            dist = np.einsum("s,st->t", dist, mdp.P[row, cols])
+        rows = plan.policy[c][np.arange(min(expected_uses(world, c), plan.max_uses), 0, -1)]
+        occupancy = state_occupancy(mdp, rows)
+        total -= float((occupancy * np.take_along_axis(R.T, rows, axis=0)).sum())
     return total
 
 

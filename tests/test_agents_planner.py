@@ -337,3 +337,21 @@ def test_compiled_backward_induction_equals_the_sparse_numpy_loop_bit_for_bit() 
     V, pol = solve_finite_horizon([sparse.csr_matrix(P1)] * 3, R, 5)
     assert (pol[1:] == 0).all()
     np.testing.assert_array_equal(V, _scipy_backward_induction([sparse.csr_matrix(P1)] * 3, R, 5)[0])
+
+
+def test_state_occupancy_equals_the_dense_propagation() -> None:
+    from shortcut_gym.agents.planner import state_occupancy
+
+    world = make_world(schedule={"sessions": 6, "trials_per_session": 40})
+    mdp = build_command_mdp(world, 2, 20, 0.3, 0.4)
+    rng = np.random.default_rng(4)
+    actions = rng.integers(0, 3, size=(30, mdp.n_states))
+    occ = state_occupancy(mdp, actions)
+    dist = np.zeros(mdp.n_states)
+    dist[0] = 1.0
+    cols = np.arange(mdp.n_states)
+    for j, row in enumerate(actions):
+        np.testing.assert_allclose(occ[j], dist, rtol=1e-12, atol=1e-15)
+        dist = dist @ mdp.P[row, cols]
+    np.testing.assert_allclose(occ.sum(axis=1), 1.0, rtol=1e-12)  # probability is kept
+    assert state_occupancy(mdp, actions[:0]).shape == (0, mdp.n_states)
