@@ -6,6 +6,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.logs import log_from_simulation, write_log
 from shortcut_gym.lab.simulate import parse_agent_arg, session_summary, simulate_agents
 
 
@@ -20,6 +21,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--users", type=int, default=5, help="simulated users per agent")
     p.add_argument("--seed", type=int, default=0, help="first seed; users get seed, seed+1, ...")
     p.add_argument("--out", type=Path, default=None, help="folder for trials.parquet and summary.csv")
+    p.add_argument("--log", type=Path, default=None,
+                   help="also write the trials as a trial log (.csv or .parquet) that 'fit' reads; "
+                        "participants are named <agent>-u<seed>")
     p.set_defaults(func=run)
 
 
@@ -27,6 +31,8 @@ def run(args: argparse.Namespace) -> int:
     """Simulate, print the session table, optionally write the outputs."""
     if args.users < 1:
         raise ValueError(f"--users must be >= 1, got {args.users}")
+    if args.log is not None and args.log.suffix.lower() not in (".csv", ".parquet", ".pq"):
+        raise ValueError(f"--log {args.log}: unknown file type {args.log.suffix!r}; use .csv or .parquet")
     world = make_world(args.scenario, args.costs, args.memory)
     agents = args.agent or ["always_menu", "always_hotkey", "learn_first_k:k=1"]
     specs = [parse_agent_arg(a) for a in agents]
@@ -38,4 +44,8 @@ def run(args: argparse.Namespace) -> int:
         trials.to_parquet(args.out / "trials.parquet", index=False)
         summary.to_csv(args.out / "summary.csv", index=False)
         print(f"wrote {args.out / 'trials.parquet'} and {args.out / 'summary.csv'}")
+    if args.log is not None:
+        keyed = trials.assign(participant_key=[f"{a}-u{u}" for a, u in zip(trials["agent"], trials["user"])])
+        log = log_from_simulation(keyed, world.commands, participant_column="participant_key", prefix="")
+        print(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
     return 0

@@ -35,14 +35,16 @@ def _blocks(lang: str) -> list[tuple[Path, str]]:
     return out
 
 
-def _commands() -> list[tuple[str, str]]:
-    cmds = []
+def _command_blocks() -> list[tuple[str, tuple[str, ...]]]:
+    """(document, the commands of one quoted bash block in order); a block is run as a sequence,
+    since a later line may read what an earlier one wrote."""
+    out = []
     for doc, block in _blocks("bash"):
-        for line in block.splitlines():
-            line = line.split("#", 1)[0].strip()
-            if line:
-                cmds.append((doc.name, line))
-    return cmds
+        lines = tuple(line.split("#", 1)[0].strip() for line in block.splitlines())
+        lines = tuple(line for line in lines if line and line not in NOT_RUN_HERE)
+        if lines:
+            out.append((doc.name, lines))
+    return out
 
 
 # ---- the tutorial, step by step -----------------------------------------------------------
@@ -102,12 +104,13 @@ def test_every_cli_subcommand_has_help() -> None:
         assert res.returncode == 0 and f"usage: shortcut-gym {name}" in res.stdout, res.stderr
 
 
-@pytest.mark.parametrize(("doc", "command"), [c for c in _commands() if c[1] not in NOT_RUN_HERE])
-def test_quoted_commands_run(doc: str, command: str) -> None:
-    """Run as the docs say: from the project folder."""
-    res = subprocess.run(shlex.split(command), capture_output=True, text=True, cwd=ROOT, timeout=600,
-                         env={**os.environ, "MPLBACKEND": "Agg"})
-    assert res.returncode == 0, f"{doc}: {command}\n{res.stdout[-2000:]}\n{res.stderr[-2000:]}"
+@pytest.mark.parametrize(("doc", "commands"), _command_blocks())
+def test_quoted_commands_run(doc: str, commands: tuple[str, ...]) -> None:
+    """Run as the docs say: from the project folder, each block's lines in order."""
+    for command in commands:
+        res = subprocess.run(shlex.split(command), capture_output=True, text=True, cwd=ROOT, timeout=600,
+                             env={**os.environ, "MPLBACKEND": "Agg"})
+        assert res.returncode == 0, f"{doc}: {command}\n{res.stdout[-2000:]}\n{res.stderr[-2000:]}"
 
 
 def test_the_quick_start_commands_are_exactly_make_demo_and_make_test() -> None:

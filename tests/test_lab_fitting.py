@@ -149,3 +149,23 @@ def test_markdown_table_formats_numbers_nan_and_pipes():
         "| a\\|b | 1.2 | 3 |",
         "| c | - | 4 |",
     ]
+
+
+def test_cli_simulate_writes_a_log_that_fit_reads(tmp_path, capsys):
+    from shortcut_gym.lab.logs import read_log
+
+    path = tmp_path / "sim.parquet"
+    assert main(["simulate", "--users", "2", "--seed", "3", "--agent", "static_softmax",
+                 "--agent", "learn_first_k:k=1", "--log", str(path)]) == 0
+    log = read_log(path, WORLD.commands)  # validates every row against the schema and the scenario
+    assert sorted(log["participant"].unique()) == ["learn_first_k(k=1)-u3", "learn_first_k(k=1)-u4",
+                                                   "static_softmax-u3", "static_softmax-u4"]
+    assert len(log) == 4 * WORLD.horizon
+    first = log[log["participant"] == "learn_first_k(k=1)-u3"]
+    assert first.groupby("command")["action"].first().eq("learn").all()  # its first use of each command learns
+    assert main(["fit", str(path), "--model", "static_softmax", "--starts", "1", "--out", str(tmp_path / "f"),
+                 "--quiet"]) == 0
+    assert len(pd.read_csv(tmp_path / "f" / "fits.csv")) == 4
+    capsys.readouterr()
+    assert main(["simulate", "--users", "1", "--log", str(tmp_path / "sim.txt")]) == 2
+    assert "--log" in capsys.readouterr().err and not (tmp_path / "sim.txt").exists()
