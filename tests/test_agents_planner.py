@@ -180,6 +180,31 @@ def test_planner_finds_the_keyboard_equilibrium_when_it_pays():
     assert diff.mean() < -2 * diff.std(ddof=1) / np.sqrt(len(diff))
 
 
+def test_near_tie_of_two_plans_is_decided_by_simulation():
+    """The demo sweep's cell K = 0.5 s, encoding 8 s (6 sessions of 40): the keyboard-start plan
+    is predicted about 6 s per user faster than the menu-start one but is about 1 s slower in the
+    simulator, so choosing by prediction alone lost to always-menu. With the tie simulated (other
+    users than those scored) the planner keeps the menu plan and ties always-menu exactly."""
+    world = make_world(costs={"klm": {"keystroke_s": 0.5}, "learn": {"encoding_s": 8.0}},
+                       schedule={"sessions": 6, "trials_per_session": 40})
+    by_prediction = plan_world(world, n_bins=20, tie_users=0)
+    simulated = plan_world(world, n_bins=20)
+    assert by_prediction.keyboard_share > 0.3 and np.isnan(by_prediction.simulated_time_s)
+    assert simulated.keyboard_share == 0.0 and np.isfinite(simulated.simulated_time_s)
+    env = CommandSelectionEnv(world=world)
+
+    def totals(plan):
+        agent = make_agent("bounded_optimal", world=world, n_bins=20)
+        agent.plan = plan
+        return np.array([run_episode(env, agent, seed=s)["duration_s"].sum() for s in range(12)])
+
+    menu = np.array([run_episode(env, make_agent("always_menu"), seed=s)["duration_s"].sum() for s in range(12)])
+    assert np.abs(totals(simulated) - menu).max() < 1e-9
+    assert (totals(by_prediction) - menu).mean() > 0  # the prediction's choice really was worse here
+    with pytest.raises(ValueError, match="tie_users must be a whole number >= 0"):
+        plan_world(world, max_uses=2, tie_users=-1)
+
+
 # ---- the compiled decision against the scalar reference ------------------------------------------------
 
 
