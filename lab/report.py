@@ -148,14 +148,23 @@ def comparison_sections(summed: pd.DataFrame, bms: BMSResult) -> list[tuple[str,
     """Report sections of a model comparison: the verdict in words, summed criteria, BMS, the plot."""
     best = summed.sort_values("bic").reset_index(drop=True)
     bms_table = bms.table()
-    top = bms_table.sort_values("protected_exceedance", ascending=False).iloc[0]
+    ranked = bms_table.sort_values("protected_exceedance", ascending=False).reset_index(drop=True)
+    top = ranked.iloc[0]
     words = f"Lowest summed BIC: **{best.loc[0, 'model']}**"
     if len(best) > 1:
         words += f" ({best.loc[1, 'bic'] - best.loc[0, 'bic']:.1f} below {best.loc[1, 'model']})"
-    words += (f". Random-effects model selection: **{top['model']}** has the highest protected exceedance "
-              f"probability ({top['protected_exceedance']:.2f}; Bayesian omnibus risk {top['bor']:.2f}, the "
-              "probability that the models are equally frequent). Summed BIC assumes one model for "
-              "everyone; the random-effects view allows each participant their own.")
+    risk = (f"Bayesian omnibus risk {top['bor']:.2f}, the probability that the models are equally "
+            "frequent")
+    close = ranked["protected_exceedance"] > top["protected_exceedance"] - 0.01  # within 0.01: no leader
+    if close.sum() > 1:
+        leaders = ", ".join(ranked.loc[close, "model"])
+        words += (f". Random-effects model selection: no model leads ({leaders} are within 0.01 of the highest "
+                  f"protected exceedance probability, {top['protected_exceedance']:.2f}; {risk}).")
+    else:
+        words += (f". Random-effects model selection: **{top['model']}** has the highest protected exceedance "
+                  f"probability ({top['protected_exceedance']:.2f}; {risk}).")
+    words += (" Summed BIC assumes one model for everyone; the random-effects view allows each participant "
+              "their own.")
     return [
         ("Verdict", words),
         ("Summed criteria", markdown_table(summed)),

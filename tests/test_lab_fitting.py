@@ -169,3 +169,16 @@ def test_cli_simulate_writes_a_log_that_fit_reads(tmp_path, capsys):
     capsys.readouterr()
     assert main(["simulate", "--users", "1", "--log", str(tmp_path / "sim.txt")]) == 2
     assert "--log" in capsys.readouterr().err and not (tmp_path / "sim.txt").exists()
+
+
+def test_verdict_names_the_leader_or_says_none_leads():
+    from shortcut_gym.lab.report import comparison_sections
+
+    summed = pd.DataFrame({"model": ["a", "b"], "bic": [100.0, 130.5]})
+    clear = random_effects_bms(np.array([[0.0, -20.0]] * 8), ["a", "b"])
+    verdict = dict(comparison_sections(summed, clear))["Verdict"]
+    assert "Lowest summed BIC: **a** (30.5 below b)" in verdict
+    assert f"**a** has the highest protected exceedance probability ({clear.protected_exceedance[0]:.2f}" in verdict
+    split = random_effects_bms(np.array([[0.0, -20.0]] * 4 + [[-20.0, 0.0]] * 4), ["a", "b"])
+    assert abs(split.protected_exceedance[0] - split.protected_exceedance[1]) < 0.01
+    assert "no model leads (a, b are within 0.01" in dict(comparison_sections(summed, split))["Verdict"]
