@@ -8,7 +8,13 @@ State = (target command, learn count 0/1/2+, hotkey successes 0/1/2-4/5+, hotkey
 time since the command's last use: never / < 1 h / >= 1 h), read from the observation's
 ``log1p_*`` features (located through ``context.obs_names``). Behaviour: epsilon-greedy, so
 ``action_probabilities`` gives epsilon/3 to every action plus 1 - epsilon to the greedy one
-(ties: lowest index). The end of the horizon is a true end (no bootstrap past the last trial).
+(ties: lowest index).
+
+The task decomposes by command: an action changes that command's memory (and the hand, which
+the next trial pays for), so each update bootstraps from the same command's state at its next
+use, not from the next trial's, which belongs to another command and would swamp the one-second
+differences between actions with the value of unrelated commands. ``discount`` is per use of
+the command. The end of the horizon is a true end (no bootstrap past a command's last use).
 ``reset`` starts a new episode and keeps the learned table; :meth:`clear` forgets it; updates
 happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
 """
@@ -43,7 +49,7 @@ class TabularAgent(Agent):
     def param_specs(self) -> dict[str, ParamSpec]:
         return {
             "learning_rate": ParamSpec("learning_rate", 0.1, 0.0, 1.0, "logit", "step size of the TD update"),
-            "discount": ParamSpec("discount", 0.99, 0.0, 1.0, "logit", "discount per trial"),
+            "discount": ParamSpec("discount", 0.99, 0.0, 1.0, "logit", "discount per use of the command"),
             "epsilon": ParamSpec("epsilon", 0.1, 0.0, 1.0, "logit", "exploration probability"),
             "initial_value": ParamSpec("initial_value", 0.0, -100.0, 100.0, "none", "initial Q (-seconds)"),
         }
@@ -53,7 +59,7 @@ class TabularAgent(Agent):
         self.learning = False
         self.q: np.ndarray | None = None
         self._index: list[int] | None = None
-        self._pending: tuple[int, int, float] | None = None
+        self._open: dict[int, tuple[tuple[int, ...], int, float]] = {}  # command -> its last (s, a, r)
 
     def clear(self) -> None:
         """Forget the learned table."""
@@ -65,7 +71,7 @@ class TabularAgent(Agent):
         super().reset(seed)
         if self.q is None:
             self.clear()
-        self._pending = None
+        self._open: dict[int, tuple[tuple[int, ...], int, float]] = {}
 
     def state(self, obs: np.ndarray, info: dict[str, Any]) -> tuple[int, ...]:
         """Discrete state of the upcoming trial."""
@@ -87,27 +93,25 @@ class TabularAgent(Agent):
         p[int(np.argmax(q))] += 1 - eps
         return p
 
-    def _bootstrap(self, state: tuple[int, ...], next_action: int | None) -> float:
+    def _next_value(self, state: tuple[int, ...], action: int) -> float:
+        """Value of ``state`` at the command's next use, where ``action`` was taken."""
         raise NotImplementedError
 
     def observe(self, transition: Transition) -> None:
+        """TD update of the command's previous use, now that its next state is known."""
         if not self.learning:
             return
-        info = transition.info
-        s = self.state(transition.obs, {"target": info["command"]})
-        done = transition.terminated or transition.truncated
-        if done:
-            self._td(s, transition.action, transition.reward, 0.0)
-            self._pending = None
-        else:
-            s2 = self.state(transition.next_obs, info)
-            self._pending = (s, transition.action, transition.reward)
-            self._next_state = s2
-            if self.bootstrap_on_observe:
-                self._td(s, transition.action, transition.reward, float(np.max(self.q[s2])))  # type: ignore[index]
-                self._pending = None
-
-    bootstrap_on_observe = True
+        c = int(transition.info["command"])
+        s = self.state(transition.obs, {"target": c})
+        previous = self._open.pop(c, None)
+        if previous is not None:
+            s0, a0, r0 = previous
+            self._td(s0, a0, r0, self._next_value(s, int(transition.action)))
+        self._open[c] = (s, int(transition.action), float(transition.reward))
+        if transition.terminated or transition.truncated:  # the horizon is a true end
+            for s0, a0, r0 in self._open.values():
+                self._td(s0, a0, r0, 0.0)
+            self._open.clear()
 
     def _td(self, s: tuple[int, ...], a: int, r: float, next_value: float) -> None:
         q = self.q[s]  # type: ignore[index]
@@ -151,30 +155,34 @@ class TabularAgent(Agent):
         self.q = q.copy()
         return self
 
-    def evaluate(self, env: Any, seeds: Any) -> pd.DataFrame:
-        """Total time (s) and hotkey share per simulated user, learning switched off."""
-        return evaluate_agent(env, self, seeds)
+    def evaluate(self, env: Any, seeds: Any, greedy: bool = False) -> pd.DataFrame:
+        """Total time (s) and hotkey share per simulated user, learning switched off; ``greedy``
+        takes the best action of the table every time (epsilon 0 for the evaluation only)."""
+        epsilon = self.params["epsilon"]
+        if greedy:
+            self.params["epsilon"] = 0.0
+        try:
+            return evaluate_agent(env, self, seeds)
+        finally:
+            self.params["epsilon"] = epsilon
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "params": dict(self.params)}
 
 
 class QLearningAgent(TabularAgent):
-    """Off-policy TD control: target r + gamma max_a' Q(s', a')."""
+    """Off-policy TD control: target r + gamma max_a' Q(s', a'), s' the command's next use."""
 
     name = "q_learning"
 
+    def _next_value(self, state: tuple[int, ...], action: int) -> float:
+        return float(np.max(self.q[state]))  # type: ignore[index]
+
 
 class SarsaAgent(TabularAgent):
-    """On-policy TD control: target r + gamma Q(s', a') with a' the action actually taken next."""
+    """On-policy TD control: target r + gamma Q(s', a'), a' the action taken at the command's next use."""
 
     name = "sarsa"
-    bootstrap_on_observe = False
 
-    def act(self, obs: np.ndarray, info: dict[str, Any]) -> int:
-        a = super().act(obs, info)
-        if self.learning and self._pending is not None:
-            s, pa, r = self._pending
-            self._td(s, pa, r, float(self.q[self._next_state][a]))  # type: ignore[index]
-            self._pending = None
-        return a
+    def _next_value(self, state: tuple[int, ...], action: int) -> float:
+        return float(self.q[state][action])  # type: ignore[index]
