@@ -202,14 +202,7 @@ class HybridBaseLevel:
     def _old_sum(self, now: float) -> float:
         if self.old_weight == 0.0:
             return 0.0
-        d = self.decay
-        a_n = now - self.old_last
-        r = (self.old_last - self.old_first) / a_n  # (a_o - a_n) / a_n, without cancellation
-        if r <= 1e-12:  # mean of age^-d is a_n^-d (1 - d r / 2 + ...); avoids subnormal r
-            return self.old_weight * a_n ** (-d)
-        # a_o^{1-d} - a_n^{1-d} = a_n^{1-d} expm1((1-d) log1p(r)): no catastrophic cancellation
-        x = (1 - d) * math.log1p(r)
-        return self.old_weight * a_n ** (-d) * math.expm1(x) / ((1 - d) * r)
+        return _old_lump(now, self.decay, self.old_weight, self.old_first, self.old_last)
 
     def activation(self, now: float) -> float:
         """Approximate base-level activation at ``now`` (s); -inf with no trace."""
@@ -238,6 +231,17 @@ class HybridBaseLevel:
 
 
 @njit(cache=True)
+def _old_lump(now: float, d: float, weight: float, first: float, last: float) -> float:
+    """The old traces' contribution W x mean of age^-d over [now - last, now - first]."""
+    a_n = now - last
+    r = (last - first) / a_n  # (a_o - a_n) / a_n, without cancellation
+    if r <= 1e-12:  # mean of age^-d is a_n^-d (1 - d r / 2 + ...); avoids subnormal r
+        return weight * a_n ** (-d)
+    # a_o^{1-d} - a_n^{1-d} = a_n^{1-d} expm1((1-d) log1p(r)): no catastrophic cancellation
+    return weight * a_n ** (-d) * math.expm1((1 - d) * math.log1p(r)) / ((1 - d) * r)
+
+
+@njit(cache=True)
 def _hybrid_activations(now: np.ndarray, times: np.ndarray, weights: np.ndarray, decay: float,
                         old_weight: float, old_first: float, old_last: float) -> np.ndarray:
     """HybridBaseLevel.activation at each clock of ``now`` (1-D), term by term as there."""
@@ -248,12 +252,6 @@ def _hybrid_activations(now: np.ndarray, times: np.ndarray, weights: np.ndarray,
         for j in range(len(times)):
             total += weights[j] * (now[i] - times[j]) ** (-d)
         if old_weight != 0.0:
-            a_n = now[i] - old_last
-            r = (old_last - old_first) / a_n
-            if r <= 1e-12:
-                total += old_weight * a_n ** (-d)
-            else:
-                x = (1 - d) * math.log1p(r)
-                total += old_weight * a_n ** (-d) * math.expm1(x) / ((1 - d) * r)
+            total += _old_lump(now[i], d, old_weight, old_first, old_last)
         out[i] = math.log(total) if total > 0 else -np.inf
     return out
