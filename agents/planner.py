@@ -313,6 +313,16 @@ def weight_grid(world: World, n_weight_bins: int) -> np.ndarray:
     return np.geomspace(lo, max(hi, 2 * lo), n_weight_bins)
 
 
+def _fresh_share(m: Any, age: np.ndarray) -> np.ndarray:
+    """Share of its weight a trace keeps ``age`` s after it was laid: e^{-lambda age} (exponential),
+    (1 + age/u)^-b (power) or age^-d (ACT-R)."""
+    if m.kind == "exponential":
+        return np.exp(-m.exponential_rate_per_s * age)
+    if m.kind == "power":
+        return (1.0 + age / m.power_time_unit_s) ** (-m.decay)
+    return age ** (-m.decay)
+
+
 def _aged_strength(world: World, strength: np.ndarray, weight: np.ndarray, new: float,
                    gaps: np.ndarray) -> np.ndarray:
     """Strength at the next use, (states, gaps): the old traces as one lump of total weight W at the
@@ -322,19 +332,19 @@ def _aged_strength(world: World, strength: np.ndarray, weight: np.ndarray, new: 
     S = strength[:, None]
     g = gaps[None, :]
     if m.kind == "exponential":
-        return (S + new) * np.exp(-m.exponential_rate_per_s * g)
+        return (S + new) * _fresh_share(m, g)
     W = weight[:, None]
     with np.errstate(divide="ignore", invalid="ignore"):
         if m.kind in ("actr", "actr_exact"):
             age = np.where(S > 0, (W / np.where(S > 0, S, 1.0)) ** (1.0 / m.decay), 0.0)
             old = np.where(S > 0, W * (age + g) ** (-m.decay), 0.0)
-            return old + new * g ** (-m.decay)
+            return old + new * _fresh_share(m, g)
         if m.kind == "power":
             u, b = m.power_time_unit_s, m.decay
             ratio = np.clip(np.where(S > 0, S / np.where(W > 0, W, 1.0), 1.0), 1e-300, 1.0)
             age = u * (ratio ** (-1.0 / b) - 1.0)
             old = np.where(S > 0, W * (1 + (age + g) / u) ** (-b), 0.0)
-            return old + new * (1 + g / u) ** (-b)
+            return old + new * _fresh_share(m, g)
     raise ValueError(f"the planner supports memory kinds actr, actr_exact, exponential, power; got {m.kind!r}")
 
 
@@ -424,11 +434,7 @@ def solve_finite_horizon(P: np.ndarray, R: np.ndarray, n_stages: int) -> tuple[n
     reference) or a list of scipy sparse matrices (a compiled loop over their CSR arrays that
     adds in the same order as scipy's product, so both give the same numbers bit for bit)."""
     if not isinstance(P, np.ndarray):
-        stacked = sparse.vstack([sparse.csr_matrix(Pa) for Pa in P], format="csr")
-        stacked.sort_indices()
-        return _backward_induction_csr(stacked.indptr.astype(np.int64), stacked.indices.astype(np.int64),
-                                       stacked.data.astype(np.float64), np.ascontiguousarray(R, dtype=np.float64),
-                                       int(n_stages))
+        return _backward_induction_csr(*_csr_rows(P), np.ascontiguousarray(R, dtype=np.float64), int(n_stages))
     n_states = R.shape[0]
     V = np.zeros((n_stages + 1, n_states))
     policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
@@ -478,14 +484,19 @@ def hotkey_shares(mdp: CommandMDP, actions: np.ndarray) -> tuple[float, float]:
     return float(hot.sum()) / n, float((hot * mdp.p_recall).sum()) / n
 
 
+def _csr_rows(matrices: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(indptr, indices, data) of the actions' matrices stacked by rows (row a * S + s), column
+    indices sorted as scipy's product reads them."""
+    stacked = sparse.vstack([sparse.csr_matrix(Pa) for Pa in matrices], format="csr")
+    stacked.sort_indices()
+    return stacked.indptr.astype(np.int64), stacked.indices.astype(np.int64), stacked.data.astype(np.float64)
+
+
 def _stacked_csr(mdp: CommandMDP) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """P's three actions stacked by rows (row a * S + s) as CSR arrays, built once per MDP."""
+    """:func:`_csr_rows` of the MDP's P, built once per MDP."""
     cached = getattr(mdp, "_csr", None)
     if cached is None:
-        stacked = sparse.vstack([sparse.csr_matrix(mdp.P[a]) for a in range(3)], format="csr")
-        stacked.sort_indices()
-        cached = (stacked.indptr.astype(np.int64), stacked.indices.astype(np.int64), stacked.data.astype(np.float64))
-        mdp._csr = cached  # type: ignore[attr-defined]
+        cached = mdp._csr = _csr_rows(mdp.P)  # type: ignore[attr-defined]
     return cached
 
 
@@ -643,8 +654,7 @@ def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
     best = high if high.predicted_time_s < low.predicted_time_s - 1e-9 else low
     differ = any(not np.array_equal(a, b) for a, b in zip(low.policy, high.policy))
     if tie_users and differ and abs(high.predicted_time_s - low.predicted_time_s) < TIE_MARGIN_S:
-        for plan in candidates:
-            _set_rewards(world, mdps, plan)
+        for plan in candidates:  # the agent reads the plan's values and shares, not the MDPs' R
             plan.simulated_time_s = simulated_time_s(world, plan, int(tie_users), n_bins, n_weight_bins)
         best = high if high.simulated_time_s < low.simulated_time_s - 1e-9 else low
     _set_rewards(world, mdps, best)
@@ -753,13 +763,7 @@ def next_use_points(world: World, clock: np.ndarray) -> NextUses:
             k_ = np.ceil(np.log1p(-(_QUANTILE_MIDPOINTS[None, :] * F[:, None])) / math.log1p(-p_c))
             steps = np.clip(k_, 1, after[:, None]).astype(np.int64)
         t_next[c] = clock[trials[:, None] + steps]
-    age = t_next - clock[trials][None, :, None]
-    if m.kind == "exponential":
-        fresh = np.exp(-m.exponential_rate_per_s * age)
-    elif m.kind == "power":
-        fresh = (1.0 + age / m.power_time_unit_s) ** (-m.decay)
-    else:
-        fresh = age ** (-m.decay)
+    fresh = _fresh_share(m, t_next - clock[trials][None, :, None])
     t_next.setflags(write=False)
     fresh.setflags(write=False)
     return NextUses(t_next, fresh)
