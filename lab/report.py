@@ -111,19 +111,27 @@ def markdown_table(table: pd.DataFrame, index: bool = False, digits: int = 2) ->
     return "\n".join([head, rule, *rows])
 
 
-def write_index(folder: Path, entries: list[tuple[Path, str]], title: str,
-                sections: list[tuple[str, str]] | None = None) -> Path:
-    """``index.md``: the findings (``sections``: heading and Markdown body each), then one line per
-    written file with what it holds."""
+def index_markdown(folder: Path, entries: Sequence[tuple[Path, str]], title: str,
+                   sections: Sequence[tuple[str, str]] | None = None, intro: str = "") -> str:
+    """A folder's ``index.md`` text: the title, ``intro``, the findings (``sections``: heading and
+    Markdown body each), then one line per written file (paths relative to ``folder``)."""
     lines = [f"# {title}", ""]
+    if intro:
+        lines += [intro.strip(), ""]
     for heading, body in sections or []:
         lines += [f"## {heading}", "", body.strip(), ""]
     if sections:
         lines += ["## Files", ""]
     for p, what in entries:
-        lines.append(f"- `{Path(p).relative_to(folder)}`: {what}")
+        lines.append(f"- `{Path(p).relative_to(folder).as_posix()}`: {what}")
+    return "\n".join(lines) + "\n"
+
+
+def write_index(folder: Path, entries: Sequence[tuple[Path, str]], title: str,
+                sections: Sequence[tuple[str, str]] | None = None) -> Path:
+    """Write :func:`index_markdown` to ``folder/index.md``; returns the path."""
     path = folder / "index.md"
-    path.write_text("\n".join(lines) + "\n")
+    path.write_text(index_markdown(folder, entries, title, sections))
     return path
 
 

@@ -195,30 +195,28 @@ def sweep_index(spec: SweepSpec, folder: Path, runs: list[dict[str, Any]], summa
                 grid: dict[str, Any] | None, written: dict[str, Path], n_failed: int) -> str:
     """The sweep folder's ``index.md``: what ran, time saved per agent and condition, the break-even
     agreement, the plots, then every file."""
-    from shortcut_gym.lab.report import markdown_table
+    from shortcut_gym.lab.report import index_markdown, markdown_table
 
-    lines = [f"# Sweep {spec.name}", "", spec.description or "", "",
-             f"{len(runs)} runs planned; {len(summary)} finished, {n_failed} failed.", ""]
-    params = list(spec.vary.parameters)
+    intro = f"{spec.description or ''}\n\n{len(runs)} runs planned; {len(summary)} finished, {n_failed} failed."
+    sections = []
     saved = summary.get("time_saved_vs_menu_s")
     if saved is not None and saved.notna().any():
-        table = summary.pivot_table(index=params, columns="agent", values="time_saved_vs_menu_s")
-        lines += ["## Time saved over always-menu (s per simulated user)", ""]
-        lines += [markdown_table(table, index=True, digits=1) if len(table) <= 60
-                  else f"{len(table)} conditions: see `summary.csv`.", ""]
+        table = summary.pivot_table(index=list(spec.vary.parameters), columns="agent", values="time_saved_vs_menu_s")
+        sections.append(("Time saved over always-menu (s per simulated user)",
+                         markdown_table(table, index=True, digits=1) if len(table) <= 60
+                         else f"{len(table)} conditions: see `summary.csv`."))
     if grid is not None:
-        share = fraction_agreeing(grid)
-        lines += ["## Break-even", "",
-                  f"On '{grid['command_name']}', the simulated verdict of {grid['learner']} against {grid['menu']} "
-                  f"agrees with the planner's analytic break-even rule on {share:.0%} of the swept cells.", ""]
+        sections.append(("Break-even", f"On '{grid['command_name']}', the simulated verdict of {grid['learner']} "
+                         f"against {grid['menu']} agrees with the planner's analytic break-even rule on "
+                         f"{fraction_agreeing(grid):.0%} of the swept cells."))
     plots = [k for k in ("adoption_plot", "break_even_plot", "time_saved_plot") if k in written]
     if plots:
-        lines += ["## Plots", ""]
-        lines += [f"![{_OUTPUT_NOTES[k]}]({written[k].relative_to(folder).as_posix()})" for k in plots] + [""]
-    lines += ["## Files", ""]
-    lines += [f"- `{p.relative_to(folder).as_posix()}`: {_OUTPUT_NOTES.get(k, k)}" for k, p in written.items()]
-    lines += ["- `manifest.json`, `runs/`: the run plan and each finished run (used to resume)", ""]
-    return "\n".join(lines)
+        sections.append(("Plots", "\n".join(f"![{_OUTPUT_NOTES[k]}]({written[k].relative_to(folder).as_posix()})"
+                                            for k in plots)))
+    entries = [(p, _OUTPUT_NOTES.get(k, k)) for k, p in written.items()]
+    entries += [(folder / "manifest.json", "the run plan and each run's state (used to resume)"),
+                (folder / "runs", "one folder per finished run")]
+    return index_markdown(folder, entries, f"Sweep {spec.name}", sections, intro)
 
 
 def fraction_agreeing(grid: dict[str, Any], margin_s: float = 0.0) -> float:
