@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.logs import log_from_simulation, write_log
+from shortcut_gym.lab.logs import log_format, log_from_simulation, write_log
 from shortcut_gym.lab.simulate import parse_agent_arg, session_summary, simulate_agents
 
 
@@ -31,8 +31,11 @@ def run(args: argparse.Namespace) -> int:
     """Simulate, print the session table, optionally write the outputs."""
     if args.users < 1:
         raise ValueError(f"--users must be >= 1, got {args.users}")
-    if args.log is not None and args.log.suffix.lower() not in (".csv", ".parquet", ".pq"):
-        raise ValueError(f"--log {args.log}: unknown file type {args.log.suffix!r}; use .csv or .parquet")
+    if args.log is not None:
+        try:
+            log_format(args.log)
+        except ValueError as err:
+            raise ValueError(f"--log {err}") from None
     world = make_world(args.scenario, args.costs, args.memory)
     agents = args.agent or ["always_menu", "always_hotkey", "learn_first_k:k=1"]
     specs = [parse_agent_arg(a) for a in agents]

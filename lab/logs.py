@@ -70,25 +70,41 @@ class LogError(ValueError):
         super().__init__(f"{len(faults)} fault(s) in trial log:\n  {shown}{more}")
 
 
+#: File suffix -> trial-log format.
+LOG_FORMATS: dict[str, str] = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}
+
+
+def _unknown_type(suffix: str) -> str:
+    return f"unknown file type {suffix!r}; use .csv or .parquet"
+
+
+def log_format(path: str | Path) -> str:
+    """'csv' or 'parquet' by the suffix of ``path``; a ValueError naming the file otherwise."""
+    suffix = Path(path).suffix.lower()
+    if suffix not in LOG_FORMATS:
+        raise ValueError(f"{path}: {_unknown_type(suffix)}")
+    return LOG_FORMATS[suffix]
+
+
 def read_log_table(path: str | Path) -> pd.DataFrame:
     """Read a CSV (``.csv``) or Parquet (``.parquet``/``.pq``) file as it is, without validation."""
     p = Path(path)
     if not p.is_file():
         raise FileNotFoundError(f"{p}: no such trial log file")
-    suffix = p.suffix.lower()
+    fmt = LOG_FORMATS.get(p.suffix.lower())
+    if fmt is None:
+        raise LogError([LogFault(str(p), None, None, _unknown_type(p.suffix.lower()))])
     try:
-        if suffix == ".csv":
+        if fmt == "csv":
             return pd.read_csv(p, dtype={"participant": str, "command": str, "action": str, "outcome": str},
                                keep_default_na=True)
-        if suffix in (".parquet", ".pq"):
-            return pd.read_parquet(p)
+        return pd.read_parquet(p)
     except pd.errors.EmptyDataError:
         raise LogError([LogFault(str(p), None, None, "the file is empty (no header line)")]) from None
     except (pd.errors.ParserError, UnicodeDecodeError, OSError, ValueError) as exc:
-        kind = "CSV" if suffix == ".csv" else "Parquet"
+        kind = "CSV" if fmt == "csv" else "Parquet"
         first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         raise LogError([LogFault(str(p), None, None, f"cannot be read as {kind}: {first}")]) from exc
-    raise LogError([LogFault(str(p), None, None, f"unknown file type {suffix!r}; use .csv or .parquet")])
 
 
 def read_log(path: str | Path, commands: CommandSet) -> pd.DataFrame:
@@ -103,14 +119,12 @@ def write_log(log: pd.DataFrame, path: str | Path) -> Path:
     if missing:
         raise ValueError(f"cannot write a trial log without column(s) {missing}")
     table = log[list(LOG_COLUMNS)]
+    fmt = log_format(p)
     p.parent.mkdir(parents=True, exist_ok=True)
-    suffix = p.suffix.lower()
-    if suffix == ".csv":
+    if fmt == "csv":
         table.to_csv(p, index=False)
-    elif suffix in (".parquet", ".pq"):
-        table.to_parquet(p, index=False)
     else:
-        raise ValueError(f"{p}: unknown file type {suffix!r}; use .csv or .parquet")
+        table.to_parquet(p, index=False)
     return p
 
 
