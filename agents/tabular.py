@@ -71,7 +71,7 @@ class TabularAgent(Agent):
         super().reset(seed)
         if self.q is None:
             self.clear()
-        self._open: dict[int, tuple[tuple[int, ...], int, float]] = {}
+        self._open = {}  # updates of an unfinished episode are dropped
 
     def state(self, obs: np.ndarray, info: dict[str, Any]) -> tuple[int, ...]:
         """Discrete state of the upcoming trial."""
