@@ -8,7 +8,7 @@ OUT ?= out/demo
 
 .PHONY: setup demo test lint bench docs clean
 
-$(STAMP): pyproject.toml setup.py
+$(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet torch==2.13.0
@@ -18,7 +18,7 @@ $(STAMP): pyproject.toml setup.py
 setup: $(STAMP)
 
 demo: $(STAMP)
-	$(PY) -m shortcut_gym.lab.demo --out $(OUT)
+	PYTHONPATH=examples $(PY) -m demo.run --out $(OUT)
 
 test: $(STAMP)
 	$(VENV)/bin/ruff check .

@@ -1,10 +1,22 @@
-"""Registration of the environments with gymnasium.
+"""Registration of the environments with gymnasium (Gymnasium 1.x convention: on import).
 
-Declared in the ``gymnasium.envs`` entry-point group of ``pyproject.toml``; gymnasium 1.x does not
-read that group, so an installed ``.pth`` start-up hook (``shortcut_gym._startup``) registers when
-gymnasium loads. Importing ``shortcut_gym.envs`` registers too.
+``import shortcut_gym`` (or any of its subpackages) registers ``shortcut_gym/CommandSelection-v0``;
+``gymnasium.make("shortcut_gym:shortcut_gym/CommandSelection-v0")`` imports the package first.
 """
 
-from shortcut_gym._startup import ENV_ID, register_envs
+from __future__ import annotations
 
-__all__ = ["ENV_ID", "register_envs"]
+ENV_ID = "shortcut_gym/CommandSelection-v0"
+
+
+def register_envs() -> None:
+    """Register ``shortcut_gym/CommandSelection-v0`` with gymnasium (idempotent)."""
+    from gymnasium.envs.registration import register, registry
+
+    if ENV_ID in registry:
+        return
+    register(
+        id=ENV_ID,
+        entry_point="shortcut_gym.envs.env:CommandSelectionEnv",
+        vector_entry_point="shortcut_gym.envs.vector:CommandSelectionVectorEnv",
+    )

@@ -9,8 +9,8 @@ import gymnasium as gym
 
 
 def main() -> dict[str, float]:
-    # 1. The environment is registered on install: no import of shortcut_gym is needed.
-    env = gym.make("shortcut_gym/CommandSelection-v0", schedule={"sessions": 3, "trials_per_session": 40})
+    # 1. The "shortcut_gym:" prefix imports the package, which registers the environment.
+    env = gym.make("shortcut_gym:shortcut_gym/CommandSelection-v0", schedule={"sessions": 3, "trials_per_session": 40})
     obs, info = env.reset(seed=7)
     print(f"first target: {info['target_name']}; observation has {obs.shape[0]} entries")
 

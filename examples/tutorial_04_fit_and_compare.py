@@ -14,10 +14,10 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.envs import make_world
+from shortcut_gym.lab.checks.recovery import simulate_known
 from shortcut_gym.lab.compare import bms_of_fits, summed_criteria
+from shortcut_gym.lab.data.logs import read_log, write_log
 from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_log
-from shortcut_gym.lab.logs import read_log, write_log
-from shortcut_gym.lab.recovery import simulate_known
 
 
 def main(per_model: int = 3, n_starts: int = 3) -> dict[str, pd.DataFrame]:

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from shortcut_gym.lab.sweep_runner import run_sweep
+from shortcut_gym.lab.sweep.runner import run_sweep
 
 SPEC = {
     "name": "tutorial_typing_vs_learning",

@@ -1,11 +1,11 @@
-"""Step cost of CommandSelection-v0 versus CartPole-v1 (see ``shortcut_gym.lab.bench_env``).
+"""Step cost of CommandSelection-v0 versus CartPole-v1 (see ``benchmarks.env``).
 
 Same as ``shortcut-gym bench --suite env``.
 """
 
 from __future__ import annotations
 
-from shortcut_gym.lab.bench_env import run
+from benchmarks.env import run
 
 
 def main() -> None:

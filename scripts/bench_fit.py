@@ -1,6 +1,6 @@
 """Benchmark of the lab's fitting: compiled versus plain likelihood, and a 3-model fit.
 
-The measurement lives in ``shortcut_gym.lab.bench_fit`` (also ``shortcut-gym bench --suite fit``).
+The measurement lives in ``benchmarks.fit`` (also ``shortcut-gym bench --suite fit``).
 
 Run: .venv/bin/python scripts/bench_fit.py [--participants 50] [--starts 10] [--jobs 2]
 """
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.lab import bench_fit
+from benchmarks import fit as bench_fit
 
 
 def main() -> int:

@@ -1,13 +1,13 @@
 """Sweeps at scale: batched simulator versus the gym loop, and a 200-run sweep local versus Ray.
 
-The measurement lives in ``shortcut_gym.lab.bench_sweep`` (also ``shortcut-gym bench --suite sweep``).
+The measurement lives in ``benchmarks.sweep`` (also ``shortcut-gym bench --suite sweep``).
 """
 
 from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.lab import bench_sweep
+from benchmarks import sweep as bench_sweep
 
 
 def main(argv: list[str] | None = None) -> int:

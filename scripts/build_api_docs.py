@@ -19,15 +19,16 @@ SUBPACKAGES = ("shortcut_gym.envs", "shortcut_gym.agents", "shortcut_gym.lab")
 
 
 def module_names() -> list[str]:
-    """The root package and the modules of subpackages whose __all__ lists names only
+    """The root package and every module and package below the subpackages, listed explicitly
 
-    (pdoc follows ``__all__``, so it would skip those modules; it finds the others itself).
+    (pdoc follows ``__all__`` where a package defines one, so it would skip unlisted modules).
     """
-    names = ["shortcut_gym"]  # its __all__ brings in the subpackages
+    names = ["shortcut_gym"]
     for pkg in SUBPACKAGES:
         mod = importlib.import_module(pkg)
-        if hasattr(mod, "__all__"):
-            names += [f"{pkg}.{m.name}" for m in pkgutil.iter_modules(mod.__path__) if not m.name.startswith("_")]
+        names.append(pkg)
+        names += [m.name for m in pkgutil.walk_packages(mod.__path__, prefix=f"{pkg}.")
+                  if not m.name.rsplit(".", 1)[-1].startswith("_")]
     return names
 
 
@@ -37,7 +38,10 @@ def build(output: Path) -> list[str]:
         warnings.simplefilter("always")
         pdoc.render.configure(docformat="restructuredtext", search=True, show_source=False)
         pdoc.pdoc(*module_names(), output_directory=output)
-    return [str(w.message) for w in caught if "pdoc" in (w.filename or "") or issubclass(w.category, UserWarning)]
+    # pdoc also walks packages itself, so modules listed explicitly are seen twice: not a problem
+    return [str(w.message) for w in caught
+            if ("pdoc" in (w.filename or "") or issubclass(w.category, UserWarning))
+            and "but a module with this name has already been added" not in str(w.message)]
 
 
 def main() -> int:

@@ -16,7 +16,7 @@ from shortcut_gym.agents.rollout import run_episode
 from shortcut_gym.envs import ENV_ID, make_world
 from shortcut_gym.envs.kernel import HOTKEY, LEARN
 from shortcut_gym.lab.simulate import label_of
-from shortcut_gym.lab.sweep_batch import simulate_users, trial_table
+from shortcut_gym.lab.sweep.batch import simulate_users, trial_table
 
 SCHEDULE = {"sessions": 3, "trials_per_session": 15, "gap_h": 20.0}
 SEEDS = [3, 7, 11, 2024]

@@ -14,7 +14,7 @@ from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import run_episode
 from shortcut_gym.envs import ENV_ID, BatchSimulator, make_world
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.lab.sweep_batch import build_agent, simulate_users
+from shortcut_gym.lab.sweep.batch import build_agent, simulate_users
 
 SCHEDULE = {"sessions": 3, "trials_per_session": 30, "gap_h": [20.0, 3.0]}
 SEEDS = [3, 7, 11, 2024, 31337]

@@ -142,4 +142,5 @@ def test_api_reference_builds_without_warnings(tmp_path: Path) -> None:
     assert res.returncode == 0, res.stderr
     assert "pdoc warning" not in res.stderr
     pages = {p.relative_to(tmp_path / "api").as_posix() for p in (tmp_path / "api").rglob("*.html")}
-    assert {"shortcut_gym/envs/env.html", "shortcut_gym/agents/learning.html", "shortcut_gym/lab/fitting.html"} <= pages
+    assert {"shortcut_gym/envs/env.html", "shortcut_gym/agents/learning.html", "shortcut_gym/lab/fitting.html",
+            "shortcut_gym/lab/sweep/store.html"} <= pages

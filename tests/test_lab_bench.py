@@ -10,7 +10,7 @@ import re
 import pytest
 
 from shortcut_gym.lab.cli import main
-from shortcut_gym.lab.cmd_bench import SUITES, chosen_suites
+from shortcut_gym.lab.cli.bench import SUITES, chosen_suites
 
 OURS = "shortcut_gym/CommandSelection-v0 (actr O(1))"
 

@@ -7,12 +7,12 @@ import pandas as pd
 import pytest
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.checks.predictive import simulate_log
+from shortcut_gym.lab.checks.recovery import knockout_variants, model_recovery, parameter_recovery
 from shortcut_gym.lab.cli import main
 from shortcut_gym.lab.compare import random_effects_bms, summed_criteria
+from shortcut_gym.lab.data.logs import write_log
 from shortcut_gym.lab.fitting import ModelSpec, parse_model, parse_prior
-from shortcut_gym.lab.logs import write_log
-from shortcut_gym.lab.predictive import simulate_log
-from shortcut_gym.lab.recovery import knockout_variants, model_recovery, parameter_recovery
 
 WORLD = make_world()
 STATIC = ModelSpec("static_softmax")
@@ -46,8 +46,8 @@ def test_model_recovery_diagonal_dominates():
 
 def test_fit_is_the_same_with_two_processes():
     log = simulate_log(WORLD, ModelSpec("choice_kernel"), 3, np.random.default_rng(4))
+    from shortcut_gym.lab.data.logs import validate_log
     from shortcut_gym.lab.fitting import context_for, fit_log
-    from shortcut_gym.lab.logs import validate_log
 
     log = validate_log(log, WORLD.commands)
     ctx = context_for(log, WORLD.commands.names)
@@ -58,8 +58,8 @@ def test_fit_is_the_same_with_two_processes():
 
 def test_map_pulls_toward_the_prior():
     log = simulate_log(WORLD, ModelSpec("static_softmax", fixed={"b_hotkey": -1.0}), 1, np.random.default_rng(8))
+    from shortcut_gym.lab.data.logs import validate_log
     from shortcut_gym.lab.fitting import context_for, fit_log
-    from shortcut_gym.lab.logs import validate_log
 
     log = validate_log(log, WORLD.commands)
     ctx = context_for(log, WORLD.commands.names)
@@ -152,7 +152,7 @@ def test_markdown_table_formats_numbers_nan_and_pipes():
 
 
 def test_cli_simulate_writes_a_log_that_fit_reads(tmp_path, capsys):
-    from shortcut_gym.lab.logs import read_log
+    from shortcut_gym.lab.data.logs import read_log
 
     path = tmp_path / "sim.parquet"
     assert main(["simulate", "--users", "2", "--seed", "3", "--agent", "static_softmax",

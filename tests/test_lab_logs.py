@@ -9,8 +9,8 @@ import pytest
 from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.agents.registry import make_agent
 from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.fitting import ModelSpec, loglik_function, replay_probabilities
-from shortcut_gym.lab.logs import (
+from shortcut_gym.lab.checks.predictive import simulate_log
+from shortcut_gym.lab.data.logs import (
     LogError,
     participant_trials,
     read_log,
@@ -18,7 +18,7 @@ from shortcut_gym.lab.logs import (
     validate_log,
     write_log,
 )
-from shortcut_gym.lab.predictive import simulate_log
+from shortcut_gym.lab.fitting import ModelSpec, loglik_function, replay_probabilities
 
 WORLD = make_world()
 

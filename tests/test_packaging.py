@@ -1,11 +1,13 @@
 """Packaging: a regular (wheel) install and the editable install both import every subpackage,
-and gymnasium.make finds the environment with no import of ours."""
+every package folder is listed in pyproject.toml, and registration follows Gymnasium 1.x
+(``import shortcut_gym`` registers; the ``shortcut_gym:`` module prefix needs no prior import)."""
 
 from __future__ import annotations
 
 import os
 import subprocess
 import sys
+import tomllib
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -14,7 +16,7 @@ PROBE = (
     "import importlib, json, sys\n"
     f"mods = {{m: importlib.import_module(m).__file__ for m in {SUBPACKAGES!r}}}\n"
     "import gymnasium\n"
-    "env = gymnasium.make('shortcut_gym/CommandSelection-v0')\n"
+    "env = gymnasium.make('shortcut_gym:shortcut_gym/CommandSelection-v0')\n"
     "from shortcut_gym.envs.config import bundled_config_dir\n"
     "print(json.dumps({'mods': mods, 'configs': str(bundled_config_dir())}))\n"
 )
@@ -29,11 +31,33 @@ def _run(code: str, env: dict | None = None, cwd: Path | None = None) -> dict:
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
-def test_gymnasium_make_needs_no_import_of_ours() -> None:
-    code = ("import json, gymnasium, sys\n"
-            "env = gymnasium.make('shortcut_gym/CommandSelection-v0')\n"
-            "print(json.dumps({'ok': type(env.unwrapped).__name__}))\n")
-    assert _run(code)["ok"] == "CommandSelectionEnv"
+def test_module_prefixed_id_needs_no_import_of_ours() -> None:
+    code = ("import json, sys, gymnasium\n"
+            "before = 'shortcut_gym' in sys.modules\n"
+            "env = gymnasium.make('shortcut_gym:shortcut_gym/CommandSelection-v0')\n"
+            "print(json.dumps({'ok': type(env.unwrapped).__name__, 'before': before}))\n")
+    info = _run(code)
+    assert info == {"ok": "CommandSelectionEnv", "before": False}
+
+
+def test_import_registers_the_plain_id_and_nothing_runs_at_interpreter_start() -> None:
+    code = ("import json, sys, gymnasium\n"
+            "from gymnasium.envs.registration import registry\n"
+            "start = 'shortcut_gym/CommandSelection-v0' in registry or 'shortcut_gym' in sys.modules\n"
+            "import shortcut_gym\n"
+            "print(json.dumps({'start': start, 'after': 'shortcut_gym/CommandSelection-v0' in registry}))\n")
+    assert _run(code) == {"start": False, "after": True}
+
+
+def test_every_package_folder_is_listed_in_pyproject() -> None:
+    tool = tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"]
+    roots = {name: ROOT / folder for name, folder in tool["package-dir"].items()}
+    found = set()
+    for name, folder in roots.items():
+        for init in folder.rglob("__init__.py"):
+            rel = init.parent.relative_to(folder).parts
+            found.add(".".join((name, *rel)))
+    assert found == set(tool["packages"])
 
 
 def test_editable_install_imports_every_subpackage_from_the_work_tree() -> None:
@@ -54,12 +78,12 @@ def test_regular_wheel_install_imports_every_subpackage(tmp_path: Path) -> None:
     inst = subprocess.run([sys.executable, "-m", "pip", "install", "--no-deps", "-q", "--target", str(target),
                            str(wheels[0])], capture_output=True, text=True, timeout=600)
     assert inst.returncode == 0, inst.stderr
-    assert (target / "shortcut_gym_startup.pth").is_file()
-    assert not (target / "envs").exists() and not (target / "agents").exists()  # no plain top-level names
-    assert not (target / "shortcut_gym" / "setup.py").exists()  # the build script is not a module of ours
+    assert not list(target.glob("*.pth"))  # no start-up hook
+    assert sorted(p.name for p in target.iterdir() if not p.name.endswith(".dist-info")) == ["bin", "shortcut_gym"]
+    assert (target / "shortcut_gym" / "py.typed").is_file()
     assert not (target / "shortcut_gym" / "tests").exists()
-    # site.addsitedir processes the .pth start-up hook as site-packages would
-    code = f"import site; site.addsitedir({str(target)!r})\n" + PROBE
+    assert not (target / "shortcut_gym" / "lab" / "bench_env.py").exists()  # benchmarks stay in scripts/
+    code = PROBE
     env = {**os.environ, "PYTHONPATH": str(target)}
     info = _run(code, env=env, cwd=tmp_path)
     for mod, path in info["mods"].items():

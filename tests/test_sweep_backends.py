@@ -14,8 +14,8 @@ import pytest
 
 from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.registry import AGENTS, register_agent
-from shortcut_gym.lab.sweep_backends import BackendError, parse_ray_address
-from shortcut_gym.lab.sweep_runner import run_sweep
+from shortcut_gym.lab.sweep.backends import BackendError, parse_ray_address
+from shortcut_gym.lab.sweep.runner import run_sweep
 
 SPEC: dict[str, Any] = {
     "name": "backend_test",

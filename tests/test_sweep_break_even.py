@@ -10,10 +10,10 @@ import pandas as pd
 
 from shortcut_gym.agents.planner import break_even_table
 from shortcut_gym.envs import make_world
-from shortcut_gym.lab.sweep_outputs import break_even_grid
-from shortcut_gym.lab.sweep_plan import plan_runs
-from shortcut_gym.lab.sweep_runner import run_sweep
-from shortcut_gym.lab.sweep_spec import parse_spec
+from shortcut_gym.lab.sweep.outputs import break_even_grid
+from shortcut_gym.lab.sweep.plan import plan_runs
+from shortcut_gym.lab.sweep.runner import run_sweep
+from shortcut_gym.lab.sweep.spec import parse_spec
 
 KS = [0.08, 0.2, 0.5, 1.2]
 ENC = [0.5, 4.0, 32.0]

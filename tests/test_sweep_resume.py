@@ -13,7 +13,7 @@ from pathlib import Path
 import pandas as pd
 import yaml
 
-from shortcut_gym.lab.sweep_run import COMPUTE_LOG_ENV
+from shortcut_gym.lab.sweep.run import COMPUTE_LOG_ENV
 
 SPEC = {
     "name": "resume_test",
@@ -46,7 +46,7 @@ def test_killed_sweep_resumes_without_redoing_or_losing_runs(tmp_path: Path) -> 
     folder = tmp_path / "sweep"
     log = tmp_path / "computed.log"
     env = {**os.environ, COMPUTE_LOG_ENV: str(log)}
-    cmd = [sys.executable, "-m", "shortcut_gym.lab.cli", "sweep", str(spec_path), "--out", str(folder),
+    cmd = [sys.executable, "-m", "shortcut_gym", "sweep", str(spec_path), "--out", str(folder),
            "--workers", "1", "--quiet"]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True)
     deadline = time.time() + 90

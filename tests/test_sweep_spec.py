@@ -12,10 +12,10 @@ import numpy as np
 import pytest
 import yaml
 
-from shortcut_gym.lab.sweep_design import design_points
-from shortcut_gym.lab.sweep_plan import plan_runs, world_from_settings
-from shortcut_gym.lab.sweep_runner import run_sweep
-from shortcut_gym.lab.sweep_spec import SweepSpecError, load_spec, parse_spec
+from shortcut_gym.lab.sweep.design import design_points
+from shortcut_gym.lab.sweep.plan import plan_runs, world_from_settings
+from shortcut_gym.lab.sweep.runner import run_sweep
+from shortcut_gym.lab.sweep.spec import SweepSpecError, load_spec, parse_spec
 
 GOOD: dict[str, Any] = {
     "name": "spec_test",
@@ -135,7 +135,7 @@ def test_folder_of_another_sweep_or_stray_files_is_refused(tmp_path: Path) -> No
 def test_cli_bad_input_exits_2_naming_the_fault(tmp_path: Path) -> None:
     spec = tmp_path / "s.yaml"
     spec.write_text(yaml.safe_dump(_with("vary/parameters/costs.klm.keystrok_s", {"values": [0.1]})))
-    cmd = [sys.executable, "-m", "shortcut_gym.lab.cli", "sweep", str(spec), "--out", str(tmp_path / "o")]
+    cmd = [sys.executable, "-m", "shortcut_gym", "sweep", str(spec), "--out", str(tmp_path / "o")]
     res = subprocess.run(cmd, capture_output=True, text=True, timeout=120)
     assert res.returncode == 2
     assert "unknown setting 'keystrok_s'" in res.stderr and "s.yaml" in res.stderr

@@ -24,10 +24,10 @@ from groupBMC.groupBMC import GroupBMC
 from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.agents.static_softmax import covariate_matrix
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.checks.predictive import simulate_log
 from shortcut_gym.lab.compare import random_effects_bms
+from shortcut_gym.lab.data.logs import participant_trials, validate_log
 from shortcut_gym.lab.fitting import ModelSpec, bic, fit_participant
-from shortcut_gym.lab.logs import participant_trials, validate_log
-from shortcut_gym.lab.predictive import simulate_log
 
 
 @pytest.fixture(scope="module")

@@ -1,0 +1,1 @@
+"""Trust checks: parameter and model recovery, mechanism knock-outs, posterior-predictive checks."""

@@ -1,0 +1,219 @@
+"""Simulating agents on given or sampled schedules, and posterior-predictive checks.
+
+:func:`simulate_log` produces a trial log (the lab's schema) from an agent; the environment and
+the agent get independent seeds drawn from one generator, so the agent's choices are never
+correlated with the environment's own draws. Agents with ``batch_policy`` run as one batch,
+others as one agent object per user.
+
+The posterior-predictive check simulates each fitted model many times on each participant's own
+schedule and compares the share of hotkey choices per block (data vs model mean, with a
+percentile interval over simulated replicates of the group mean).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from shortcut_gym.agents.base import Agent, AgentContext, Transition
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.simulator import BatchSimulator
+from shortcut_gym.envs.task import Schedule
+from shortcut_gym.envs.world import World
+from shortcut_gym.lab.data.logs import participant_trials, participants, schedule_of
+from shortcut_gym.lab.fitting import ModelSpec, fitted_agent
+
+
+def _drive(world: World, make: Any, n: int, rng: np.random.Generator,
+           schedule: Schedule | None) -> tuple[BatchSimulator, np.ndarray, np.ndarray, np.ndarray]:
+    """Run ``n`` users; ``make(context)`` builds the agent. Returns the simulator, actions,
+    outcome codes and durations (s), each (n, T)."""
+    env_seeds = rng.integers(0, 2**62, size=n).tolist()
+    agent_seeds = rng.integers(0, 2**62, size=n).tolist()
+    sim = BatchSimulator(world)
+    sim.reset(seeds=env_seeds, schedules=None if schedule is None else [schedule] * n)
+    ctx = AgentContext(world.commands.n_commands, sim.horizon, world.commands.names,
+                       tuple(world.observation_names()))
+    probe = make(ctx)
+    h = sim.horizon
+    actions = np.zeros((n, h), dtype=np.int64)
+    outcomes = np.zeros((n, h), dtype=np.int64)
+    durations = np.zeros((n, h))
+    names = world.commands.names
+    if callable(getattr(probe, "batch_policy", None)):
+        policy = probe.batch_policy(n, agent_seeds)
+        for t in range(h):
+            if hasattr(policy, "set_session"):
+                policy.set_session(np.array([s.session[t] for s in sim.schedules]))
+            targets = sim.targets().copy()
+            acts = np.asarray(policy.actions(targets, sim.obs), dtype=np.int64)
+            sim.step(acts)
+            policy.observe(targets, acts, sim.outcome, -sim.reward)
+            actions[:, t], outcomes[:, t], durations[:, t] = acts, sim.outcome, -sim.reward
+    else:
+        agents = [make(ctx) for _ in range(n)]
+        for a, s in zip(agents, agent_seeds, strict=True):
+            a.reset(int(s))
+        obs = sim.obs.copy()
+        infos = [{"target": int(c), "target_name": names[int(c)], "next_trial": 0} for c in sim.targets()]
+        for t in range(h):
+            acts = np.array([a.act(obs[b], infos[b]) for b, a in enumerate(agents)], dtype=np.int64)
+            sim.step(acts)
+            nxt = sim.targets()
+            new_obs = sim.obs.copy()
+            for b, a in enumerate(agents):
+                c = int(sim.sched_cmd[b, t])
+                info = {"target": int(nxt[b]), "target_name": names[int(nxt[b])], "next_trial": t + 1,
+                        "trial": t, "session": int(sim.schedules[b].session[t]),
+                        "onset_s": float(sim.sched_onset[b, t]), "command": c, "command_name": names[c],
+                        "action": int(acts[b]), "outcome": k.OUTCOME_NAMES[sim.outcome[b]],
+                        "duration_s": -float(sim.reward[b]), "p_recall": float(sim.p_recall[b])}
+                a.observe(Transition(obs[b], int(acts[b]), float(sim.reward[b]), new_obs[b], info, False, t + 1 == h))
+                infos[b] = info
+            obs = new_obs
+            actions[:, t], outcomes[:, t], durations[:, t] = acts, sim.outcome, -sim.reward
+    return sim, actions, outcomes, durations
+
+
+def simulate_log(world: World, make: Any, n_users: int, rng: np.random.Generator,
+                 schedule: Schedule | None = None, prefix: str = "sim") -> pd.DataFrame:
+    """A trial log (schema of :mod:`.logs`) of ``n_users`` simulated users named prefix-0, prefix-1, ...
+
+    ``make`` is an :class:`Agent` (its spec is rebuilt per context), a :class:`ModelSpec`, or a
+    callable taking an :class:`AgentContext`. ``schedule`` replays one schedule for every user.
+    """
+    maker = _maker(make)
+    sim, actions, outcomes, durations = _drive(world, maker, n_users, rng, schedule)
+    h = sim.horizon
+    cmd = sim.sched_cmd
+    names = np.array(world.commands.names, dtype=object)
+    return pd.DataFrame({
+        "participant": np.repeat([f"{prefix}-{i}" for i in range(n_users)], h),
+        "session": np.concatenate([s.session for s in sim.schedules]).astype(np.int64),
+        "trial": np.tile(np.arange(h), n_users),
+        "onset_s": sim.sched_onset.ravel(),
+        "command": names[cmd.ravel()],
+        "action": np.array(k.ACTION_NAMES, dtype=object)[actions.ravel()],
+        "outcome": np.array(k.OUTCOME_NAMES, dtype=object)[outcomes.ravel()],
+        "duration_s": durations.ravel(),
+    })
+
+
+def _maker(make: Any):
+    if isinstance(make, ModelSpec):
+        return lambda ctx: make.build(ctx)
+    if isinstance(make, Agent):
+        from shortcut_gym.agents.registry import agent_from_spec
+
+        spec = make.spec()
+        return lambda ctx: agent_from_spec(spec, ctx)
+    if callable(make):
+        return make
+    raise TypeError(f"cannot simulate {make!r}: give an Agent, a ModelSpec or a callable(context)")
+
+
+# ---- posterior-predictive check -------------------------------------------------------------------
+def block_of(trials: pd.DataFrame, block: str | int) -> np.ndarray:
+    """Block index of each trial: its session (``block='session'``) or consecutive runs of N trials."""
+    if block == "session":
+        return trials["session"].to_numpy(dtype=np.int64)
+    size = int(block)
+    if size < 1:
+        raise ValueError(f"block size must be >= 1 trial, got {size}")
+    return np.arange(len(trials)) // size
+
+
+def hotkey_share_by_block(actions: np.ndarray, blocks: np.ndarray) -> np.ndarray:
+    """Share of hotkey choices per block; ``actions`` (..., T) int codes -> (..., n_blocks)."""
+    n_blocks = int(blocks.max()) + 1
+    counts = np.bincount(blocks, minlength=n_blocks).astype(float)
+    onehot = np.eye(n_blocks)[blocks]  # T x n_blocks
+    return ((actions == k.HOTKEY).astype(float) @ onehot) / counts
+
+
+def posterior_predictive(
+    world: World,
+    log: pd.DataFrame,
+    fits: pd.DataFrame,
+    specs: Sequence[ModelSpec],
+    n_sims: int = 50,
+    seed: int = 0,
+    block: str | int = "session",
+    interval: float = 0.9,
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Data vs model hotkey share per block.
+
+    Returns (per-participant table, group table). The group table has, per model and block, the
+    data's mean over participants and the model's mean and ``interval`` percentile band over
+    ``n_sims`` simulated replicates of that group mean.
+    """
+    by_label = {s.label: s for s in specs}
+    rng = np.random.default_rng(seed)
+    rows = []
+    group_sims: dict[str, list[np.ndarray]] = {}
+    data_shares = []
+    for pid in participants(log):
+        trials = participant_trials(log, pid)
+        blocks = block_of(trials, block)
+        data_actions = trials["action"].map({n: i for i, n in enumerate(k.ACTION_NAMES)}).to_numpy()
+        data = hotkey_share_by_block(data_actions, blocks)
+        data_shares.append(data)
+        schedule = schedule_of(trials)
+        for label, spec in by_label.items():
+            row = fits[(fits["participant"] == pid) & (fits["model"] == label)]
+            if row.empty:
+                raise ValueError(f"no fit of model {label!r} for participant {pid!r}")
+            fit = row.iloc[0]
+            _, actions, _, _ = _drive(world, lambda ctx, fit=fit, spec=spec: fitted_agent(spec, fit, ctx),
+                                n_sims, rng, schedule)
+            sims = hotkey_share_by_block(actions, blocks)  # n_sims x n_blocks
+            group_sims.setdefault(label, []).append(sims)
+            for b in range(len(data)):
+                rows.append({"participant": pid, "model": label, "block": b, "data_hotkey_share": data[b],
+                             "model_mean": sims[:, b].mean(), "model_sd": sims[:, b].std(ddof=1) if n_sims > 1 else 0})
+    per = pd.DataFrame(rows)
+    lo_q, hi_q = (1 - interval) / 2, 1 - (1 - interval) / 2
+    n_blocks = min(len(d) for d in data_shares)
+    data_mean = np.mean([d[:n_blocks] for d in data_shares], axis=0)
+    grows = []
+    for label, sims in group_sims.items():
+        mean_over_people = np.mean([s[:, :n_blocks] for s in sims], axis=0)  # n_sims x blocks
+        for b in range(n_blocks):
+            grows.append({"model": label, "block": b, "data_mean": data_mean[b],
+                          "model_mean": mean_over_people[:, b].mean(),
+                          "model_lo": np.quantile(mean_over_people[:, b], lo_q),
+                          "model_hi": np.quantile(mean_over_people[:, b], hi_q), "interval": interval})
+    return per, pd.DataFrame(grows)
+
+
+def plot_predictive(group: pd.DataFrame, path: str | Path, title: str = "Hotkey use per block") -> Path:
+    """One panel per model: data mean (dots) vs model mean and interval band; saved as PNG."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    models = list(dict.fromkeys(group["model"]))
+    fig, axes = plt.subplots(1, len(models), figsize=(4 * len(models), 3.2), sharey=True, squeeze=False)
+    for ax, label in zip(axes[0], models, strict=True):
+        g = group[group["model"] == label]
+        x = g["block"].to_numpy() + 1
+        ax.fill_between(x, g["model_lo"], g["model_hi"], alpha=0.3, label=f"model {g['interval'].iloc[0]:.0%} band")
+        ax.plot(x, g["model_mean"], "-", label="model mean")
+        ax.plot(x, g["data_mean"], "ko", ms=4, label="data")
+        ax.set_title(label)
+        ax.set_xlabel("block")
+        ax.set_ylim(0, 1)
+    axes[0][0].set_ylabel("share of hotkey choices")
+    axes[0][0].legend(fontsize=7, loc="best")
+    fig.suptitle(title)
+    fig.tight_layout()
+    p = Path(path)
+    p.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(p, dpi=110)
+    plt.close(fig)
+    return p

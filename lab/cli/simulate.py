@@ -1,0 +1,54 @@
+"""``shortcut-gym simulate``: run agents on a scenario and print per-session figures."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.data.logs import log_format, log_from_simulation, write_log
+from shortcut_gym.lab.simulate import parse_agent_arg, session_summary, simulate_agents
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``simulate`` subcommand."""
+    p = sub.add_parser("simulate", help="simulate agents on a scenario and summarise per session")
+    p.add_argument("--scenario", default=None, help="scenario preset name or YAML path (default: demo)")
+    p.add_argument("--costs", default=None, help="cost preset name or YAML path")
+    p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
+    p.add_argument("--agent", action="append", default=None,
+                   help="agent as name or name:param=value,... (repeatable; default: the baselines)")
+    p.add_argument("--users", type=int, default=5, help="simulated users per agent")
+    p.add_argument("--seed", type=int, default=0, help="first seed; users get seed, seed+1, ...")
+    p.add_argument("--out", type=Path, default=None, help="folder for trials.parquet and summary.csv")
+    p.add_argument("--log", type=Path, default=None,
+                   help="also write the trials as a trial log (.csv or .parquet) that 'fit' reads; "
+                        "participants are named <agent>-u<seed>")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Simulate, print the session table, optionally write the outputs."""
+    if args.users < 1:
+        raise ValueError(f"--users must be >= 1, got {args.users}")
+    if args.log is not None:
+        try:
+            log_format(args.log)
+        except ValueError as err:
+            raise ValueError(f"--log {err}") from None
+    world = make_world(args.scenario, args.costs, args.memory)
+    agents = args.agent or ["always_menu", "always_hotkey", "learn_first_k:k=1"]
+    specs = [parse_agent_arg(a) for a in agents]
+    trials = simulate_agents(world, specs, range(args.seed, args.seed + args.users))
+    summary = session_summary(trials)
+    print(summary.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
+    if args.out is not None:
+        args.out.mkdir(parents=True, exist_ok=True)
+        trials.to_parquet(args.out / "trials.parquet", index=False)
+        summary.to_csv(args.out / "summary.csv", index=False)
+        print(f"wrote {args.out / 'trials.parquet'} and {args.out / 'summary.csv'}")
+    if args.log is not None:
+        keyed = trials.assign(participant_key=[f"{a}-u{u}" for a, u in zip(trials["agent"], trials["user"])])
+        log = log_from_simulation(keyed, world.commands, participant_column="participant_key", prefix="")
+        print(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
+    return 0

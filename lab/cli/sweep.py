@@ -1,0 +1,54 @@
+"""``shortcut-gym sweep``: run a sweep spec into a folder (resumable), locally or on Ray."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from shortcut_gym.lab.sweep.backends import BackendError
+
+
+class SweepArgumentError(ValueError):
+    """A bad ``sweep`` option (a ValueError, so the CLI exits 2 however it was started)."""
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``sweep`` subcommand."""
+    p = sub.add_parser("sweep", help="run a sweep spec (configs/sweeps/*.yaml) into a resumable folder")
+    p.add_argument("spec", help="sweep spec YAML path, or the name of a bundled spec")
+    p.add_argument("--out", type=Path, default=None, help="sweep folder (default: out/sweeps/<spec name>)")
+    p.add_argument("--backend", choices=["local", "ray"], default="local", help="where runs are computed")
+    p.add_argument("--workers", type=int, default=None, help="worker processes / Ray CPUs (default: all cores)")
+    p.add_argument("--address", default=None, help="Ray cluster to attach to (host:port, ray://host:port, auto)")
+    p.add_argument("--retry-failed", action="store_true", help="recompute runs recorded as failed")
+    p.add_argument("--plan-only", action="store_true", help="validate the spec and list its runs; write nothing")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Validate, run (or resume) and print the report; bad input exits 2 naming the fault."""
+    from shortcut_gym.lab.sweep.plan import plan_runs
+    from shortcut_gym.lab.sweep.runner import run_sweep
+    from shortcut_gym.lab.sweep.spec import load_spec
+
+    if args.workers is not None and args.workers < 1:
+        raise SweepArgumentError(f"--workers must be >= 1, got {args.workers}")
+    if args.address is not None and args.backend != "ray":
+        raise SweepArgumentError("--address applies to --backend ray only")
+    spec = load_spec(args.spec)
+    if args.plan_only:
+        runs = plan_runs(spec, args.spec)
+        for r in runs:
+            point = ", ".join(f"{k}={v}" for k, v in r["point"].items())
+            print(f"{r['run_id']}  {r['label']:<28} {point}")
+        print(f"{len(runs)} runs, {len(spec.seed_list())} simulated users each")
+        return 0
+    out = args.out or Path("out/sweeps") / spec.name
+    try:
+        report = run_sweep(spec, out, backend=args.backend, workers=args.workers, address=args.address,
+                           retry_failed=args.retry_failed, progress=not args.quiet)
+    except BackendError as err:
+        raise SweepArgumentError(str(err)) from None
+    print("\n".join(report.lines()))
+    return 1 if report.failed else 0

@@ -1,0 +1,1 @@
+"""Trial logs: schema, validation, reading and writing, per-participant views."""

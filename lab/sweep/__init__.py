@@ -1,0 +1,1 @@
+"""Sweeps: spec, design, plan, per-run worker, driver, backends, durable store, outputs and plots."""

@@ -1,0 +1,229 @@
+"""Sweep outputs: the tidy result tables, the per-run summary, and the break-even grid.
+
+* ``results.parquet``: one row per run x session (means over the simulated users);
+* ``commands.parquet``: one row per run x command (mean uses and time per user);
+* ``trials.parquet``: every trial of every run (only when ``outputs.trial_tables``);
+* ``summary.csv``: one row per run: total time per user, final-session hotkey share, learning
+  trials, time saved against always-menu at the same point, and the gap to the reference agent;
+* ``failures.csv``: the failed runs and their errors;
+* ``plots/``: see :mod:`shortcut_gym.lab.sweep.plots`.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from shortcut_gym.lab.sweep.plan import world_from_settings
+from shortcut_gym.lab.sweep.spec import SweepSpec
+from shortcut_gym.lab.sweep.store import SweepStore, atomic_write_text
+
+MENU_BASELINE = "always_menu"
+PLANNER = "bounded_optimal"
+
+
+def _atomic_parquet(df: pd.DataFrame, path: Path) -> None:
+    tmp = path.with_name(f".tmp-{path.name}")
+    df.to_parquet(tmp, index=False)
+    tmp.replace(path)
+
+
+def agent_roles(spec: SweepSpec, labels: list[str]) -> dict[str, str | None]:
+    """Labels of the menu baseline, the reference (planner) and the break-even learner, if any."""
+    by_name: dict[str, list[str]] = {}
+    for entry, label in zip(spec.agents, labels, strict=True):
+        by_name.setdefault(entry.name, []).append(label)
+    menu = by_name.get(MENU_BASELINE, [None])[0]
+    reference = spec.outputs.reference_agent or by_name.get(PLANNER, [None])[0]
+    be = spec.outputs.break_even
+    learner = be.learner if be and be.learner else (by_name.get("learn_first_k", [None])[0] or reference)
+    return {"menu": menu, "reference": reference, "learner": learner}
+
+
+def summary_table(spec: SweepSpec, runs: list[dict[str, Any]], blocks: pd.DataFrame) -> pd.DataFrame:
+    """One row per finished run (see the module docstring)."""
+    if blocks.empty:
+        return pd.DataFrame()
+    paths = list(spec.vary.parameters)
+    b = blocks.assign(learn_trials=blocks["learn_share"] * blocks["trials"])
+    g = b.groupby(["run_index", "run_id", "point_index", "agent"], sort=True)
+    out = g.agg(total_time_s=("time_s", "sum"), learn_trials=("learn_trials", "sum"), users=("users", "first"))
+    last = b.loc[b.groupby("run_index")["session"].idxmax()].set_index("run_index")
+    out = out.reset_index()
+    out["final_hotkey_share"] = last.loc[out["run_index"], "hotkey_share"].to_numpy()
+    point_of = {r["index"]: r["point"] for r in runs}
+    for j, p in enumerate(paths):
+        out.insert(4 + j, p, [point_of[i][p] for i in out["run_index"]])
+    roles = agent_roles(spec, [r["label"] for r in runs[: len(spec.agents)]])
+    for role, col in (("menu", "time_saved_vs_menu_s"), ("reference", "gap_to_reference_s")):
+        label = roles[role]
+        ref = out[out["agent"] == label].set_index("point_index")["total_time_s"] if label else pd.Series(dtype=float)
+        vals = out["point_index"].map(ref)
+        out[col] = (vals - out["total_time_s"]) if role == "menu" else (out["total_time_s"] - vals)
+    return out
+
+
+def break_even_grid(spec: SweepSpec, runs: list[dict[str, Any]], commands: pd.DataFrame,
+                    refine: int = 1) -> dict[str, Any] | None:
+    """Simulated saving of the learner over always-menu on one command, and the analytic verdict.
+
+    Returns x and y values of the swept grid, the simulated saving (s per user; mean over any other
+    varied parameters), and the analytic ``learning_pays`` of ``agents.planner.break_even_table`` on
+    the swept grid and on a grid refined ``refine`` times between swept values (the boundary is
+    drawn from that one), other varied parameters held at their first value. None if the spec has
+    no two grid parameters or no menu baseline and learner.
+    """
+    from shortcut_gym.agents.planner import break_even_table
+    from shortcut_gym.lab.sweep.design import grid_values
+    from shortcut_gym.lab.sweep.spec import apply_overrides
+
+    params = spec.vary.parameters
+    be = spec.outputs.break_even
+    paths = list(params)
+    if be is None and len(paths) < 2:
+        return None
+    xp, yp = (be.x, be.y) if be else (paths[0], paths[1])
+    if spec.vary.design != "grid":
+        return None
+    roles = agent_roles(spec, [r["label"] for r in runs[: len(spec.agents)]])
+    if roles["menu"] is None or roles["learner"] is None or commands.empty:
+        return None
+    xs, ys = grid_values(params[xp]), grid_values(params[yp])
+    if not all(isinstance(v, (int, float)) for v in xs + ys):
+        return None  # a map needs numeric axes (a spec's own break_even is checked on load)
+    world0 = world_from_settings(runs[0]["settings"])
+    cmd = be.command if be else 0
+    c = world0.commands.index(cmd) if isinstance(cmd, str) else int(cmd)
+    if not 0 <= c < world0.commands.n_commands:
+        raise ValueError(f"outputs.break_even.command: index {c} is outside 0..{world0.commands.n_commands - 1}")
+    point_of = {r["point_index"]: r["point"] for r in runs}
+    sel = commands[commands["command"] == c].copy()
+    sel["x"] = sel["point_index"].map(lambda i: point_of[i][xp])
+    sel["y"] = sel["point_index"].map(lambda i: point_of[i][yp])
+    t = sel.pivot_table(index=["x", "y"], columns="agent", values="time_s", aggfunc="mean")
+    saving = np.full((len(ys), len(xs)), np.nan)
+    for i, y in enumerate(ys):
+        for j, x in enumerate(xs):
+            if (x, y) in t.index and roles["learner"] in t.columns and roles["menu"] in t.columns:
+                saving[i, j] = t.loc[(x, y), roles["menu"]] - t.loc[(x, y), roles["learner"]]
+    base = runs[0]["settings"]
+    others = {p: grid_values(params[p])[0] for p in paths if p not in (xp, yp)}
+
+    def verdict(x: Any, y: Any) -> tuple[bool, float]:
+        row = break_even_table(world_from_settings(apply_overrides(base, {**others, xp: x, yp: y}))).iloc[c]
+        return bool(row["learning_pays"]), float(row["break_even_uses"])
+
+    swept = np.array([[verdict(x, y)[0] for x in xs] for y in ys])
+    fx, fy = _refined(xs, params[xp].scale, refine), _refined(ys, params[yp].scale, refine)
+    fine = swept if refine == 1 else np.array([[verdict(x, y)[0] for x in fx] for y in fy])
+    return {"x_path": xp, "y_path": yp, "x": xs, "y": ys, "command": c, "command_name": world0.commands.names[c],
+            "learner": roles["learner"], "menu": roles["menu"], "simulated_saving_s": saving,
+            "analytic_pays": swept, "fine_x": fx, "fine_y": fy, "fine_pays": fine}
+
+
+def _refined(values: list[Any], scale: str, refine: int) -> list[Any]:
+    if refine <= 1 or len(values) < 2 or not all(isinstance(v, (int, float)) for v in values):
+        return list(values)
+    out: list[float] = []
+    for a, b in zip(values[:-1], values[1:], strict=True):
+        if scale == "log" and a > 0 and b > 0:
+            out += [float(v) for v in np.geomspace(a, b, refine + 1)[:-1]]
+        else:
+            out += [float(v) for v in np.linspace(a, b, refine + 1)[:-1]]
+    return out + [float(values[-1])]
+
+
+def write_outputs(spec: SweepSpec, runs: list[dict[str, Any]], store: SweepStore) -> dict[str, Path]:
+    """Write the tables and plots of all finished runs; returns name -> path."""
+    folder = store.folder
+    written: dict[str, Path] = {}
+    blocks = store.read_table(runs, "blocks")
+    commands = store.read_table(runs, "commands")
+    if not blocks.empty:
+        _atomic_parquet(blocks, folder / "results.parquet")
+        written["results"] = folder / "results.parquet"
+        _atomic_parquet(commands, folder / "commands.parquet")
+        written["commands"] = folder / "commands.parquet"
+    if spec.outputs.trial_tables:
+        trials = store.read_table(runs, "trials")
+        if not trials.empty:
+            _atomic_parquet(trials, folder / "trials.parquet")
+            written["trials"] = folder / "trials.parquet"
+    summary = summary_table(spec, runs, blocks)
+    if not summary.empty:
+        atomic_write_text(folder / "summary.csv", summary.to_csv(index=False))
+        written["summary"] = folder / "summary.csv"
+    failures = store.failures()
+    fail_path = folder / "failures.csv"
+    if failures:
+        atomic_write_text(fail_path, pd.DataFrame(failures)[["run_id", "error"]].to_csv(index=False))
+        written["failures"] = fail_path
+    elif fail_path.exists():
+        fail_path.unlink()
+    if spec.outputs.plots and not blocks.empty:
+        from shortcut_gym.lab.sweep import plots as sweep_plots
+
+        n_points = len({r["point_index"] for r in runs})
+        grid = break_even_grid(spec, runs, commands, refine=2 if n_points <= 36 else 1)
+        roles = agent_roles(spec, [r["label"] for r in runs[: len(spec.agents)]])
+        written.update(sweep_plots.write_plots(spec, blocks, summary, grid, folder / "plots", roles))
+    else:
+        grid = None
+    atomic_write_text(folder / "index.md", sweep_index(spec, folder, runs, summary, grid, written, len(failures)))
+    written["index"] = folder / "index.md"
+    return written
+
+
+#: What each written output holds, for the sweep's index.md.
+_OUTPUT_NOTES = {
+    "results": "per run x block: time, hotkey share, learn trials (tidy)",
+    "commands": "per run x command: time and hotkey use",
+    "trials": "every simulated trial",
+    "summary": "per run: total time, time saved over always-menu, gap to the reference agent",
+    "failures": "runs that raised, with their error",
+    "adoption_plot": "hotkey adoption curves per condition",
+    "break_even_plot": "break-even map with the bounded-optimal boundary",
+    "time_saved_plot": "time saved per agent versus the reference",
+}
+
+
+def sweep_index(spec: SweepSpec, folder: Path, runs: list[dict[str, Any]], summary: pd.DataFrame,
+                grid: dict[str, Any] | None, written: dict[str, Path], n_failed: int) -> str:
+    """The sweep folder's ``index.md``: what ran, time saved per agent and condition, the break-even
+    agreement, the plots, then every file."""
+    from shortcut_gym.lab.report import index_markdown, markdown_table
+
+    intro = f"{spec.description or ''}\n\n{len(runs)} runs planned; {len(summary)} finished, {n_failed} failed."
+    sections = []
+    saved = summary.get("time_saved_vs_menu_s")
+    if saved is not None and saved.notna().any():
+        table = summary.pivot_table(index=list(spec.vary.parameters), columns="agent", values="time_saved_vs_menu_s")
+        sections.append(("Time saved over always-menu (s per simulated user)",
+                         markdown_table(table, index=True, digits=1) if len(table) <= 60
+                         else f"{len(table)} conditions: see `summary.csv`."))
+    if grid is not None:
+        sections.append(("Break-even", f"On '{grid['command_name']}', the simulated verdict of {grid['learner']} "
+                         f"against {grid['menu']} agrees with the planner's analytic break-even rule on "
+                         f"{fraction_agreeing(grid):.0%} of the swept cells."))
+    plots = [k for k in ("adoption_plot", "break_even_plot", "time_saved_plot") if k in written]
+    if plots:
+        sections.append(("Plots", "\n".join(f"![{_OUTPUT_NOTES[k]}]({written[k].relative_to(folder).as_posix()})"
+                                            for k in plots)))
+    entries = [(p, _OUTPUT_NOTES.get(k, k)) for k, p in written.items()]
+    entries += [(folder / "manifest.json", "the run plan and each run's state (used to resume)"),
+                (folder / "runs", "one folder per finished run")]
+    return index_markdown(folder, entries, f"Sweep {spec.name}", sections, intro)
+
+
+def fraction_agreeing(grid: dict[str, Any], margin_s: float = 0.0) -> float:
+    """Share of swept cells where the simulated sign of the saving matches the analytic verdict
+    (cells with |saving| <= margin_s are left out)."""
+    sim, ana = grid["simulated_saving_s"], grid["analytic_pays"]
+    keep = np.isfinite(sim) & (np.abs(sim) > margin_s)
+    if not keep.any():
+        return math.nan
+    return float(((sim > 0) == ana)[keep].mean())

@@ -1,0 +1,84 @@
+"""From a validated spec to the list of runs: design point x agent, each with the same seeds.
+
+A run is plain data (JSON-able): its index, a content-derived id, the point (dotted path ->
+value), the agent spec and label, the seeds and the full settings after the overrides. Every
+point's world and every agent is built once here, so a bad value fails before anything is
+written.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from typing import Any
+
+from shortcut_gym.agents.registry import agent_from_spec
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.world import World, make_world
+from shortcut_gym.lab.simulate import label_of
+from shortcut_gym.lab.sweep.design import design_points
+from shortcut_gym.lab.sweep.spec import SweepSpec, SweepSpecError, apply_overrides, base_settings
+
+
+def world_from_settings(settings: dict[str, Any]) -> World:
+    """The world of a run's settings (the section dicts of :func:`base_settings`)."""
+    return make_world(
+        scenario=settings["scenario"], costs=settings["costs"], memory=settings["memory"],
+        schedule=settings["schedule"], observe_recall=settings["observe_recall"],
+        target_encoding=settings["target_encoding"],
+    )
+
+
+def _canonical(data: Any) -> str:
+    return json.dumps(data, sort_keys=True, separators=(",", ":"), default=str)
+
+
+def digest(data: Any) -> str:
+    """SHA-1 of the canonical JSON of ``data``."""
+    return hashlib.sha1(_canonical(data).encode()).hexdigest()
+
+
+def agent_specs(spec: SweepSpec, source: str = "<sweep spec>") -> list[tuple[str, dict[str, Any]]]:
+    """(label, agent spec dict) per agent entry; unknown agents or parameters raise naming the entry."""
+    out: list[tuple[str, dict[str, Any]]] = []
+    seen: dict[str, int] = {}
+    for i, entry in enumerate(spec.agents):
+        extra = {k: v for k, v in entry.model_dump().items() if k not in ("name", "params", "label")}
+        agent_spec = {"name": entry.name, "params": dict(entry.params), **extra}
+        try:
+            agent = agent_from_spec(agent_spec)
+        except (ValueError, TypeError) as err:
+            raise SweepSpecError(f"{source}: agents[{i}]: {err}") from None
+        label = entry.label or label_of({"name": agent.name, "params": dict(entry.params)})
+        if label in seen:
+            raise SweepSpecError(f"{source}: agents[{i}]: label {label!r} repeats agents[{seen[label]}]; "
+                                 "give one of them a label")
+        seen[label] = i
+        out.append((label, agent_spec))
+    return out
+
+
+def plan_runs(spec: SweepSpec, source: str = "<sweep spec>") -> list[dict[str, Any]]:
+    """Every run of the sweep, in a fixed order (points outer, agents inner)."""
+    base = base_settings(spec, source)
+    agents = agent_specs(spec, source)
+    seeds = spec.seed_list()
+    runs: list[dict[str, Any]] = []
+    for p, point in enumerate(design_points(spec.vary)):
+        settings = apply_overrides(base, point)
+        try:
+            world_from_settings(settings)
+        except ConfigError as err:
+            where = ", ".join(f"{k}={v!r}" for k, v in point.items()) or "the base setting"
+            raise SweepSpecError(f"{source}: vary point {p} ({where}): {err}") from None
+        for label, agent_spec in agents:
+            body = {"point": point, "agent": agent_spec, "label": label, "seeds": seeds, "settings": settings,
+                    "trial_tables": spec.outputs.trial_tables}
+            index = len(runs)
+            runs.append({"index": index, "point_index": p, "run_id": f"r{index:04d}-{digest(body)[:8]}", **body})
+    return runs
+
+
+def plan_digest(runs: list[dict[str, Any]]) -> str:
+    """Digest of the whole plan: a folder may only be resumed by the same plan."""
+    return digest([r["run_id"] for r in runs] + [r["settings"] for r in runs[:1]])

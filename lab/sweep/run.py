@@ -1,0 +1,97 @@
+"""One sweep run, computed anywhere (a local process or a Ray worker): plain data in, tables out.
+
+``compute_run`` never raises: a failing run comes back with ``status='failed'`` and its error,
+so one bad run does not stop the others. Its tables hold only simulated numbers (no timings or
+host names), so every backend and worker count gives the same tables.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+import traceback
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.lab.sweep.batch import BlockSums, simulate_users, trial_table
+from shortcut_gym.lab.sweep.plan import world_from_settings
+
+#: Per-session metric columns of the result table (means over simulated users).
+BLOCK_METRICS = ("time_s", "time_sd_s", "hotkey_share", "hotkey_attempt_share", "learn_share", "failure_share",
+                 "menu_share")
+
+#: Environment variable naming a file to which every computed run appends a line (tests use it).
+COMPUTE_LOG_ENV = "SHORTCUT_GYM_SWEEP_COMPUTE_LOG"
+
+
+def block_table(run: dict[str, Any], sums: BlockSums) -> pd.DataFrame:
+    """Per-session rows of one run: means over users of time and of action / outcome shares."""
+    trials = sums.trials.astype(float)
+    out = sums.outcomes.astype(float)
+    act = sums.actions.astype(float)
+    n_sess = trials.shape[1]
+    frame: dict[str, Any] = {
+        "run_id": run["run_id"], "run_index": run["index"], "point_index": run["point_index"],
+        "agent": run["label"],
+    }
+    for path, value in run["point"].items():
+        frame[path] = value
+    frame.update(
+        session=np.arange(1, n_sess + 1),
+        users=np.full(n_sess, trials.shape[0]),
+        trials=trials.mean(axis=0),
+        time_s=sums.time_s.mean(axis=0),
+        time_sd_s=sums.time_s.std(axis=0, ddof=1) if trials.shape[0] > 1 else np.zeros(n_sess),
+        hotkey_share=(out[:, :, k.OUT_HOTKEY] / trials).mean(axis=0),
+        hotkey_attempt_share=(act[:, :, k.HOTKEY] / trials).mean(axis=0),
+        learn_share=(act[:, :, k.LEARN] / trials).mean(axis=0),
+        failure_share=((out[:, :, k.OUT_FORGOTTEN] + out[:, :, k.OUT_WRONG]) / trials).mean(axis=0),
+        menu_share=(act[:, :, k.MENU] / trials).mean(axis=0),
+    )
+    return pd.DataFrame(frame)
+
+
+def command_table(run: dict[str, Any], sums: BlockSums, names: tuple[str, ...]) -> pd.DataFrame:
+    """Per-command rows of one run: mean uses and mean total time (s) per user."""
+    n_cmd = sums.command_uses.shape[1]
+    return pd.DataFrame({
+        "run_id": run["run_id"], "run_index": run["index"], "point_index": run["point_index"],
+        "agent": run["label"], "command": np.arange(n_cmd), "command_name": list(names),
+        "uses": sums.command_uses.mean(axis=0), "time_s": sums.command_time_s.mean(axis=0),
+    })
+
+
+def compute_run(run: dict[str, Any]) -> dict[str, Any]:
+    """Simulate one run; returns status, tables (or the error) and the compute time."""
+    start = time.perf_counter()
+    try:
+        world = world_from_settings(run["settings"])
+        record = "trials" if run.get("trial_tables") else "blocks"
+        sums = simulate_users(world, run["agent"], run["seeds"], record=record)
+        result: dict[str, Any] = {
+            "run_id": run["run_id"], "status": "done",
+            "blocks": block_table(run, sums),
+            "commands": command_table(run, sums, world.commands.names),
+        }
+        if record == "trials":
+            trials = trial_table(world, sums, run["label"])
+            trials.insert(0, "run_id", run["run_id"])
+            result["trials"] = trials
+    except Exception as err:  # noqa: BLE001 - a failing run is recorded, never raised
+        result = {"run_id": run["run_id"], "status": "failed", "error": f"{type(err).__name__}: {err}",
+                  "traceback": traceback.format_exc()}
+    result["compute_s"] = time.perf_counter() - start
+    result["pid"] = os.getpid()
+    log = os.environ.get(COMPUTE_LOG_ENV)
+    if log and not run.get("warm_up"):
+        with open(log, "a") as fh:
+            fh.write(f"{run['run_id']}\n")
+    return result
+
+
+def compute_runs(runs: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Several runs in one task, in order (each recorded on its own, failures included)."""
+    return [compute_run(run) for run in runs]

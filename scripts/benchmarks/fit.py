@@ -1,0 +1,101 @@
+"""Benchmark of the lab's fitting (figures are ratios/wall times measured in this run).
+
+1. One log-likelihood evaluation of a learning model (rescorla_wagner, every default mechanism)
+   over 1,000 trials: the compiled likelihood versus (a) the same kernel code run as plain Python
+   (numba's ``py_func`` of every rule) and (b) the lab's generic replay loop through
+   ``action_probabilities`` + ``observe``. Medians of repeated timings.
+2. Fitting 3 models (static_softmax, choice_kernel, rescorla_wagner) x 50 participants x 1,000
+   trials x 10 starts with 2 worker processes: wall time (target < 120 s).
+
+``quick`` uses 400 trials per participant, 4 participants, 2 starts and fewer repeats.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+
+import numpy as np
+
+from benchmarks.timing import Out, median_seconds
+from shortcut_gym.agents import learning
+from shortcut_gym.agents.base import AgentContext
+from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.checks.predictive import simulate_log
+from shortcut_gym.lab.data.logs import participant_trials, validate_log
+from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_log, loglik_function, replay_probabilities
+
+
+def _load() -> str:
+    return ", ".join(f"{v:.2f}" for v in os.getloadavg())
+
+
+def run(quick: bool = False, out: Out = print, participants: int | None = None, starts: int | None = None,
+        jobs: int = 2) -> None:
+    """Print both parts; ``participants`` and ``starts`` default to 50 and 10 (4 and 2 when ``quick``)."""
+    participants = participants if participants is not None else (4 if quick else 50)
+    starts = starts if starts is not None else (2 if quick else 10)
+    for name, value in (("participants", participants), ("starts", starts), ("jobs", jobs)):
+        if value < 1:
+            raise ValueError(f"{name} must be >= 1, got {value}")
+    out(f"load average (1, 5, 15 min) at start: {_load()} on {os.cpu_count()} cores")
+    sessions = 10 if quick else 25  # of 40 trials: 1,000 trials per person (400 quick)
+    world = make_world(schedule={"sessions": sessions, "trials_per_session": 40})
+    rng = np.random.default_rng(0)
+    rw = ModelSpec("rescorla_wagner")
+    log = validate_log(simulate_log(world, rw, participants, rng, prefix="B"), world.commands)
+    trials = participant_trials(log, "B-0")
+    ctx = AgentContext(world.commands.n_commands, len(trials), world.commands.names, tuple(world.observation_names()))
+    agent = rw.build(ctx)
+    theta = np.array([agent.params[n] for n in agent.param_specs()])
+
+    # 1. likelihood: compiled vs plain Python vs replay loop
+    f, fast = loglik_function(rw, trials, ctx)
+    if not fast:
+        raise RuntimeError("rescorla_wagner has no compiled likelihood (loglik_function gave the replay loop)")
+    f(theta)  # compile
+    compiled = median_seconds(lambda: f(theta), 50 if quick else 200)
+    slow_repeats = 3 if quick else 5
+    rules = ("_belief_now", "_decide", "_update", "_init_state", "log_likelihood_kernel")
+    saved = {r: getattr(learning, r) for r in rules}
+    try:
+        for r in rules[:-1]:
+            setattr(learning, r, saved[r].py_func)
+        arrays = learning.TrialArrays.from_frame(trials, ctx.n_commands)
+        par, flags = agent.full_parameters(theta), agent.flags()
+        py = saved["log_likelihood_kernel"].py_func
+        call = (arrays.command, arrays.action, arrays.outcome, arrays.duration_s, arrays.dt_s, arrays.trial,
+                len(trials), ctx.n_commands, par, flags)
+        plain_value = py(*call)
+        plain = median_seconds(lambda: py(*call), slow_repeats)
+    finally:
+        for r, v in saved.items():
+            setattr(learning, r, v)
+    codes = trials["action"].map({"menu": 0, "hotkey": 1, "learn": 2}).to_numpy()
+
+    def replay() -> float:
+        p = replay_probabilities(rw.build(ctx), trials, ctx)
+        return float(np.log(p[np.arange(len(codes)), codes]).sum())
+
+    replay_value = replay()
+    replay_t = median_seconds(replay, slow_repeats)
+    out(f"== one log-likelihood evaluation, rescorla_wagner ({len(theta)} parameters), {len(trials)} trials")
+    out(f"compiled (numba)           {compiled * 1e6:10.1f} us   ln L = {f(theta):.6f}")
+    out(f"plain Python (same code)   {plain * 1e6:10.1f} us   ln L = {plain_value:.6f}   "
+        f"ratio {plain / compiled:8.1f}x")
+    out(f"replay loop (protocol)     {replay_t * 1e6:10.1f} us   ln L = {replay_value:.6f}   "
+        f"ratio {replay_t / compiled:8.1f}x")
+    out("target: compiled at least 50x the plain loop")
+
+    # 2. the 3-model fit on worker processes
+    specs = [ModelSpec("static_softmax"), ModelSpec("choice_kernel"), rw]
+    context = context_for(log, world.commands.names)
+    t = time.perf_counter()
+    fits = fit_log(log, specs, context, n_starts=starts, seed=0, n_jobs=jobs, progress=not quick)
+    wall = time.perf_counter() - t
+    out(f"\n== fit {len(specs)} models x {participants} participants x {len(trials)} trials x "
+        f"{starts} starts on {jobs} processes")
+    out(f"wall time {wall:.1f} s (target < 120 s); converged {int(fits['converged'].sum())}/{len(fits)}; "
+        f"{wall / len(fits):.2f} s per participant x model")
+    out(fits.groupby("model")[["loglik", "bic"]].sum().to_string(float_format=lambda v: f"{v:.1f}"))
+    out(f"load average (1, 5, 15 min) at end: {_load()}")
