@@ -55,7 +55,7 @@ def test_unknown_suite_exits_2_naming_it_and_the_known_ones(capsys) -> None:
 
 
 def test_suites_default_to_all_in_order_and_run_once_each() -> None:
-    assert chosen_suites(None) == ["env", "agents", "fit", "sweep"]
+    assert chosen_suites(None) == ["env", "agents", "fit", "sweep", "group"]
     assert chosen_suites(["fit", "env", "fit"]) == ["fit", "env"]
 
 

@@ -17,6 +17,7 @@ SUITES: dict[str, str] = {
     "agents": "benchmarks.agents",
     "fit": "benchmarks.fit",
     "sweep": "benchmarks.sweep",
+    "group": "benchmarks.group",
 }
 
 

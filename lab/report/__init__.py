@@ -163,9 +163,12 @@ def comparison_sections(summed: pd.DataFrame, bms: BMSResult) -> list[tuple[str,
         words += f" ({best.loc[1, 'bic'] - best.loc[0, 'bic']:.1f} below {best.loc[1, 'model']})"
     risk = (f"Bayesian omnibus risk {top['bor']:.2f}, the probability that the models are equally "
             "frequent")
-    close = ranked["protected_exceedance"] > top["protected_exceedance"] - 0.01  # within 0.01: no leader
+    if bms.bor_exact is not None:
+        risk += (f"; exact for this small group: {bms.bor_exact:.2f}, the variational value leans to equal "
+                 "frequencies when participants are few")
+    close = bms_table["protected_exceedance"] > top["protected_exceedance"] - 0.01  # within 0.01: no leader
     if close.sum() > 1:
-        leaders = ", ".join(ranked.loc[close, "model"])
+        leaders = ", ".join(bms_table.loc[close, "model"])  # in the fitted order
         words += (f". Random-effects model selection: no model leads ({leaders} are within 0.01 of the highest "
                   f"protected exceedance probability, {top['protected_exceedance']:.2f}; {risk}).")
     else:
