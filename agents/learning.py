@@ -41,7 +41,8 @@ from numba import njit
 
 from shortcut_gym.agents import mechanisms as mech
 from shortcut_gym.agents.base import N_ACTIONS, Agent, AgentContext, ParamSpec, Transition, agent_rng
-from shortcut_gym.envs.kernel import ACTION_NAMES, HOTKEY, LEARN, OBS_FEATURES, OUT_HOTKEY, OUTCOME_NAMES
+from shortcut_gym.envs.kernel import ACTION_NAMES, HOTKEY, LEARN, OUT_HOTKEY, OUTCOME_NAMES
+from shortcut_gym.envs.observation import feature_index
 
 _DT_FEATURE = "log1p_seconds_since_last_use"
 
@@ -246,25 +247,12 @@ def sample_action(p: np.ndarray, u: float) -> int:
 
 # ---- observation and log helpers ----------------------------------------------------------------
 def dt_feature_index(context: AgentContext | None, obs_dim: int) -> int:
-    """Index of ``log1p_seconds_since_last_use`` in an observation of length ``obs_dim``.
-
-    Uses ``context.obs_names`` when given; otherwise the environment's layout (target block of
-    n_commands entries one-hot or 1 entry as an index, then ``OBS_FEATURES``, then an optional
-    recall probability), and raises when the layout is ambiguous.
-    """
-    names = getattr(context, "obs_names", ()) if context is not None else ()
-    if names:
-        if len(names) != obs_dim:
-            raise ValueError(f"observation has {obs_dim} entries, the context names {len(names)}")
-        return list(names).index(_DT_FEATURE)
+    """Index of ``log1p_seconds_since_last_use`` in an observation of length ``obs_dim``: from
+    ``context.obs_names`` when given, else from the one layout of that length
+    (:func:`shortcut_gym.envs.observation.feature_index`)."""
     if context is None:
         raise ValueError("the forgetting mechanism needs a bound context (call agent.bind(context) first)")
-    n, f = context.n_commands, len(OBS_FEATURES)
-    fits = {blk for blk in (n, 1) if obs_dim - blk - f in (0, 1)}
-    if len(fits) != 1:
-        raise ValueError(f"cannot place {_DT_FEATURE!r} in an observation of {obs_dim} entries for "
-                         f"{n} commands; bind a context with obs_names")
-    return fits.pop() + OBS_FEATURES.index(_DT_FEATURE)
+    return feature_index(_DT_FEATURE, obs_dim, context.n_commands, context.obs_names)
 
 
 def decode_dt_s(feature: np.ndarray | float) -> np.ndarray | float:

@@ -22,9 +22,6 @@ from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings
 from shortcut_gym.envs.world import World, make_world
 
-#: Upper bound of the log1p features (log1p of ~30 years in seconds).
-LOG_FEATURE_HIGH = 25.0
-
 
 class CommandSelectionEnv(gym.Env):
     """Gymnasium environment of command selection by menu, hotkey or learning the hotkey.
@@ -54,12 +51,7 @@ class CommandSelectionEnv(gym.Env):
         self.world = world or make_world(scenario, costs, memory, schedule, observe_recall, target_encoding)
         self.render_mode = render_mode
         self.action_space = spaces.Discrete(3)
-        n = self.world.commands.n_commands
-        high = np.full(self.world.obs_dim, LOG_FEATURE_HIGH, dtype=np.float32)
-        target_len = n if self.world.target_encoding == "onehot" else 1
-        high[:target_len] = 1.0
-        high[target_len + 5 :] = 1.0  # hand, horizon fraction, recall probability
-        self.observation_space = spaces.Box(0.0, high, dtype=np.float32)
+        self.observation_space = self.world.observation_layout().space()
         self._sim = BatchSimulator(self.world)
         self._act = np.zeros(1, dtype=np.int64)
         self._last: dict[str, Any] | None = None

@@ -13,6 +13,17 @@ import math
 import numpy as np
 from numba import njit
 
+from shortcut_gym.envs.observation import (
+    X_EXPOSURES,
+    X_HAND_ON_KEYBOARD,
+    X_HORIZON_LEFT,
+    X_HOTKEY_FAILURES,
+    X_HOTKEY_SUCCESSES,
+    X_LEARN_COUNT,
+    X_RECALL,
+    X_SINCE_LAST_USE,
+)
+
 # ---- action and outcome codes -------------------------------------------------------------
 MENU, HOTKEY, LEARN = 0, 1, 2
 ACTION_NAMES = ("menu", "hotkey", "learn")
@@ -47,18 +58,6 @@ HAND_MOUSE, HAND_KEYBOARD = 0, 1
 OPERATOR_NAMES = ("M", "K", "P", "B", "H", "search", "decision", "pointing", "retrieval", "encoding")
 (O_M, O_K, O_P, O_B, O_H, O_SEARCH, O_DECISION, O_POINTING, O_RETRIEVAL, O_ENCODING) = range(10)
 N_OPS = 10
-
-#: Observation features after the target encoding.
-OBS_FEATURES = (
-    "log1p_exposures",
-    "log1p_seconds_since_last_use",
-    "log1p_hotkey_successes",
-    "log1p_hotkey_failures",
-    "log1p_learn_count",
-    "hand_on_keyboard",
-    "horizon_left_fraction",
-)
-
 
 @njit(cache=True)
 def activation(ipar, par, fs, ist, tr, now):
@@ -161,7 +160,8 @@ def _menu(par, cmdc, ist, hand, include_m, ops):
 
 @njit(cache=True)
 def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, obs):
-    """Observation of the user's upcoming trial (or of the last one once the horizon is reached)."""
+    """Observation of the user's upcoming trial (or of the last one once the horizon is reached),
+    in the layout of :mod:`shortcut_gym.envs.observation`."""
     t = us[U_TRIAL]
     done = t >= horizon
     tt = horizon - 1 if done else t
@@ -173,19 +173,19 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
     else:
         obs[0] = c / max(n_cmd - 1, 1)
         k = 1
-    obs[k] = math.log1p(ist[c, S_EXPOSURE])
-    obs[k + 1] = seconds_since_last_use_feature(ist, fs, c, sched_onset[tt])
-    obs[k + 2] = math.log1p(ist[c, S_HK_OK])
-    obs[k + 3] = math.log1p(ist[c, S_HK_FAIL])
-    obs[k + 4] = math.log1p(ist[c, S_LEARN])
-    obs[k + 5] = 1.0 if us[U_HAND] == HAND_KEYBOARD else 0.0
-    obs[k + 6] = (horizon - t) / horizon
+    obs[k + X_EXPOSURES] = math.log1p(ist[c, S_EXPOSURE])
+    obs[k + X_SINCE_LAST_USE] = seconds_since_last_use_feature(ist, fs, c, sched_onset[tt])
+    obs[k + X_HOTKEY_SUCCESSES] = math.log1p(ist[c, S_HK_OK])
+    obs[k + X_HOTKEY_FAILURES] = math.log1p(ist[c, S_HK_FAIL])
+    obs[k + X_LEARN_COUNT] = math.log1p(ist[c, S_LEARN])
+    obs[k + X_HAND_ON_KEYBOARD] = 1.0 if us[U_HAND] == HAND_KEYBOARD else 0.0
+    obs[k + X_HORIZON_LEFT] = (horizon - t) / horizon
     if ipar[I_OBS_RECALL] == 1:
         if done:
-            obs[k + 7] = 0.0
+            obs[k + X_RECALL] = 0.0
         else:
             a = activation(ipar, par, fs[c], ist[c], tr[c], sched_clock[tt])
-            obs[k + 7] = recall_p(par, a)
+            obs[k + X_RECALL] = recall_p(par, a)
 
 
 @njit(cache=True)

@@ -14,6 +14,7 @@ from shortcut_gym.envs.config import load_settings, validate
 from shortcut_gym.envs.costs import CostSettings, fitts_time_s, hick_hyman_time_s
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.memory import MEMORY_CODES, MemorySettings
+from shortcut_gym.envs.observation import ObservationLayout
 from shortcut_gym.envs.task import (
     CommandSet,
     ScenarioSettings,
@@ -45,22 +46,18 @@ class World:
         """Trials per simulated user."""
         return self.schedule.horizon
 
+    def observation_layout(self) -> ObservationLayout:
+        """The layout of this world's observation vector."""
+        return ObservationLayout(self.commands.n_commands, self.target_encoding == "onehot", self.observe_recall)
+
     @property
     def obs_dim(self) -> int:
         """Length of the flat observation vector."""
-        target = self.commands.n_commands if self.target_encoding == "onehot" else 1
-        return target + len(k.OBS_FEATURES) + (1 if self.observe_recall else 0)
+        return self.observation_layout().dim
 
     def observation_names(self) -> list[str]:
         """Name of each observation entry."""
-        if self.target_encoding == "onehot":
-            names = [f"target={n}" for n in self.commands.names]
-        else:
-            names = ["target_index_fraction"]
-        names += list(k.OBS_FEATURES)
-        if self.observe_recall:
-            names.append("recall_probability")
-        return names
+        return self.observation_layout().names(self.commands.names)
 
     def parameters(self) -> tuple[np.ndarray, np.ndarray]:
         """(float parameters, integer parameters) in the kernel's layout."""

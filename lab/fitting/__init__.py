@@ -31,7 +31,8 @@ from scipy import optimize, stats
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.learning import TrialArrays
 from shortcut_gym.agents.registry import AGENTS, make_agent
-from shortcut_gym.envs.kernel import ACTION_NAMES, OBS_FEATURES
+from shortcut_gym.envs.kernel import ACTION_NAMES
+from shortcut_gym.envs.observation import ObservationLayout
 from shortcut_gym.lab.data.logs import participant_trials, participants
 
 #: Half-width of the box L-BFGS-B keeps transformed coordinates in (logit 30 ~ 1e-13 from a bound).
@@ -137,9 +138,12 @@ def parse_model(text: str) -> ModelSpec:
 
 # ---- log replay (slow path) --------------------------------------------------------------------
 def _observations(trials: pd.DataFrame, n_commands: int) -> np.ndarray:
-    """The env's default observation (one-hot target + OBS_FEATURES) before each logged trial."""
+    """The env's default observation (one-hot target, no recall probability; the layout of
+    :class:`~shortcut_gym.envs.observation.ObservationLayout`) before each logged trial."""
+    layout = ObservationLayout(n_commands)
     n = len(trials)
-    obs = np.zeros((n, n_commands + len(OBS_FEATURES)), dtype=np.float32)
+    obs = np.zeros((n, layout.dim), dtype=np.float32)
+    at = {name: layout.index(name) for name in layout.feature_names()}
     exposures = np.zeros(n_commands)
     ok = np.zeros(n_commands)
     fail = np.zeros(n_commands)
@@ -153,13 +157,14 @@ def _observations(trials: pd.DataFrame, n_commands: int) -> np.ndarray:
         c = int(cmd[t])
         o = obs[t]
         o[c] = 1.0
-        k = n_commands
-        o[k] = math.log1p(exposures[c])
+        o[at["log1p_exposures"]] = math.log1p(exposures[c])
         if exposures[c] > 0:
-            o[k + 1] = math.log1p(max(onset[t] - last[c], 0.0))
-        o[k + 2], o[k + 3], o[k + 4] = math.log1p(ok[c]), math.log1p(fail[c]), math.log1p(learned[c])
-        o[k + 5] = hand
-        o[k + 6] = (n - t) / n
+            o[at["log1p_seconds_since_last_use"]] = math.log1p(max(onset[t] - last[c], 0.0))
+        o[at["log1p_hotkey_successes"]] = math.log1p(ok[c])
+        o[at["log1p_hotkey_failures"]] = math.log1p(fail[c])
+        o[at["log1p_learn_count"]] = math.log1p(learned[c])
+        o[at["hand_on_keyboard"]] = hand
+        o[at["horizon_left_fraction"]] = (n - t) / n
         exposures[c] += 1
         last[c] = onset[t]
         if outcome[t] == "hotkey":
