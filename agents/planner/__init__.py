@@ -1,0 +1,116 @@
+"""Bounded-optimal planner: finite-horizon dynamic programming over a discretised hotkey memory.
+
+For each command separately the planner builds a small Markov decision process whose state is the
+command's memory at the moment it is needed, and solves it exactly for every number of uses left.
+Sources: the cost formulas of :mod:`shortcut_gym.envs.costs` (KLM, Card, Moran & Newell 1980;
+Fitts' law, MacKenzie 1992; menu model, Cockburn, Gutwin & Greenberg 2007) and the memory model of
+:mod:`shortcut_gym.envs.memory` (ACT-R base level, Anderson & Lebiere 1998; O(1) hybrid form,
+Petrov 2006; exponential and power forgetting, Wixted & Ebbesen 1991). Finite-horizon DP:
+Bellman (1957), *Dynamic Programming*; Puterman (1994), *Markov Decision Processes*, ch. 4.
+The world's semantics it follows are those of :mod:`shortcut_gym.envs.kernel`.
+
+Modules, one concern each: :mod:`.action_costs` (seconds of each path), :mod:`.memory_model`
+(gaps between uses, trace decay, two-number memory ageing), :mod:`.interpolation` (compiled
+bilinear lookup on the state grid), :mod:`.mdp` (the per-command MDP), :mod:`.solver` (backward
+induction, state occupancy), :mod:`.search` (hand-share fixed points, the choice between plans),
+:mod:`.break_even` (the analytic rule), :mod:`.next_uses` and :mod:`.agent` (the policy).
+
+The MDP of command c (states s, actions menu/hotkey/learn, stages = uses of c left):
+
+* State 0: no trace (strength S = 0, recall probability 0). States 1..: a pair (activation
+  A = ln S on a uniform grid of ``n_bins`` points from tau - 8 s to tau + 8 s, tau and s the
+  world's retrieval threshold and noise; total trace weight W on a geometric grid of
+  ``n_weight_bins`` points from the smallest trace weight to the largest weight times the top
+  command's expected uses; one point for exponential memory, which needs no W).
+  The recall probability of a state is the logistic of its grid activation.
+* Transition: the action lays a trace of the world's weight (learn; hotkey recalled with
+  probability p or failed with 1 - p; menu), then the time to the command's next use passes.
+  The gap is drawn from the usage probability (trials between uses ~ geometric(p_c)), the trial
+  interval and the between-session gaps (a gap of k trials crosses k / trials_per_session session
+  boundaries, the fractional part as a probability), discretised by 8 equal-probability quantiles.
+  The new (A, W) is spread bilinearly (A linear, W in log) over the neighbouring grid points.
+* Reward: minus the expected seconds of the action in that state, plus the homing time the
+  action causes on the next trial (approximation 2): the marginal cost of the decision.
+
+Approximations (each makes the planner exact only for its own model, not for the simulator):
+
+1. Memory history collapses to two numbers. Under ACT-R decay the old traces age as one lump of
+   their total weight W at the effective age a that gives the current strength (S = W a^-d), so
+   S' = W (a + g)^-d + w g^-d and W' = W + w: a command practised over days keeps more of its
+   strength across a night than one learned a minute ago. Power forgetting uses the same lump
+   with (1 + a/u)^-b; exponential decay is exact (S' = (S + w) e^{-lambda g}). Spacing-sensitive
+   decay is not supported. Within-session versus overnight gaps are mixed by the unconditional
+   gap law in later stages (a first use early in a session is followed by a same-day use more
+   often than that law says), which the decision-time step corrects for the next use only.
+2. The hand position is shared by all commands, so it is a mean field. With ``keyboard_share``
+   None (default) the plan finds its own shares by fixed point: start from a menu-only world,
+   solve, measure the plan's usage-weighted share of uses that recall a hotkey (ks: the hand is
+   on the keyboard before a trial) and that attempt one (q: the next trial wants the keyboard),
+   solve again (at most 6 rounds); the same from a keyboard-only start; keep the plan of smaller
+   :func:`predicted_time_s`. That prediction is optimistic for plans that use hotkeys, so when
+   two different plans are predicted within 25 s (``TIE_MARGIN_S``) of each other, 16 simulated
+   users (the same for both) choose between them. A menu then costs ks H, a hotkey (1 - ks) H,
+   and the action is charged the next trial's homing: q H if it leaves the hand on the mouse
+   (menu, learn, failed hotkey), (1 - q) H if on the keyboard. Each switch is thus counted by
+   both trials next to it: right for decisions (both cause it), so plan values overstate total
+   homing time. A number fixes ks = q. The shares of the other trials are taken as independent
+   of this command's state and constant over the horizon (the plan's average).
+3. Menu selections in the MDP are costed at full menu expertise (e = 1, Hick-Hyman decision
+   time); only the current trial's novice term (search - decision) / t for its t-th menu
+   selection is added at decision time, later uses keep e = 1.
+4. Recall latency and probability of a future use come from the grid state; commands are
+   planned independently; failure costs use the world's commission share as an expectation.
+5. Uses left = 1 + round(p_c x trials after this one), not the realised count; the value of the
+   next use is read at that count minus one whatever the gap drawn.
+
+The agent (:class:`BoundedOptimalPlanner`) tracks each command's memory from its own history and
+costs the current trial exactly (see :mod:`.agent`). The analytic break-even
+(:func:`break_even_table`) compares the all-menu world with the learn-at-first-use world.
+"""
+
+from shortcut_gym.agents.planner.action_costs import ActionTimes, action_rewards, action_times
+from shortcut_gym.agents.planner.agent import BoundedOptimalPlanner
+from shortcut_gym.agents.planner.break_even import break_even_table, learn_once_recall
+from shortcut_gym.agents.planner.interpolation import GridConstants
+from shortcut_gym.agents.planner.mdp import GRID_HALF_WIDTH, CommandMDP, build_command_mdp
+from shortcut_gym.agents.planner.memory_model import N_GAP_QUANTILES, gap_distribution, weight_grid
+from shortcut_gym.agents.planner.next_uses import NextUses, next_use_points
+from shortcut_gym.agents.planner.search import (
+    TIE_MARGIN_S,
+    TIE_SEED,
+    Plan,
+    expected_uses,
+    plan_world,
+    predicted_time_s,
+    simulated_time_s,
+)
+from shortcut_gym.agents.planner.solver import CsrRows, hotkey_shares, solve_finite_horizon, state_occupancy
+
+__all__ = [
+    "GRID_HALF_WIDTH",
+    "N_GAP_QUANTILES",
+    "TIE_MARGIN_S",
+    "TIE_SEED",
+    "ActionTimes",
+    "BoundedOptimalPlanner",
+    "CommandMDP",
+    "CsrRows",
+    "GridConstants",
+    "NextUses",
+    "Plan",
+    "action_rewards",
+    "action_times",
+    "break_even_table",
+    "build_command_mdp",
+    "expected_uses",
+    "gap_distribution",
+    "hotkey_shares",
+    "learn_once_recall",
+    "next_use_points",
+    "plan_world",
+    "predicted_time_s",
+    "simulated_time_s",
+    "solve_finite_horizon",
+    "state_occupancy",
+    "weight_grid",
+]

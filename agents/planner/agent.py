@@ -1,0 +1,214 @@
+"""The planner agent: tracks each command's memory from its own history and looks up the plan.
+
+Its Q for this trial is exact in the trial's own cost (recall probability and latency of the
+tracked activation, the known hand, the menu expertise); it reaches the next use with the exact
+memory at the schedule's clock after k ~ geometric(p_c) trials given k within the horizon
+(N_GAP_QUANTILES quantiles), and values it by the plan's V (bilinear in activation and log weight).
+Memory is tracked with the world's formula (the O(1) hybrid base level of Petrov 2006 for kind
+"actr", as the simulator) from what the env shows: the command, the action and the outcome.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.planner.action_costs import action_times
+from shortcut_gym.agents.planner.next_uses import next_use_points
+from shortcut_gym.agents.planner.search import Plan, plan_world
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.memory import (
+    HybridBaseLevel,
+    actr_activation,
+    exponential_activation,
+    power_activation,
+    recall_probability,
+)
+from shortcut_gym.envs.task import session_onsets
+from shortcut_gym.envs.world import World, make_world
+
+
+class BoundedOptimalPlanner(Agent):
+    """Looks up the exact optimal action of its discretised MDP (see the package docstring).
+
+    Build with ``world=`` (a World, or a dict of :func:`make_world` arguments, e.g. from YAML);
+    without it the bound context's ``world`` is used. Options: ``keyboard_share`` (0..1, or None
+    for the plan's own shares), ``n_bins``. Deterministic: ``action_probabilities`` is one-hot.
+    At decision time the plan's expected hand and menu-expertise costs of the current trial are
+    replaced by the known ones (where the last trial left the hand; this command's menu count).
+    """
+
+    name = "bounded_optimal"
+
+    def __init__(self, context: AgentContext | None = None, world: World | dict | str | Path | None = None,
+                 keyboard_share: float | None = None, n_bins: int = 40, n_weight_bins: int = 10,
+                 **params: float) -> None:
+        super().__init__(context, **params)
+        if isinstance(world, (dict, str, Path)):
+            world = make_world(**world) if isinstance(world, dict) else make_world(world)
+        if world is not None and not isinstance(world, World):
+            raise ValueError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
+                             f"{type(world).__name__}")
+        if keyboard_share is not None and not 0.0 <= float(keyboard_share) <= 1.0:
+            raise ValueError(f"{self.name}: keyboard_share={keyboard_share} must be in [0, 1] (or None)")
+        if int(n_bins) != n_bins or n_bins < 2:
+            raise ValueError(f"{self.name}: n_bins={n_bins} must be a whole number >= 2")
+        if int(n_weight_bins) != n_weight_bins or n_weight_bins < 1:
+            raise ValueError(f"{self.name}: n_weight_bins={n_weight_bins} must be a whole number >= 1")
+        self.world = world
+        self.keyboard_share = None if keyboard_share is None else float(keyboard_share)
+        self.n_bins = int(n_bins)
+        self.n_weight_bins = int(n_weight_bins)
+        self.plan: Plan | None = None
+
+    def param_specs(self) -> dict[str, ParamSpec]:
+        return {}
+
+    def spec(self) -> dict[str, Any]:
+        return {"name": self.name, "keyboard_share": self.keyboard_share, "n_bins": self.n_bins,
+                "n_weight_bins": self.n_weight_bins, "params": {}}
+
+    def _world(self) -> World:
+        w = self.world or getattr(self.context, "world", None)
+        if w is None:
+            raise ValueError(f"{self.name}: needs the world it plans for: make_agent('{self.name}', world=...) "
+                             "or a context with .world")
+        return w
+
+    def reset(self, seed: int | None = None) -> None:
+        super().reset(seed)
+        world = self._world()
+        if self.plan is None:
+            self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
+                                   n_weight_bins=self.n_weight_bins)
+        self._cmdc = world.command_constants()
+        onset, _, gap_total = session_onsets(world.schedule)
+        self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
+        if getattr(self, "_times_for", None) is not self.plan:
+            self._times = [action_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share)
+                           for c in range(world.commands.n_commands)]
+            self._next_uses = next_use_points(world, self._clock)
+            self._times_for = self.plan
+        m = world.memory
+        self._memory = m
+        self._horizon = world.horizon
+        self._p_use = [float(x) for x in world.commands.probability]
+        self._home_s = world.costs.klm.home_s
+        self._new_weights = np.array([m.weights.menu, m.weights.learn, m.weights.hotkey_success,
+                                      m.weights.hotkey_failure])
+        self._traces: dict[int, tuple[list[float], list[float]]] = {}
+        self._hybrid: dict[int, HybridBaseLevel] = {}
+        self._weight = np.zeros(world.commands.n_commands)
+        self._menu_count = np.zeros(world.commands.n_commands, dtype=np.int64)
+        self._hand_on_keyboard = False  # the simulator starts every user with the hand on the mouse
+
+    def _activation(self, c: int, now: float) -> float:
+        m = self._memory
+        if m.kind == "actr":  # the simulator's O(1) hybrid base level (Petrov 2006)
+            h = self._hybrid.get(c)
+            return -math.inf if h is None or not h.times else h.activation(now)
+        times, weights = self._traces.get(c, ([], []))
+        if not times:
+            return -math.inf
+        if m.kind == "exponential":
+            return exponential_activation(now, times, m.exponential_rate_per_s, weights)
+        if m.kind == "power":
+            return power_activation(now, times, m.decay, m.power_time_unit_s, weights)
+        return actr_activation(now, times, m.decay, weights)
+
+    def _activations(self, c: int, now: np.ndarray) -> np.ndarray:
+        """:meth:`_activation` at each clock of ``now`` (s, 1-D)."""
+        h = self._hybrid.get(c)
+        if self._memory.kind == "actr" and h is not None and h.times:
+            return h.activations(now)
+        return np.array([self._activation(c, t) for t in now])
+
+    def action_values(self, c: int, trial: int) -> np.ndarray:
+        """Q (minus expected seconds, this use and the later ones) of menu, hotkey, learn now.
+
+        This trial is costed exactly (its recall probability and latency from the tracked memory,
+        where the last trial left the hand, this command's menu count); the next use is reached
+        with the exact memory and the schedule's clock after k more trials, k geometric(p_c)
+        given that it falls in the horizon (N_GAP_QUANTILES quantiles), and valued by the plan's
+        V there (bilinear in activation and log weight); the plan's shares price the homing the
+        next trial pays. The next uses' clocks and decay shares are tabulated once per plan
+        (:func:`next_use_points`) and the future term is compiled (:meth:`CommandMDP.mean_after_traces`).
+        """
+        if self.plan is None:
+            self.reset()
+        assert self.plan is not None
+        m = self._memory
+        after = max(self._horizon - trial - 1, 0)
+        p_c = self._p_use[c]
+        uses = min(1 + int(round(p_c * after)), self.plan.max_uses)
+        now = float(self._clock[min(trial, len(self._clock) - 1)])
+        a_now = self._activation(c, now)
+        p = recall_probability(a_now, m.threshold, m.noise_s)
+        lat = m.latency_factor_s * math.exp(-a_now) if a_now > -math.inf else 0.0
+        times = self._times[c]
+        home = self._home_s
+        ks = self.plan.keyboard_share
+        on_kb = 1.0 if self._hand_on_keyboard else 0.0
+        cmdc = self._cmdc[c]
+        novice = (cmdc[k.C_SEARCH] - cmdc[k.C_DECISION]) / (self._menu_count[c] + 1)
+        start_menu = home * (on_kb - ks) + novice
+        start_hot = home * ((1.0 - on_kb) - (1.0 - ks))
+        ok = times.hotkey_fixed_s + start_hot + lat + times.return_after_keyboard_s
+        fail = times.failure_s + start_hot + novice + times.return_after_mouse_s
+        q_menu = -(times.menu_s + start_menu + times.return_after_mouse_s)
+        q_hot = -(p * ok + (1.0 - p) * fail)
+        q_learn = -(times.learn_s + start_menu + times.return_after_mouse_s)
+        if uses > 1 and after > 0:
+            V = self.plan.values[c][uses - 1]
+            t_next = self._next_uses.clock_s[c, trial]
+            # mean V at the next use after a menu, learn, recalled and failed hotkey trace
+            f_menu, f_learn, f_ok, f_fail = self.plan.mdps[c].mean_after_traces(
+                V, self._activations(c, t_next), self._next_uses.fresh[c, trial], float(self._weight[c]),
+                self._new_weights)
+            q_menu += f_menu
+            q_learn += f_learn
+            q_hot += p * f_ok + (1.0 - p) * f_fail
+        q = np.empty(3)
+        q[k.MENU], q[k.HOTKEY], q[k.LEARN] = q_menu, q_hot, q_learn
+        return q
+
+    def decide(self, c: int, trial: int) -> int:
+        """Optimal action for command ``c`` at ``trial`` (ties to the lowest action index)."""
+        return int(self.action_values(c, trial).argmax())
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        p = np.zeros(3)
+        p[self.decide(int(info["target"]), int(info["next_trial"]))] = 1.0
+        return p
+
+    def act(self, obs: np.ndarray, info: dict[str, Any]) -> int:
+        return self.decide(int(info["target"]), int(info["next_trial"]))
+
+    def observe(self, transition: Transition) -> None:
+        info = transition.info
+        c, t = int(info["command"]), int(info["trial"])
+        if self.plan is None:
+            self.reset()
+        m = self._memory
+        w = m.weights
+        outcome = info["outcome"]
+        weight = {"menu": w.menu, "learned": w.learn, "hotkey": w.hotkey_success}.get(outcome, w.hotkey_failure)
+        self._hand_on_keyboard = outcome == "hotkey"
+        if outcome != "hotkey":
+            self._menu_count[c] += 1
+        if weight > 0:
+            self._weight[c] += weight
+            now = float(self._clock[t])
+            if m.kind == "actr":
+                h = self._hybrid.get(c)
+                if h is None:
+                    h = self._hybrid[c] = HybridBaseLevel(m.decay, m.recent_traces)
+                h.add(now, weight)
+            else:
+                times, weights = self._traces.setdefault(c, ([], []))
+                times.append(now)
+                weights.append(weight)
