@@ -145,3 +145,56 @@ def test_bad_trial_table_errors(env):
     f = agent.likelihood_function(TrialArrays.from_frame(df))
     with pytest.raises(ValueError, match="theta must have 8 entries"):
         f(np.zeros(3))
+
+
+def test_learning_package_modules_import_one_way() -> None:
+    """No module of agents/learning imports one that (directly or not) imports it back."""
+    import ast
+    from pathlib import Path
+
+    folder = Path(__file__).resolve().parents[1] / "agents" / "learning"
+    prefix = "shortcut_gym.agents.learning"
+    names = {p.stem for p in folder.glob("*.py") if p.stem != "__init__"}
+    assert {"mechanisms", "rules", "agent", "batch", "fused", "trials"} <= names
+    graph: dict[str, set[str]] = {}
+    for name in names:
+        deps: set[str] = set()
+        for node in ast.walk(ast.parse((folder / f"{name}.py").read_text())):
+            if isinstance(node, ast.ImportFrom) and node.module:
+                if node.module == prefix:
+                    deps |= {a.name for a in node.names if a.name in names}
+                elif node.module.startswith(prefix + "."):
+                    deps.add(node.module[len(prefix) + 1:].split(".")[0])
+            elif isinstance(node, ast.Import):
+                deps |= {a.name[len(prefix) + 1:].split(".")[0] for a in node.names if a.name.startswith(prefix + ".")}
+        graph[name] = deps & names
+
+    def reaches(start: str, goal: str, seen: set[str]) -> bool:
+        for d in graph[start]:
+            if d == goal or (d not in seen and reaches(d, goal, seen | {d})):
+                return True
+        return False
+
+    assert [m for m in sorted(names) if reaches(m, m, set())] == []
+
+
+def test_forgetting_reads_the_layout_of_the_bound_world() -> None:
+    from shortcut_gym.agents.base import AgentContext
+    from shortcut_gym.agents.learning import DT_FEATURE, dt_feature_index
+
+    for encoding in ("onehot", "index"):
+        for recall in (False, True):
+            world = make_world(schedule={"sessions": 1, "trials_per_session": 5}, target_encoding=encoding,
+                               observe_recall=recall)
+            names = world.observation_names()
+            want = names.index(DT_FEATURE)
+            n = world.commands.n_commands
+            assert dt_feature_index(AgentContext(n, 5, obs_names=tuple(names)), len(names)) == want
+            assert dt_feature_index(AgentContext(n, 5, world=world), len(names)) == want
+            assert dt_feature_index(AgentContext(n, 5), len(names)) == want
+    with pytest.raises(ValueError, match="entries"):
+        dt_feature_index(AgentContext(3, 5, obs_names=("a", "b")), 4)
+    with pytest.raises(ValueError, match="not among the names"):
+        dt_feature_index(AgentContext(3, 5, obs_names=("a", "b")), 2)
+    with pytest.raises(ValueError, match="bound context"):
+        dt_feature_index(None, 4)

@@ -2,7 +2,7 @@
 
 An agent that offers ``batch_policy(n_users, seeds)`` (compiled, see CONTRACTS.md) is driven as a
 whole batch; when only block sums are asked for and its policy offers ``run(sim)`` (the learning
-models, :mod:`shortcut_gym.agents.learning_fused`), all trials of all users run in one compiled
+models, :mod:`shortcut_gym.agents.learning.fused`), all trials of all users run in one compiled
 call instead, with the same numbers. Any other agent is driven as one agent object per user (a Python loop over users
 inside each trial), given exactly the observations and info dicts ``run_episode`` gives it on
 ``CommandSelection-v0``, so both paths reproduce the single-env trial tables bit for bit.
@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext, Transition
-from shortcut_gym.agents.learning_fused import FusedSums
+from shortcut_gym.agents.learning import FusedSums
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.simulator import BatchSimulator

@@ -18,8 +18,8 @@ import time
 import numpy as np
 
 from benchmarks.timing import Out, median_seconds
-from shortcut_gym.agents import learning
 from shortcut_gym.agents.base import AgentContext
+from shortcut_gym.agents.learning import TrialArrays, rules
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.predictive import simulate_log
 from shortcut_gym.lab.data.logs import participant_trials, validate_log
@@ -56,21 +56,20 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     f(theta)  # compile
     compiled = median_seconds(lambda: f(theta), 50 if quick else 200)
     slow_repeats = 3 if quick else 5
-    rules = ("_belief_now", "_decide", "_update", "_init_state", "log_likelihood_kernel")
-    saved = {r: getattr(learning, r) for r in rules}
+    names = ("belief_now", "decide", "update", "init_state", "log_likelihood_kernel")
+    saved = {r: getattr(rules, r) for r in names}
     try:
-        for r in rules[:-1]:
-            setattr(learning, r, saved[r].py_func)
-        arrays = learning.TrialArrays.from_frame(trials, ctx.n_commands)
-        par, flags = agent.full_parameters(theta), agent.flags()
+        for r in names[:-1]:
+            setattr(rules, r, saved[r].py_func)
+        log = TrialArrays.from_frame(trials, ctx.n_commands).logged()
+        rule_set = agent.rule_set(theta)
         py = saved["log_likelihood_kernel"].py_func
-        call = (arrays.command, arrays.action, arrays.outcome, arrays.duration_s, arrays.dt_s, arrays.trial,
-                len(trials), ctx.n_commands, par, flags)
+        call = (log, len(trials), ctx.n_commands, rule_set)
         plain_value = py(*call)
         plain = median_seconds(lambda: py(*call), slow_repeats)
     finally:
         for r, v in saved.items():
-            setattr(learning, r, v)
+            setattr(rules, r, v)
     codes = trials["action"].map({"menu": 0, "hotkey": 1, "learn": 2}).to_numpy()
 
     def replay() -> float:

@@ -2,7 +2,7 @@
 
 Each mechanism owns its parameters; switching a mechanism off removes them from the agent's
 ``param_specs()``. The update and choice rules themselves live in compiled form in
-:mod:`shortcut_gym.agents.learning`; this module is the catalogue (names, parameters, bounds,
+:mod:`shortcut_gym.agents.learning.rules`; this module is the catalogue (names, parameters, bounds,
 dependencies) that the agent, the lab's knock-out studies and the YAML specs read.
 
 Mechanisms (rules written per command c, action a in {menu, hotkey, learn}, reward r = -seconds):
