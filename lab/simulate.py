@@ -14,23 +14,6 @@ from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.world import World
 
 
-def parse_agent_arg(text: str) -> dict[str, Any]:
-    """'name' or 'name:p=v,q=w' -> agent spec dict; bad syntax raises ValueError naming it."""
-    name, _, rest = text.partition(":")
-    if not name:
-        raise ValueError(f"agent {text!r}: missing agent name before ':'")
-    params: dict[str, Any] = {}
-    for item in filter(None, rest.split(",")):
-        key, eq, value = item.partition("=")
-        if not eq or not key:
-            raise ValueError(f"agent {text!r}: parameter {item!r} must look like name=value")
-        try:
-            params[key] = float(value)
-        except ValueError:
-            raise ValueError(f"agent {text!r}: parameter {key} value {value!r} is not a number") from None
-    return {"name": name, "params": params}
-
-
 def label_of(spec: dict[str, Any]) -> str:
     """Short label of an agent spec, e.g. 'learn_first_k(k=2)'."""
     params = spec.get("params") or {}

@@ -10,9 +10,10 @@ from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.predictive import simulate_log
 from shortcut_gym.lab.checks.recovery import knockout_variants, model_recovery, parameter_recovery
 from shortcut_gym.lab.cli import main
+from shortcut_gym.lab.cli.options import parse_model, parse_prior
 from shortcut_gym.lab.compare import random_effects_bms, summed_criteria
 from shortcut_gym.lab.data.logs import write_log
-from shortcut_gym.lab.fitting import ModelSpec, parse_model, parse_prior
+from shortcut_gym.lab.fitting import ModelSpec
 
 WORLD = make_world()
 STATIC = ModelSpec("static_softmax")

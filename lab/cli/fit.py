@@ -6,53 +6,9 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.cli.options import add_common, check_counts, models_of, priors_of
 from shortcut_gym.lab.data.logs import read_log
-from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_log, parse_model, parse_prior
-
-MODEL_HELP = ("model as [label=]agent[:key=value,...]; keys that are parameters are held fixed, others are "
-              "options, '+' makes a list (repeatable), e.g. ck=choice_kernel:lapse=0.02")
-
-
-def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
-    """Options shared by the analysis subcommands."""
-    p.add_argument("--scenario", default=None, help="scenario preset or YAML whose commands the log names")
-    if models:
-        p.add_argument("--model", action="append", required=True, help=MODEL_HELP)
-    p.add_argument("--starts", type=int, default=10, help="optimiser starts per participant x model")
-    p.add_argument("--seed", type=int, default=0, help="seed of the random starts (and simulations)")
-    p.add_argument("--jobs", type=int, default=1, help="worker processes")
-    p.add_argument("--out", type=Path, required=True, help="output folder (created)")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
-
-
-def check_counts(args: argparse.Namespace, **extra: int) -> None:
-    """ValueError naming a count option below 1."""
-    for name, value in {"--starts": args.starts, "--jobs": args.jobs, **extra}.items():
-        if value < 1:
-            raise ValueError(f"{name} must be >= 1, got {value}")
-
-
-def models_of(args: argparse.Namespace) -> list[ModelSpec]:
-    """The ``--model`` options parsed; labels must be unique."""
-    specs = [parse_model(m) for m in args.model]
-    labels = [s.label for s in specs]
-    dup = {lab for lab in labels if labels.count(lab) > 1}
-    if dup:
-        raise ValueError(f"--model labels repeat: {sorted(dup)}; name them label=agent:...")
-    return specs
-
-
-def priors_of(texts: list[str] | None, specs: list[ModelSpec]) -> dict[str, dict]:
-    """``--prior label:param=family:a:b`` -> {label: {param: distribution}}."""
-    out: dict[str, dict] = {}
-    labels = {s.label for s in specs}
-    for text in texts or []:
-        label, colon, rest = text.partition(":")
-        if not colon or label not in labels:
-            raise ValueError(f"--prior {text!r} must start with a model label from {sorted(labels)} and ':'")
-        name, dist = parse_prior(rest)
-        out.setdefault(label, {})[name] = dist
-    return out
+from shortcut_gym.lab.fitting import context_for, fit_log
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -6,7 +6,7 @@ import argparse
 
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.recovery import model_recovery, parameter_recovery
-from shortcut_gym.lab.cli.fit import add_common, check_counts, models_of
+from shortcut_gym.lab.cli.options import add_common, check_counts, models_of
 from shortcut_gym.lab.report import (
     model_recovery_section,
     parameter_recovery_section,

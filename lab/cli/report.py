@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.cli.fit import add_common, check_counts, models_of, priors_of
+from shortcut_gym.lab.cli.options import add_common, check_counts, models_of, priors_of
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.report import analyse_log
 

@@ -6,8 +6,9 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.cli.options import parse_agent_arg
 from shortcut_gym.lab.data.logs import log_format, log_from_simulation, write_log
-from shortcut_gym.lab.simulate import parse_agent_arg, session_summary, simulate_agents
+from shortcut_gym.lab.simulate import session_summary, simulate_agents
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -1,0 +1,145 @@
+"""Option and spec parsing shared by the subcommands (the one place CLI strings are read).
+
+* ``--model [label=]agent[:key=value,...]``: keys that are parameters are held fixed, others are
+  constructor options; a value with '+' is a list (``mechanisms=value+memory_aware+lapse``).
+* ``--agent name[:param=value,...]``: an agent spec for simulation.
+* ``--prior label:param=family:a:b``: a MAP prior (families in :data:`PRIOR_FAMILIES`).
+"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from shortcut_gym.agents.registry import AGENTS, make_agent
+from shortcut_gym.lab.fitting import PRIOR_FAMILIES, ModelSpec, make_prior
+
+MODEL_HELP = ("model as [label=]agent[:key=value,...]; keys that are parameters are held fixed, others are "
+              "options, '+' makes a list (repeatable), e.g. ck=choice_kernel:lapse=0.02")
+
+
+def parse_value(text: str) -> Any:
+    """One ``key=value`` value: a '+' list, a boolean word, a number, else the text itself."""
+    if "+" in text:
+        return [t for t in text.split("+") if t]
+    low = text.lower()
+    if low in ("true", "yes", "on"):
+        return True
+    if low in ("false", "no", "off"):
+        return False
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+def parse_model(text: str) -> ModelSpec:
+    """'[label=]name[:key=value,...]' -> ModelSpec; keys that are parameters are held fixed.
+
+    Example: ``logit2=static_softmax:covariates=log_exposure+session,b_learn=-3``.
+    """
+    label, eq, rest = text.partition("=")
+    if not eq or ":" in label:
+        label, rest = "", text
+    name, _, args = rest.partition(":")
+    if not name:
+        raise ValueError(f"model {text!r}: missing agent name")
+    if name not in AGENTS:
+        raise ValueError(f"model {text!r}: unknown agent {name!r}; registered: {sorted(AGENTS)}")
+    options: dict[str, Any] = {}
+    fixed: dict[str, float] = {}
+    for item in filter(None, args.split(",")):
+        key, eq2, value = item.partition("=")
+        if not eq2 or not key:
+            raise ValueError(f"model {text!r}: {item!r} must look like key=value")
+        options[key] = parse_value(value)
+    try:
+        probe = make_agent(name, **{k: v for k, v in options.items() if not isinstance(v, float)})
+    except (TypeError, ValueError) as err:
+        raise ValueError(f"model {text!r}: {err}") from None
+    for key in list(options):
+        if key in probe.param_specs():
+            value = options.pop(key)
+            if not isinstance(value, float):
+                raise ValueError(f"model {text!r}: parameter {key} value {value!r} is not a number")
+            fixed[key] = value
+    return ModelSpec(name, label or "", options, fixed)
+
+
+def parse_prior(text: str) -> tuple[str, Any]:
+    """'name=family:a:b' -> (parameter, frozen scipy distribution on the natural scale).
+
+    Families: normal:mean:sd, beta:a:b, gamma:shape:scale, lognormal:mu:sigma (of ln x).
+    """
+    name, eq, rest = text.partition("=")
+    parts = rest.split(":")
+    if not eq or not name or len(parts) != 3 or parts[0] not in PRIOR_FAMILIES:
+        raise ValueError(f"prior {text!r} must look like name=family:a:b with family in {sorted(PRIOR_FAMILIES)}")
+    try:
+        a, b = float(parts[1]), float(parts[2])
+    except ValueError:
+        raise ValueError(f"prior {text!r}: {parts[1]!r} and {parts[2]!r} must be numbers") from None
+    try:
+        return name, make_prior(parts[0], a, b)
+    except ValueError as err:
+        raise ValueError(f"prior {text!r}: {err}") from None
+
+
+def parse_agent_arg(text: str) -> dict[str, Any]:
+    """'name' or 'name:p=v,q=w' -> agent spec dict; bad syntax raises ValueError naming it."""
+    name, _, rest = text.partition(":")
+    if not name:
+        raise ValueError(f"agent {text!r}: missing agent name before ':'")
+    params: dict[str, Any] = {}
+    for item in filter(None, rest.split(",")):
+        key, eq, value = item.partition("=")
+        if not eq or not key:
+            raise ValueError(f"agent {text!r}: parameter {item!r} must look like name=value")
+        try:
+            params[key] = float(value)
+        except ValueError:
+            raise ValueError(f"agent {text!r}: parameter {key} value {value!r} is not a number") from None
+    return {"name": name, "params": params}
+
+
+def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
+    """Options shared by the analysis subcommands."""
+    p.add_argument("--scenario", default=None, help="scenario preset or YAML whose commands the log names")
+    if models:
+        p.add_argument("--model", action="append", required=True, help=MODEL_HELP)
+    p.add_argument("--starts", type=int, default=10, help="optimiser starts per participant x model")
+    p.add_argument("--seed", type=int, default=0, help="seed of the random starts (and simulations)")
+    p.add_argument("--jobs", type=int, default=1, help="worker processes")
+    p.add_argument("--out", type=Path, required=True, help="output folder (created)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def check_counts(args: argparse.Namespace, **extra: int) -> None:
+    """ValueError naming a count option below 1."""
+    for name, value in {"--starts": args.starts, "--jobs": args.jobs, **extra}.items():
+        if value < 1:
+            raise ValueError(f"{name} must be >= 1, got {value}")
+
+
+def models_of(args: argparse.Namespace) -> list[ModelSpec]:
+    """The ``--model`` options parsed; labels must be unique."""
+    specs = [parse_model(m) for m in args.model]
+    labels = [s.label for s in specs]
+    dup = {lab for lab in labels if labels.count(lab) > 1}
+    if dup:
+        raise ValueError(f"--model labels repeat: {sorted(dup)}; name them label=agent:...")
+    return specs
+
+
+def priors_of(texts: list[str] | None, specs: list[ModelSpec]) -> dict[str, dict]:
+    """``--prior label:param=family:a:b`` -> {label: {param: distribution}}."""
+    out: dict[str, dict] = {}
+    labels = {s.label for s in specs}
+    for text in texts or []:
+        label, colon, rest = text.partition(":")
+        if not colon or label not in labels:
+            raise ValueError(f"--prior {text!r} must start with a model label from {sorted(labels)} and ':'")
+        name, dist = parse_prior(rest)
+        out.setdefault(label, {})[name] = dist
+    return out

@@ -1,0 +1,65 @@
+"""The analysis of a log into one report folder: fit, compare, posterior-predictive check, knock-out."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from pathlib import Path
+
+import pandas as pd
+
+from shortcut_gym.lab.checks.predictive import plot_predictive, posterior_predictive
+from shortcut_gym.lab.checks.recovery import knockout_study
+from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
+from shortcut_gym.lab.fitting import context_for, fit_log
+from shortcut_gym.lab.report.markdown import markdown_table, write_index, write_table
+from shortcut_gym.lab.report.plots import plot_comparison
+from shortcut_gym.lab.report.sections import comparison_sections
+
+
+def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int = 10, seed: int = 0,
+                n_jobs: int = 1, n_sims: int = 50, block: str | int = "session", priors: dict | None = None,
+                knockout: str | None = None, progress: bool = False,
+                extra_sections: Sequence[tuple[str, str]] = (), extra_entries: Sequence[tuple[Path, str]] = (),
+                ) -> tuple[Path, dict[str, pd.DataFrame]]:
+    """Fit, compare, posterior-predictive check (and optional knock-out) of a validated log into ``out``.
+
+    ``index.md`` gives the findings (verdict, tables, plots) then the files; ``extra_sections`` and
+    ``extra_entries`` (already written) are added to it. Returns (index path, the tables by name).
+    """
+    out.mkdir(parents=True, exist_ok=True)
+    fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed, n_jobs, priors, progress)
+    table = comparison_table(fits)
+    summed = summed_criteria(fits)
+    bms = bms_of_fits(fits)
+    per, group = posterior_predictive(world, log, fits, specs, n_sims, seed, block)
+    entries = [
+        (write_table(fits, out, "fits"), "best fit per participant x model: ln L, k, n, AIC, BIC, param_*"),
+        (write_table(table, out, "comparison"), "per participant x model criteria, delta BIC, BIC rank"),
+        (write_table(summed, out, "summed_criteria"), "per model: summed ln L, AIC, BIC, participants won"),
+        (write_table(bms.table(), out, "bms"), "random-effects BMS: frequencies, exceedance, protected exceedance"),
+        (plot_comparison(summed, bms, out / "comparison.png"), "summed BIC differences and BMS"),
+        (write_table(per, out, "predictive_participants"), "hotkey share per block, data vs model, per participant"),
+        (write_table(group, out, "predictive_group"), "hotkey share per block: data mean vs model mean and band"),
+        (plot_predictive(group, out / "predictive.png"), "posterior-predictive check of hotkey use per block"),
+    ]
+    tables = {"fits": fits, "comparison": table, "summed": summed, "bms": bms.table(), "predictive": group}
+    sections = comparison_sections(summed, bms)
+    sections.append(("Posterior-predictive check",
+                     f"Hotkey share per {block} block, data against {n_sims} simulations of each fitted model "
+                     "on each participant's own schedule (`predictive_group.csv`).\n\n"
+                     "![posterior-predictive check](predictive.png)"))
+    if knockout is not None:
+        by_label = {s.label: s for s in specs}
+        if knockout not in by_label:
+            raise ValueError(f"knock-out model {knockout!r} is not among the fitted models {list(by_label)}")
+        ko, ko_fits = knockout_study(log, by_label[knockout], world, n_starts, seed, n_jobs, progress)
+        entries.append((write_table(ko, out, "knockout"), f"BIC change when each mechanism of {knockout} is removed"))
+        entries.append((write_table(ko_fits, out, "knockout_fits"), "fits of the knock-out variants"))
+        tables["knockout"] = ko
+        sections.append((f"Mechanism knock-out ({knockout})",
+                         "Summed BIC change when each mechanism is removed and the model refitted "
+                         "(positive: the data need the mechanism).\n\n"
+                         + markdown_table(ko[["mechanism", "delta_bic", "participants_worse", "participants"]])))
+    sections += list(extra_sections)
+    entries += list(extra_entries)
+    return write_index(out, entries, "Model analysis", sections), tables

@@ -1,0 +1,58 @@
+"""Report sections: (heading, Markdown body) pairs for ``index.md`` (verdict, tables, recovery)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from shortcut_gym.lab.compare import BMSResult
+from shortcut_gym.lab.report.markdown import markdown_table
+
+
+def parameter_recovery_section(label: str, summary: pd.DataFrame) -> tuple[str, str]:
+    """Report section of one model's parameter recovery (correlation, bias, RMSE per parameter)."""
+    cols = [c for c in ("parameter", "correlation", "bias", "rmse", "true_sd", "n") if c in summary.columns]
+    worst = summary.sort_values("correlation").iloc[0]
+    words = (f"Lowest true-fitted correlation: {worst['parameter']} ({worst['correlation']:.2f}). "
+             f"![true vs fitted](parameter_recovery_{label}.png)")
+    return (f"Parameter recovery ({label})", markdown_table(summary[cols]) + "\n\n" + words)
+
+
+def model_recovery_section(confusion: pd.DataFrame) -> tuple[str, str]:
+    """Report section of a model-recovery confusion matrix (rows generating, columns winning)."""
+    diagonal = float(np.mean([confusion.loc[m, m] for m in confusion.index if m in confusion.columns]))
+    return ("Model recovery", "Share of simulated participants won by each model (rows: the model that "
+            f"generated the data; columns: the winner by BIC). Mean diagonal {diagonal:.2f}.\n\n"
+            + markdown_table(confusion, index=True) + "\n\n![confusion](model_confusion.png)")
+
+
+def comparison_sections(summed: pd.DataFrame, bms: BMSResult) -> list[tuple[str, str]]:
+    """Report sections of a model comparison: the verdict in words, summed criteria, BMS, the plot."""
+    best = summed.sort_values("bic").reset_index(drop=True)
+    bms_table = bms.table()
+    ranked = bms_table.sort_values("protected_exceedance", ascending=False).reset_index(drop=True)
+    top = ranked.iloc[0]
+    words = f"Lowest summed BIC: **{best.loc[0, 'model']}**"
+    if len(best) > 1:
+        words += f" ({best.loc[1, 'bic'] - best.loc[0, 'bic']:.1f} below {best.loc[1, 'model']})"
+    risk = (f"Bayesian omnibus risk {top['bor']:.2f}, the probability that the models are equally "
+            "frequent")
+    if bms.bor_exact is not None:
+        risk += (f"; exact for this small group: {bms.bor_exact:.2f}, the variational value leans to equal "
+                 "frequencies when participants are few")
+    close = bms_table["protected_exceedance"] > top["protected_exceedance"] - 0.01  # within 0.01: no leader
+    if close.sum() > 1:
+        leaders = ", ".join(bms_table.loc[close, "model"])  # in the fitted order
+        words += (f". Random-effects model selection: no model leads ({leaders} are within 0.01 of the highest "
+                  f"protected exceedance probability, {top['protected_exceedance']:.2f}; {risk}).")
+    else:
+        words += (f". Random-effects model selection: **{top['model']}** has the highest protected exceedance "
+                  f"probability ({top['protected_exceedance']:.2f}; {risk}).")
+    words += (" Summed BIC assumes one model for everyone; the random-effects view allows each participant "
+              "their own.")
+    return [
+        ("Verdict", words),
+        ("Summed criteria", markdown_table(summed)),
+        ("Random-effects Bayesian model selection", markdown_table(bms_table, digits=3)
+         + "\n\n![summed BIC differences and BMS](comparison.png)"),
+    ]
