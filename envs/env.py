@@ -29,11 +29,12 @@ class CommandSelectionEnv(gym.Env):
     Keyword arguments: ``scenario``, ``costs``, ``memory`` (preset name, YAML path, dict or
     settings object), ``schedule`` (dict of schedule fields overriding the scenario's),
     ``observe_recall`` (expose the true recall probability), ``target_encoding``
-    ('onehot' | 'index'), ``render_mode`` ('ansi'). ``reset(options={'schedule': Schedule})``
+    ('onehot' | 'index'), ``render_mode`` ('ansi': a line of text; 'rgb_array': a picture of the
+    trial, see :mod:`shortcut_gym.envs.render`). ``reset(options={'schedule': Schedule})``
     replays a given schedule of targets.
     """
 
-    metadata = {"render_modes": ["ansi"], "render_fps": 4}
+    metadata = {"render_modes": ["ansi", "rgb_array"], "render_fps": 4}
 
     def __init__(
         self,
@@ -55,6 +56,7 @@ class CommandSelectionEnv(gym.Env):
         self._sim = BatchSimulator(self.world)
         self._act = np.zeros(1, dtype=np.int64)
         self._last: dict[str, Any] | None = None
+        self._painter: Any = None
 
     # ---- gymnasium API --------------------------------------------------------------------
     def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
@@ -109,8 +111,16 @@ class CommandSelectionEnv(gym.Env):
         truncated = t + 1 >= sim.horizon
         return sim.obs[0].copy(), float(sim.reward[0]), False, truncated, info
 
-    def render(self) -> str | None:
-        """ansi: a one-line summary of the last trial."""
+    def render(self) -> str | np.ndarray | None:
+        """ansi: a one-line summary of the last trial; rgb_array: a picture of it (H x W x 3 uint8)."""
+        if self.render_mode == "rgb_array":
+            from shortcut_gym.envs import render
+
+            if self._sim.n_users == 0:
+                raise RuntimeError("call reset() before render()")
+            if self._painter is None:
+                self._painter = render.BoardPainter(self.world.commands)
+            return self._painter.draw(render.scene_of(self._sim, self._last))
         if self.render_mode != "ansi":
             return None
         if self._last is None:
