@@ -17,11 +17,14 @@ Conventions for what an agent may read, so that a trial log can be replayed thro
 from __future__ import annotations
 
 import math
+import numbers
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+
+from shortcut_gym.envs.errors import ConfigError
 
 N_ACTIONS = 3
 #: Extra entropy word that separates an agent's random stream from the environment's: the env
@@ -54,10 +57,18 @@ class ParamSpec:
     doc: str = ""
 
     def check(self, value: float, owner: str = "agent") -> float:
-        """Return ``value`` as float or raise ValueError naming the parameter and its bounds."""
+        """Return ``value`` as float or raise :class:`ConfigError` naming the parameter and its bounds.
+
+        A value must be a finite real number (a bool, a string or inf/NaN is refused).
+        """
+        scalar = isinstance(value, np.ndarray) and value.ndim == 0 and value.dtype.kind in "iuf"
+        if isinstance(value, (bool, np.bool_)) or not (isinstance(value, numbers.Real) or scalar):
+            raise ConfigError(f"{owner}: parameter {self.name} must be a number, got {value!r}")
         v = float(value)
-        if not (self.lower <= v <= self.upper) or math.isnan(v):
-            raise ValueError(f"{owner}: parameter {self.name}={value!r} is outside [{self.lower}, {self.upper}]")
+        if not math.isfinite(v):
+            raise ConfigError(f"{owner}: parameter {self.name} must be a finite number, got {value!r}")
+        if not self.lower <= v <= self.upper:
+            raise ConfigError(f"{owner}: parameter {self.name}={value!r} is outside [{self.lower}, {self.upper}]")
         return v
 
     def to_free(self, value: float) -> float:
@@ -118,7 +129,7 @@ class Agent(ABC):
         specs = self.param_specs()
         unknown = set(params) - set(specs)
         if unknown:
-            raise ValueError(f"{self.name}: unknown parameter(s) {sorted(unknown)}; known: {sorted(specs)}")
+            raise ConfigError(f"{self.name}: unknown parameter(s) {sorted(unknown)}; known: {sorted(specs)}")
         self.params: dict[str, float] = {n: s.check(params.get(n, s.default), self.name) for n, s in specs.items()}
         self.rng = np.random.default_rng()
 

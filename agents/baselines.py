@@ -6,7 +6,8 @@ from typing import Any
 
 import numpy as np
 
-from shortcut_gym.agents.base import Agent, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import HOTKEY, LEARN, MENU
 
 
@@ -42,10 +43,13 @@ class LearnFirstK(Agent):
     def param_specs(self) -> dict[str, ParamSpec]:
         return {"k": ParamSpec("k", 1.0, 0.0, 1000.0, "none", "learning trials per command (integer)")}
 
+    def __init__(self, context: AgentContext | None = None, **params: float) -> None:
+        super().__init__(context, **params)
+        if self.params["k"] != int(self.params["k"]):
+            raise ConfigError(f"{self.name}: parameter k must be a whole number, got {self.params['k']}")
+
     def reset(self, seed: int | None = None) -> None:
         super().reset(seed)
-        if self.params["k"] != int(self.params["k"]):
-            raise ValueError(f"{self.name}: parameter k must be a whole number, got {self.params['k']}")
         self.uses: dict[int, int] = {}
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:

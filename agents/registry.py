@@ -5,8 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-import yaml
-
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
 from shortcut_gym.agents.learning import ChoiceKernelAgent, RescorlaWagnerAgent, RWChoiceKernelAgent
@@ -14,6 +12,8 @@ from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.agents.sb3 import A2CAgent, DQNAgent, PPOAgent
 from shortcut_gym.agents.static_softmax import StaticSoftmax
 from shortcut_gym.agents.tabular import QLearningAgent, SarsaAgent
+from shortcut_gym.envs.config import read_yaml
+from shortcut_gym.envs.errors import ConfigError, ShortcutGymError
 
 AGENTS: dict[str, type[Agent]] = {}
 
@@ -33,10 +33,23 @@ for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax, 
 
 
 def make_agent(name: str, context: AgentContext | None = None, **params: Any) -> Agent:
-    """Build a registered agent; unknown names and parameters raise ValueError naming them."""
-    if name not in AGENTS:
-        raise ValueError(f"unknown agent {name!r}; registered: {sorted(AGENTS)}")
-    return AGENTS[name](context, **params)
+    """Build a registered agent; unknown names and bad parameters raise :class:`ConfigError` naming them.
+
+    A constructor's own ValueError (a bad option value) and a TypeError about its arguments are
+    the caller's mistake too, and come back as ConfigError naming the agent.
+    """
+    if not isinstance(name, str) or name not in AGENTS:
+        raise ConfigError(f"unknown agent {name!r}; registered: {sorted(AGENTS)}")
+    try:
+        return AGENTS[name](context, **params)
+    except ShortcutGymError:
+        raise
+    except ValueError as err:
+        raise ConfigError(f"{name}: {err}") from err
+    except TypeError as err:
+        if "argument" not in str(err):
+            raise
+        raise ConfigError(f"{name}: {err}") from err
 
 
 def agent_from_spec(spec: dict[str, Any] | str | Path, context: AgentContext | None = None) -> Agent:
@@ -46,15 +59,20 @@ def agent_from_spec(spec: dict[str, Any] | str | Path, context: AgentContext | N
         source = str(spec)
         path = Path(spec)
         if not path.is_file():
-            raise ValueError(f"{source}: no such agent spec file")
-        spec = yaml.safe_load(path.read_text())
+            raise ConfigError(f"{source}: no such agent spec file")
+        spec = read_yaml(path)
     if not isinstance(spec, dict) or "name" not in spec:
-        raise ValueError(f"{source}: an agent spec needs a 'name' key, got {spec!r}")
+        raise ConfigError(f"{source}: an agent spec needs a 'name' key, got {spec!r}")
     extra = {k: v for k, v in spec.items() if k not in ("name", "params")}
-    params = dict(spec.get("params") or {})
+    params = spec.get("params")
+    if params is None:
+        params = {}
     if not isinstance(params, dict):
-        raise ValueError(f"{source}: 'params' must be a mapping, got {params!r}")
+        raise ConfigError(f"{source}: 'params' must be a mapping, got {params!r}")
+    clash = sorted(set(params) & set(extra))
+    if clash:
+        raise ConfigError(f"{source}: {clash} given both under 'params' and beside it")
     try:
         return make_agent(spec["name"], context, **extra, **params)
-    except (TypeError, ValueError) as err:
-        raise ValueError(f"{source}: {err}") from None
+    except ConfigError as err:
+        raise ConfigError(f"{source}: {err}") from None

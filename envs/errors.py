@@ -1,9 +1,27 @@
-"""Error types of the world package."""
+"""Error types of the package: every user's mistake derives from :class:`ShortcutGymError`.
+
+A :class:`ShortcutGymError` means bad input (a config value, an action, a trial log, a sweep
+spec or folder, a backend setting, a command-line option): its message names what is wrong and
+where, and the command line reports it in one line with exit code 2. Any other exception is a
+bug of the package and keeps its traceback.
+"""
 
 
-class ConfigError(ValueError):
+class ShortcutGymError(Exception):
+    """Base of every error caused by the user's input; the message names the fault."""
+
+
+class ConfigError(ShortcutGymError, ValueError):
     """A configuration value is invalid; the message names the field and the value."""
 
 
-class ActionError(ValueError):
+class ActionError(ShortcutGymError, ValueError):
     """An action given to the environment is not one of its actions."""
+
+
+class InputFileError(ShortcutGymError, FileNotFoundError):
+    """An input file the user named does not exist or cannot be read; the message names it."""
+
+
+class UsageError(ShortcutGymError, RuntimeError):
+    """An object was used out of order (e.g. ``step`` before ``reset``); the message says what to call."""

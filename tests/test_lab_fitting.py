@@ -129,7 +129,7 @@ def test_cli_fit_compare_and_errors(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "bad.csv, row 4, column 'action': unknown action 'voice'" in err
     assert main(["fit", str(path), "--model", "static_softmax", "--starts", "0", "--out", str(tmp_path / "g")]) == 2
-    assert "--starts must be >= 1" in capsys.readouterr().err
+    assert "fit: error: argument --starts: must be a whole number >= 1, got 0" in capsys.readouterr().err
 
 
 @pytest.mark.parametrize("sub", ["fit", "compare", "recover", "report"])

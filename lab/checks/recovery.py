@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 from shortcut_gym.lab.checks.predictive import simulate_log
 from shortcut_gym.lab.data.logs import validate_log
@@ -121,7 +122,7 @@ def knockout_variants(spec: ModelSpec) -> list[tuple[str, ModelSpec]]:
     agent = spec.build()
     mechanisms = list(getattr(agent, "mechanisms", ()))
     if not mechanisms:
-        raise ValueError(f"model {spec.label!r} ({spec.name}) has no switchable mechanisms to knock out")
+        raise ConfigError(f"model {spec.label!r} ({spec.name}) has no switchable mechanisms to knock out")
     out = []
     for m in mechanisms:
         options: dict[str, Any] = {k: v for k, v in spec.options.items() if k not in ("mechanisms", "without")}

@@ -11,6 +11,8 @@ import argparse
 import importlib
 import sys
 
+from shortcut_gym.envs.errors import ShortcutGymError
+
 COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cli.simulate",
     "shortcut_gym.lab.cli.sweep",
@@ -22,13 +24,28 @@ COMMAND_MODULES: list[str] = [
 ]
 
 
-class CLIError(ValueError):
+class CLIError(ShortcutGymError, ValueError):
     """A bad command-line value; the message names the option and the value."""
+
+
+def one_line(err: BaseException) -> str:
+    """The error's message on one line (a multi-line message's lines joined by '; ')."""
+    lines = [line.strip() for line in str(err).splitlines() if line.strip()]
+    return "; ".join(lines) or type(err).__name__
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose faults raise :class:`CLIError` (one line, exit 2 from ``main``)."""
+
+    def error(self, message: str):  # type: ignore[override]
+        err = CLIError(f"{message} (see '{self.prog} --help')")
+        err.prog = self.prog  # type: ignore[attr-defined]
+        raise err
 
 
 def build_parser() -> argparse.ArgumentParser:
     """The full argument parser with every registered subcommand."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="shortcut-gym",
         description="Simulate, fit, compare and sweep models of menu-to-hotkey transitions.",
     )
@@ -40,16 +57,22 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run the CLI; returns the process exit code (2 for bad input)."""
+    """Run the CLI; returns the process exit code.
+
+    A user's mistake (any :class:`ShortcutGymError`) prints one line naming the fault and returns 2;
+    any other exception is a bug and propagates with its traceback.
+    """
     parser = build_parser()
-    args = parser.parse_args(argv)
+    command = "shortcut-gym"
     try:
+        args = parser.parse_args(argv)
+        command = f"shortcut-gym {args.command}"
         return int(args.func(args) or 0)
     except CLIError as err:
-        print(f"shortcut-gym {args.command}: error: {err}", file=sys.stderr)
+        print(f"{getattr(err, 'prog', command)}: error: {one_line(err)}", file=sys.stderr)
         return 2
-    except (ValueError, KeyError, FileNotFoundError) as err:
-        print(f"shortcut-gym {args.command}: error: {err}", file=sys.stderr)
+    except ShortcutGymError as err:
+        print(f"{command}: error: {one_line(err)}", file=sys.stderr)
         return 2
 
 

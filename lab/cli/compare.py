@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
 import pandas as pd
 
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.lab.cli import CLIError, one_line
+from shortcut_gym.lab.cli.ranges import input_file, output_folder, positive_number
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
 from shortcut_gym.lab.report import comparison_sections, plot_comparison, write_index, write_table
 
@@ -14,24 +16,23 @@ from shortcut_gym.lab.report import comparison_sections, plot_comparison, write_
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``compare`` subcommand."""
     p = sub.add_parser("compare", help="compare models from a fits.csv written by 'fit'")
-    p.add_argument("fits", type=Path, help="fits.csv from 'shortcut-gym fit'")
-    p.add_argument("--prior-count", type=float, default=1.0,
+    p.add_argument("fits", type=input_file, help="fits.csv from 'shortcut-gym fit'")
+    p.add_argument("--prior-count", type=positive_number, default=1.0,
                    help="Dirichlet prior count per model for the BMS (default 1)")
-    p.add_argument("--out", type=Path, required=True, help="output folder (created)")
+    p.add_argument("--out", type=output_folder, required=True, help="output folder (created)")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     """Write comparison.csv, summed_criteria.csv, bms.csv and comparison.png."""
-    if not args.fits.is_file():
-        raise FileNotFoundError(f"{args.fits}: no such fits file")
-    if not args.prior_count > 0:
-        raise ValueError(f"--prior-count must be > 0, got {args.prior_count}")
-    fits = pd.read_csv(args.fits, dtype={"participant": str})
+    try:
+        fits = pd.read_csv(args.fits, dtype={"participant": str}, keep_default_na=False, na_values={"": ""})
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
+        raise CLIError(f"{args.fits}: not a readable fits table ({one_line(err)})") from None
     try:
         table, summed, bms = comparison_table(fits), summed_criteria(fits), bms_of_fits(fits, args.prior_count)
-    except ValueError as err:
-        raise ValueError(f"{args.fits}: {err}") from None
+    except ConfigError as err:
+        raise CLIError(f"{args.fits}: {err}") from None
     args.out.mkdir(parents=True, exist_ok=True)
     entries = [
         (write_table(table, args.out, "comparison"), "per participant x model criteria"),

@@ -3,10 +3,10 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.cli.options import add_common, check_counts, models_of, priors_of
+from shortcut_gym.lab.cli.options import add_common, models_of, priors_of
+from shortcut_gym.lab.cli.ranges import input_file
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.fitting import context_for, fit_log
 
@@ -14,7 +14,7 @@ from shortcut_gym.lab.fitting import context_for, fit_log
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``fit`` subcommand."""
     p = sub.add_parser("fit", help="fit models to a trial log by maximum likelihood (or MAP with --prior)")
-    p.add_argument("log", type=Path, help="trial log (.csv or .parquet)")
+    p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
     add_common(p)
     p.add_argument("--prior", action="append", default=None,
                    help="label:param=family:a:b (normal, beta, gamma, lognormal) for a MAP fit (repeatable)")
@@ -23,7 +23,6 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Fit and write ``fits.csv``."""
-    check_counts(args)
     world = make_world(args.scenario)
     specs = models_of(args)
     priors = priors_of(args.prior, specs)

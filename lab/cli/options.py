@@ -1,5 +1,7 @@
 """Option and spec parsing shared by the subcommands (the one place CLI strings are read).
 
+Every fault raises :class:`CLIError` naming the option text; ranges and paths: :mod:`.ranges`.
+
 * ``--model [label=]agent[:key=value,...]``: keys that are parameters are held fixed, others are
   constructor options; a value with '+' is a list (``mechanisms=value+memory_aware+lapse``).
 * ``--agent name[:param=value,...]``: an agent spec for simulation.
@@ -9,10 +11,12 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 from typing import Any
 
 from shortcut_gym.agents.registry import AGENTS, make_agent
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
 from shortcut_gym.lab.fitting import PRIOR_FAMILIES, ModelSpec, make_prior
 
 MODEL_HELP = ("model as [label=]agent[:key=value,...]; keys that are parameters are held fixed, others are "
@@ -44,25 +48,25 @@ def parse_model(text: str) -> ModelSpec:
         label, rest = "", text
     name, _, args = rest.partition(":")
     if not name:
-        raise ValueError(f"model {text!r}: missing agent name")
+        raise CLIError(f"model {text!r}: missing agent name")
     if name not in AGENTS:
-        raise ValueError(f"model {text!r}: unknown agent {name!r}; registered: {sorted(AGENTS)}")
+        raise CLIError(f"model {text!r}: unknown agent {name!r}; registered: {sorted(AGENTS)}")
     options: dict[str, Any] = {}
     fixed: dict[str, float] = {}
     for item in filter(None, args.split(",")):
         key, eq2, value = item.partition("=")
         if not eq2 or not key:
-            raise ValueError(f"model {text!r}: {item!r} must look like key=value")
+            raise CLIError(f"model {text!r}: {item!r} must look like key=value")
         options[key] = parse_value(value)
     try:
         probe = make_agent(name, **{k: v for k, v in options.items() if not isinstance(v, float)})
-    except (TypeError, ValueError) as err:
-        raise ValueError(f"model {text!r}: {err}") from None
+    except ConfigError as err:
+        raise CLIError(f"model {text!r}: {err}") from None
     for key in list(options):
         if key in probe.param_specs():
             value = options.pop(key)
             if not isinstance(value, float):
-                raise ValueError(f"model {text!r}: parameter {key} value {value!r} is not a number")
+                raise CLIError(f"model {text!r}: parameter {key} value {value!r} is not a number")
             fixed[key] = value
     return ModelSpec(name, label or "", options, fixed)
 
@@ -75,31 +79,31 @@ def parse_prior(text: str) -> tuple[str, Any]:
     name, eq, rest = text.partition("=")
     parts = rest.split(":")
     if not eq or not name or len(parts) != 3 or parts[0] not in PRIOR_FAMILIES:
-        raise ValueError(f"prior {text!r} must look like name=family:a:b with family in {sorted(PRIOR_FAMILIES)}")
+        raise CLIError(f"prior {text!r} must look like name=family:a:b with family in {sorted(PRIOR_FAMILIES)}")
     try:
         a, b = float(parts[1]), float(parts[2])
     except ValueError:
-        raise ValueError(f"prior {text!r}: {parts[1]!r} and {parts[2]!r} must be numbers") from None
+        raise CLIError(f"prior {text!r}: {parts[1]!r} and {parts[2]!r} must be numbers") from None
     try:
         return name, make_prior(parts[0], a, b)
-    except ValueError as err:
-        raise ValueError(f"prior {text!r}: {err}") from None
+    except ValueError as err:  # make_prior's faults are all about the numbers given
+        raise CLIError(f"prior {text!r}: {err}") from None
 
 
 def parse_agent_arg(text: str) -> dict[str, Any]:
     """'name' or 'name:p=v,q=w' -> agent spec dict; bad syntax raises ValueError naming it."""
     name, _, rest = text.partition(":")
     if not name:
-        raise ValueError(f"agent {text!r}: missing agent name before ':'")
+        raise CLIError(f"agent {text!r}: missing agent name before ':'")
     params: dict[str, Any] = {}
     for item in filter(None, rest.split(",")):
         key, eq, value = item.partition("=")
         if not eq or not key:
-            raise ValueError(f"agent {text!r}: parameter {item!r} must look like name=value")
+            raise CLIError(f"agent {text!r}: parameter {item!r} must look like name=value")
         try:
             params[key] = float(value)
         except ValueError:
-            raise ValueError(f"agent {text!r}: parameter {key} value {value!r} is not a number") from None
+            raise CLIError(f"agent {text!r}: parameter {key} value {value!r} is not a number") from None
     return {"name": name, "params": params}
 
 
@@ -108,18 +112,11 @@ def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
     p.add_argument("--scenario", default=None, help="scenario preset or YAML whose commands the log names")
     if models:
         p.add_argument("--model", action="append", required=True, help=MODEL_HELP)
-    p.add_argument("--starts", type=int, default=10, help="optimiser starts per participant x model")
-    p.add_argument("--seed", type=int, default=0, help="seed of the random starts (and simulations)")
-    p.add_argument("--jobs", type=int, default=1, help="worker processes")
-    p.add_argument("--out", type=Path, required=True, help="output folder (created)")
+    p.add_argument("--starts", type=whole_number(1), default=10, help="optimiser starts per participant x model")
+    p.add_argument("--seed", type=seed, default=0, help="seed of the random starts (and simulations)")
+    p.add_argument("--jobs", type=whole_number(1), default=1, help="worker processes")
+    p.add_argument("--out", type=output_folder, required=True, help="output folder (created)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
-
-
-def check_counts(args: argparse.Namespace, **extra: int) -> None:
-    """ValueError naming a count option below 1."""
-    for name, value in {"--starts": args.starts, "--jobs": args.jobs, **extra}.items():
-        if value < 1:
-            raise ValueError(f"{name} must be >= 1, got {value}")
 
 
 def models_of(args: argparse.Namespace) -> list[ModelSpec]:
@@ -128,7 +125,7 @@ def models_of(args: argparse.Namespace) -> list[ModelSpec]:
     labels = [s.label for s in specs]
     dup = {lab for lab in labels if labels.count(lab) > 1}
     if dup:
-        raise ValueError(f"--model labels repeat: {sorted(dup)}; name them label=agent:...")
+        raise CLIError(f"--model labels repeat: {sorted(dup)}; name them label=agent:...")
     return specs
 
 
@@ -139,7 +136,7 @@ def priors_of(texts: list[str] | None, specs: list[ModelSpec]) -> dict[str, dict
     for text in texts or []:
         label, colon, rest = text.partition(":")
         if not colon or label not in labels:
-            raise ValueError(f"--prior {text!r} must start with a model label from {sorted(labels)} and ':'")
-        name, dist = parse_prior(rest)
+            raise CLIError(f"--prior {text!r} must start with a model label from {sorted(labels)} and ':'")
+        name, dist = parse_prior(rest)  # raises CLIError naming the text
         out.setdefault(label, {})[name] = dist
     return out

@@ -6,7 +6,9 @@ import argparse
 
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.recovery import model_recovery, parameter_recovery
-from shortcut_gym.lab.cli.options import add_common, check_counts, models_of
+from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.options import add_common, models_of
+from shortcut_gym.lab.cli.ranges import whole_number
 from shortcut_gym.lab.report import (
     model_recovery_section,
     parameter_recovery_section,
@@ -21,7 +23,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``recover`` subcommand."""
     p = sub.add_parser("recover", help="simulate with known parameters/models, refit, report recovery")
     add_common(p)
-    p.add_argument("--participants", type=int, default=20, help="simulated participants per model")
+    p.add_argument("--participants", type=whole_number(1), default=20, help="simulated participants per model")
     p.add_argument("--study", choices=["parameters", "models", "both"], default="both",
                    help="parameter recovery per model, model-recovery confusion matrix, or both")
     p.set_defaults(func=run)
@@ -29,9 +31,10 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Write recovery tables and plots."""
-    check_counts(args, **{"--participants": args.participants})
     world = make_world(args.scenario)
     specs = models_of(args)
+    if args.study in ("models", "both") and len(specs) < 2:
+        raise CLIError("model recovery (--study models or both) needs at least two --model options")
     args.out.mkdir(parents=True, exist_ok=True)
     entries = []
     sections = []
@@ -47,8 +50,6 @@ def run(args: argparse.Namespace) -> int:
             sections.append(parameter_recovery_section(spec.label, summary))
             print(summary.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     if args.study in ("models", "both"):
-        if len(specs) < 2:
-            raise ValueError("model recovery needs at least two --model options")
         confusion, fits = model_recovery(world, specs, args.participants, args.seed, args.starts, args.jobs,
                                          progress=not args.quiet)
         entries.append((write_table(confusion, args.out, "model_confusion", index=True),

@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.cli.options import add_common, check_counts, models_of, priors_of
+from shortcut_gym.lab.cli.options import add_common, models_of, priors_of
+from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.report import analyse_log
 
@@ -14,18 +15,21 @@ def _block(text: str) -> str | int:
     if text == "session":
         return text
     try:
-        return int(text)
+        value = int(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"--block must be 'session' or a number of trials, got {text!r}") from None
+        value = 0
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be 'session' or a whole number of trials >= 1, got {text!r}")
+    return value
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``report`` subcommand."""
     p = sub.add_parser("report", help="fit + compare + posterior-predictive check (+ knock-out) into a folder")
-    p.add_argument("log", help="trial log (.csv or .parquet)")
+    p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
     add_common(p)
     p.add_argument("--prior", action="append", default=None, help="label:param=family:a:b (MAP), repeatable")
-    p.add_argument("--sims", type=int, default=50, help="simulated replicates per participant x model")
+    p.add_argument("--sims", type=whole_number(1), default=50, help="simulated replicates per participant x model")
     p.add_argument("--block", type=_block, default="session", help="'session' or trials per block")
     p.add_argument("--knockout", default=None, help="label of a learning model whose mechanisms to knock out")
     p.set_defaults(func=run)
@@ -33,7 +37,6 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Write the report folder and print the summed criteria."""
-    check_counts(args, **{"--sims": args.sims})
     world = make_world(args.scenario)
     specs = models_of(args)
     log = read_log(args.log, world.commands)

@@ -5,10 +5,25 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import parse_agent_arg
+from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, output_folder, seed, whole_number
 from shortcut_gym.lab.data.logs import log_format, log_from_simulation, write_log
 from shortcut_gym.lab.simulate import session_summary, simulate_agents
+
+#: Most simulated users per agent one ``simulate`` call runs (the trial table is held in memory).
+MAX_USERS = 100_000
+
+
+def _log_path(text: str) -> Path:
+    path = output_file(text)
+    try:
+        log_format(path)
+    except ConfigError as err:
+        raise argparse.ArgumentTypeError(str(err)) from None
+    return path
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -19,10 +34,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
     p.add_argument("--agent", action="append", default=None,
                    help="agent as name or name:param=value,... (repeatable; default: the baselines)")
-    p.add_argument("--users", type=int, default=5, help="simulated users per agent")
-    p.add_argument("--seed", type=int, default=0, help="first seed; users get seed, seed+1, ...")
-    p.add_argument("--out", type=Path, default=None, help="folder for trials.parquet and summary.csv")
-    p.add_argument("--log", type=Path, default=None,
+    p.add_argument("--users", type=whole_number(1, MAX_USERS), default=5, help="simulated users per agent")
+    p.add_argument("--seed", type=seed, default=0, help="first seed; users get seed, seed+1, ...")
+    p.add_argument("--out", type=output_folder, default=None, help="folder for trials.parquet and summary.csv")
+    p.add_argument("--log", type=_log_path, default=None,
                    help="also write the trials as a trial log (.csv or .parquet) that 'fit' reads; "
                         "participants are named <agent>-u<seed>")
     p.set_defaults(func=run)
@@ -30,13 +45,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Simulate, print the session table, optionally write the outputs."""
-    if args.users < 1:
-        raise ValueError(f"--users must be >= 1, got {args.users}")
-    if args.log is not None:
-        try:
-            log_format(args.log)
-        except ValueError as err:
-            raise ValueError(f"--log {err}") from None
+    if args.seed + args.users - 1 > MAX_SEED:
+        raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
     world = make_world(args.scenario, args.costs, args.memory)
     agents = args.agent or ["always_menu", "always_hotkey", "learn_first_k:k=1"]
     specs = [parse_agent_arg(a) for a in agents]

@@ -5,20 +5,23 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.ranges import output_folder, whole_number
 from shortcut_gym.lab.sweep.backends import BackendError
 
 
-class SweepArgumentError(ValueError):
-    """A bad ``sweep`` option (a ValueError, so the CLI exits 2 however it was started)."""
+class SweepArgumentError(CLIError):
+    """A bad ``sweep`` option (the CLI exits 2 naming it)."""
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``sweep`` subcommand."""
     p = sub.add_parser("sweep", help="run a sweep spec (configs/sweeps/*.yaml) into a resumable folder")
     p.add_argument("spec", help="sweep spec YAML path, or the name of a bundled spec")
-    p.add_argument("--out", type=Path, default=None, help="sweep folder (default: out/sweeps/<spec name>)")
+    p.add_argument("--out", type=output_folder, default=None, help="sweep folder (default: out/sweeps/<spec name>)")
     p.add_argument("--backend", choices=["local", "ray"], default="local", help="where runs are computed")
-    p.add_argument("--workers", type=int, default=None, help="worker processes / Ray CPUs (default: all cores)")
+    p.add_argument("--workers", type=whole_number(1), default=None,
+                   help="worker processes / Ray CPUs (default: all cores)")
     p.add_argument("--address", default=None, help="Ray cluster to attach to (host:port, ray://host:port, auto)")
     p.add_argument("--retry-failed", action="store_true", help="recompute runs recorded as failed")
     p.add_argument("--plan-only", action="store_true", help="validate the spec and list its runs; write nothing")
@@ -32,8 +35,6 @@ def run(args: argparse.Namespace) -> int:
     from shortcut_gym.lab.sweep.runner import run_sweep
     from shortcut_gym.lab.sweep.spec import load_spec
 
-    if args.workers is not None and args.workers < 1:
-        raise SweepArgumentError(f"--workers must be >= 1, got {args.workers}")
     if args.address is not None and args.backend != "ray":
         raise SweepArgumentError("--address applies to --backend ray only")
     spec = load_spec(args.spec)

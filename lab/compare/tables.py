@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.compare.bms import BMSResult, random_effects_bms
 
 
@@ -17,7 +18,7 @@ def comparison_table(fits: pd.DataFrame) -> pd.DataFrame:
     need = ["participant", "model", "loglik", "n_params", "n_trials", "aic", "bic"]
     missing = [c for c in need if c not in fits.columns]
     if missing:
-        raise ValueError(f"fit table lacks column(s) {missing}")
+        raise ConfigError(f"fit table lacks column(s) {missing}")
     t = fits[need].copy()
     t["delta_bic"] = t["bic"] - t.groupby("participant")["bic"].transform("min")
     t["delta_aic"] = t["aic"] - t.groupby("participant")["aic"].transform("min")
@@ -40,11 +41,11 @@ def log_evidence_matrix(fits: pd.DataFrame) -> tuple[np.ndarray, list[str], list
     wide = fits.pivot(index="participant", columns="model", values="bic")
     if wide.isna().any().any():
         p, m = np.argwhere(wide.isna().to_numpy())[0]
-        raise ValueError(f"no BIC for participant {wide.index[p]!r}, model {wide.columns[m]!r}")
+        raise ConfigError(f"no BIC for participant {wide.index[p]!r}, model {wide.columns[m]!r}")
     values = -0.5 * wide.to_numpy(dtype=float)
     if not np.isfinite(values).all():
         p, m = np.argwhere(~np.isfinite(values))[0]
-        raise ValueError(f"BIC of participant {wide.index[p]!r}, model {wide.columns[m]!r} is not finite")
+        raise ConfigError(f"BIC of participant {wide.index[p]!r}, model {wide.columns[m]!r} is not finite")
     return values, [str(i) for i in wide.index], [str(c) for c in wide.columns]
 
 

@@ -25,6 +25,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.envs.errors import ConfigError, InputFileError, ShortcutGymError
 from shortcut_gym.envs.kernel import ACTION_NAMES, OUTCOME_NAMES
 from shortcut_gym.envs.task import CommandSet, Schedule
 
@@ -60,7 +61,7 @@ class LogFault:
         return f"{', '.join(where)}: {self.message}"
 
 
-class LogError(ValueError):
+class LogError(ShortcutGymError, ValueError):
     """A trial log has faults; ``faults`` lists each one, the message shows them."""
 
     def __init__(self, faults: list[LogFault]) -> None:
@@ -82,7 +83,7 @@ def log_format(path: str | Path) -> str:
     """'csv' or 'parquet' by the suffix of ``path``; a ValueError naming the file otherwise."""
     suffix = Path(path).suffix.lower()
     if suffix not in LOG_FORMATS:
-        raise ValueError(f"{path}: {_unknown_type(suffix)}")
+        raise ConfigError(f"{path}: {_unknown_type(suffix)}")
     return LOG_FORMATS[suffix]
 
 
@@ -90,7 +91,7 @@ def read_log_table(path: str | Path) -> pd.DataFrame:
     """Read a CSV (``.csv``) or Parquet (``.parquet``/``.pq``) file as it is, without validation."""
     p = Path(path)
     if not p.is_file():
-        raise FileNotFoundError(f"{p}: no such trial log file")
+        raise InputFileError(f"{p}: no such trial log file")
     fmt = LOG_FORMATS.get(p.suffix.lower())
     if fmt is None:
         raise LogError([LogFault(str(p), None, None, _unknown_type(p.suffix.lower()))])

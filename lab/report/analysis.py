@@ -7,8 +7,9 @@ from pathlib import Path
 
 import pandas as pd
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.checks.predictive import plot_predictive, posterior_predictive
-from shortcut_gym.lab.checks.recovery import knockout_study
+from shortcut_gym.lab.checks.recovery import knockout_study, knockout_variants
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
 from shortcut_gym.lab.fitting import context_for, fit_log
 from shortcut_gym.lab.report.markdown import markdown_table, write_index, write_table
@@ -26,6 +27,11 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     ``index.md`` gives the findings (verdict, tables, plots) then the files; ``extra_sections`` and
     ``extra_entries`` (already written) are added to it. Returns (index path, the tables by name).
     """
+    by_label = {s.label: s for s in specs}
+    if knockout is not None:  # checked before any fit is made
+        if knockout not in by_label:
+            raise ConfigError(f"knock-out model {knockout!r} is not among the fitted models {list(by_label)}")
+        knockout_variants(by_label[knockout])
     out.mkdir(parents=True, exist_ok=True)
     fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed, n_jobs, priors, progress)
     table = comparison_table(fits)
@@ -49,9 +55,6 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
                      "on each participant's own schedule (`predictive_group.csv`).\n\n"
                      "![posterior-predictive check](predictive.png)"))
     if knockout is not None:
-        by_label = {s.label: s for s in specs}
-        if knockout not in by_label:
-            raise ValueError(f"knock-out model {knockout!r} is not among the fitted models {list(by_label)}")
         ko, ko_fits = knockout_study(log, by_label[knockout], world, n_starts, seed, n_jobs, progress)
         entries.append((write_table(ko, out, "knockout"), f"BIC change when each mechanism of {knockout} is removed"))
         entries.append((write_table(ko_fits, out, "knockout_fits"), "fits of the knock-out variants"))

@@ -13,6 +13,7 @@ from collections.abc import Iterator
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from typing import Any
 
+from shortcut_gym.envs.errors import ShortcutGymError
 from shortcut_gym.lab.sweep.run import compute_run, compute_runs
 
 #: Most runs in one Ray task (see :meth:`RayBackend.run`).
@@ -21,7 +22,7 @@ MAX_RUNS_PER_TASK = 16
 RAY_CONNECT_TIMEOUT_S = 3.0
 
 
-class BackendError(RuntimeError):
+class BackendError(ShortcutGymError, RuntimeError):
     """A backend cannot start (bad worker count, unreachable cluster); the message says why."""
 
 
