@@ -4,14 +4,18 @@ An agent both drives simulation (``act``) and scores logged behaviour
 (``action_probabilities`` before the trial, then ``observe`` with the logged outcome), so the
 same object serves simulation and likelihood fitting.
 
-Conventions for what an agent may read, so that a trial log can be replayed through it:
+What an agent may read, so that a trial log can be replayed through it, is the typed ``info``
+contract of :mod:`shortcut_gym.envs.info`: before a trial :class:`~shortcut_gym.envs.info.UpcomingInfo`
+(``target``, ``target_name``, ``next_trial``, ``next_onset_s``, ``next_session``), after a trial
+``Transition.info`` is a :class:`~shortcut_gym.envs.info.StepInfo` (the finished trial's ``trial``,
+``session``, ``onset_s``, ``command``, ``action``, ``outcome``, ``duration_s``, plus the next
+trial's keys; simulation adds ``time_s`` and ``p_recall``, which a log does not have). A policy
+reads the upcoming trial's keys (``target``, ``next_*``), never the finished trial's ``session``.
+The observation vector is also given, in the layout of :mod:`shortcut_gym.envs.observation`.
 
-* before a trial, ``info`` holds ``target`` (command index), ``target_name``, ``next_trial``,
-  ``next_onset_s`` and ``next_session`` (all about the upcoming trial);
-  the observation vector is also given but log-replayable agents rely on ``info``;
-* after a trial, ``Transition.info`` holds ``trial``, ``session``, ``onset_s``, ``command``,
-  ``action``, ``outcome`` (one of ``OUTCOME_NAMES``) and ``duration_s``; simulation adds
-  ``time_s`` (operator breakdown) and ``p_recall``, which a log does not have.
+Capabilities beyond the protocol are declared by the Protocols at the end of this module
+(:class:`LikelihoodAgent`, :class:`BatchAgent` and the batch policies'), which the drivers and
+the fitting code check with ``isinstance``.
 """
 
 from __future__ import annotations
@@ -19,8 +23,9 @@ from __future__ import annotations
 import math
 import numbers
 from abc import ABC, abstractmethod
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, ClassVar, Protocol, runtime_checkable
 
 import numpy as np
 
@@ -123,6 +128,9 @@ class Agent(ABC):
 
     #: registry name
     name: str = "agent"
+    #: what ``likelihood_function`` takes, for agents that have one (:class:`LikelihoodAgent`):
+    #: "trial_arrays" (the lab's per-trial arrays of one participant) or "frame" (the frame itself)
+    likelihood_input: ClassVar[str] = "trial_arrays"
 
     def __init__(self, context: AgentContext | None = None, **params: float) -> None:
         self.context = context
@@ -160,3 +168,58 @@ class Agent(ABC):
     def spec(self) -> dict[str, Any]:
         """A dict that rebuilds this agent with :func:`shortcut_gym.agents.registry.make_agent`."""
         return {"name": self.name, "params": dict(self.params)}
+
+
+# ---- capabilities beyond the protocol -----------------------------------------------------------
+@runtime_checkable
+class LikelihoodAgent(Protocol):
+    """An agent with a fast (compiled or vectorised) log-likelihood of one participant's trials.
+
+    ``likelihood_function(trials)`` returns f(theta) -> ln L over the natural parameter vector in
+    ``param_specs()`` order; ``trials`` is what ``likelihood_input`` names. f must equal the sum of
+    ln ``action_probabilities`` of the logged actions when the log is replayed trial by trial.
+    """
+
+    likelihood_input: ClassVar[str]
+
+    def likelihood_function(self, trials: Any) -> Callable[[np.ndarray], float]: ...
+
+
+@runtime_checkable
+class BatchPolicy(Protocol):
+    """Many simulated users of one agent, one call per trial for all of them."""
+
+    def actions(self, targets: np.ndarray, obs: np.ndarray) -> np.ndarray:
+        """One action (B,) per user for its upcoming target (B,), given the observations (B, D)."""
+        ...
+
+    def observe(self, targets: np.ndarray, actions: np.ndarray, outcomes: np.ndarray,
+                durations_s: np.ndarray) -> None:
+        """Learn from the trial just run (outcome codes of ``OUTCOME_NAMES``, durations in seconds)."""
+        ...
+
+
+@runtime_checkable
+class SessionBatchPolicy(BatchPolicy, Protocol):
+    """A batch policy that reads each user's upcoming session (the driver calls ``set_session``
+    before every ``actions``)."""
+
+    def set_session(self, session: np.ndarray) -> None:
+        """Session index (B,) of every user's upcoming trial."""
+        ...
+
+
+@runtime_checkable
+class FusedBatchPolicy(BatchPolicy, Protocol):
+    """A batch policy that can also run a just-reset batched simulator to its horizon in one call,
+    returning the same per-user sums as the per-trial loop (:class:`~shortcut_gym.agents.rollout.UserSums`)."""
+
+    def run(self, sim: Any) -> Any: ...
+
+
+@runtime_checkable
+class BatchAgent(Protocol):
+    """An agent with a batch policy: user i of ``batch_policy(n_users, seeds)`` draws what the
+    agent reset with ``seeds[i]`` draws."""
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> BatchPolicy: ...

@@ -1,21 +1,51 @@
-"""Run an agent through an environment episode and collect a tidy trial table."""
+"""The one driver of agents: through a Gymnasium env (:func:`run_episode`) or through the batched
+simulator (:func:`drive_batch`), with a neutral per-user sums type (:class:`UserSums`).
+
+:func:`drive_batch` steps many users of a just-reset
+:class:`~shortcut_gym.envs.simulator.BatchSimulator` one kernel call per trial. An agent offering a
+batch policy (:class:`~shortcut_gym.agents.base.BatchAgent`) is driven as a whole batch; when only
+sums are asked for and its policy runs a whole simulation itself
+(:class:`~shortcut_gym.agents.base.FusedBatchPolicy`), that one call replaces the loop, with the
+same numbers. Any other agent is driven as one agent object per user, given exactly the
+observations, info dicts and transitions :func:`run_episode` gives it on ``CommandSelection-v0``.
+"""
 
 from __future__ import annotations
 
+import copy
 from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, fields
 
 import gymnasium as gym
+import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext, Transition
+from shortcut_gym.agents.base import (
+    N_ACTIONS,
+    Agent,
+    AgentContext,
+    BatchAgent,
+    BatchPolicy,
+    FusedBatchPolicy,
+    SessionBatchPolicy,
+    Transition,
+)
+from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
+from shortcut_gym.envs.kernel import N_OPS, OUTCOME_NAMES
+from shortcut_gym.envs.simulator import BatchSimulator
+from shortcut_gym.envs.world import World
 from shortcut_gym.envs.wrappers import TRIAL_COLUMNS, trial_row
+
+
+def context_of_world(world: World, horizon: int | None = None) -> AgentContext:
+    """World facts for binding an agent (``horizon``: trials per user, the world's by default)."""
+    return AgentContext(world.commands.n_commands, world.horizon if horizon is None else int(horizon),
+                        world.commands.names, tuple(world.observation_names()), world)
 
 
 def context_of(env: gym.Env) -> AgentContext:
     """World facts of a (possibly wrapped) CommandSelection env for binding an agent."""
-    world = env.unwrapped.world  # type: ignore[attr-defined]
-    return AgentContext(world.commands.n_commands, world.horizon, world.commands.names,
-                        tuple(world.observation_names()), world)
+    return context_of_world(env.unwrapped.world)  # type: ignore[attr-defined]
 
 
 def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials: int | None = None) -> pd.DataFrame:
@@ -60,3 +90,150 @@ def labelled_trial_table(env: gym.Env, agents: Iterable[tuple[str, Agent]], seed
             df.insert(0, "agent", label)
             frames.append(df)
     return pd.concat(frames, ignore_index=True)
+
+
+# ---- many users on the batched simulator ----------------------------------------------------------
+@dataclass
+class UserSums:
+    """Per-user sums of a batched rollout (session index as in the schedules; times in seconds)."""
+
+    trials: np.ndarray  # (users, sessions) int
+    time_s: np.ndarray  # (users, sessions)
+    outcomes: np.ndarray  # (users, sessions, outcomes) int, codes of OUTCOME_NAMES
+    actions: np.ndarray  # (users, sessions, actions) int
+    command_time_s: np.ndarray  # (users, commands)
+    command_uses: np.ndarray  # (users, commands) int
+
+    @classmethod
+    def zeros(cls, n_users: int, n_sessions: int, n_commands: int) -> UserSums:
+        """All-zero sums."""
+        return cls(trials=np.zeros((n_users, n_sessions), dtype=np.int64), time_s=np.zeros((n_users, n_sessions)),
+                   outcomes=np.zeros((n_users, n_sessions, len(OUTCOME_NAMES)), dtype=np.int64),
+                   actions=np.zeros((n_users, n_sessions, N_ACTIONS), dtype=np.int64),
+                   command_time_s=np.zeros((n_users, n_commands)),
+                   command_uses=np.zeros((n_users, n_commands), dtype=np.int64))
+
+    @classmethod
+    def concatenate(cls, parts: Sequence[UserSums]) -> UserSums:
+        """The users of several sums, in order."""
+        return cls(**{f.name: np.concatenate([getattr(p, f.name) for p in parts]) for f in fields(cls)})
+
+
+@dataclass
+class TrialRecord:
+    """Every trial of a batched rollout: (users, trials) arrays, ``operator_s`` (users, trials, operators)."""
+
+    action: np.ndarray
+    outcome: np.ndarray  # codes of OUTCOME_NAMES
+    duration_s: np.ndarray
+    p_recall: np.ndarray
+    operator_s: np.ndarray
+
+
+@dataclass
+class BatchRollout:
+    """What :func:`drive_batch` returns: the sums, and every trial when asked to keep them."""
+
+    sums: UserSums
+    trials: TrialRecord | None = None
+
+
+class _PolicyStepper:
+    """An agent's batch policy driving all users at once."""
+
+    def __init__(self, policy: BatchPolicy) -> None:
+        self.policy = policy
+
+    def actions(self, sim: BatchSimulator) -> np.ndarray:
+        self._targets = sim.targets().copy()
+        if isinstance(self.policy, SessionBatchPolicy):
+            self.policy.set_session(sim.sched_session[:, min(sim.trial, sim.horizon - 1)])
+        return np.asarray(self.policy.actions(self._targets, sim.obs), dtype=np.int64)
+
+    def observe(self, sim: BatchSimulator, t: int, acts: np.ndarray) -> None:
+        self.policy.observe(self._targets, acts, sim.outcome, -sim.reward)
+
+
+class _AgentStepper:
+    """One agent object per user, fed the same obs, info and Transition as :func:`run_episode`.
+
+    The users' agents are copies of one prototype reset once (so costly set-up such as a
+    planner's solved plan is done once); each copy is then reset with its user's seed, as
+    :func:`run_episode` resets one agent object for every seed.
+    """
+
+    def __init__(self, agent: Agent, sim: BatchSimulator, seeds: Sequence[int]) -> None:
+        agent.reset(int(seeds[0]))
+        self.agents = [copy.deepcopy(agent) for _ in seeds]
+        for a, seed in zip(self.agents, seeds, strict=True):
+            a.reset(int(seed))
+        self.names = sim.world.commands.names
+        self.obs = sim.obs.copy()
+        self.infos: list[UpcomingInfo | StepInfo] = [simulator_upcoming_info(sim, b, self.names)
+                                                     for b in range(sim.n_users)]
+
+    def actions(self, sim: BatchSimulator) -> np.ndarray:
+        return np.array([a.act(self.obs[b], self.infos[b]) for b, a in enumerate(self.agents)],  # type: ignore[arg-type]
+                        dtype=np.int64)
+
+    def observe(self, sim: BatchSimulator, t: int, acts: np.ndarray) -> None:
+        next_obs = sim.obs.copy()
+        truncated = t + 1 >= sim.horizon
+        for b, agent in enumerate(self.agents):
+            info = simulator_step_info(sim, b, t, int(acts[b]), self.names)
+            agent.observe(Transition(self.obs[b], int(acts[b]), float(sim.reward[b]), next_obs[b], info,  # type: ignore[arg-type]
+                                     False, truncated))
+            self.infos[b] = info
+        self.obs = next_obs
+
+
+def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_batch_policy: bool = True,
+                fused: bool = True, keep_trials: bool = False) -> BatchRollout:
+    """Run every user of ``sim`` (just reset) to its horizon with ``agent`` (bound to the world).
+
+    User ``b``'s agent draws what the agent reset with ``seeds[b]`` draws. ``use_batch_policy``
+    False drives one agent object per user even when a batch policy exists; ``fused`` False keeps
+    the per-trial loop even when the policy could run the whole simulation in one call;
+    ``keep_trials`` records every trial (:class:`TrialRecord`). The numbers are the same either way.
+    """
+    seeds = [int(s) for s in seeds]
+    if sim.n_users == 0 or sim.trial != 0:
+        raise RuntimeError("drive_batch needs a simulator just reset (trial 0)")
+    if len(seeds) != sim.n_users:
+        raise ValueError(f"{len(seeds)} agent seeds for {sim.n_users} simulated users")
+    stepper: _PolicyStepper | _AgentStepper
+    if use_batch_policy and isinstance(agent, BatchAgent):
+        policy = agent.batch_policy(sim.n_users, seeds)
+        if fused and not keep_trials and isinstance(policy, FusedBatchPolicy):
+            return BatchRollout(policy.run(sim))
+        stepper = _PolicyStepper(policy)
+    else:
+        stepper = _AgentStepper(agent, sim, seeds)
+    n, h = sim.n_users, sim.horizon
+    sessions = sim.sched_session
+    out = UserSums.zeros(n, int(sessions.max()) + 1, sim.world.commands.n_commands)
+    shared = bool((sessions == sessions[0]).all())
+    rows = np.arange(n)
+    kept = TrialRecord(np.zeros((n, h), dtype=np.int64), np.zeros((n, h), dtype=np.int64), np.zeros((n, h)),
+                       np.zeros((n, h)), np.zeros((n, h, N_OPS))) if keep_trials else None
+    for t in range(h):
+        acts = stepper.actions(sim)
+        sim.step(acts)
+        dur = -sim.reward
+        cmd = sim.sched_cmd[:, t]
+        s = int(sessions[0, t]) if shared else sessions[:, t]
+        where = (slice(None), s) if shared else (rows, s)
+        out.trials[where] += 1
+        out.time_s[where] += dur
+        out.outcomes[rows, s, sim.outcome] += 1
+        out.actions[rows, s, acts] += 1
+        out.command_time_s[rows, cmd] += dur
+        out.command_uses[rows, cmd] += 1
+        if kept is not None:
+            kept.action[:, t] = acts
+            kept.outcome[:, t] = sim.outcome
+            kept.duration_s[:, t] = dur
+            kept.p_recall[:, t] = sim.p_recall
+            kept.operator_s[:, t] = sim.ops
+        stepper.observe(sim, t, acts)
+    return BatchRollout(out, kept)

@@ -96,18 +96,24 @@ class StaticSoftmax(Agent):
     def reset(self, seed: int | None = None) -> None:
         super().reset(seed)
         self.exposures: dict[int, int] = {}
-        self.session = 0
 
-    def _features(self, target: int) -> np.ndarray:
+    def _features(self, target: int, session: int) -> np.ndarray:
         x = [1.0]
         for c in self.covariates:
-            x.append(np.log1p(self.exposures.get(target, 0)) if c == "log_exposure" else float(self.session))
+            x.append(np.log1p(self.exposures.get(target, 0)) if c == "log_exposure" else float(session))
         return np.asarray(x)
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
-        if "session" in self.covariates and "session" in info:
-            self.session = int(info["session"])
-        u = np.r_[0.0, self._features(int(info["target"])) @ self.coefficient_matrix()]
+        """P(menu, hotkey, learn) of the upcoming trial: reads ``info['target']`` and, for the
+        session covariate, ``info['next_session']`` (the upcoming trial's session, never the
+        finished trial's ``session``; see :mod:`shortcut_gym.envs.info`)."""
+        session = 0
+        if "session" in self.covariates:
+            if "next_session" not in info:
+                raise ValueError(f"{self.name}: the session covariate reads info['next_session'] (the upcoming "
+                                 f"trial's session); the info given has only {sorted(info)}")
+            session = int(info["next_session"])
+        u = np.r_[0.0, self._features(int(info["target"]), session) @ self.coefficient_matrix()]
         u -= u.max()
         p = np.exp(u)
         return p / p.sum()
@@ -115,7 +121,6 @@ class StaticSoftmax(Agent):
     def observe(self, transition: Transition) -> None:
         c = int(transition.info["command"])
         self.exposures[c] = self.exposures.get(c, 0) + 1
-        self.session = int(transition.info.get("session", self.session))
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "covariates": list(self.covariates), "params": dict(self.params)}

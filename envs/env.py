@@ -17,6 +17,7 @@ from gymnasium import spaces
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.memory import MemorySettings
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings
@@ -55,7 +56,7 @@ class CommandSelectionEnv(gym.Env):
         self.observation_space = self.world.observation_layout().space()
         self._sim = BatchSimulator(self.world)
         self._act = np.zeros(1, dtype=np.int64)
-        self._last: dict[str, Any] | None = None
+        self._last: StepInfo | None = None
         self._painter: Any = None
 
     # ---- gymnasium API --------------------------------------------------------------------
@@ -92,21 +93,7 @@ class CommandSelectionEnv(gym.Env):
         k.step_users(self._act, sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us,
                      sim.sched_cmd, sim.sched_clock, sim.sched_onset, sim.sched_u,
                      sim.reward, sim.outcome, sim.ops, sim.p_recall, sim.obs)
-        c = int(sim.sched_cmd[0, t])
-        ops = sim.ops[0]
-        info = self._upcoming_info()
-        info.update(
-            trial=t,
-            session=int(sim.sched_session[0, t]),
-            onset_s=float(sim.sched_onset[0, t]),
-            command=c,
-            command_name=self.world.commands.names[c],
-            action=a,
-            outcome=k.OUTCOME_NAMES[sim.outcome[0]],
-            duration_s=-float(sim.reward[0]),
-            p_recall=float(sim.p_recall[0]),
-            time_s=dict(zip(k.OPERATOR_NAMES, ops.tolist())),
-        )
+        info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
         truncated = t + 1 >= sim.horizon
         return sim.obs[0].copy(), float(sim.reward[0]), False, truncated, info
@@ -134,18 +121,8 @@ class CommandSelectionEnv(gym.Env):
         )
 
     # ---- helpers --------------------------------------------------------------------------
-    def _upcoming_info(self) -> dict[str, Any]:
-        sim = self._sim
-        t = int(sim.us[0, k.U_TRIAL])
-        tt = min(t, sim.horizon - 1)
-        c = int(sim.sched_cmd[0, tt])
-        return {
-            "target": c,
-            "target_name": self.world.commands.names[c],
-            "next_trial": t,
-            "next_onset_s": float(sim.sched_onset[0, tt]),
-            "next_session": int(sim.sched_session[0, tt]),
-        }
+    def _upcoming_info(self) -> UpcomingInfo:
+        return simulator_upcoming_info(self._sim, 0, self.world.commands.names)
 
     @property
     def schedule(self) -> Schedule:

@@ -23,6 +23,7 @@ from gymnasium.vector.utils import batch_space
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World, make_world
 
@@ -137,41 +138,29 @@ class CommandSelectionVectorEnv(VectorEnv):
         return out
 
     def _upcoming_info(self) -> dict[str, Any]:
+        return self._masked(dict(self._upcoming()))
+
+    def _upcoming(self) -> UpcomingInfo:
         sim = self.sim
         targets = sim.targets().astype(np.int64)
-        items: dict[str, Any] = {"target": targets}
-        if self.full_info:
-            items["target_name"] = self._names[targets]
         t = sim.trial
         tt = min(t, sim.horizon - 1)
-        items["next_trial"] = np.full(self.num_envs, t, dtype=np.int64)
-        items["next_onset_s"] = sim.sched_onset[:, tt].copy()
-        items["next_session"] = self._sessions[:, tt].copy()
-        return self._masked(items)
+        return upcoming_info(targets, self._names[targets] if self.full_info else None,
+                             np.full(self.num_envs, t, dtype=np.int64), sim.sched_onset[:, tt].copy(),
+                             self._sessions[:, tt].copy())
 
     def _step_info(self, t: int, acts: np.ndarray) -> dict[str, Any]:
         sim = self.sim
-        info = self._upcoming_info()
         cmd = sim.sched_cmd[:, t].astype(np.int64)
-        items: dict[str, Any] = {
-            "trial": np.full(self.num_envs, t, dtype=np.int64),
-            "session": self._sessions[:, t].copy(),
-            "onset_s": sim.sched_onset[:, t].copy(),
-            "command": cmd,
-        }
-        if self.full_info:
-            items["command_name"] = self._names[cmd]
-        items.update(
-            action=acts.astype(np.int64),
-            outcome=np.array(k.OUTCOME_NAMES, dtype=object)[sim.outcome] if self.full_info else sim.outcome.copy(),
-            duration_s=-sim.reward.copy(),
-            p_recall=sim.p_recall.copy(),
+        full = self.full_info
+        info = step_info(
+            self._upcoming(), np.full(self.num_envs, t, dtype=np.int64), self._sessions[:, t].copy(),
+            sim.sched_onset[:, t].copy(), cmd, self._names[cmd] if full else None, acts.astype(np.int64),
+            np.array(k.OUTCOME_NAMES, dtype=object)[sim.outcome] if full else sim.outcome.copy(),
+            -sim.reward.copy(), sim.p_recall.copy(),
+            self._masked({name: sim.ops[:, j].copy() for j, name in enumerate(k.OPERATOR_NAMES)}) if full else None,
         )
-        if self.full_info:
-            ops = sim.ops.copy()
-            items["time_s"] = self._masked({name: ops[:, j] for j, name in enumerate(k.OPERATOR_NAMES)})
-        info.update(self._masked(items))
-        return info
+        return self._masked(dict(info))
 
 
 _SB3_CLASS: type | None = None

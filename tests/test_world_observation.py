@@ -16,7 +16,7 @@ from shortcut_gym.envs.observation import (
     feature_index,
     layout_of_length,
 )
-from shortcut_gym.lab.fitting import _observations
+from shortcut_gym.lab.fitting.replay import _observations
 
 SCHEDULE = {"sessions": 3, "trials_per_session": 20}
 

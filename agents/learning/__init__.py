@@ -19,7 +19,6 @@ Modules import one way: mechanisms <- rules <- (features, trials, fused) <- batc
 from shortcut_gym.agents.learning.agent import LearningAgent
 from shortcut_gym.agents.learning.batch import BatchLearningPolicy
 from shortcut_gym.agents.learning.features import DT_FEATURE, decode_dt_s, dt_feature_index
-from shortcut_gym.agents.learning.fused import FusedSums
 from shortcut_gym.agents.learning.mechanisms import MECHANISMS, OPTION_DEFAULTS, Mechanism, owner_of, resolve_mechanisms
 from shortcut_gym.agents.learning.presets import ChoiceKernelAgent, RescorlaWagnerAgent, RWChoiceKernelAgent
 from shortcut_gym.agents.learning.rules import LearnerState, RuleSet, sample_action
@@ -31,7 +30,6 @@ __all__ = [
     "OPTION_DEFAULTS",
     "BatchLearningPolicy",
     "ChoiceKernelAgent",
-    "FusedSums",
     "LearnerState",
     "LearningAgent",
     "Mechanism",

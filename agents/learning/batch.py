@@ -14,8 +14,9 @@ import numpy as np
 from shortcut_gym.agents.base import AGENT_STREAM, N_ACTIONS, AgentContext, agent_rng
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.features import DT_FEATURE, decode_dt_s, dt_feature_index
-from shortcut_gym.agents.learning.fused import AgentDraws, FusedSums, run_fused
+from shortcut_gym.agents.learning.fused import AgentDraws, run_fused
 from shortcut_gym.agents.learning.rules import BatchStep, RuleSet, batch_decide, batch_update, init_state, new_state
+from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs.simulator import BatchSimulator, seed_words
 
 
@@ -92,7 +93,7 @@ class BatchLearningPolicy:
                      self._step.beliefs_now, self.rules, self.state)
         self.trial += 1
 
-    def run(self, sim: BatchSimulator) -> FusedSums:
+    def run(self, sim: BatchSimulator) -> UserSums:
         """Run a just-reset simulator to its horizon in one compiled loop (:mod:`.fused`); per-user
         sums equal to stepping ``actions`` / ``sim.step`` / ``observe`` trial by trial.
 

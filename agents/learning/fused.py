@@ -14,7 +14,6 @@ written as after the last ``sim.step``.
 
 
 import math
-from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
@@ -22,24 +21,14 @@ from numba import njit
 
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.rules import RULE_JIT, LearnerState, RuleSet, belief_now, decide, update
+from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded
 
 
-@dataclass
-class FusedSums:
-    """Per-user sums of a fused run (session index as in the schedules; times in seconds)."""
-
-    trials: np.ndarray  # (B, S) int
-    time_s: np.ndarray  # (B, S)
-    outcomes: np.ndarray  # (B, S, 5) int, codes of kernel.OUTCOME_NAMES
-    actions: np.ndarray  # (B, S, 3) int
-    command_time_s: np.ndarray  # (B, C)
-    command_uses: np.ndarray  # (B, C) int
-
-
 class SumArrays(NamedTuple):
-    """The arrays of a :class:`FusedSums` as the compiled loop adds into them (same fields)."""
+    """The arrays of a :class:`~shortcut_gym.agents.rollout.UserSums` as the compiled loop adds into them
+    (same fields)."""
 
     trials: np.ndarray
     time_s: np.ndarray
@@ -126,21 +115,14 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
 
 
 def run_fused(sim: BatchSimulator, rules: RuleSet, horizon: int, state: LearnerState,
-              draws: AgentDraws) -> FusedSums:
+              draws: AgentDraws) -> UserSums:
     """Run ``sim`` (just reset) to its horizon with a learning model (``state`` initialised, one row
     per sim user; ``horizon`` the model's planning horizon in trials); ``state`` is updated in place."""
     if sim.n_users == 0 or sim.trial != 0:
         raise RuntimeError("a fused run needs a simulator just reset (trial 0)")
-    n = sim.n_users
-    n_sess = int(sim.sched_session.max()) + 1
-    c = sim.world.commands.n_commands
-    sums = SumArrays(
-        trials=np.zeros((n, n_sess), dtype=np.int64), time_s=np.zeros((n, n_sess)),
-        outcomes=np.zeros((n, n_sess, len(k.OUTCOME_NAMES)), dtype=np.int64),
-        actions=np.zeros((n, n_sess, 3), dtype=np.int64), command_time_s=np.zeros((n, c)),
-        command_uses=np.zeros((n, c), dtype=np.int64),
-    )
+    sums = SumArrays(**vars(UserSums.zeros(sim.n_users, int(sim.sched_session.max()) + 1,
+                                          sim.world.commands.n_commands)))
     _run_users(sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us, sim.sched_cmd, sim.sched_clock,
                sim.sched_onset, sim.sched_u, sim.sched_session, sim.reward, sim.outcome, sim.ops, sim.p_recall,
                sim.obs, rules, horizon, state, draws, sums)
-    return FusedSums(**sums._asdict())
+    return UserSums(**sums._asdict())

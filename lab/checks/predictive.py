@@ -2,8 +2,9 @@
 
 :func:`simulate_log` produces a trial log (the lab's schema) from an agent; the environment and
 the agent get independent seeds drawn from one generator, so the agent's choices are never
-correlated with the environment's own draws. Agents with ``batch_policy`` run as one batch,
-others as one agent object per user.
+correlated with the environment's own draws. The users run through
+:func:`shortcut_gym.agents.rollout.drive_batch` (a batch policy when the agent has one, else one
+agent object per user).
 
 The posterior-predictive check simulates each fitted model many times on each participant's own
 schedule and compares the share of hotkey choices per block (data vs model mean, with a
@@ -19,7 +20,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext, Transition
+from shortcut_gym.agents.base import Agent
+from shortcut_gym.agents.rollout import context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import Schedule
@@ -36,47 +38,11 @@ def _drive(world: World, make: Any, n: int, rng: np.random.Generator,
     agent_seeds = rng.integers(0, 2**62, size=n).tolist()
     sim = BatchSimulator(world)
     sim.reset(seeds=env_seeds, schedules=None if schedule is None else [schedule] * n)
-    ctx = AgentContext(world.commands.n_commands, sim.horizon, world.commands.names,
-                       tuple(world.observation_names()))
-    probe = make(ctx)
-    h = sim.horizon
-    actions = np.zeros((n, h), dtype=np.int64)
-    outcomes = np.zeros((n, h), dtype=np.int64)
-    durations = np.zeros((n, h))
-    names = world.commands.names
-    if callable(getattr(probe, "batch_policy", None)):
-        policy = probe.batch_policy(n, agent_seeds)
-        for t in range(h):
-            if hasattr(policy, "set_session"):
-                policy.set_session(np.array([s.session[t] for s in sim.schedules]))
-            targets = sim.targets().copy()
-            acts = np.asarray(policy.actions(targets, sim.obs), dtype=np.int64)
-            sim.step(acts)
-            policy.observe(targets, acts, sim.outcome, -sim.reward)
-            actions[:, t], outcomes[:, t], durations[:, t] = acts, sim.outcome, -sim.reward
-    else:
-        agents = [make(ctx) for _ in range(n)]
-        for a, s in zip(agents, agent_seeds, strict=True):
-            a.reset(int(s))
-        obs = sim.obs.copy()
-        infos = [{"target": int(c), "target_name": names[int(c)], "next_trial": 0} for c in sim.targets()]
-        for t in range(h):
-            acts = np.array([a.act(obs[b], infos[b]) for b, a in enumerate(agents)], dtype=np.int64)
-            sim.step(acts)
-            nxt = sim.targets()
-            new_obs = sim.obs.copy()
-            for b, a in enumerate(agents):
-                c = int(sim.sched_cmd[b, t])
-                info = {"target": int(nxt[b]), "target_name": names[int(nxt[b])], "next_trial": t + 1,
-                        "trial": t, "session": int(sim.schedules[b].session[t]),
-                        "onset_s": float(sim.sched_onset[b, t]), "command": c, "command_name": names[c],
-                        "action": int(acts[b]), "outcome": k.OUTCOME_NAMES[sim.outcome[b]],
-                        "duration_s": -float(sim.reward[b]), "p_recall": float(sim.p_recall[b])}
-                a.observe(Transition(obs[b], int(acts[b]), float(sim.reward[b]), new_obs[b], info, False, t + 1 == h))
-                infos[b] = info
-            obs = new_obs
-            actions[:, t], outcomes[:, t], durations[:, t] = acts, sim.outcome, -sim.reward
-    return sim, actions, outcomes, durations
+    rollout = drive_batch(sim, make(context_of_world(world, sim.horizon)), agent_seeds, keep_trials=True)
+    kept = rollout.trials
+    if kept is None:
+        raise RuntimeError("drive_batch kept no trials although asked to")
+    return sim, kept.action, kept.outcome, kept.duration_s
 
 
 def simulate_log(world: World, make: Any, n_users: int, rng: np.random.Generator,

@@ -1,9 +1,10 @@
 """Log-likelihood of a model on one participant's logged trials.
 
-* Fast path: an agent offering ``likelihood_function(trials)`` returns a compiled or vectorised
+* Fast path: an agent offering ``likelihood_function(trials)``
+  (:class:`~shortcut_gym.agents.base.LikelihoodAgent`) returns a compiled or vectorised
   f(theta) -> log-likelihood over the natural parameter vector.
 * Slow path: any agent of the protocol, replayed trial by trial through ``action_probabilities``
-  and ``observe`` with the info dicts documented in agents/base.py (and the observation vector
+  and ``observe`` with the info dicts of :mod:`shortcut_gym.envs.info` (and the observation vector
   rebuilt from the log).
 """
 
@@ -16,8 +17,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, LikelihoodAgent, Transition
 from shortcut_gym.agents.learning import TrialArrays
+from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.envs.observation import ObservationLayout
 from shortcut_gym.lab.fitting.specs import ModelSpec
@@ -79,30 +81,33 @@ def replay_probabilities(agent: Agent, trials: pd.DataFrame, context: AgentConte
     obs = _observations(trials, context.n_commands)
     code = {n: i for i, n in enumerate(ACTION_NAMES)}
     cmd = trials["command"].to_numpy(dtype=np.int64)
+    onset = trials["onset_s"].to_numpy(dtype=np.float64)
+    session = trials["session"].to_numpy(dtype=np.int64)
     rec = trials.to_dict("records")
     n = len(rec)
     probs = np.empty((n, 3))
-    info: dict[str, Any] = {"target": int(cmd[0]), "target_name": names[cmd[0]], "next_trial": 0}
+
+    def upcoming(t: int) -> UpcomingInfo:
+        """Info before trial t (after the last trial: the last trial's, next_trial = n, as the env)."""
+        last = min(t, n - 1)
+        return upcoming_info(int(cmd[last]), names[cmd[last]], t, float(onset[last]), int(session[last]))
+
+    info: UpcomingInfo = upcoming(0)
     for t, r in enumerate(rec):
         probs[t] = agent.action_probabilities(obs[t], info)
-        nxt = int(cmd[min(t + 1, n - 1)])
         a = code[r["action"]]
-        after = {
-            "target": nxt, "target_name": names[nxt], "next_trial": t + 1,
-            "trial": int(r["trial"]), "session": int(r["session"]), "onset_s": float(r["onset_s"]),
-            "command": int(cmd[t]), "command_name": names[cmd[t]], "action": a,
-            "outcome": r["outcome"], "duration_s": float(r["duration_s"]),
-        }
+        after = step_info(upcoming(t + 1), int(r["trial"]), int(r["session"]), float(r["onset_s"]), int(cmd[t]),
+                          names[cmd[t]], a, r["outcome"], float(r["duration_s"]))
         next_obs = obs[min(t + 1, n - 1)]
         agent.observe(Transition(obs[t], a, -float(r["duration_s"]), next_obs, after, False, t + 1 == n))
         info = after
     return probs
 
 
-def _likelihood_input(agent: Agent, trials: pd.DataFrame, context: AgentContext) -> Any:
+def _likelihood_input(agent: LikelihoodAgent, trials: pd.DataFrame, context: AgentContext) -> Any:
     """What ``agent.likelihood_function`` takes: the frame itself for agents that declare
     ``likelihood_input = "frame"``, else ``TrialArrays.from_frame``."""
-    if getattr(agent, "likelihood_input", "trial_arrays") == "frame":
+    if agent.likelihood_input == "frame":
         return trials
     return TrialArrays.from_frame(trials, context.n_commands)
 
@@ -110,7 +115,7 @@ def _likelihood_input(agent: Agent, trials: pd.DataFrame, context: AgentContext)
 def loglik_function(spec: ModelSpec, trials: pd.DataFrame, context: AgentContext) -> tuple[LogLik, bool]:
     """(f(theta natural, full vector) -> ln L, whether the fast path is used)."""
     agent = spec.build(context)
-    if hasattr(agent, "likelihood_function"):
+    if isinstance(agent, LikelihoodAgent):
         return agent.likelihood_function(_likelihood_input(agent, trials, context)), True
     names = list(agent.param_specs())
     actions = trials["action"].map({n: i for i, n in enumerate(ACTION_NAMES)}).to_numpy(dtype=np.int64)

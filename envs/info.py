@@ -1,0 +1,110 @@
+"""The typed ``info`` contract: what an agent may read before and after a trial, and the one builder.
+
+Before a trial an agent reads :class:`UpcomingInfo`: every key is about the upcoming trial and is
+named ``target*`` or ``next_*``. After a trial, :class:`StepInfo` holds the upcoming trial's keys
+again (for the trial after it) plus the finished trial's keys, which carry no prefix (``trial``,
+``session``, ``onset_s``, ``command``, ...). So ``info['session']`` is always the session of the
+trial that has just finished and ``info['next_session']`` the session of the trial about to be
+decided; a policy reads only the ``next_*`` keys and ``target``.
+
+Every producer builds its dicts through :func:`upcoming_info` and :func:`step_info`: the env, the
+vector env (arrays, one entry per user), the rollout driver on the batched simulator and the lab's
+replay of a trial log. :func:`simulator_upcoming_info` and :func:`simulator_step_info` read one
+user of a :class:`~shortcut_gym.envs.simulator.BatchSimulator`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Any, NotRequired, TypedDict, cast
+
+from shortcut_gym.envs.kernel import OPERATOR_NAMES, OUTCOME_NAMES
+
+if TYPE_CHECKING:
+    from shortcut_gym.envs.simulator import BatchSimulator
+
+
+class UpcomingInfo(TypedDict):
+    """About the trial to be decided next (after the horizon: the last trial, ``next_trial`` = horizon)."""
+
+    target: int  # command index
+    target_name: str
+    next_trial: int  # 0-based trial index in the user's history
+    next_onset_s: float  # seconds since the history began
+    next_session: int  # 0-based session index
+
+
+class StepInfo(UpcomingInfo):
+    """A finished trial (no prefix) plus :class:`UpcomingInfo` of the trial after it."""
+
+    trial: int
+    session: int  # the finished trial's session
+    onset_s: float
+    command: int
+    command_name: str
+    action: int  # 0 menu, 1 hotkey, 2 learn
+    outcome: str  # one of OUTCOME_NAMES
+    duration_s: float
+    p_recall: NotRequired[float]  # simulation only: the true recall probability at the trial
+    time_s: NotRequired[dict[str, float]]  # simulation only: seconds by operator (OPERATOR_NAMES)
+
+
+#: Keys of :class:`UpcomingInfo` and of the finished-trial part of :class:`StepInfo`, in order.
+UPCOMING_KEYS: tuple[str, ...] = tuple(UpcomingInfo.__annotations__)
+FINISHED_KEYS: tuple[str, ...] = tuple(k for k in StepInfo.__annotations__ if k not in UpcomingInfo.__annotations__)
+
+
+def upcoming_info(target: Any, target_name: Any, next_trial: Any, next_onset_s: Any, next_session: Any) -> UpcomingInfo:
+    """The upcoming-trial info. Values are scalars for one user or arrays with one entry per user
+    (the vector env); ``target_name`` None leaves the name out (the vector env's ``full_info=False``)."""
+    info: dict[str, Any] = {"target": target}
+    if target_name is not None:
+        info["target_name"] = target_name
+    info["next_trial"] = next_trial
+    info["next_onset_s"] = next_onset_s
+    info["next_session"] = next_session
+    return cast(UpcomingInfo, info)
+
+
+def step_info(upcoming: UpcomingInfo, trial: Any, session: Any, onset_s: Any, command: Any, command_name: Any,
+              action: Any, outcome: Any, duration_s: Any, p_recall: Any = None,
+              time_s: Any = None) -> StepInfo:
+    """A finished trial's info: ``upcoming`` (the next trial's, extended in place) plus the finished
+    trial's keys. ``command_name``, ``p_recall`` and ``time_s`` None are left out (a log has no
+    recall probability or operator breakdown)."""
+    info = cast(dict[str, Any], upcoming)
+    info["trial"] = trial
+    info["session"] = session
+    info["onset_s"] = onset_s
+    info["command"] = command
+    if command_name is not None:
+        info["command_name"] = command_name
+    info["action"] = action
+    info["outcome"] = outcome
+    info["duration_s"] = duration_s
+    if p_recall is not None:
+        info["p_recall"] = p_recall
+    if time_s is not None:
+        info["time_s"] = time_s
+    return cast(StepInfo, info)
+
+
+def simulator_upcoming_info(sim: BatchSimulator, user: int, command_names: Sequence[str]) -> UpcomingInfo:
+    """User ``user``'s upcoming-trial info on a batched simulator."""
+    t = sim.trial
+    last = min(t, sim.horizon - 1)
+    c = int(sim.sched_cmd[user, last])
+    return upcoming_info(c, command_names[c], t, float(sim.sched_onset[user, last]),
+                         int(sim.sched_session[user, last]))
+
+
+def simulator_step_info(sim: BatchSimulator, user: int, trial: int, action: int,
+                        command_names: Sequence[str]) -> StepInfo:
+    """User ``user``'s info after ``sim.step`` ran trial ``trial`` with ``action``."""
+    c = int(sim.sched_cmd[user, trial])
+    return step_info(
+        simulator_upcoming_info(sim, user, command_names), trial, int(sim.sched_session[user, trial]),
+        float(sim.sched_onset[user, trial]), c, command_names[c], int(action), OUTCOME_NAMES[sim.outcome[user]],
+        -float(sim.reward[user]), float(sim.p_recall[user]),
+        dict(zip(OPERATOR_NAMES, sim.ops[user].tolist(), strict=True)),
+    )
