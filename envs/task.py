@@ -15,11 +15,47 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 _MODIFIERS = {"Ctrl", "Alt", "Shift", "Cmd", "Meta", "Option"}
-_HOTKEY = re.compile(r"^[A-Za-z]+(\+[A-Za-z]+)*\+[A-Za-z0-9]$|^[A-Za-z]+(\+[A-Za-z]+)*\+F[0-9]{1,2}$")
+#: A key: one printable ASCII character other than space (letter, digit or punctuation) or F1-F24.
+_KEY = re.compile(r"^[!-~]$|^F([1-9]|1[0-9]|2[0-4])$")
+
+
+def hotkey_parts(hotkey: str) -> tuple[tuple[str, ...], str]:
+    """(modifiers, key) of a hotkey such as "Ctrl+Shift+K", "Alt+/", "Ctrl++", "K" or "?".
+
+    The key is the part after the last '+' ("Ctrl++" is Ctrl and the '+' key); each modifier comes
+    from the known set at most once. ValueError naming the hotkey and the fault otherwise.
+    """
+    if hotkey == "+" or hotkey.endswith("++"):
+        head, key = hotkey[:-2] if hotkey != "+" else "", "+"
+    elif "+" in hotkey:
+        head, key = hotkey.rsplit("+", 1)
+    else:
+        head, key = "", hotkey
+    modifiers = tuple(head.split("+")) if head else ()
+    if not _KEY.match(key):
+        raise ValueError(
+            f"hotkey {hotkey!r}: the key {key!r} must be one printable character (letter, digit or "
+            "punctuation) or F1-F24, e.g. 'K', 'Ctrl+K', 'Ctrl+Shift+/', 'F5'"
+        )
+    unknown = [m for m in modifiers if m not in _MODIFIERS]
+    if unknown:
+        raise ValueError(f"hotkey {hotkey!r}: modifier {unknown[0]!r} is not one of {sorted(_MODIFIERS)}")
+    if len(set(modifiers)) != len(modifiers):
+        raise ValueError(f"hotkey {hotkey!r} names a modifier twice")
+    return modifiers, key
+
+
+def hotkey_keystrokes(hotkey: str) -> int:
+    """Keys pressed for a hotkey: its modifiers plus the key (KLM counts each as one K)."""
+    return len(hotkey_parts(hotkey)[0]) + 1
 
 
 class CommandSpec(BaseModel):
-    """One command: a name, the hotkey that issues it ("Ctrl+Shift+K"), an optional weight."""
+    """One command: a name, the hotkey that issues it, an optional weight.
+
+    A hotkey is zero, one or more modifiers and a key joined by '+': "Ctrl+Shift+K", "Alt+/",
+    a single key "K" or a punctuation key "?" (see :func:`hotkey_parts`).
+    """
 
     model_config = ConfigDict(extra="forbid", frozen=True)
     name: str = Field(min_length=1)
@@ -29,12 +65,7 @@ class CommandSpec(BaseModel):
     @field_validator("hotkey")
     @classmethod
     def _hotkey_form(cls, v: str) -> str:
-        parts = v.split("+")
-        if not _HOTKEY.match(v) or any(p not in _MODIFIERS for p in parts[:-1]):
-            raise ValueError(
-                f"hotkey {v!r} must be one or more modifiers from {sorted(_MODIFIERS)} and a key, "
-                "joined by '+', e.g. 'Ctrl+K'"
-            )
+        hotkey_parts(v)
         return v
 
 
@@ -154,7 +185,7 @@ def build_command_set(scenario: ScenarioSettings) -> CommandSet:
             menu_of.append(mi)
             item.append(ii)
             size.append(len(m.items))
-            strokes.append(len(c.hotkey.split("+")))
+            strokes.append(hotkey_keystrokes(c.hotkey))
             weights.append(c.weight)
     n = len(names)
     if weights[0] is None:

@@ -91,7 +91,17 @@ class World:
         return par, ipar
 
     def command_constants(self) -> np.ndarray:
-        """Per command: visual search time, Hick-Hyman decision time, pointing time, key count."""
+        """Per command: visual search time, Hick-Hyman decision time, pointing time, key count.
+
+        Computed once per world (it is frozen) and returned as a fresh copy.
+        """
+        cached = self.__dict__.get("_command_constants")
+        if cached is None:
+            cached = self._compute_command_constants()
+            object.__setattr__(self, "_command_constants", cached)
+        return cached.copy()
+
+    def _compute_command_constants(self) -> np.ndarray:
         cs, mm, f = self.commands, self.costs.menu, self.costs.fitts
         out = np.zeros((cs.n_commands, k.N_CMDC))
         for i in range(cs.n_commands):

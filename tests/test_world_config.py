@@ -62,10 +62,18 @@ def _scenario(**over) -> dict:
     ("scenario", "pattern"),
     [
         (_scenario(menus=[]), r"menus: List should have at least 1 item"),
-        (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "K"}]}]),
-         r"menus\.0\.items\.0\.hotkey: Value error, hotkey 'K' must be one or more modifiers"),
+        (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "KK"}]}]),
+         r"menus\.0\.items\.0\.hotkey: Value error, hotkey 'KK': the key 'KK' must be one printable"),
         (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Hyper+K"}]}]),
-         r"hotkey 'Hyper\+K' must be"),
+         r"hotkey 'Hyper\+K': modifier 'Hyper' is not one of"),
+        (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Ctrl+"}]}]),
+         r"hotkey 'Ctrl\+': the key '' must be"),
+        (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Ctrl+Ctrl+K"}]}]),
+         r"hotkey 'Ctrl\+Ctrl\+K' names a modifier twice"),
+        (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Ctrl+F25"}]}]),
+         r"the key 'F25' must be"),
+        (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Ctrl+ "}]}]),
+         r"the key ' ' must be"),
         (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Ctrl+K"},
                                                    {"name": "x", "hotkey": "Ctrl+J"}]}]),
          r"command name 'x' appears twice"),
@@ -82,6 +90,19 @@ def _scenario(**over) -> dict:
 def test_scenario_faults_are_named(scenario: dict, pattern: str) -> None:
     with pytest.raises(ConfigError, match=pattern):
         make_world(scenario=scenario)
+
+
+@pytest.mark.parametrize(
+    ("hotkey", "keys"),
+    [("K", 1), ("?", 1), ("/", 1), ("+", 1), ("F5", 1), ("Ctrl+K", 2), ("Alt+/", 2), ("Ctrl++", 2),
+     ("Shift+F12", 2), ("Ctrl+Shift+K", 3), ("Ctrl+Alt+.", 3), ("Ctrl+Alt+Shift+Z", 4)],
+)
+def test_single_key_and_punctuation_hotkeys_are_valid(hotkey: str, keys: int) -> None:
+    """Single keys, punctuation and chords are accepted; the chord's keystrokes reach the kernel."""
+    world = make_world(scenario=_scenario(menus=[{"title": "A", "items": [
+        {"name": "x", "hotkey": hotkey}, {"name": "y", "hotkey": "Ctrl+Y"}]}]))
+    assert world.commands.keystrokes[0] == keys
+    assert world.command_constants()[0, -1] == keys
 
 
 def test_unknown_preset_lists_bundled_ones() -> None:

@@ -21,6 +21,7 @@ COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cli.recover",
     "shortcut_gym.lab.cli.report",
     "shortcut_gym.lab.cli.bench",
+    "shortcut_gym.lab.cli.allot",
 ]
 
 

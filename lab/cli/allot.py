@@ -1,0 +1,90 @@
+"""``shortcut-gym allot``: choose which commands get the free key combinations (hotkey budget)."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.design.assignment import (
+    budget_curve,
+    combo_pool,
+    combos_from_labels,
+    planner_savings,
+    population_savings,
+    solve_exact,
+    solve_greedy,
+)
+from shortcut_gym.lab.design.plots import budget_figure, save_figure
+from shortcut_gym.lab.simulate import parse_agent_arg
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``allot`` subcommand."""
+    p = sub.add_parser("allot", help="assign a budget of hotkeys to the commands that save the most time")
+    p.add_argument("--scenario", default=None, help="scenario preset name or YAML path (default: demo)")
+    p.add_argument("--costs", default=None, help="cost preset name or YAML path")
+    p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
+    p.add_argument("--sessions", type=int, default=None, help="sessions per user (default: the scenario's)")
+    p.add_argument("--budget", type=int, required=True, help="hotkeys to hand out (the curve runs 0..budget)")
+    p.add_argument("--keys", default=None,
+                   help="comma-separated free combinations, e.g. 'J,/,Ctrl+K,Ctrl+Shift+K' (the comma key itself "
+                        "cannot be listed here)")
+    p.add_argument("--pool", default="4,8,8",
+                   help="generated pool instead of --keys: SINGLE,ONE_MODIFIER,TWO_MODIFIER counts (default 4,8,8)")
+    p.add_argument("--keyboard-share", type=float, default=0.0,
+                   help="share of trials the hand starts on the keyboard (fixed, so commands separate; default 0)")
+    p.add_argument("--agent", action="append", default=None,
+                   help="price savings by simulating this population instead of the planner: agent as name or "
+                        "name:param=value,... (repeatable, e.g. fitted learning models)")
+    p.add_argument("--users", type=int, default=20, help="simulated users per agent with --agent")
+    p.add_argument("--seed", type=int, default=0, help="first user seed with --agent")
+    p.add_argument("--bins", type=int, default=40, help="activation grid points of the planner")
+    p.add_argument("--out", type=Path, default=None,
+                   help="folder for savings.csv, assignment.csv, budget.csv and budget.png")
+    p.set_defaults(func=run)
+
+
+def _pool(args: argparse.Namespace) -> list:
+    if args.keys is not None:
+        return combos_from_labels([k.strip() for k in args.keys.split(",") if k.strip()])
+    parts = args.pool.split(",")
+    if len(parts) != 3 or not all(p.strip().isdigit() for p in parts):
+        raise ValueError(f"--pool must be three whole numbers SINGLE,ONE_MODIFIER,TWO_MODIFIER, got {args.pool!r}")
+    return combo_pool(*(int(p) for p in parts))
+
+
+def run(args: argparse.Namespace) -> int:
+    """Price every command by the planner, solve for each budget, print and optionally write."""
+    if args.budget < 0:
+        raise ValueError(f"--budget must be >= 0, got {args.budget}")
+    if args.sessions is not None and args.sessions < 1:
+        raise ValueError(f"--sessions must be >= 1, got {args.sessions}")
+    pool = _pool(args)
+    schedule = None if args.sessions is None else {"sessions": args.sessions}
+    world = make_world(args.scenario, args.costs, args.memory, schedule)
+    counts = {c.keystrokes for c in pool}
+    if args.agent:
+        if args.users < 1:
+            raise ValueError(f"--users must be >= 1, got {args.users}")
+        specs = [parse_agent_arg(a) for a in args.agent]
+        table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users))
+    else:
+        table = planner_savings(world, counts, args.keyboard_share, n_bins=args.bins)
+    S = table.for_combos(pool)
+    exact, heuristic = solve_exact(S, args.budget), solve_greedy(S, args.budget)
+    chosen = exact.frame(table, pool)
+    curve = budget_curve(table, pool, range(args.budget + 1))
+    print(f"{world.scenario.name}: {len(pool)} free combinations, budget {args.budget}, saving per user over "
+          f"{world.horizon} trials ({table.source})")
+    print(chosen.to_string(index=False, float_format=lambda v: f"{v:.3f}") if len(chosen) else "no hotkey pays")
+    print(f"exact {exact.saving_s:.2f} s per user; heuristic {heuristic.saving_s:.2f} s")
+    print(curve.drop(columns="commands").to_string(index=False, float_format=lambda v: f"{v:.3f}"))
+    if args.out is not None:
+        args.out.mkdir(parents=True, exist_ok=True)
+        table.frame().to_csv(args.out / "savings.csv", index=False)
+        chosen.to_csv(args.out / "assignment.csv", index=False)
+        curve.to_csv(args.out / "budget.csv", index=False)
+        save_figure(budget_figure(curve, f"{world.scenario.name}: hotkey budget"), args.out / "budget.png")
+        print(f"wrote savings.csv, assignment.csv, budget.csv and budget.png to {args.out}")
+    return 0

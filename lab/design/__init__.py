@@ -1,0 +1,1 @@
+"""Interface design questions answered with the yardstick planner: which commands get hotkeys."""
