@@ -20,16 +20,19 @@ import pandas as pd
 
 from shortcut_gym.lab.sweep.plan import world_from_settings
 from shortcut_gym.lab.sweep.spec import SweepSpec
-from shortcut_gym.lab.sweep.store import SweepStore, atomic_write_text
+from shortcut_gym.lab.sweep.store import SweepStore, atomic_write_text, unique_suffix
 
 MENU_BASELINE = "always_menu"
 PLANNER = "bounded_optimal"
 
 
 def _atomic_parquet(df: pd.DataFrame, path: Path) -> None:
-    tmp = path.with_name(f".tmp-{path.name}")
-    df.to_parquet(tmp, index=False)
-    tmp.replace(path)
+    tmp = path.with_name(f".tmp-{path.name}.{unique_suffix()}")
+    try:
+        df.to_parquet(tmp, index=False)
+        tmp.replace(path)
+    finally:
+        tmp.unlink(missing_ok=True)
 
 
 def agent_roles(spec: SweepSpec, labels: list[str]) -> dict[str, str | None]:

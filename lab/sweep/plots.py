@@ -13,14 +13,18 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from shortcut_gym.lab.sweep.spec import SweepSpec  # noqa: E402
+from shortcut_gym.lab.sweep.store import unique_suffix  # noqa: E402
 
 
 def _save(fig: Any, path: Path) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".tmp-{path.name}")
-    fig.savefig(tmp, dpi=110, bbox_inches="tight", format="png")
-    plt.close(fig)
-    tmp.replace(path)
+    tmp = path.with_name(f".tmp-{path.name}.{unique_suffix()}")
+    try:
+        fig.savefig(tmp, dpi=110, bbox_inches="tight", format="png")
+        tmp.replace(path)
+    finally:
+        plt.close(fig)
+        tmp.unlink(missing_ok=True)
     return path
 
 

@@ -16,6 +16,8 @@ from typing import Any
 from tqdm import tqdm
 
 from shortcut_gym.lab.sweep.backends import LocalBackend, RayBackend, make_backend
+from shortcut_gym.lab.sweep.integrity import ADOPTED, FolderCheck
+from shortcut_gym.lab.sweep.lock import FolderLock, describe_holder
 from shortcut_gym.lab.sweep.plan import plan_digest, plan_runs
 from shortcut_gym.lab.sweep.spec import SweepSpec, load_spec, parse_spec
 from shortcut_gym.lab.sweep.store import SweepStore
@@ -32,11 +34,16 @@ class SweepReport:
     failed: list[dict[str, Any]] = field(default_factory=list)
     seconds: float = 0.0
     outputs: dict[str, Path] = field(default_factory=dict)
+    recomputed: list[str] = field(default_factory=list)  # finished runs found missing or damaged, computed again
+    notes: list[str] = field(default_factory=list)  # what the resume found (stale lock, damaged runs, code change)
 
     def lines(self) -> list[str]:
         """Human-readable summary lines."""
         out = [f"sweep folder {self.folder}: {self.total} runs; {self.kept} kept from before, "
                f"{self.computed} computed now in {self.seconds:.1f} s, {len(self.failed)} failed"]
+        if self.recomputed:
+            out.append(f"  {len(self.recomputed)} finished run(s) were missing or damaged and were computed again "
+                       f"(damaged files set aside under damaged/): {', '.join(self.recomputed)}")
         out += [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
         out += [f"  wrote {name}: {path}" for name, path in self.outputs.items()]
         return out
@@ -55,6 +62,22 @@ def code_digest() -> str:
             h.update(f.name.encode())
             h.update(f.read_bytes())
     return h.hexdigest()[:12]
+
+
+def _lock_notes(lock: FolderLock) -> list[str]:
+    if lock.stale is None:
+        return []
+    state = "no longer running" if lock.stale.get("dead") else "state unknown from this host"
+    return [f"note: took over the lock of {describe_holder(lock.stale)} ({state}), which was not released"]
+
+
+def _check_notes(check: FolderCheck) -> list[str]:
+    notes = [f"note: {v.verdict} run {v.run_id}: {v.detail}; computing it again" for v in check.faults]
+    notes += [f"note: runs/{s} belongs to no run of this plan; left as it is" for s in check.strays]
+    adopted = check.of(ADOPTED)
+    if adopted:
+        notes.append(f"note: {len(adopted)} finished run(s) not yet in the manifest were checked and taken in")
+    return notes
 
 
 def _spec_and_source(spec: SweepSpec | dict | str | Path) -> tuple[SweepSpec, str]:
@@ -82,35 +105,48 @@ def run_sweep(
     digest = plan_digest(runs)
     engine = make_backend(backend, workers, address)  # checks workers and the address first
     store = SweepStore(Path(folder))
-    already = store.finished_ids() if store.read_manifest() is not None else set()
-    if any(r["run_id"] not in already for r in runs):
+    store.check_usable()
+    started = False
+    if not store.manifest_path.is_file():
         engine.start()  # before the folder is touched: a backend that cannot start writes nothing
+        started = True
+    lock = FolderLock(store.folder)
+    try:
+        lock.acquire()
+    except BaseException:
+        if started:
+            engine.stop()
+        raise
+    computed = 0
     try:
         previous = store.open(sweep.model_dump(mode="json"), runs, digest)
-    except BaseException:
-        engine.stop()
-        raise
-    done = store.finished_ids()
-    failed_before = store.failed_ids()
-    todo = [r for r in runs if r["run_id"] not in done and (retry_failed or r["run_id"] not in failed_before)]
-    kept = sum(r["run_id"] in done for r in runs)
-    code = code_digest()
-    if previous is not None:
-        if previous.get("code_digest") not in (None, code):
-            print(f"warning: {store.folder}: its finished runs were computed with other envs/agents code "
-                  f"({previous.get('code_digest')}, now {code}); they are kept as they are", file=sys.stderr)
-        msg = (f"resuming {store.folder}: {kept} of {len(runs)} runs already finished, "
-               f"{len(failed_before)} recorded as failed{' (retrying)' if retry_failed else ''}, {len(todo)} to run")
-        print(msg, file=sys.stderr)
-        store.log({"event": "resume", "kept": kept, "failed_before": len(failed_before), "to_run": len(todo)})
-    else:
-        store.update_status(runs, {"backend": engine.name, "code_digest": code})
-        store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": engine.name})
-    computed = 0
-    if not todo:
-        engine.stop()
-    if todo:
-        try:
+        check = store.check([r["run_id"] for r in runs]) if previous is not None else None
+        redo = store.repair(check) if check is not None else []
+        done = store.finished_ids()
+        failed_before = store.failed_ids()
+        todo = [r for r in runs if r["run_id"] not in done and (retry_failed or r["run_id"] not in failed_before)]
+        kept = sum(r["run_id"] in done for r in runs)
+        code = code_digest()
+        notes = _lock_notes(lock) + (_check_notes(check) if check is not None else [])
+        if previous is not None:
+            if previous.get("code_digest") not in (None, code):
+                notes.append(f"warning: {store.folder}: its finished runs were computed with other envs/agents code "
+                             f"({previous.get('code_digest')}, now {code}); they are kept as they are")
+            notes.append(f"resuming {store.folder}: {kept} of {len(runs)} runs already finished, "
+                         f"{len(failed_before)} recorded as failed{' (retrying)' if retry_failed else ''}, "
+                         f"{len(todo)} to run")
+            store.log({"event": "resume", "kept": kept, "failed_before": len(failed_before), "to_run": len(todo),
+                       "recomputed": redo, "stale_lock": lock.stale})
+        else:
+            store.update_status(runs, {"backend": engine.name, "code_digest": code})
+            store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": engine.name,
+                       "stale_lock": lock.stale})
+        for line in notes:
+            print(line, file=sys.stderr)
+        if todo and not started:
+            engine.start()
+            started = True
+        if todo:
             bar = tqdm(total=kept + len(todo), initial=kept, desc=f"sweep {sweep.name}", unit="run",
                        disable=not progress, file=sys.stderr, dynamic_ncols=True)
             for result in engine.run(todo):
@@ -118,14 +154,21 @@ def run_sweep(
                 computed += 1
                 bar.update(1)
             bar.close()
-        finally:
+        if started:
             engine.stop()
-    status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
-    report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0)
-    store.log({"event": "finish", **status})
-    if write_outputs:
-        from shortcut_gym.lab.sweep.outputs import write_outputs as _write
+            started = False
+        status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
+        report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0, recomputed=redo,
+                             notes=notes)
+        store.log({"event": "finish", **status})
+        if write_outputs:
+            from shortcut_gym.lab.sweep.outputs import write_outputs as _write
 
-        report.outputs = _write(sweep, runs, store)
+            report.outputs = _write(sweep, runs, store)
+    finally:
+        if started:
+            engine.stop()
+        store.flush(force=True)
+        lock.release()
     report.seconds = time.perf_counter() - start
     return report
