@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from importlib import resources
 from pathlib import Path
 from typing import Any, TypeVar
@@ -61,14 +62,53 @@ def bundled_names(model: type[BaseModel]) -> list[str]:
     return sorted(p.stem for p in folder.glob("*.yaml"))
 
 
+class _Loader(yaml.SafeLoader):
+    """Safe YAML that refuses a key given twice in one mapping and reads ``1e-1`` as a number.
+
+    PyYAML follows YAML 1.1, whose float pattern needs a dot (``1.0e-1``); ``1e-1`` would be a
+    string. The resolver below adds the YAML 1.2 core-schema float form.
+    """
+
+
+def _mapping_without_duplicates(loader: _Loader, node: yaml.MappingNode) -> dict[Any, Any]:
+    seen: dict[Any, Any] = {}
+    for key_node, _ in node.value:
+        key = loader.construct_object(key_node, deep=True)
+        if key in seen:
+            line = key_node.start_mark.line + 1
+            raise yaml.constructor.ConstructorError(
+                None, None, f"key {key!r} is given twice in one mapping (line {seen[key]} and line {line})",
+                key_node.start_mark)
+        seen[key] = key_node.start_mark.line + 1
+    return loader.construct_mapping(node, deep=True)
+
+
+_Loader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _mapping_without_duplicates)
+_Loader.add_implicit_resolver(
+    "tag:yaml.org,2002:float",
+    re.compile(r"^[-+]?(?:[0-9][0-9_]*)(?:\.[0-9_]*)?[eE][-+]?[0-9]+$"),
+    list("-+0123456789"),
+)
+
+
+def parse_yaml(text: str, source: str) -> Any:
+    """Parse YAML text (duplicate keys refused); a fault names the source and line."""
+    try:
+        return yaml.load(text, Loader=_Loader)  # noqa: S506 - _Loader is a SafeLoader
+    except yaml.YAMLError as err:
+        raise ConfigError(f"{source}: not valid YAML: {' '.join(str(err).split())}") from None
+
+
 def read_yaml(path: Path) -> Any:
-    """Parse a YAML file; a syntax error names the file and line."""
+    """Parse a UTF-8 YAML file; a missing file, bad encoding or syntax error names the file (and line)."""
+    path = Path(path)
     if not path.is_file():
         raise ConfigError(f"{path}: no such file")
     try:
-        return yaml.safe_load(path.read_text())
-    except yaml.YAMLError as err:
-        raise ConfigError(f"{path}: not valid YAML: {err}") from None
+        text = path.read_bytes().decode("utf-8")
+    except UnicodeDecodeError as err:
+        raise ConfigError(f"{path}: not UTF-8 text (byte {err.start} is {err.object[err.start]:#04x})") from None
+    return parse_yaml(text, str(path))
 
 
 def load_settings(model: type[M], spec: str | Path | dict | M | None) -> M:

@@ -17,7 +17,9 @@ from __future__ import annotations
 import math
 from typing import Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import Field, model_validator
+
+from shortcut_gym.envs.strict import StrictModel
 
 #: KLM keystroke time K (s) by typist class, Card, Moran & Newell (1980), Figure 1.
 KLM_KEYSTROKE_S: dict[str, float] = {
@@ -50,8 +52,8 @@ TypistClass = Literal[
 ]
 
 
-class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+class _Strict(StrictModel):
+    """Settings base: no unknown keys, finite numbers, no boolean as a number."""
 
 
 class KLMOperators(_Strict):

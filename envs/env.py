@@ -16,13 +16,29 @@ from gymnasium import spaces
 
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.costs import CostSettings
-from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.errors import ActionError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.memory import MemorySettings
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings
 from shortcut_gym.envs.world import World, make_world
 
+
+def action_index(action: Any) -> int:
+    """The action as an int in {0, 1, 2}: a Python or numpy integer (or a 0-d integer array).
+
+    Floats, booleans, strings and other number types are refused with :class:`ActionError`,
+    even when they equal an action (``1.0``, ``True``, ``Decimal('1')``).
+    """
+    value = action
+    if isinstance(value, np.ndarray) and value.ndim == 0:
+        value = value[()]
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)):
+        raise ActionError(f"action must be 0 (menu), 1 (hotkey) or 2 (learn), got {action!r} "
+                          f"of type {type(action).__name__} (actions are integers)")
+    if not 0 <= int(value) <= 2:
+        raise ActionError(f"action must be 0 (menu), 1 (hotkey) or 2 (learn), got {action!r}")
+    return int(value)
 
 class CommandSelectionEnv(gym.Env):
     """Gymnasium environment of command selection by menu, hotkey or learning the hotkey.
@@ -79,13 +95,8 @@ class CommandSelectionEnv(gym.Env):
         """One trial with ``action`` in {0: menu, 1: hotkey, 2: learn}."""
         sim = self._sim
         if sim.n_users == 0:
-            raise RuntimeError("call reset() before step()")
-        try:
-            a = int(action)
-        except (TypeError, ValueError):
-            raise ActionError(f"action must be 0 (menu), 1 (hotkey) or 2 (learn), got {action!r}") from None
-        if a != action or not 0 <= a <= 2:
-            raise ActionError(f"action must be 0 (menu), 1 (hotkey) or 2 (learn), got {action!r}")
+            raise UsageError("call reset() before step()")
+        a = action_index(action)
         t = int(sim.us[0, k.U_TRIAL])
         if t >= sim.horizon:
             raise RuntimeError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
@@ -100,11 +111,11 @@ class CommandSelectionEnv(gym.Env):
 
     def render(self) -> str | np.ndarray | None:
         """ansi: a one-line summary of the last trial; rgb_array: a picture of it (H x W x 3 uint8)."""
+        if self.render_mode is not None and self._sim.n_users == 0:
+            raise UsageError("call reset() before render()")
         if self.render_mode == "rgb_array":
             from shortcut_gym.envs import render
 
-            if self._sim.n_users == 0:
-                raise RuntimeError("call reset() before render()")
             if self._painter is None:
                 self._painter = render.BoardPainter(self.world.commands)
             return self._painter.draw(render.scene_of(self._sim, self._last))

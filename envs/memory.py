@@ -23,7 +23,9 @@ from typing import Literal
 
 import numpy as np
 from numba import njit
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import Field, model_validator
+
+from shortcut_gym.envs.strict import StrictModel
 
 MemoryKind = Literal["actr", "actr_exact", "pavlik_anderson", "exponential", "power"]
 #: Integer codes of the memory kinds inside the simulator kernel.
@@ -36,7 +38,7 @@ MEMORY_CODES: dict[str, int] = {
 }
 
 
-class TraceWeights(BaseModel):
+class TraceWeights(StrictModel):
     """Weight of the trace each event lays (1 = one standard ACT-R presentation).
 
     Values are assumptions of this project (no source): deliberate learning lays a strong trace,
@@ -44,14 +46,13 @@ class TraceWeights(BaseModel):
     label as feedback, plain menu use lays an incidental trace only when > 0.
     """
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
     learn: float = Field(default=2.0, ge=0)
     hotkey_success: float = Field(default=1.0, ge=0)
     hotkey_failure: float = Field(default=0.5, ge=0)
     menu: float = Field(default=0.0, ge=0)
 
 
-class MemorySettings(BaseModel):
+class MemorySettings(StrictModel):
     """Memory-model settings. Time is in seconds.
 
     Defaults: d = 0.5 (Anderson & Lebiere 1998); tau = -3.5, s = 0.4 and F = 0.05 s are
@@ -62,7 +63,6 @@ class MemorySettings(BaseModel):
     memory; 1.0 = real time).
     """
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
     kind: MemoryKind = "actr"
     decay: float = Field(default=0.5, gt=0, lt=1)
     threshold: float = -3.5

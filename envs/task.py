@@ -12,9 +12,17 @@ import re
 from dataclasses import dataclass
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import Field, field_validator, model_validator
+
+from shortcut_gym.envs.strict import StrictModel
 
 _MODIFIERS = {"Ctrl", "Alt", "Shift", "Cmd", "Meta", "Option"}
+#: Canonical order of the modifiers in a normalised hotkey.
+MODIFIER_ORDER = ("Ctrl", "Alt", "Option", "Shift", "Meta", "Cmd")
+_CANONICAL_MODIFIER = {m.lower(): m for m in _MODIFIERS}
+#: Most trials in one simulated user's schedule (sessions x trials per session); per-user arrays
+#: of this length are held in memory by the simulator and the planner.
+MAX_HORIZON = 1_000_000
 #: A key: one printable ASCII character other than space (letter, digit or punctuation) or F1-F24.
 _KEY = re.compile(r"^[!-~]$|^F([1-9]|1[0-9]|2[0-4])$")
 
@@ -31,7 +39,7 @@ def hotkey_parts(hotkey: str) -> tuple[tuple[str, ...], str]:
         head, key = hotkey.rsplit("+", 1)
     else:
         head, key = "", hotkey
-    modifiers = tuple(head.split("+")) if head else ()
+    modifiers = tuple(_CANONICAL_MODIFIER.get(m.lower(), m) for m in head.split("+")) if head else ()
     if not _KEY.match(key):
         raise ValueError(
             f"hotkey {hotkey!r}: the key {key!r} must be one printable character (letter, digit or "
@@ -45,42 +53,56 @@ def hotkey_parts(hotkey: str) -> tuple[tuple[str, ...], str]:
     return modifiers, key
 
 
+def canonical_hotkey(hotkey: str) -> str:
+    """The normalised form: modifiers in :data:`MODIFIER_ORDER` with their usual case, a letter key
+    in upper case ("shift+ctrl+k" -> "Ctrl+Shift+K"); two hotkeys are the same iff their forms are."""
+    modifiers, key = hotkey_parts(hotkey)
+    ordered = sorted(modifiers, key=MODIFIER_ORDER.index)
+    return "+".join([*ordered, key.upper() if len(key) == 1 else key])
+
+
 def hotkey_keystrokes(hotkey: str) -> int:
     """Keys pressed for a hotkey: its modifiers plus the key (KLM counts each as one K)."""
     return len(hotkey_parts(hotkey)[0]) + 1
 
 
-class CommandSpec(BaseModel):
+class CommandSpec(StrictModel):
     """One command: a name, the hotkey that issues it, an optional weight.
 
     A hotkey is zero, one or more modifiers and a key joined by '+': "Ctrl+Shift+K", "Alt+/",
     a single key "K" or a punctuation key "?" (see :func:`hotkey_parts`).
     """
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
     name: str = Field(min_length=1)
     hotkey: str
     weight: float | None = Field(default=None, gt=0)
 
+    @field_validator("name")
+    @classmethod
+    def _name_not_blank(cls, v: str) -> str:
+        if not v.strip():
+            raise ValueError(f"command name {v!r} is blank")
+        return v
+
     @field_validator("hotkey")
     @classmethod
     def _hotkey_form(cls, v: str) -> str:
-        hotkey_parts(v)
-        return v
+        return canonical_hotkey(v)
 
 
-class MenuSpec(BaseModel):
+class MenuSpec(StrictModel):
     """A menu: its title and its items, top to bottom."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
     title: str = Field(min_length=1)
     items: list[CommandSpec] = Field(min_length=1)
 
 
-class ScheduleSettings(BaseModel):
-    """Sessions of trials: ``trial_interval_s`` between trial onsets, ``gap_h`` between sessions."""
+class ScheduleSettings(StrictModel):
+    """Sessions of trials: ``trial_interval_s`` between trial onsets, ``gap_h`` between sessions.
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    At most :data:`MAX_HORIZON` trials in all.
+    """
+
     sessions: int = Field(default=10, ge=1)
     trials_per_session: int = Field(default=40, ge=1)
     trial_interval_s: float = Field(default=60.0, gt=0)
@@ -97,6 +119,10 @@ class ScheduleSettings(BaseModel):
 
     @model_validator(mode="after")
     def _gap_count(self) -> ScheduleSettings:
+        if self.sessions * self.trials_per_session > MAX_HORIZON:
+            raise ValueError(f"sessions x trials_per_session = {self.sessions} x {self.trials_per_session} = "
+                             f"{self.sessions * self.trials_per_session:,} trials exceeds the limit of "
+                             f"{MAX_HORIZON:,} trials per simulated user")
         if isinstance(self.gap_h, list) and len(self.gap_h) != self.sessions - 1:
             raise ValueError(
                 f"gap_h lists {len(self.gap_h)} gaps but {self.sessions} sessions need "
@@ -110,10 +136,9 @@ class ScheduleSettings(BaseModel):
         return self.sessions * self.trials_per_session
 
 
-class ScenarioSettings(BaseModel):
+class ScenarioSettings(StrictModel):
     """A scenario: the command set and the default schedule (one YAML in configs/scenarios)."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
     name: str = Field(min_length=1)
     description: str = ""
     menus: list[MenuSpec] = Field(min_length=1)

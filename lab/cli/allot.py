@@ -6,6 +6,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.cli.options import parse_agent_arg
 from shortcut_gym.lab.design.assignment import (
     budget_curve,
     combo_pool,
@@ -16,7 +17,6 @@ from shortcut_gym.lab.design.assignment import (
     solve_greedy,
 )
 from shortcut_gym.lab.design.plots import budget_figure, save_figure
-from shortcut_gym.lab.simulate import parse_agent_arg
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -9,16 +9,21 @@ fault is reported as ``<source>: <dotted.field>: <message>``.
 from __future__ import annotations
 
 import copy
+import math
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import ConfigDict, Field, ValidationError, field_validator, model_validator
 
 from shortcut_gym.envs.config import format_validation_error, load_settings, read_yaml
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.memory import MemorySettings
+from shortcut_gym.envs.strict import StrictModel
 from shortcut_gym.envs.task import ScenarioSettings
+
+#: Most design points of one sweep (each point is one run per agent, planned in memory at once).
+MAX_POINTS = 100_000
 
 #: Settings sections a dotted path may start with.
 SECTIONS = ("scenario", "costs", "memory", "schedule")
@@ -28,8 +33,8 @@ class SweepSpecError(ConfigError):
     """A sweep spec is invalid; the message names the file and the dotted field."""
 
 
-class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+class _Strict(StrictModel):
+    """Spec base: no unknown keys, finite numbers, no boolean as a number."""
 
 
 class BaseSetting(_Strict):
@@ -79,6 +84,11 @@ class Variation(_Strict):
 
     @model_validator(mode="after")
     def _design_fields(self) -> Variation:
+        size = (math.prod(len(r.values) if r.values is not None else (r.steps or 1) for r in self.parameters.values())
+                if self.design == "grid" else (self.points or 0))
+        if size > MAX_POINTS:
+            raise ValueError(f"the {self.design} design has {size:,} points; the limit is {MAX_POINTS:,} "
+                             "(split the sweep into several specs)")
         if self.design == "grid":
             if self.points is not None:
                 raise ValueError("points applies to the random and lhs designs only (a grid has its own size)")
@@ -99,7 +109,7 @@ class Variation(_Strict):
 class AgentEntry(_Strict):
     """One agent: a registered name and its parameters; ``label`` names it in the outputs."""
 
-    model_config = ConfigDict(extra="allow", frozen=True)
+    model_config = ConfigDict(extra="allow", frozen=True, allow_inf_nan=False)
     name: str = Field(min_length=1)
     params: dict[str, Any] = Field(default_factory=dict)
     label: str | None = None
