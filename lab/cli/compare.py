@@ -26,7 +26,10 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Write comparison.csv, summed_criteria.csv, bms.csv and comparison.png."""
     try:
-        fits = pd.read_csv(args.fits, dtype={"participant": str}, keep_default_na=False, na_values={"": ""})
+        fits = pd.read_csv(args.fits)
+        if "participant" in fits.columns:  # ids as written ("NA" and "None" are ids, not missing values)
+            fits["participant"] = pd.read_csv(args.fits, usecols=["participant"], dtype=str,
+                                              keep_default_na=False)["participant"]
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
         raise CLIError(f"{args.fits}: not a readable fits table ({one_line(err)})") from None
     try:

@@ -11,7 +11,10 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 from __future__ import annotations
 
 import argparse
+import sys
 from typing import Any
+
+import pandas as pd
 
 from shortcut_gym.agents.registry import AGENTS, make_agent
 from shortcut_gym.envs.errors import ConfigError
@@ -117,6 +120,22 @@ def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
     p.add_argument("--jobs", type=whole_number(1), default=1, help="worker processes")
     p.add_argument("--out", type=output_folder, required=True, help="output folder (created)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def add_skip_bad(p: argparse.ArgumentParser) -> None:
+    """The ``--skip-bad-participants`` option of the subcommands that read a trial log."""
+    p.add_argument("--skip-bad-participants", action="store_true",
+                   help="leave out participants whose log rows have faults (each listed with its first fault) "
+                        "and fit the rest, instead of stopping at the log's faults")
+
+
+def report_skipped(log: pd.DataFrame) -> None:
+    """Print (stderr) the participants a ``--skip-bad-participants`` read left out, with their first fault."""
+    skipped = log.attrs.get("skipped_participants") or {}
+    if skipped:
+        print(f"skipped {len(skipped)} participant(s) with faulty rows:", file=sys.stderr)
+        for pid, fault in skipped.items():
+            print(f"  {pid!r}: {fault}", file=sys.stderr)
 
 
 def models_of(args: argparse.Namespace) -> list[ModelSpec]:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.cli.options import add_common, models_of, priors_of
+from shortcut_gym.lab.cli.options import add_common, add_skip_bad, models_of, priors_of, report_skipped
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.report import analyse_log
@@ -28,6 +28,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("report", help="fit + compare + posterior-predictive check (+ knock-out) into a folder")
     p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
     add_common(p)
+    add_skip_bad(p)
     p.add_argument("--prior", action="append", default=None, help="label:param=family:a:b (MAP), repeatable")
     p.add_argument("--sims", type=whole_number(1), default=50, help="simulated replicates per participant x model")
     p.add_argument("--block", type=_block, default="session", help="'session' or trials per block")
@@ -39,7 +40,8 @@ def run(args: argparse.Namespace) -> int:
     """Write the report folder and print the summed criteria."""
     world = make_world(args.scenario)
     specs = models_of(args)
-    log = read_log(args.log, world.commands)
+    log = read_log(args.log, world.commands, args.skip_bad_participants)
+    report_skipped(log)
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
                                 args.block, priors_of(args.prior, specs), args.knockout, not args.quiet)
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))

@@ -97,8 +97,9 @@ def read_log_table(path: str | Path) -> pd.DataFrame:
         raise LogError([LogFault(str(p), None, None, _unknown_type(p.suffix.lower()))])
     try:
         if fmt == "csv":
-            return pd.read_csv(p, dtype={"participant": str, "command": str, "action": str, "outcome": str},
-                               keep_default_na=True)
+            # every cell as text, no "NA"/"None" read as missing: participant ids stay as written,
+            # numbers are parsed (and faults named) by validate_log
+            return pd.read_csv(p, dtype=str, keep_default_na=False)
         return pd.read_parquet(p)
     except pd.errors.EmptyDataError:
         raise LogError([LogFault(str(p), None, None, "the file is empty (no header line)")]) from None
@@ -108,9 +109,12 @@ def read_log_table(path: str | Path) -> pd.DataFrame:
         raise LogError([LogFault(str(p), None, None, f"cannot be read as {kind}: {first}")]) from exc
 
 
-def read_log(path: str | Path, commands: CommandSet) -> pd.DataFrame:
-    """Read and validate a trial log; returns the table with an added ``command_index`` column."""
-    return validate_log(read_log_table(path), commands, source=str(path))
+def read_log(path: str | Path, commands: CommandSet, skip_bad_participants: bool = False) -> pd.DataFrame:
+    """Read and validate a trial log; returns the table with an added ``command_index`` column.
+
+    See :func:`validate_log` for ``skip_bad_participants``.
+    """
+    return validate_log(read_log_table(path), commands, source=str(path), skip_bad_participants=skip_bad_participants)
 
 
 def write_log(log: pd.DataFrame, path: str | Path) -> Path:
@@ -129,13 +133,20 @@ def write_log(log: pd.DataFrame, path: str | Path) -> Path:
     return p
 
 
-def validate_log(log: pd.DataFrame, commands: CommandSet, source: str = "<table>") -> pd.DataFrame:
+def validate_log(log: pd.DataFrame, commands: CommandSet, source: str = "<table>",
+                 skip_bad_participants: bool = False) -> pd.DataFrame:
     """Check every row of ``log`` against the schema and the scenario's command set.
 
     Faults found: missing column, missing value (NaN/empty), non-numeric or non-integer number,
     unknown command, unknown action, unknown outcome, outcome impossible for the action,
     negative duration, trial / onset / session out of order within a participant.
     Returns a copy in the original row order with ``command_index`` (int) added.
+
+    Durations and onsets are plain numbers of seconds: a timedelta or datetime column is refused
+    naming the column (convert it yourself, e.g. ``df[c].dt.total_seconds()``). Sessions and
+    trials are whole numbers >= 0. With ``skip_bad_participants`` the participants with a faulty
+    row are left out instead (a fault of the whole table still raises); the returned table's
+    ``attrs["skipped_participants"]`` maps each one left out to its first fault.
     """
     faults: list[LogFault] = []
     missing = [c for c in LOG_COLUMNS if c not in log.columns]
@@ -153,6 +164,11 @@ def validate_log(log: pd.DataFrame, commands: CommandSet, source: str = "<table>
             text = message(i) if callable(message) else message
             faults.append(LogFault(source, int(rows[i]), column, text))
 
+    kinds = [c for c in _NUMERIC
+             if pd.api.types.is_timedelta64_dtype(df[c]) or pd.api.types.is_datetime64_any_dtype(df[c])]
+    if kinds:
+        raise LogError([LogFault(source, None, c, f"holds {df[c].dtype} values; give {c} as plain numbers of "
+                                 f"seconds (e.g. df[{c!r}].dt.total_seconds())") for c in kinds])
     null = {c: df[c].isna().to_numpy() | (df[c].astype(str).str.strip() == "").to_numpy() for c in LOG_COLUMNS}
     for c in LOG_COLUMNS:
         add(null[c], c, "missing value (NaN or empty)")
@@ -166,6 +182,8 @@ def validate_log(log: pd.DataFrame, commands: CommandSet, source: str = "<table>
         add(np.isinf(values), c, "value is infinite")
         numbers[c] = values
     add(numbers["duration_s"] < 0, "duration_s", lambda i: f"negative duration {numbers['duration_s'][i]} s")
+    for c in _INTEGER:
+        add(numbers[c] < 0, c, lambda i, c=c: f"negative {c} {numbers[c][i]:g} (must be >= 0)")
 
     known = {name: i for i, name in enumerate(commands.names)}
     cmd_text = df["command"].astype(str)
@@ -205,7 +223,17 @@ def validate_log(log: pd.DataFrame, commands: CommandSet, source: str = "<table>
                 ))
     if faults:
         faults.sort(key=lambda f: (f.row or 0, LOG_COLUMNS.index(f.column) if f.column in LOG_COLUMNS else 99))
-        raise LogError(faults)
+        if not skip_bad_participants or any(f.row is None for f in faults):
+            raise LogError(faults)
+        first: dict[str, str] = {}
+        for f in faults:
+            first.setdefault(str(part[f.row - 1]), str(f))
+        keep = ~np.isin(part, list(first))
+        if not keep.any():
+            raise LogError(faults)
+        rest = validate_log(log.iloc[np.flatnonzero(keep)], commands, source)
+        rest.attrs["skipped_participants"] = first
+        return rest
     df["participant"] = df["participant"].astype(str)
     for c in _INTEGER:
         df[c] = numbers[c].astype(np.int64)
