@@ -187,3 +187,30 @@ def test_render_or_step_before_reset_is_a_usage_error(mode) -> None:
         env.render()
     with pytest.raises(UsageError, match="call reset"):
         env.step(0)
+
+
+@pytest.mark.parametrize(("change", "message"), [
+    ({"seeds": {"first": 2**63 - 1, "count": 2}}, "exceeds"),
+    ({"seeds": [0, 2**64]}, "seeds must be in"),
+    ({"outputs": {"break_even": {"x": "costs.klm.keystroke_s", "y": "costs.learn.encoding_s", "command": 999}}},
+     "index 999 is outside"),
+    ({"outputs": {"break_even": {"x": "costs.klm.keystroke_s", "y": "costs.learn.encoding_s", "command": "Fly"}}},
+     "unknown command 'Fly'"),
+])
+def test_seed_overflow_and_break_even_command_are_checked_up_front(change, message) -> None:
+    spec = {**copy.deepcopy(GOOD), **change}
+    spec["vary"]["parameters"]["costs.learn.encoding_s"] = {"values": [1.0, 2.0]}
+    with pytest.raises(SweepSpecError, match=message):
+        parse_spec(spec)
+
+
+def test_relative_paths_in_a_spec_resolve_against_its_folder(tmp_path: Path, monkeypatch) -> None:
+    from shortcut_gym.lab.sweep.spec import base_settings, load_spec
+
+    (tmp_path / "specs").mkdir()
+    (tmp_path / "specs" / "fast.yaml").write_text("klm: {keystroke_s: 0.09}\n")
+    (tmp_path / "specs" / "s.yaml").write_text("name: r\nbase: {costs: fast.yaml}\nagents: [{name: always_menu}]\n"
+                                               "seeds: {count: 1}\n")
+    monkeypatch.chdir(tmp_path)  # not the spec's folder
+    spec = load_spec(tmp_path / "specs" / "s.yaml")
+    assert base_settings(spec)["costs"]["klm"]["keystroke_s"] == 0.09

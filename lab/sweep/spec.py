@@ -25,6 +25,11 @@ from shortcut_gym.envs.task import ScenarioSettings
 #: Most design points of one sweep (each point is one run per agent, planned in memory at once).
 MAX_POINTS = 100_000
 
+#: Largest seed (seeds are stored as signed 64-bit integers in the result tables).
+MAX_SEED = 2**63 - 1
+#: Most simulated users per run (their per-trial state is held in memory at once).
+MAX_USERS = 1_000_000
+
 #: Settings sections a dotted path may start with.
 SECTIONS = ("scenario", "costs", "memory", "schedule")
 
@@ -119,7 +124,13 @@ class SeedBlock(_Strict):
     """Simulated users: seeds ``first``, ``first + 1``, ... (``count`` of them)."""
 
     first: int = Field(default=0, ge=0)
-    count: int = Field(ge=1)
+    count: int = Field(ge=1, le=MAX_USERS)
+
+    @model_validator(mode="after")
+    def _fits_in_int64(self) -> SeedBlock:
+        if self.first + self.count - 1 > MAX_SEED:
+            raise ValueError(f"the last seed {self.first + self.count - 1} exceeds {MAX_SEED}")
+        return self
 
 
 class Horizon(_Strict):
@@ -168,8 +179,10 @@ class SweepSpec(_Strict):
                 raise ValueError("the seed list is empty")
             if len(set(v)) != len(v):
                 raise ValueError("the seed list repeats a seed")
-            if any(s < 0 for s in v):
-                raise ValueError("seeds must be >= 0")
+            if any(s < 0 or s > MAX_SEED for s in v):
+                raise ValueError(f"seeds must be in 0..{MAX_SEED}")
+            if len(v) > MAX_USERS:
+                raise ValueError(f"{len(v)} seeds; at most {MAX_USERS:,} simulated users per run")
         return v
 
     def seed_list(self) -> list[int]:
@@ -198,6 +211,12 @@ def parse_spec(data: Any, source: str = "<sweep spec>") -> SweepSpec:
         if path is not None and path not in varied:
             raise SweepSpecError(f"{source}: outputs.{field}: {path!r} is not a varied parameter; varied: {varied}")
     if out.break_even is not None:
+        cmd = out.break_even.command
+        names = [c["name"] for m in base["scenario"]["menus"] for c in m["items"]]
+        if isinstance(cmd, str) and cmd not in names:
+            raise SweepSpecError(f"{source}: outputs.break_even.command: unknown command {cmd!r}; known: {names}")
+        if isinstance(cmd, int) and not 0 <= cmd < len(names):
+            raise SweepSpecError(f"{source}: outputs.break_even.command: index {cmd} is outside 0..{len(names) - 1}")
         if spec.vary.design != "grid":
             raise SweepSpecError(f"{source}: outputs.break_even: the break-even map needs the grid design, "
                                  f"got {spec.vary.design!r}")
@@ -221,7 +240,20 @@ def load_spec(path: str | Path) -> SweepSpec:
         data = read_yaml(p)
     except ConfigError as err:
         raise SweepSpecError(str(err)) from None
-    return parse_spec(data, str(p))
+    return parse_spec(_relative_to(data, p.parent), str(p))
+
+
+def _relative_to(data: Any, folder: Path) -> Any:
+    """The spec with relative YAML paths of ``base.scenario/costs/memory`` taken from the spec's folder."""
+    base = data.get("base") if isinstance(data, dict) else None
+    if not isinstance(base, dict):
+        return data
+    fixed = dict(base)
+    for key in ("scenario", "costs", "memory"):
+        value = base.get(key)
+        if isinstance(value, str) and Path(value).suffix in (".yaml", ".yml") and not Path(value).is_absolute():
+            fixed[key] = str(folder / value)
+    return {**data, "base": fixed}
 
 
 def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, Any]:
