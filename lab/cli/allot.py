@@ -6,6 +6,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import parse_agent_arg
 from shortcut_gym.lab.design.assignment import (
     budget_curve,
@@ -47,26 +48,29 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def _pool(args: argparse.Namespace) -> list:
     if args.keys is not None:
-        return combos_from_labels([k.strip() for k in args.keys.split(",") if k.strip()])
+        try:
+            return combos_from_labels([k.strip() for k in args.keys.split(",") if k.strip()])
+        except ValueError as err:  # the labels' faults are all about the text given
+            raise CLIError(f"--keys {err}") from None
     parts = args.pool.split(",")
     if len(parts) != 3 or not all(p.strip().isdigit() for p in parts):
-        raise ValueError(f"--pool must be three whole numbers SINGLE,ONE_MODIFIER,TWO_MODIFIER, got {args.pool!r}")
+        raise CLIError(f"--pool must be three whole numbers SINGLE,ONE_MODIFIER,TWO_MODIFIER, got {args.pool!r}")
     return combo_pool(*(int(p) for p in parts))
 
 
 def run(args: argparse.Namespace) -> int:
     """Price every command by the planner, solve for each budget, print and optionally write."""
     if args.budget < 0:
-        raise ValueError(f"--budget must be >= 0, got {args.budget}")
+        raise CLIError(f"--budget must be >= 0, got {args.budget}")
     if args.sessions is not None and args.sessions < 1:
-        raise ValueError(f"--sessions must be >= 1, got {args.sessions}")
+        raise CLIError(f"--sessions must be >= 1, got {args.sessions}")
     pool = _pool(args)
     schedule = None if args.sessions is None else {"sessions": args.sessions}
     world = make_world(args.scenario, args.costs, args.memory, schedule)
     counts = {c.keystrokes for c in pool}
     if args.agent:
         if args.users < 1:
-            raise ValueError(f"--users must be >= 1, got {args.users}")
+            raise CLIError(f"--users must be >= 1, got {args.users}")
         specs = [parse_agent_arg(a) for a in args.agent]
         table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users))
     else:
