@@ -60,6 +60,7 @@ from shortcut_gym.agents.planner import (
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs import CommandSelectionEnv, World
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import MENU
 from shortcut_gym.envs.task import hotkey_keystrokes
 
@@ -83,13 +84,13 @@ def combos_from_labels(labels: Iterable[str]) -> list[KeyCombo]:
         try:
             strokes = hotkey_keystrokes(label)
         except ValueError as err:
-            raise ValueError(f"key combination: {err}") from None
+            raise ConfigError(f"key combination: {err}") from None
         if label in seen:
-            raise ValueError(f"key combination {label!r} is listed twice")
+            raise ConfigError(f"key combination {label!r} is listed twice")
         seen.add(label)
         out.append(KeyCombo(label, strokes))
     if not out:
-        raise ValueError("the pool of key combinations is empty")
+        raise ConfigError("the pool of key combinations is empty")
     return out
 
 
@@ -97,7 +98,7 @@ def combo_pool(single: int = 0, one_modifier: int = 0, two_modifier: int = 0) ->
     """A generated pool: ``single`` bare keys, ``one_modifier`` Ctrl+key, ``two_modifier`` Ctrl+Shift+key."""
     for name, v in (("single", single), ("one_modifier", one_modifier), ("two_modifier", two_modifier)):
         if int(v) != v or v < 0 or v > len(POOL_KEYS):
-            raise ValueError(f"{name} must be a whole number from 0 to {len(POOL_KEYS)}, got {v}")
+            raise ConfigError(f"{name} must be a whole number from 0 to {len(POOL_KEYS)}, got {v}")
     labels = [*POOL_KEYS[:single], *(f"Ctrl+{k}" for k in POOL_KEYS[:one_modifier]),
               *(f"Ctrl+Shift+{k}" for k in POOL_KEYS[:two_modifier])]
     return combos_from_labels(labels)
@@ -147,7 +148,7 @@ def with_keystrokes(world: World, keystrokes: int | Sequence[int]) -> World:
 
 def _check_share(keyboard_share: float) -> float:
     if not 0.0 <= float(keyboard_share) <= 1.0:
-        raise ValueError(f"keyboard_share must be in [0, 1], got {keyboard_share}")
+        raise ConfigError(f"keyboard_share must be in [0, 1], got {keyboard_share}")
     return float(keyboard_share)
 
 
