@@ -6,7 +6,7 @@ PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed-stamp
 OUT ?= out/demo
 
-.PHONY: setup demo test lint bench docs clean
+.PHONY: setup demo test lint typecheck bench docs clean
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -22,10 +22,14 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(VENV)/bin/ruff check .
+	$(PY) scripts/typecheck.py
 	$(VENV)/bin/pytest -n 2 -q
 
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
+
+typecheck: $(STAMP)
+	$(PY) scripts/typecheck.py
 
 bench: $(STAMP)
 	for s in scripts/bench_*.py; do echo "== $$s"; $(PY) $$s || exit 1; done

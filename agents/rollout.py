@@ -63,7 +63,7 @@ def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials:
     while not done:
         action = agent.act(obs, info)
         next_obs, reward, terminated, truncated, step_info = env.step(action)
-        agent.observe(Transition(obs, action, reward, next_obs, step_info, terminated, truncated))
+        agent.observe(Transition(obs, action, float(reward), next_obs, step_info, terminated, truncated))
         rows.append(trial_row(step_info))
         obs, info = next_obs, step_info
         done = terminated or truncated or (max_trials is not None and len(rows) >= max_trials)

@@ -89,7 +89,7 @@ class CommandSelectionEnv(gym.Env):
                 raise ValueError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
         obs = self._sim.reset(rngs=[self.np_random], schedules=[schedule])
         self._last = None
-        return obs[0].copy(), self._upcoming_info()
+        return obs[0].copy(), self._upcoming_info()  # type: ignore[return-value]
 
     def step(self, action: Any) -> tuple[np.ndarray, float, bool, bool, dict]:
         """One trial with ``action`` in {0: menu, 1: hotkey, 2: learn}."""
@@ -107,7 +107,7 @@ class CommandSelectionEnv(gym.Env):
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
         truncated = t + 1 >= sim.horizon
-        return sim.obs[0].copy(), float(sim.reward[0]), False, truncated, info
+        return sim.obs[0].copy(), float(sim.reward[0]), False, truncated, info  # type: ignore[return-value]
 
     def render(self) -> str | np.ndarray | None:
         """ansi: a one-line summary of the last trial; rgb_array: a picture of it (H x W x 3 uint8)."""
@@ -118,7 +118,7 @@ class CommandSelectionEnv(gym.Env):
 
             if self._painter is None:
                 self._painter = render.BoardPainter(self.world.commands)
-            return self._painter.draw(render.scene_of(self._sim, self._last))
+            return self._painter.draw(render.scene_of(self._sim, self._last))  # type: ignore[arg-type]
         if self.render_mode != "ansi":
             return None
         if self._last is None:

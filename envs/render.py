@@ -301,7 +301,7 @@ class BoardPainter:
         x0, y0 = 300.0, self.height - 135.0
         width = self.width - x0 - 14
         name = self.commands.names[s.last_command or 0]
-        ax.text(x0, y0 + 8, f"{_fit(name, 34)}: {k.ACTION_NAMES[s.last_action]} -> {s.last_outcome}",
+        ax.text(x0, y0 + 8, f"{_fit(name, 34)}: {k.ACTION_NAMES[s.last_action]} -> {s.last_outcome}",  # type: ignore[index]
                 color=colour, fontsize=9.5, va="center", fontweight="bold")
         ax.text(x0, y0 + 26, f"{s.last_duration_s:.2f} s    p(recall) at the trial {s.last_p_recall:.2f}",
                 color=_PANEL, fontsize=8.5, va="center")

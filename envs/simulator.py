@@ -142,7 +142,7 @@ class BatchSimulator:
                 self.sched_clock[rows] = self._clock
                 self.sched_session[rows] = self._session
                 self.sched_gap[rows] = self._gap
-        self.schedules = _LazySchedules(self, given)
+        self.schedules = _LazySchedules(self, given)  # type: ignore[arg-type]
         cap = self._trace_capacity(c)
         self.n_users, self.horizon = n, h
         self.fs = np.zeros((n, c, k.N_FS))

@@ -73,7 +73,7 @@ class TrialRecorder(gym.Wrapper):
         if self.max_trials is not None and len(self._rows) == self.max_trials:
             self.dropped += 1
         self._rows.append({"episode": self.episode, **trial_row(out[4])})
-        return out
+        return out  # type: ignore[return-value]
 
     def trials(self) -> pd.DataFrame:
         """The recorded trials, oldest first (``episode`` then :data:`TRIAL_COLUMNS`)."""

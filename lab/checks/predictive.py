@@ -146,7 +146,7 @@ def posterior_predictive(
     n_blocks = min(len(d) for d in data_shares)
     data_mean = np.mean([d[:n_blocks] for d in data_shares], axis=0)
     grows = []
-    for label, sims in group_sims.items():
+    for label, sims in group_sims.items():  # type: ignore[assignment]
         mean_over_people = np.mean([s[:, :n_blocks] for s in sims], axis=0)  # n_sims x blocks
         for b in range(n_blocks):
             grows.append({"model": label, "block": b, "data_mean": data_mean[b],

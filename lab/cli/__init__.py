@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import logging
 import sys
 
 from shortcut_gym.envs.errors import ShortcutGymError
@@ -51,6 +52,14 @@ def build_parser() -> argparse.ArgumentParser:
         prog="shortcut-gym",
         description="Simulate, fit, compare and sweep models of menu-to-hotkey transitions.",
     )
+    from shortcut_gym import __version__
+
+    parser.add_argument("--version", action="version", version=f"shortcut-gym {__version__}")
+    talk = parser.add_mutually_exclusive_group()
+    talk.add_argument("-v", "--verbose", action="store_true", dest="log_verbose",
+                      help="also show debug messages (on stderr; give it before the subcommand)")
+    talk.add_argument("-q", "--quiet", action="store_true", dest="log_quiet",
+                      help="show only warnings and errors (on stderr; give it before the subcommand)")
     sub = parser.add_subparsers(dest="command", metavar="SUBCOMMAND")
     sub.required = True
     for name in COMMAND_MODULES:
@@ -66,8 +75,16 @@ def main(argv: list[str] | None = None) -> int:
     """
     parser = build_parser()
     command = "shortcut-gym"
+    # the library logs status through the "shortcut_gym" logger; the CLI shows it on stderr
+    # (results go to stdout), for this call only
+    package_log = logging.getLogger("shortcut_gym")
+    handler = logging.StreamHandler(sys.stderr)
+    handler.setFormatter(logging.Formatter("%(message)s"))
+    old_level = package_log.level
+    package_log.addHandler(handler)
     try:
         args = parser.parse_args(argv)
+        package_log.setLevel(logging.DEBUG if args.log_verbose else logging.WARNING if args.log_quiet else logging.INFO)
         command = f"shortcut-gym {args.command}"
         return int(args.func(args) or 0)
     except CLIError as err:
@@ -76,6 +93,9 @@ def main(argv: list[str] | None = None) -> int:
     except ShortcutGymError as err:
         print(f"{command}: error: {one_line(err)}", file=sys.stderr)
         return 2
+    finally:
+        package_log.removeHandler(handler)
+        package_log.setLevel(old_level)
 
 
 if __name__ == "__main__":

@@ -88,7 +88,7 @@ def random_effects_bms(
     models = models or [f"model{j}" for j in range(kk)]
     if len(models) != kk:
         raise ValueError(f"{len(models)} model names for {kk} columns")
-    a0 = np.full(kk, float(alpha0)) if np.isscalar(alpha0) else np.asarray(alpha0, dtype=float)
+    a0 = np.full(kk, alpha0, dtype=float) if np.isscalar(alpha0) else np.asarray(alpha0, dtype=float)
     if a0.shape != (kk,) or (a0 <= 0).any():
         raise ValueError(f"alpha0 must be {kk} positive numbers, got {alpha0!r}")
     alpha = a0.copy()

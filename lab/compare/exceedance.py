@@ -161,7 +161,7 @@ def exact_omnibus_risk(log_evidence: np.ndarray, alpha0: np.ndarray | float = 1.
     """
     lme = np.asarray(log_evidence, dtype=float)
     kk = lme.shape[1]
-    a0 = np.full(kk, float(alpha0)) if np.isscalar(alpha0) else np.asarray(alpha0, dtype=float)
+    a0 = np.full(kk, alpha0, dtype=float) if np.isscalar(alpha0) else np.asarray(alpha0, dtype=float)
     log_p1 = exact_log_evidence_h1(lme, a0)
     log_p0 = float(logsumexp(lme + np.log(a0 / a0.sum()), axis=1).sum())
     return float(1.0 / (1.0 + math.exp(max(min(log_p1 - log_p0, 700.0), -700.0))))

@@ -227,7 +227,7 @@ def validate_log(log: pd.DataFrame, commands: CommandSet, source: str = "<table>
             raise LogError(faults)
         first: dict[str, str] = {}
         for f in faults:
-            first.setdefault(str(part[f.row - 1]), str(f))
+            first.setdefault(str(part[f.row - 1]), str(f))  # type: ignore[operator]
         keep = ~np.isin(part, list(first))
         if not keep.any():
             raise LogError(faults)

@@ -282,7 +282,7 @@ def solve_brute_force(saving: np.ndarray, budget: int) -> Assignment:
             for keys in itertools.permutations(range(m), b):
                 total = float(S[list(cmds), list(keys)].sum())
                 if total > best + 1e-12:
-                    best, best_pairs = total, tuple(zip(cmds, keys, strict=True))
+                    best, best_pairs = total, tuple(zip(cmds, keys, strict=True))  # type: ignore[assignment]
     return _result(S, best_pairs, "brute_force")
 
 
@@ -333,7 +333,7 @@ def _improve(S: np.ndarray, key_of: dict[int, int], budget: int) -> bool:
                         return True
     if len(key_of) < budget:  # a free command on a free combination
         for j in free_keys:
-            c = max((c for c in range(n) if c not in key_of), key=lambda c: S[c, j], default=None)
+            c = max((c for c in range(n) if c not in key_of), key=lambda c: S[c, j], default=None)  # type: ignore[assignment]
             if c is not None and S[c, j] > 1e-12:
                 key_of[c] = j
                 return True
@@ -366,7 +366,7 @@ def assignment_world_savings(world: World, table: SavingTable, combos: Sequence[
     strokes = np.full(world.commands.n_commands, int(no_hotkey_keystrokes))
     for c, j in assignment.pairs:
         strokes[c] = combos[j].keystrokes
-    mixed = with_keystrokes(world, strokes)
+    mixed = with_keystrokes(world, strokes)  # type: ignore[arg-type]
     plan = plan_world(mixed, max_uses=int(table.uses.max()), n_bins=n_bins,
                       keyboard_share=_check_share(keyboard_share), n_weight_bins=n_weight_bins)
     total = sum(float(plan.values[c][table.uses[c], 0]) for c in range(world.commands.n_commands))

@@ -94,12 +94,12 @@ def replay_probabilities(agent: Agent, trials: pd.DataFrame, context: AgentConte
 
     info: UpcomingInfo = upcoming(0)
     for t, r in enumerate(rec):
-        probs[t] = agent.action_probabilities(obs[t], info)
+        probs[t] = agent.action_probabilities(obs[t], info)  # type: ignore[arg-type]
         a = code[r["action"]]
         after = step_info(upcoming(t + 1), int(r["trial"]), int(r["session"]), float(r["onset_s"]), int(cmd[t]),
                           names[cmd[t]], a, r["outcome"], float(r["duration_s"]))
         next_obs = obs[min(t + 1, n - 1)]
-        agent.observe(Transition(obs[t], a, -float(r["duration_s"]), next_obs, after, False, t + 1 == n))
+        agent.observe(Transition(obs[t], a, -float(r["duration_s"]), next_obs, after, False, t + 1 == n))  # type: ignore[arg-type]
         info = after
     return probs
 

@@ -103,14 +103,14 @@ def simulate_users(
         raise ValueError(f"record must be 'blocks' or 'trials', got {record!r}")
     if not (isinstance(threads, int) and threads >= 1):
         raise ValueError(f"threads must be an integer >= 1, got {threads!r}")
-    seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)
+    seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)  # type: ignore[assignment]
     if len(seeds) == 0:
         raise ValueError("need at least one seed")
     if record == "trials":
-        return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)
+        return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)  # type: ignore[arg-type]
     size = min(chunk_users, -(-len(seeds) // threads))
     if len(seeds) <= size:
-        return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)
+        return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)  # type: ignore[arg-type]
     chunks = [seeds[i:i + size] for i in range(0, len(seeds), size)]
 
     def run(part: np.ndarray) -> BlockSums:
@@ -120,8 +120,8 @@ def simulate_users(
         with ThreadPoolExecutor(max_workers=threads) as pool:
             parts = list(pool.map(run, chunks))
     else:
-        parts = [run(part) for part in chunks]
-    return BlockSums(seeds, UserSums.concatenate([p.sums for p in parts]))
+        parts = [run(part) for part in chunks]  # type: ignore[arg-type]
+    return BlockSums(seeds, UserSums.concatenate([p.sums for p in parts]))  # type: ignore[arg-type]
 
 
 def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarray, record: str,

@@ -35,7 +35,7 @@ def adoption_plot(spec: SweepSpec, blocks: pd.DataFrame, path: Path) -> Path:
     if len(levels) > 9:  # many random / LHS values: bin them
         bins = pd.qcut(blocks[by], 6, duplicates="drop")
         levels = [str(c) for c in bins.cat.categories]  # in increasing order
-        blocks = blocks.assign(**{by: bins.astype(str)})
+        blocks = blocks.assign(**{str(by): bins.astype(str)})
     n = len(levels)
     cols = min(n, int(np.ceil(np.sqrt(n))))
     rows = -(-n // cols)

@@ -7,6 +7,7 @@ runs on disk, keeps them, and computes only the rest.
 
 from __future__ import annotations
 
+import logging
 import sys
 import time
 from dataclasses import dataclass, field
@@ -21,6 +22,8 @@ from shortcut_gym.lab.sweep.lock import FolderLock, describe_holder
 from shortcut_gym.lab.sweep.plan import plan_digest, plan_runs
 from shortcut_gym.lab.sweep.spec import SweepSpec, load_spec, parse_spec
 from shortcut_gym.lab.sweep.store import SweepStore
+
+log = logging.getLogger(__name__)
 
 
 @dataclass
@@ -58,7 +61,7 @@ def code_digest() -> str:
 
     h = hashlib.sha1()
     for pkg in (shortcut_gym.envs, shortcut_gym.agents):
-        for f in sorted(Path(pkg.__file__).parent.glob("*.py")):
+        for f in sorted(Path(pkg.__file__).parent.glob("*.py")):  # type: ignore[arg-type]
             h.update(f.name.encode())
             h.update(f.read_bytes())
     return h.hexdigest()[:12]
@@ -142,7 +145,7 @@ def run_sweep(
             store.log({"event": "start", "runs": len(runs), "to_run": len(todo), "backend": engine.name,
                        "stale_lock": lock.stale})
         for line in notes:
-            print(line, file=sys.stderr)
+            (log.warning if line.startswith("warning") else log.info)(line)
         if todo and not started:
             engine.start()
             started = True

@@ -205,7 +205,7 @@ def parse_spec(data: Any, source: str = "<sweep spec>") -> SweepSpec:
         resolve_path(base, path, f"{source}: vary.parameters.{path}")
     out = spec.outputs
     varied = list(spec.vary.parameters)
-    for field, path in (("adoption_by", out.adoption_by),
+    for field, path in (("adoption_by", out.adoption_by),  # type: ignore[assignment]
                         ("break_even.x", out.break_even.x if out.break_even else None),
                         ("break_even.y", out.break_even.y if out.break_even else None)):
         if path is not None and path not in varied:
