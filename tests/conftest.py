@@ -12,3 +12,12 @@ from hypothesis import settings
 settings.register_profile("default", derandomize=True, deadline=None)
 settings.register_profile("explore", derandomize=False, deadline=None)
 settings.load_profile("default")
+
+# The benchmark suites live in scripts/benchmarks/ (outside the package); tests that import them
+# directly must not depend on another test having put scripts/ on the path first.
+import sys  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+_SCRIPTS = str(Path(__file__).resolve().parents[1] / "scripts")
+if _SCRIPTS not in sys.path:
+    sys.path.insert(0, _SCRIPTS)
