@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
-from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import parse_agent_arg
+from shortcut_gym.lab.cli.options import add_world_options, parse_agent_arg, world_of
+from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
 from shortcut_gym.lab.design.assignment import (
     budget_curve,
     combo_pool,
@@ -23,11 +22,9 @@ from shortcut_gym.lab.design.plots import budget_figure, save_figure
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``allot`` subcommand."""
     p = sub.add_parser("allot", help="assign a budget of hotkeys to the commands that save the most time")
-    p.add_argument("--scenario", default=None, help="scenario preset name or YAML path (default: demo)")
-    p.add_argument("--costs", default=None, help="cost preset name or YAML path")
-    p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
-    p.add_argument("--sessions", type=int, default=None, help="sessions per user (default: the scenario's)")
-    p.add_argument("--budget", type=int, required=True, help="hotkeys to hand out (the curve runs 0..budget)")
+    add_world_options(p, sessions=True)
+    p.add_argument("--budget", type=whole_number(0), required=True,
+                   help="hotkeys to hand out (the curve runs 0..budget)")
     p.add_argument("--keys", default=None,
                    help="comma-separated free combinations, e.g. 'J,/,Ctrl+K,Ctrl+Shift+K' (the comma key itself "
                         "cannot be listed here)")
@@ -38,10 +35,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--agent", action="append", default=None,
                    help="price savings by simulating this population instead of the planner: agent as name or "
                         "name:param=value,... (repeatable, e.g. fitted learning models)")
-    p.add_argument("--users", type=int, default=20, help="simulated users per agent with --agent")
-    p.add_argument("--seed", type=int, default=0, help="first user seed with --agent")
-    p.add_argument("--bins", type=int, default=40, help="activation grid points of the planner")
-    p.add_argument("--out", type=Path, default=None,
+    p.add_argument("--users", type=whole_number(1), default=20, help="simulated users per agent with --agent")
+    p.add_argument("--seed", type=seed, default=0, help="first user seed with --agent")
+    p.add_argument("--bins", type=whole_number(2), default=40, help="activation grid points of the planner")
+    p.add_argument("--out", type=output_folder, default=None,
                    help="folder for savings.csv, assignment.csv, budget.csv and budget.png")
     p.set_defaults(func=run)
 
@@ -60,17 +57,10 @@ def _pool(args: argparse.Namespace) -> list:
 
 def run(args: argparse.Namespace) -> int:
     """Price every command by the planner, solve for each budget, print and optionally write."""
-    if args.budget < 0:
-        raise CLIError(f"--budget must be >= 0, got {args.budget}")
-    if args.sessions is not None and args.sessions < 1:
-        raise CLIError(f"--sessions must be >= 1, got {args.sessions}")
     pool = _pool(args)
-    schedule = None if args.sessions is None else {"sessions": args.sessions}
-    world = make_world(args.scenario, args.costs, args.memory, schedule)
+    world = world_of(args)
     counts = {c.keystrokes for c in pool}
     if args.agent:
-        if args.users < 1:
-            raise CLIError(f"--users must be >= 1, got {args.users}")
         specs = [parse_agent_arg(a) for a in args.agent]
         table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users))
     else:

@@ -18,6 +18,7 @@ import pandas as pd
 
 from shortcut_gym.agents.registry import AGENTS, make_agent
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.world import World, make_world
 from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
 from shortcut_gym.lab.fitting import PRIOR_FAMILIES, ModelSpec, make_prior
@@ -108,6 +109,22 @@ def parse_agent_arg(text: str) -> dict[str, Any]:
         except ValueError:
             raise CLIError(f"agent {text!r}: parameter {key} value {value!r} is not a number") from None
     return {"name": name, "params": params}
+
+
+def add_world_options(p: argparse.ArgumentParser, sessions: bool = False) -> None:
+    """The world options (scenario, costs, memory; optionally sessions) of the simulating subcommands."""
+    p.add_argument("--scenario", default=None, help="scenario preset name or YAML path (default: demo)")
+    p.add_argument("--costs", default=None, help="cost preset name or YAML path")
+    p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
+    if sessions:
+        p.add_argument("--sessions", type=whole_number(1), default=None,
+                       help="sessions per user (default: the scenario's)")
+
+
+def world_of(args: argparse.Namespace) -> World:
+    """The :class:`~shortcut_gym.envs.world.World` the options of :func:`add_world_options` name."""
+    sessions = getattr(args, "sessions", None)
+    return make_world(args.scenario, args.costs, args.memory, None if sessions is None else {"sessions": sessions})
 
 
 def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:

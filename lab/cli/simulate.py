@@ -6,9 +6,8 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.envs.errors import ConfigError
-from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import parse_agent_arg
+from shortcut_gym.lab.cli.options import add_world_options, parse_agent_arg, world_of
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, output_folder, seed, whole_number
 from shortcut_gym.lab.data.logs import log_format, log_from_simulation, write_log
 from shortcut_gym.lab.simulate import session_summary, simulate_agents
@@ -29,9 +28,7 @@ def _log_path(text: str) -> Path:
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``simulate`` subcommand."""
     p = sub.add_parser("simulate", help="simulate agents on a scenario and summarise per session")
-    p.add_argument("--scenario", default=None, help="scenario preset name or YAML path (default: demo)")
-    p.add_argument("--costs", default=None, help="cost preset name or YAML path")
-    p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
+    add_world_options(p)
     p.add_argument("--agent", action="append", default=None,
                    help="agent as name or name:param=value,... (repeatable; default: the baselines)")
     p.add_argument("--users", type=whole_number(1, MAX_USERS), default=5, help="simulated users per agent")
@@ -47,7 +44,7 @@ def run(args: argparse.Namespace) -> int:
     """Simulate, print the session table, optionally write the outputs."""
     if args.seed + args.users - 1 > MAX_SEED:
         raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
-    world = make_world(args.scenario, args.costs, args.memory)
+    world = world_of(args)
     agents = args.agent or ["always_menu", "always_hotkey", "learn_first_k:k=1"]
     specs = [parse_agent_arg(a) for a in agents]
     trials = simulate_agents(world, specs, range(args.seed, args.seed + args.users))
