@@ -1,0 +1,87 @@
+"""The participant duration fit: its inputs, identifiability and the world it implies."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from shortcut_gym.agents import make_agent
+from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.checks.predictive import simulate_log
+from shortcut_gym.lab.data.logs import participant_trials, validate_log
+from shortcut_gym.lab.fitting.durations import (
+    DurationFitError,
+    fit_durations,
+    fit_log_durations,
+    implied_world,
+    operator_design,
+)
+
+
+@pytest.fixture(scope="module")
+def world():
+    return make_world(schedule={"sessions": 2, "trials_per_session": 60})
+
+
+def _log(world, agent, n=1, seed=0):
+    return validate_log(simulate_log(world, agent, n, np.random.default_rng(seed)), world.commands)
+
+
+def test_operator_without_trials_is_not_identified_and_keeps_the_base_value(world):
+    log = _log(world, make_agent("random", p_hotkey=0.5, p_learn=0.0))
+    fit = fit_durations(participant_trials(log, log["participant"].iloc[0]), world)
+    assert not fit.identified["encoding_s"]
+    assert fit.estimates["encoding_s"] == world.costs.learn.encoding_s
+    assert math.isnan(fit.standard_errors["encoding_s"])
+    assert fit.identified["keystroke_s"] and fit.n_params == 6
+
+
+def test_noise_free_durations_give_the_true_operator_times(world):
+    truth = {"keystroke_s": 0.5, "home_s": 0.25, "encoding_s": 2.5, "latency_factor_s": 0.08, "point_s": 0.9,
+             "mental_s": 1.6}
+    w = implied_world(world, truth)
+    log = _log(w, make_agent("random", p_hotkey=0.5, p_learn=0.25), seed=2)
+    fit = fit_durations(participant_trials(log, log["participant"].iloc[0]), world, noise="gaussian")
+    for name, value in truth.items():
+        assert fit.estimates[name] == pytest.approx(value, abs=1e-9)
+    assert fit.world.costs.klm.k_s == pytest.approx(0.5) and fit.world.memory.latency_factor_s == pytest.approx(0.08)
+
+
+def test_wrong_hotkey_counts_two_mental_steps_the_undo_keys_and_two_homings(world):
+    log = _log(world, make_agent("always_hotkey"), seed=1)
+    trials = participant_trials(log, log["participant"].iloc[0])
+    design = operator_design(trials, world)
+    wrong = np.flatnonzero(trials["outcome"].to_numpy() == "hotkey_wrong")
+    assert len(wrong) > 0
+    keys = world.command_constants()[trials["command"].to_numpy()[wrong], 3]
+    np.testing.assert_array_equal(design.counts[wrong, 0], 2.0)
+    np.testing.assert_array_equal(design.counts[wrong, 1], keys + world.costs.errors.undo_keystrokes)
+    assert set(design.counts[wrong, 3]) <= {1.0, 2.0}
+
+
+def test_zero_duration_is_refused_by_the_lognormal_fit_naming_participant_and_trial(world):
+    log = _log(world, make_agent("always_menu"))
+    trials = participant_trials(log, log["participant"].iloc[0])
+    trials.loc[7, "duration_s"] = 0.0
+    with pytest.raises(DurationFitError, match=r"participant 'p9', trial 7: duration_s 0.0"):
+        fit_durations(trials, world, participant="p9")
+    fit_durations(trials, world, noise="gaussian")  # a zero is a valid gaussian observation
+
+
+def test_bad_noise_and_unknown_operator_are_refused(world):
+    log = _log(world, make_agent("always_menu"))
+    with pytest.raises(DurationFitError, match="noise must be"):
+        fit_durations(participant_trials(log, log["participant"].iloc[0]), world, noise="normal")  # type: ignore[arg-type]
+    with pytest.raises(DurationFitError, match="unknown operator"):
+        implied_world(world, {"typing_s": 0.2})
+
+
+def test_fit_log_durations_gives_one_row_and_one_world_per_participant(world):
+    log = _log(world, make_agent("random"), n=3)
+    table, worlds = fit_log_durations(log, world)
+    assert list(table["participant"]) == list(worlds) == ["sim-0", "sim-1", "sim-2"]
+    assert {"keystroke_s", "se_keystroke_s", "cv", "loglik"} <= set(table.columns)
+    for pid, w in worlds.items():
+        assert w.costs.klm.k_s == pytest.approx(table.set_index("participant").loc[pid, "keystroke_s"])
