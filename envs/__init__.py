@@ -1,5 +1,6 @@
 """The world: task, costs, memory, the CommandSelection environment and the batched simulator."""
 
+from shortcut_gym.envs.aids import AID_NAMES, AidSettings
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.errors import ActionError, ConfigError
@@ -15,7 +16,9 @@ register_envs()
 
 __all__ = [
     "ACTION_NAMES",
+    "AID_NAMES",
     "ActionError",
+    "AidSettings",
     "BatchSimulator",
     "CommandSelectionEnv",
     "ConfigError",

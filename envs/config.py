@@ -10,6 +10,7 @@ from typing import Any, TypeVar
 import yaml
 from pydantic import BaseModel, ValidationError
 
+from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.memory import MemorySettings
@@ -22,6 +23,7 @@ _FOLDERS: dict[type[BaseModel], str] = {
     CostSettings: "costs",
     ScenarioSettings: "scenarios",
     MemorySettings: "memory",
+    AidSettings: "aids",
 }
 
 

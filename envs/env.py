@@ -15,6 +15,7 @@ import numpy as np
 from gymnasium import spaces
 
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ActionError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
@@ -47,7 +48,8 @@ class CommandSelectionEnv(gym.Env):
     settings object), ``schedule`` (dict of schedule fields overriding the scenario's),
     ``observe_recall`` (expose the true recall probability), ``target_encoding``
     ('onehot' | 'index'), ``render_mode`` ('ansi': a line of text; 'rgb_array': a picture of the
-    trial, see :mod:`shortcut_gym.envs.render`). ``reset(options={'schedule': Schedule})``
+    trial, see :mod:`shortcut_gym.envs.render`), ``aids`` (interface aids, :mod:`shortcut_gym.envs.aids`).
+    ``reset(options={'schedule': Schedule})``
     replays a given schedule of targets.
     """
 
@@ -63,10 +65,11 @@ class CommandSelectionEnv(gym.Env):
         target_encoding: str = "onehot",
         render_mode: str | None = None,
         world: World | None = None,
+        aids: str | Path | dict | AidSettings | None = None,
     ) -> None:
         if render_mode is not None and render_mode not in self.metadata["render_modes"]:
             raise ValueError(f"render_mode must be one of {self.metadata['render_modes']}, got {render_mode!r}")
-        self.world = world or make_world(scenario, costs, memory, schedule, observe_recall, target_encoding)
+        self.world = world or make_world(scenario, costs, memory, schedule, observe_recall, target_encoding, aids)
         self.render_mode = render_mode
         self.action_space = spaces.Discrete(3)
         self.observation_space = self.world.observation_layout().space()
@@ -102,7 +105,7 @@ class CommandSelectionEnv(gym.Env):
             raise RuntimeError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
         self._act[0] = a
         k.step_users(self._act, sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us,
-                     sim.sched_cmd, sim.sched_clock, sim.sched_onset, sim.sched_u,
+                     sim.sched_cmd, sim.sched_clock, sim.sched_onset, sim.sched_u, sim.sched_session,
                      sim.reward, sim.outcome, sim.ops, sim.p_recall, sim.obs)
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info

@@ -35,14 +35,20 @@ OUTCOME_NAMES = ("menu", "hotkey", "hotkey_forgotten", "hotkey_wrong", "learned"
  P_EXP_RATE, P_POW_U, W_LEARN, W_HK_OK, W_HK_FAIL, W_MENU) = range(20)
 N_PAR = 20
 # integer parameters
-I_KIND, I_RECENT, I_OBS_RECALL, I_ONEHOT = range(4)
-N_IPAR = 4
+I_KIND, I_RECENT, I_OBS_RECALL, I_ONEHOT, I_AIDS, I_WARMUP = range(6)
+N_IPAR = 6
+# I_AIDS: 1 when any interface aid is on (0 runs exactly the aid-free path); I_WARMUP: 0 off, 1 first
+# session only, 2 every session (see :mod:`shortcut_gym.envs.aids`)
 # memory kinds (see memory.MEMORY_CODES)
 K_ACTR, K_ACTR_EXACT, K_PA, K_EXP, K_POW = range(5)
 
 # ---- per-command constants ----------------------------------------------------------------
 C_SEARCH, C_DECISION, C_POINTING, C_KEYS = range(4)
-N_CMDC = 4
+# interface aids (0 when off): label search s, label trace, nudge window [from, until) of menu
+# selections, nudge s and trace, menu delay s, uses before lockout (inf: never), warm-up s and trace
+(C_LABEL_SEARCH, C_LABEL_W, C_NUDGE_FROM, C_NUDGE_UNTIL, C_NUDGE_S, C_NUDGE_W, C_DELAY_S, C_LOCK_AFTER,
+ C_WARMUP_S, C_WARMUP_W) = range(4, 14)
+N_CMDC = 14
 
 # ---- per-user per-command state -----------------------------------------------------------
 F_OLD_W, F_OLD_FIRST, F_OLD_LAST, F_EXP_S, F_EXP_T, F_LAST_USE = range(6)
@@ -55,9 +61,11 @@ N_US = 2
 HAND_MOUSE, HAND_KEYBOARD = 0, 1
 
 # ---- time breakdown by operator -----------------------------------------------------------
-OPERATOR_NAMES = ("M", "K", "P", "B", "H", "search", "decision", "pointing", "retrieval", "encoding")
-(O_M, O_K, O_P, O_B, O_H, O_SEARCH, O_DECISION, O_POINTING, O_RETRIEVAL, O_ENCODING) = range(10)
-N_OPS = 10
+OPERATOR_NAMES = ("M", "K", "P", "B", "H", "search", "decision", "pointing", "retrieval", "encoding",
+                  "label_search", "nudge", "menu_delay", "lockout", "warmup")
+(O_M, O_K, O_P, O_B, O_H, O_SEARCH, O_DECISION, O_POINTING, O_RETRIEVAL, O_ENCODING,
+ O_LABEL_SEARCH, O_NUDGE, O_MENU_DELAY, O_LOCKOUT, O_WARMUP) = range(15)
+N_OPS = 15
 
 @njit(cache=True)
 def activation(ipar, par, fs, ist, tr, now):
@@ -137,8 +145,9 @@ def add_trace(ipar, par, fs, ist, tr, now, w):
 
 
 @njit(cache=True)
-def _menu(par, cmdc, ist, hand, include_m, ops):
-    """Menu selection time; counts the selection for the search-to-decision expertise."""
+def _menu(par, cmdc, ist, hand, include_m, ops, aids):
+    """Menu selection time; counts the selection for the search-to-decision expertise. With
+    ``aids`` the interface aids' menu costs are added (label search, nudge, delay)."""
     t = 0.0
     if include_m:
         ops[O_M] += par[P_M]
@@ -155,7 +164,50 @@ def _menu(par, cmdc, ist, hand, include_m, ops):
     ops[O_SEARCH] += search
     ops[O_DECISION] += decision
     ops[O_POINTING] += cmdc[C_POINTING]
-    return t + par[P_P] + 4.0 * par[P_B] + search + decision + cmdc[C_POINTING]
+    t = t + par[P_P] + 4.0 * par[P_B] + search + decision + cmdc[C_POINTING]
+    if aids:
+        label = (1.0 - e) * cmdc[C_LABEL_SEARCH]
+        nudge = cmdc[C_NUDGE_S] if cmdc[C_NUDGE_FROM] <= ist[S_MENU_SEL] < cmdc[C_NUDGE_UNTIL] else 0.0
+        ops[O_LABEL_SEARCH] += label
+        ops[O_NUDGE] += nudge
+        ops[O_MENU_DELAY] += cmdc[C_DELAY_S]
+        t += label + nudge + cmdc[C_DELAY_S]
+    return t
+
+
+@njit(cache=True)
+def _aid_menu_end(par, cmdc, ist, uses, ops):
+    """After a menu selection with aids on: (extra seconds, extra trace weight, hand on keyboard).
+
+    The label's and the nudge's traces; a locked item (``uses`` >= the lockout count) makes the
+    user type the hotkey it shows: H + keys x K."""
+    w = cmdc[C_LABEL_W]
+    if cmdc[C_NUDGE_FROM] <= ist[S_MENU_SEL] < cmdc[C_NUDGE_UNTIL]:
+        w += cmdc[C_NUDGE_W]
+    if uses >= cmdc[C_LOCK_AFTER]:
+        t = par[P_H] + cmdc[C_KEYS] * par[P_K]
+        ops[O_LOCKOUT] += t
+        return t, w, True
+    return 0.0, w, False
+
+
+@njit(cache=True)
+def _warmup(ipar, par, cmdc, fs, ist, tr, hand, now, ops):
+    """The warm-up block before a session's first trial: (seconds, hand after). One H from the
+    mouse, then each practised command's reading + M + keys x K; their traces are laid at the
+    block's start (``now`` minus the block's length)."""
+    block = 0.0
+    for j in range(cmdc.shape[0]):
+        block += cmdc[j, C_WARMUP_S]
+    if block == 0.0:
+        return 0.0, hand
+    if hand == HAND_MOUSE:
+        block += par[P_H]
+    for j in range(cmdc.shape[0]):
+        if cmdc[j, C_WARMUP_S] > 0.0:
+            add_trace(ipar, par, fs[j], ist[j], tr[j], now - block, cmdc[j, C_WARMUP_W])
+    ops[O_WARMUP] += block
+    return block, HAND_KEYBOARD
 
 
 @njit(cache=True)
@@ -190,14 +242,16 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
 
 @njit(cache=True)
 def step_user(
-    b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, ops, full, fail_lat,
+    b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session, ops, full,
+    fail_lat,
 ):
     """Advance user ``b`` one trial with action ``act``; returns (duration_s, outcome code, p_recall).
 
-    Writes the operator breakdown into ``ops`` (10,). With ``full`` False the recall probability is
+    Writes the operator breakdown into ``ops`` (N_OPS,). With ``full`` False the recall probability is
     computed only when the action needs it (a hotkey attempt) and returned as -1.0 otherwise; the
     duration, outcome and memory state are the same either way. Writes no observation.
     ``fail_lat`` is :func:`failed_retrieval_s` of ``par`` (computed once by the caller).
+    ``sched_session`` is read only by the warm-up aid (a session's first trial).
     """
     t = us[b, U_TRIAL]
     c = sched_cmd[b, t]
@@ -208,6 +262,11 @@ def step_user(
     o = ops
     o[:] = 0.0
     hand = us[b, U_HAND]
+    aids = ipar[I_AIDS] == 1
+    dur = 0.0
+    if ipar[I_WARMUP] != 0 and (t == 0 or (ipar[I_WARMUP] == 2 and sched_session[b, t] != sched_session[b, t - 1])):
+        dur, hand = _warmup(ipar, par, cmdc, fs[b], ist[b], tr[b], hand, now, o)
+    uses = s[S_EXPOSURE]
     if full or act == HOTKEY:
         a = activation(ipar, par, f, s, trc, now)
         p = recall_p(par, a)
@@ -215,19 +274,19 @@ def step_user(
         a = -np.inf
         p = -1.0
     if act == MENU:
-        dur = _menu(par, cmdc[c], s, hand, True, o)
+        dur += _menu(par, cmdc[c], s, hand, True, o, aids)
         res = OUT_MENU
         w = par[W_MENU]
         us[b, U_HAND] = HAND_MOUSE
     elif act == LEARN:
-        dur = _menu(par, cmdc[c], s, hand, True, o) + par[P_ENC]
+        dur += _menu(par, cmdc[c], s, hand, True, o, aids) + par[P_ENC]
         o[O_ENCODING] += par[P_ENC]
         res = OUT_LEARNED
         w = par[W_LEARN]
         s[S_LEARN] += 1
         us[b, U_HAND] = HAND_MOUSE
     else:
-        dur = par[P_M]
+        dur += par[P_M]
         o[O_M] += par[P_M]
         if hand == HAND_MOUSE:
             dur += par[P_H]
@@ -255,10 +314,16 @@ def step_user(
                 res = OUT_WRONG
             else:
                 res = OUT_FORGOTTEN
-            dur += _menu(par, cmdc[c], s, HAND_KEYBOARD, False, o)
+            dur += _menu(par, cmdc[c], s, HAND_KEYBOARD, False, o, aids)
             w = par[W_HK_FAIL]
             s[S_HK_FAIL] += 1
             us[b, U_HAND] = HAND_MOUSE
+    if aids and res != OUT_HOTKEY:
+        extra_s, extra_w, typed = _aid_menu_end(par, cmdc[c], s, uses, o)
+        dur += extra_s
+        w += extra_w
+        if typed:
+            us[b, U_HAND] = HAND_KEYBOARD
     add_trace(ipar, par, f, s, trc, now, w)
     s[S_EXPOSURE] += 1
     f[F_LAST_USE] = sched_onset[b, t]
@@ -292,7 +357,7 @@ def write_obs_users(ipar, par, n_cmd, fs, ist, tr, us, sched_cmd, sched_clock, s
 
 @njit(cache=True)
 def step_users(
-    actions, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
+    actions, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
     reward, outcome, ops, p_recall, obs,
 ):
     """Advance every user one trial with its action; write reward, outcome, breakdown, obs."""
@@ -302,7 +367,7 @@ def step_users(
     fail_lat = failed_retrieval_s(par)
     for b in range(n_users):
         dur, res, p = step_user(b, actions[b], ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock,
-                                sched_onset, sched_u, ops[b], True, fail_lat)
+                                sched_onset, sched_u, sched_session, ops[b], True, fail_lat)
         p_recall[b] = p
         reward[b] = -dur
         outcome[b] = res

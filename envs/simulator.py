@@ -192,7 +192,7 @@ class BatchSimulator:
             i = int(np.argmax(bad))
             raise ActionError(f"action {int(acts[i])} of user {i} is not 0 (menu), 1 (hotkey) or 2 (learn)")
         k.step_users(acts.astype(np.int64), self.ipar, self.par, self.cmdc, self.fs, self.ist, self.tr,
-                     self.us, self.sched_cmd, self.sched_clock, self.sched_onset, self.sched_u,
+                     self.us, self.sched_cmd, self.sched_clock, self.sched_onset, self.sched_u, self.sched_session,
                      self.reward, self.outcome, self.ops, self.p_recall, self.obs)
         return self.reward
 

@@ -43,7 +43,7 @@ class CommandSelectionVectorEnv(VectorEnv):
     """``num_envs`` simulated users of one world stepped by one kernel call per step.
 
     Keyword arguments are those of :class:`CommandSelectionEnv` (``scenario``, ``costs``,
-    ``memory``, ``schedule``, ``observe_recall``, ``target_encoding``) or a ready ``world``;
+    ``memory``, ``schedule``, ``observe_recall``, ``target_encoding``, ``aids``) or a ready ``world``;
     ``full_info=False`` leaves out the per-user name strings and the operator breakdown (faster).
     """
 

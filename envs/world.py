@@ -10,6 +10,7 @@ from typing import Any, Literal
 import numpy as np
 
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.config import load_settings, validate
 from shortcut_gym.envs.costs import CostSettings, fitts_time_s, hick_hyman_time_s
 from shortcut_gym.envs.errors import ConfigError
@@ -40,6 +41,7 @@ class World:
     schedule: ScheduleSettings
     observe_recall: bool = False
     target_encoding: TargetEncoding = "onehot"
+    aids: AidSettings = AidSettings()
 
     @property
     def horizon(self) -> int:
@@ -88,10 +90,13 @@ class World:
         ipar[k.I_RECENT] = m.recent_traces
         ipar[k.I_OBS_RECALL] = int(self.observe_recall)
         ipar[k.I_ONEHOT] = int(self.target_encoding == "onehot")
+        ipar[k.I_AIDS] = int(self.aids.any_on)
+        ipar[k.I_WARMUP] = 0 if not self.aids.warmup.on else (1 if self.aids.warmup.sessions == "first" else 2)
         return par, ipar
 
     def command_constants(self) -> np.ndarray:
-        """Per command: visual search time, Hick-Hyman decision time, pointing time, key count.
+        """Per command: visual search time, Hick-Hyman decision time, pointing time, key count, and
+        the interface aids' constants (``kernel.C_LABEL_SEARCH`` .. ``C_WARMUP_W``, see :meth:`aid_constants`).
 
         Computed once per world (it is frozen) and returned as a fresh copy.
         """
@@ -112,7 +117,40 @@ class World:
             h = mm.item_height_px
             out[i, k.C_POINTING] = fitts_time_s((cs.item_index[i] + 0.5) * h, h, f.intercept_s, f.slope_s_per_bit)
             out[i, k.C_KEYS] = cs.keystrokes[i]
+        out[:, k.C_LABEL_SEARCH:] = self.aid_constants()
         return out
+
+    def aid_constants(self) -> np.ndarray:
+        """(commands, 10) the aids' per-command constants in kernel column order from
+        ``kernel.C_LABEL_SEARCH``; all zero (lockout after infinitely many uses) with every aid off."""
+        a, cs, klm = self.aids, self.commands, self.costs.klm
+        names = cs.names
+        out = np.zeros((cs.n_commands, k.N_CMDC - k.C_LABEL_SEARCH))
+
+        def col(c: int) -> int:
+            return c - k.C_LABEL_SEARCH
+
+        labelled = a.key_labels.mask(names, "aids.key_labels")
+        for i in range(cs.n_commands):
+            same_menu = cs.menu_of == cs.menu_of[i]
+            out[i, col(k.C_LABEL_SEARCH)] = a.key_labels.search_s_per_label * int(labelled[same_menu].sum())
+        out[labelled, col(k.C_LABEL_W)] = a.key_labels.trace_weight
+        nudged = a.nudge.mask(names, "aids.nudge")
+        out[nudged, col(k.C_NUDGE_FROM)] = a.nudge.after_menu_selections
+        out[nudged, col(k.C_NUDGE_UNTIL)] = a.nudge.after_menu_selections + a.nudge.times
+        out[nudged, col(k.C_NUDGE_S)] = a.nudge.reading_s
+        out[nudged, col(k.C_NUDGE_W)] = a.nudge.trace_weight
+        out[a.menu_delay.mask(names, "aids.menu_delay"), col(k.C_DELAY_S)] = a.menu_delay.delay_s
+        locked = a.menu_lockout.mask(names, "aids.menu_lockout")
+        out[:, col(k.C_LOCK_AFTER)] = np.where(locked, float(a.menu_lockout.after_uses), np.inf)
+        warm = a.warmup.mask(names, "aids.warmup")
+        out[warm, col(k.C_WARMUP_S)] = a.warmup.reading_s + klm.mental_s + cs.keystrokes[warm] * klm.k_s
+        out[warm, col(k.C_WARMUP_W)] = a.warmup.trace_weight
+        return out
+
+    def warmup_block_s(self) -> float:
+        """Seconds of the warm-up block from the keyboard (0 with the aid off; H more from the mouse)."""
+        return float(self.aid_constants()[:, k.C_WARMUP_S - k.C_LABEL_SEARCH].sum())
 
     def trace_capacity(self, schedules: list[Schedule]) -> int:
         """Trace-buffer length per command: k for the O(1) forms, else the most trials of one command."""
@@ -148,11 +186,14 @@ def make_world(
     schedule: dict | ScheduleSettings | None = None,
     observe_recall: bool = False,
     target_encoding: str = "onehot",
+    aids: str | Path | dict | AidSettings | None = None,
 ) -> World:
-    """Resolve names, paths and dicts into a validated :class:`World`."""
+    """Resolve names, paths and dicts into a validated :class:`World` (``aids``: interface aids,
+    :mod:`shortcut_gym.envs.aids`; None = none)."""
     sc = load_settings(ScenarioSettings, DEFAULT_SCENARIO if scenario is None else scenario)
     co = load_settings(CostSettings, DEFAULT_COSTS if costs is None else costs)
     me = load_settings(MemorySettings, memory)
+    ai = load_settings(AidSettings, aids)
     if schedule is None:
         sch = sc.schedule
     elif isinstance(schedule, ScheduleSettings):
@@ -172,8 +213,15 @@ def make_world(
         schedule=sch,
         observe_recall=observe_recall,
         target_encoding=target_encoding,  # type: ignore[arg-type]
+        aids=ai,
     )
     retrieval_fail = me.latency_factor_s * math.exp(-me.threshold)
     if not math.isfinite(retrieval_fail):
         raise ConfigError(f"memory.threshold={me.threshold} makes the retrieval-failure time infinite")
+    world.aid_constants()  # unknown command names raise here, naming the aid
+    block = world.warmup_block_s() + co.klm.home_s
+    if ai.warmup.on and block >= sch.trial_interval_s:
+        raise ConfigError(f"aids.warmup: the warm-up block lasts {block:.2f} s, not shorter than the schedule's "
+                          f"trial_interval_s={sch.trial_interval_s} (its traces would predate the previous trial); "
+                          "practise fewer commands or lengthen the interval")
     return world

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from shortcut_gym.envs import ConfigError, CostSettings, make_world
+from shortcut_gym.envs import CommandSelectionEnv, ConfigError, CostSettings, kernel, make_world
 from shortcut_gym.envs.config import bundled_names, load_settings
 
 
@@ -102,7 +102,18 @@ def test_single_key_and_punctuation_hotkeys_are_valid(hotkey: str, keys: int) ->
     world = make_world(scenario=_scenario(menus=[{"title": "A", "items": [
         {"name": "x", "hotkey": hotkey}, {"name": "y", "hotkey": "Ctrl+Y"}]}]))
     assert world.commands.keystrokes[0] == keys
-    assert world.command_constants()[0, -1] == keys
+    assert world.command_constants()[0, kernel.C_KEYS] == keys
+    # in the running env a recalled hotkey of the command costs its keystrokes x K
+    env = CommandSelectionEnv(world=world)
+    _, info = env.reset(seed=0)
+    learned, recalled = False, []
+    for _ in range(world.horizon):
+        mine = info["target"] == 0
+        _, _, _, _, info = env.step(0 if not mine else (1 if learned else 2))
+        learned = learned or mine
+        if mine and info["outcome"] == "hotkey":
+            recalled.append(info["time_s"]["K"])
+    assert recalled and all(v == pytest.approx(keys * world.costs.klm.k_s, rel=1e-12) for v in recalled)
 
 
 def test_unknown_preset_lists_bundled_ones() -> None:

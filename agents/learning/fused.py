@@ -81,7 +81,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         last = t == h - 1
         o = ops[b] if last else scratch
         dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, o, last, fail_lat)
+                                   sched_u, sched_session, o, last, fail_lat)
         update(b, c, a, res, dur, p, rules, st)
         s = sched_session[b, t]
         sums.trials[b, s] += 1

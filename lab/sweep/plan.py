@@ -25,7 +25,7 @@ def world_from_settings(settings: dict[str, Any]) -> World:
     return make_world(
         scenario=settings["scenario"], costs=settings["costs"], memory=settings["memory"],
         schedule=settings["schedule"], observe_recall=settings["observe_recall"],
-        target_encoding=settings["target_encoding"],
+        target_encoding=settings["target_encoding"], aids=settings.get("aids"),
     )
 
 

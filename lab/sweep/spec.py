@@ -15,6 +15,7 @@ from typing import Any, Literal
 
 from pydantic import ConfigDict, Field, ValidationError, field_validator, model_validator
 
+from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.config import format_validation_error, load_settings, read_yaml
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ConfigError
@@ -30,8 +31,8 @@ MAX_SEED = 2**63 - 1
 #: Most simulated users per run (their per-trial state is held in memory at once).
 MAX_USERS = 1_000_000
 
-#: Settings sections a dotted path may start with.
-SECTIONS = ("scenario", "costs", "memory", "schedule")
+#: Settings sections a dotted path may start with (``aids``: interface aids, :mod:`shortcut_gym.envs.aids`).
+SECTIONS = ("scenario", "costs", "memory", "schedule", "aids")
 
 
 class SweepSpecError(ConfigError):
@@ -49,6 +50,7 @@ class BaseSetting(_Strict):
     costs: str | dict[str, Any] | None = None
     memory: str | dict[str, Any] | None = None
     schedule: dict[str, Any] | None = None
+    aids: str | dict[str, Any] | None = None
     observe_recall: bool = False
     target_encoding: Literal["onehot", "index"] = "onehot"
 
@@ -249,7 +251,7 @@ def _relative_to(data: Any, folder: Path) -> Any:
     if not isinstance(base, dict):
         return data
     fixed = dict(base)
-    for key in ("scenario", "costs", "memory"):
+    for key in ("scenario", "costs", "memory", "aids"):
         value = base.get(key)
         if isinstance(value, str) and Path(value).suffix in (".yaml", ".yml") and not Path(value).is_absolute():
             fixed[key] = str(folder / value)
@@ -263,6 +265,7 @@ def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, An
         scenario = load_settings(ScenarioSettings, "tidepool_logbook" if b.scenario is None else b.scenario)
         costs = load_settings(CostSettings, "average_skilled_mouse" if b.costs is None else b.costs)
         memory = load_settings(MemorySettings, b.memory)
+        aids = load_settings(AidSettings, b.aids)
     except ConfigError as err:
         raise SweepSpecError(f"{source}: base: {err}") from None
     schedule = {**scenario.schedule.model_dump(), **(b.schedule or {})}
@@ -270,7 +273,7 @@ def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, An
         schedule.update({k: v for k, v in spec.horizon.model_dump().items() if v is not None})
     scen = scenario.model_dump()
     scen.pop("schedule")
-    return {
+    out = {
         "scenario": scen,
         "costs": costs.model_dump(),
         "memory": memory.model_dump(),
@@ -278,6 +281,10 @@ def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, An
         "observe_recall": b.observe_recall,
         "target_encoding": b.target_encoding,
     }
+    # the aids section only when the spec uses it, so aid-free specs keep their run ids
+    if b.aids is not None or any(p.split(".")[0] == "aids" for p in spec.vary.parameters):
+        out["aids"] = aids.model_dump()
+    return out
 
 
 def _step(node: Any, key: str, where: str, done: str) -> Any:
@@ -302,7 +309,8 @@ def resolve_path(settings: dict[str, Any], path: str, where: str) -> Any:
     node: Any = settings
     for i, key in enumerate(parts):
         node = _step(node, key, where, ".".join(parts[:i]) or "the settings")
-    if isinstance(node, (dict, list)) and not (parts[0] == "schedule" and parts[-1] == "gap_h"):
+    listed = (parts[0] == "schedule" and parts[-1] == "gap_h") or (parts[0] == "aids" and parts[-1] == "commands")
+    if isinstance(node, (dict, list)) and not listed:
         raise SweepSpecError(f"{where}: {path!r} is a group of settings, not one setting")
     return node
 
