@@ -2,11 +2,20 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.frozen_policy import (
+    FrozenBatchPolicy,
+    cdf_of,
+    constant_rule,
+    first_uses_rule,
+    frozen_policy,
+    uses_session_rule,
+)
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import HOTKEY, LEARN, MENU
 
@@ -25,6 +34,10 @@ class AlwaysMenu(Agent):
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         return _one_hot(MENU)
 
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
+        """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        return frozen_policy(self, n_users, seeds, lambda uses, sessions: constant_rule(MENU))
+
 
 class AlwaysHotkey(Agent):
     """Tries the hotkey on every trial (falls back to the menu when recall fails)."""
@@ -33,6 +46,10 @@ class AlwaysHotkey(Agent):
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         return _one_hot(HOTKEY)
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
+        """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        return frozen_policy(self, n_users, seeds, lambda uses, sessions: constant_rule(HOTKEY))
 
 
 class LearnFirstK(Agent):
@@ -60,6 +77,11 @@ class LearnFirstK(Agent):
         c = int(transition.info["command"])
         self.uses[c] = self.uses.get(c, 0) + 1
 
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
+        """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        k = int(self.params["k"])
+        return frozen_policy(self, n_users, seeds, lambda uses, sessions: first_uses_rule(k))
+
 
 class RandomAgent(Agent):
     """Picks menu, hotkey, learn with fixed probabilities (``p_hotkey``, ``p_learn``)."""
@@ -77,3 +99,8 @@ class RandomAgent(Agent):
         if ph + pl > 1.0 + 1e-12:
             raise ValueError(f"{self.name}: p_hotkey + p_learn = {ph + pl} exceeds 1")
         return np.array([max(1.0 - ph - pl, 0.0), ph, pl])
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
+        """Compiled policy of ``n_users`` users; user i draws what ``reset(seeds[i])`` draws."""
+        cdf = cdf_of(self.action_probabilities(np.zeros(0), {}))  # checks the probabilities first
+        return frozen_policy(self, n_users, seeds, lambda uses, sessions: uses_session_rule(cdf.reshape(1, 1, 3)))

@@ -20,7 +20,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, agent_rng
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.frozen_policy import DecisionRule, FrozenBatchPolicy, cdf_of, frozen_policy, uses_session_rule
 from shortcut_gym.envs.kernel import ACTION_NAMES
 
 COVARIATES: tuple[str, ...] = ("log_exposure", "session")
@@ -97,12 +98,6 @@ class StaticSoftmax(Agent):
         super().reset(seed)
         self.exposures: dict[int, int] = {}
 
-    def _features(self, target: int, session: int) -> np.ndarray:
-        x = [1.0]
-        for c in self.covariates:
-            x.append(np.log1p(self.exposures.get(target, 0)) if c == "log_exposure" else float(session))
-        return np.asarray(x)
-
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         """P(menu, hotkey, learn) of the upcoming trial: reads ``info['target']`` and, for the
         session covariate, ``info['next_session']`` (the upcoming trial's session, never the
@@ -113,10 +108,25 @@ class StaticSoftmax(Agent):
                 raise ValueError(f"{self.name}: the session covariate reads info['next_session'] (the upcoming "
                                  f"trial's session); the info given has only {sorted(info)}")
             session = int(info["next_session"])
-        u = np.r_[0.0, self._features(int(info["target"]), session) @ self.coefficient_matrix()]
-        u -= u.max()
-        p = np.exp(u)
-        return p / p.sum()
+        uses = np.array([self.exposures.get(int(info["target"]), 0)], dtype=np.int64)
+        return self.probability_rows(uses, np.array([session], dtype=np.int64))[0]
+
+    def probability_rows(self, uses: np.ndarray, session: np.ndarray) -> np.ndarray:
+        """(N, 3) P(menu, hotkey, learn) given the target's earlier uses (N,) and the session (N,).
+
+        The acting path (one row) and the batch policy's tables (many rows) both compute here, row
+        by row with the same elementwise operations, so they agree bit for bit."""
+        features = [np.ones(len(uses))]
+        for c in self.covariates:
+            features.append(np.log1p(np.asarray(uses, dtype=np.float64)) if c == "log_exposure"
+                            else np.asarray(session, dtype=np.float64))
+        coef = self.coefficient_matrix()
+        full = np.zeros((len(uses), 3))
+        for j, x in enumerate(features):
+            full[:, 1:] += x[:, None] * coef[j]
+        full -= full.max(axis=1, keepdims=True)
+        p = np.exp(full)
+        return p / p.sum(axis=1, keepdims=True)
 
     def observe(self, transition: Transition) -> None:
         c = int(transition.info["command"])
@@ -156,50 +166,14 @@ class StaticSoftmax(Agent):
         return loglik
 
     # ---- batched simulation ---------------------------------------------------------------
-    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> StaticSoftmaxBatch:
-        """Vectorised policy for ``n_users`` users; user i draws what ``reset(seeds[i])`` would."""
-        return StaticSoftmaxBatch(self, n_users, seeds)
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
+        """Compiled policy of ``n_users`` users; user i draws what ``reset(seeds[i])`` would
+        (action probabilities tabulated by the target's use count and the session)."""
+        return frozen_policy(self, n_users, seeds, self._rule)
 
-
-class StaticSoftmaxBatch:
-    """Many users of one :class:`StaticSoftmax`: exposure counts per user and command, numpy only.
-
-    The session covariate is counted by the caller through :meth:`set_session`.
-    """
-
-    def __init__(self, agent: StaticSoftmax, n_users: int, seeds: Sequence[int]) -> None:
-        if len(seeds) != n_users:
-            raise ValueError(f"{len(seeds)} seeds for {n_users} users")
-        n_cmd = agent.context.n_commands if agent.context is not None else 0
-        if n_cmd == 0:
-            raise ValueError(f"{agent.name}: bind a context before batch_policy")
-        self.agent = agent
-        self.coef = agent.coefficient_matrix()
-        self.rngs = [agent_rng(int(s)) for s in seeds]
-        self.exposures = np.zeros((n_users, n_cmd))
-        self.session = np.zeros(n_users)
-
-    def set_session(self, session: np.ndarray) -> None:
-        """Session index of every user's upcoming trial."""
-        self.session = np.asarray(session, dtype=float)
-
-    def probabilities(self, targets: np.ndarray) -> np.ndarray:
-        """(B, 3) probabilities of menu, hotkey, learn for each user's target."""
-        rows = np.arange(len(targets))
-        cols = [np.ones(len(targets))]
-        for c in self.agent.covariates:
-            cols.append(np.log1p(self.exposures[rows, targets]) if c == "log_exposure" else self.session)
-        u = np.column_stack(cols) @ self.coef
-        full = np.column_stack([np.zeros(len(targets)), u])
-        full -= full.max(axis=1, keepdims=True)
-        p = np.exp(full)
-        return p / p.sum(axis=1, keepdims=True)
-
-    def actions(self, targets: np.ndarray, obs: np.ndarray) -> np.ndarray:
-        """One action per user, sampled like :meth:`Agent.act` with each user's generator."""
-        p = self.probabilities(np.asarray(targets, dtype=np.int64))
-        return np.array([int(g.choice(3, p=pb)) for g, pb in zip(self.rngs, p, strict=True)], dtype=np.int64)
-
-    def observe(self, targets: np.ndarray, actions: np.ndarray, outcomes: np.ndarray, durations_s: np.ndarray) -> None:
-        """Count the trial's exposure."""
-        self.exposures[np.arange(len(targets)), np.asarray(targets, dtype=np.int64)] += 1
+    def _rule(self, uses_rows: int, sessions: int) -> DecisionRule:
+        rows = uses_rows if "log_exposure" in self.covariates else 1
+        cols = sessions if "session" in self.covariates else 1
+        uses, session = np.meshgrid(np.arange(rows), np.arange(cols), indexing="ij")
+        p = self.probability_rows(uses.ravel(), session.ravel())
+        return uses_session_rule(cdf_of(p).reshape(rows, cols, 3))

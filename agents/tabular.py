@@ -21,6 +21,7 @@ happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
@@ -29,9 +30,10 @@ import pandas as pd
 from tqdm.auto import tqdm
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
 
-_FEATURES = ("log1p_learn_count", "log1p_hotkey_successes", "log1p_hotkey_failures", "log1p_seconds_since_last_use")
+_FEATURES = CELL_FEATURES
 _EDGES = {  # bucket upper edges (counts or seconds), in feature order
     "log1p_learn_count": [0.5, 1.5],
     "log1p_hotkey_successes": [0.5, 1.5, 4.5],
@@ -168,6 +170,24 @@ class TabularAgent(Agent):
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "params": dict(self.params)}
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
+        """Compiled epsilon-greedy policy of the current table for ``n_users`` users (learning off);
+        user i draws what ``reset(seeds[i])`` draws."""
+        if self.learning:
+            raise ValueError(f"{self.name}: a batch policy acts with a frozen table; switch learning off "
+                             "(it is on only inside train)")
+        if self.q is None:
+            self.clear()
+        names = list(getattr(self.context, "obs_names", ()) or ())
+        if not names:
+            raise ValueError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
+        q = self.q.reshape(-1, 3)  # type: ignore[union-attr]
+        eps = self.params["epsilon"]
+        p = np.full(q.shape, eps / 3)
+        p[np.arange(len(q)), np.argmax(q, axis=1)] += 1 - eps
+        rule = cell_rule(cdf_of(p).reshape(self.q.shape), [_EDGES[f] for f in _FEATURES])  # type: ignore[union-attr]
+        return frozen_policy(self, n_users, seeds, lambda uses, sessions: rule, [names.index(f) for f in _FEATURES])
 
 
 class QLearningAgent(TabularAgent):

@@ -51,8 +51,8 @@ CASES = _cases()
 
 def test_the_cases_cover_the_agents_with_several_paths() -> None:
     names = {name for name, _ in CASES}
-    assert {"static_softmax", "rescorla_wagner", "choice_kernel", "rw_choice_kernel"} <= names
-    assert "always_menu" not in names and "bounded_optimal" not in names
+    assert {"static_softmax", "rescorla_wagner", "choice_kernel", "rw_choice_kernel", "always_menu", "always_hotkey",
+            "learn_first_k", "random", "q_learning", "sarsa"} <= names
 
 
 def _acting(name: str, options: dict[str, Any], seed: int) -> tuple[pd.DataFrame, np.ndarray]:
