@@ -5,6 +5,8 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+from pydantic import ConfigDict, Field, field_validator
+
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
 from shortcut_gym.agents.learning import ChoiceKernelAgent, RescorlaWagnerAgent, RWChoiceKernelAgent
@@ -12,8 +14,9 @@ from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.agents.sb3 import A2CAgent, DQNAgent, PPOAgent
 from shortcut_gym.agents.static_softmax import StaticSoftmax
 from shortcut_gym.agents.tabular import QLearningAgent, SarsaAgent
-from shortcut_gym.envs.config import read_yaml
+from shortcut_gym.envs.config import read_yaml, validate
 from shortcut_gym.envs.errors import ConfigError, ShortcutGymError
+from shortcut_gym.envs.strict import StrictModel
 
 AGENTS: dict[str, type[Agent]] = {}
 
@@ -52,18 +55,78 @@ def make_agent(name: str, context: AgentContext | None = None, **params: Any) ->
         raise ConfigError(f"{name}: {err}") from err
 
 
+class AgentSpec(StrictModel):
+    """One agent as a YAML mapping (``--agent-file``, sweep specs): a registered ``name``, its
+    ``params`` and any constructor option beside them (``model_path``, ``deterministic``,
+    ``mechanisms``, ``n_bins``, ...); ``label`` names it in outputs. An option whose key ends in
+    ``_path`` is taken relative to the spec file's folder when the spec is read from a file.
+    """
+
+    model_config = ConfigDict(extra="allow", frozen=True, allow_inf_nan=False)
+    name: str = Field(min_length=1, description="registered agent name (see ``shortcut_gym.agents.AGENTS``)")
+    label: str | None = Field(default=None, min_length=1, description="name in the outputs (default: from the spec)")
+    params: dict[str, float] = Field(default_factory=dict,
+                                     description="parameters by name (numbers; the agent's defaults otherwise)")
+
+    @field_validator("name")
+    @classmethod
+    def _registered(cls, name: str) -> str:
+        if name not in AGENTS:
+            raise ValueError(f"unknown agent {name!r}; registered: {sorted(AGENTS)}")
+        return name
+
+    @field_validator("params", mode="before")
+    @classmethod
+    def _numbers(cls, params: Any) -> Any:
+        if isinstance(params, dict):
+            for key, value in params.items():
+                if isinstance(value, bool) or not isinstance(value, (int, float)):
+                    raise ValueError(f"parameter {key} must be a number, got {value!r}")
+        return params
+
+    def as_dict(self) -> dict[str, Any]:
+        """The spec as the plain dict :func:`agent_from_spec` and the sweep take (no unset label)."""
+        out: dict[str, Any] = {"name": self.name, "params": dict(self.params), **(self.model_extra or {})}
+        if self.label is not None:
+            out["label"] = self.label
+        return out
+
+
+def read_agent_spec(path: str | Path) -> AgentSpec:
+    """A validated :class:`AgentSpec` from a YAML file; faults name the file and the field.
+
+    A bare name (no folder, no suffix) that is not a file names a bundled spec of ``configs/agents``.
+    Relative ``*_path`` options are read from the file's folder.
+    """
+    path = Path(path)
+    if not path.exists() and path.suffix == "" and len(path.parts) == 1:
+        from shortcut_gym.envs.config import bundled_config_dir
+
+        bundled = bundled_config_dir() / "agents" / f"{path}.yaml"
+        if not bundled.is_file():
+            known = sorted(p.stem for p in bundled.parent.glob("*.yaml"))
+            raise ConfigError(f"{path}: no such agent spec file, nor a bundled one; bundled: {known}")
+        path = bundled
+    if not path.is_file():
+        raise ConfigError(f"{path}: no such agent spec file")
+    spec = validate(AgentSpec, read_yaml(path), str(path))
+    extra = dict(spec.model_extra or {})
+    for key, value in extra.items():
+        if key.endswith("_path") and isinstance(value, str) and not Path(value).is_absolute():
+            extra[key] = str(path.parent / value)
+    return spec.model_copy(update=extra)
+
+
 def agent_from_spec(spec: dict[str, Any] | str | Path, context: AgentContext | None = None) -> Agent:
-    """Build an agent from ``{'name': ..., 'params': {...}, ...}`` or a YAML file holding one."""
+    """Build an agent from ``{'name': ..., 'params': {...}, ...}`` or a YAML file holding one
+    (validated as :class:`AgentSpec`). ``label`` is a name for outputs and not passed on."""
     source = "agent spec"
     if isinstance(spec, (str, Path)):
         source = str(spec)
-        path = Path(spec)
-        if not path.is_file():
-            raise ConfigError(f"{source}: no such agent spec file")
-        spec = read_yaml(path)
+        spec = read_agent_spec(spec).as_dict()
     if not isinstance(spec, dict) or "name" not in spec:
         raise ConfigError(f"{source}: an agent spec needs a 'name' key, got {spec!r}")
-    extra = {k: v for k, v in spec.items() if k not in ("name", "params")}
+    extra = {k: v for k, v in spec.items() if k not in ("name", "params", "label")}
     params = spec.get("params")
     if params is None:
         params = {}

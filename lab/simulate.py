@@ -15,7 +15,9 @@ from shortcut_gym.envs.world import World
 
 
 def label_of(spec: dict[str, Any]) -> str:
-    """Short label of an agent spec, e.g. 'learn_first_k(k=2)'."""
+    """The spec's ``label``, else a short one from its parameters, e.g. 'learn_first_k(k=2)'."""
+    if spec.get("label"):
+        return str(spec["label"])
     params = spec.get("params") or {}
     if not params:
         return spec["name"]

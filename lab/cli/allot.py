@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_world_options, parse_agent_arg, world_of
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
 from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
 from shortcut_gym.lab.design.assignment import (
     budget_curve,
@@ -32,9 +32,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="generated pool instead of --keys: SINGLE,ONE_MODIFIER,TWO_MODIFIER counts (default 4,8,8)")
     p.add_argument("--keyboard-share", type=float, default=0.0,
                    help="share of trials the hand starts on the keyboard (fixed, so commands separate; default 0)")
-    p.add_argument("--agent", action="append", default=None,
-                   help="price savings by simulating this population instead of the planner: agent as name or "
-                        "name:param=value,... (repeatable, e.g. fitted learning models)")
+    add_agent_options(p, "price savings by simulating this population instead of the planner: agent "
+                         "(repeatable, e.g. fitted learning models)")
     p.add_argument("--users", type=whole_number(1), default=20, help="simulated users per agent with --agent")
     p.add_argument("--seed", type=seed, default=0, help="first user seed with --agent")
     p.add_argument("--bins", type=whole_number(2), default=40, help="activation grid points of the planner")
@@ -60,8 +59,8 @@ def run(args: argparse.Namespace) -> int:
     pool = _pool(args)
     world = world_of(args)
     counts = {c.keystrokes for c in pool}
-    if args.agent:
-        specs = [parse_agent_arg(a) for a in args.agent]
+    specs = agent_specs_of(args)
+    if specs:
         table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users))
     else:
         table = planner_savings(world, counts, args.keyboard_share, n_bins=args.bins)

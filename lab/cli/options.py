@@ -2,9 +2,9 @@
 
 Every fault raises :class:`CLIError` naming the option text; ranges and paths: :mod:`.ranges`.
 
-* ``--model [label=]agent[:key=value,...]``: keys that are parameters are held fixed, others are
-  constructor options; a value with '+' is a list (``mechanisms=value+memory_aware+lapse``).
-* ``--agent name[:param=value,...]``: an agent spec for simulation.
+* ``--model`` and ``--agent``: the one spec syntax of :mod:`.specs`, ``[label=]name[:key=value,...]``
+  with YAML scalar values; for ``--model`` keys that are parameters are held fixed, others are
+  constructor options (``mechanisms=value+memory_aware+lapse``). ``--agent-file``: an agent spec YAML.
 * ``--prior label:param=family:a:b``: a MAP prior (families in :data:`PRIOR_FAMILIES`).
 """
 
@@ -12,67 +12,45 @@ from __future__ import annotations
 
 import argparse
 import sys
+from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
-from shortcut_gym.agents.registry import AGENTS, make_agent
+from shortcut_gym.agents.registry import AGENTS, make_agent, read_agent_spec
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World, make_world
 from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
+from shortcut_gym.lab.cli.specs import SYNTAX, agent_spec_dict, is_number, parse_spec
 from shortcut_gym.lab.fitting import PRIOR_FAMILIES, ModelSpec, make_prior
 
-MODEL_HELP = ("model as [label=]agent[:key=value,...]; keys that are parameters are held fixed, others are "
-              "options, '+' makes a list (repeatable), e.g. ck=choice_kernel:lapse=0.02")
-
-
-def parse_value(text: str) -> Any:
-    """One ``key=value`` value: a '+' list, a boolean word, a number, else the text itself."""
-    if "+" in text:
-        return [t for t in text.split("+") if t]
-    low = text.lower()
-    if low in ("true", "yes", "on"):
-        return True
-    if low in ("false", "no", "off"):
-        return False
-    try:
-        return float(text)
-    except ValueError:
-        return text
+MODEL_HELP = (f"model as {SYNTAX}; keys that are parameters are held fixed, others are options; values are "
+              "YAML scalars, '+' or [a, b] make a list (repeatable), e.g. ck=choice_kernel:lapse=0.02")
 
 
 def parse_model(text: str) -> ModelSpec:
-    """'[label=]name[:key=value,...]' -> ModelSpec; keys that are parameters are held fixed.
+    """'[label=]name[:key=value,...]' -> ModelSpec (the syntax of :mod:`.specs`); keys that are
+    parameters are held fixed, the others are options.
 
     Example: ``logit2=static_softmax:covariates=log_exposure+session,b_learn=-3``.
     """
-    label, eq, rest = text.partition("=")
-    if not eq or ":" in label:
-        label, rest = "", text
-    name, _, args = rest.partition(":")
-    if not name:
-        raise CLIError(f"model {text!r}: missing agent name")
-    if name not in AGENTS:
-        raise CLIError(f"model {text!r}: unknown agent {name!r}; registered: {sorted(AGENTS)}")
-    options: dict[str, Any] = {}
-    fixed: dict[str, float] = {}
-    for item in filter(None, args.split(",")):
-        key, eq2, value = item.partition("=")
-        if not eq2 or not key:
-            raise CLIError(f"model {text!r}: {item!r} must look like key=value")
-        options[key] = parse_value(value)
+    spec = parse_spec(text, "model")
+    if spec.name not in AGENTS:
+        raise CLIError(f"model {text!r}: unknown agent {spec.name!r}; registered: {sorted(AGENTS)}")
+    options = dict(spec.values)
     try:
-        probe = make_agent(name, **{k: v for k, v in options.items() if not isinstance(v, float)})
+        probe = make_agent(spec.name, **{k: v for k, v in options.items() if not is_number(v)})
     except ConfigError as err:
         raise CLIError(f"model {text!r}: {err}") from None
+    fixed: dict[str, float] = {}
     for key in list(options):
         if key in probe.param_specs():
             value = options.pop(key)
-            if not isinstance(value, float):
+            if not is_number(value):
                 raise CLIError(f"model {text!r}: parameter {key} value {value!r} is not a number")
-            fixed[key] = value
-    return ModelSpec(name, label or "", options, fixed)
+            fixed[key] = float(value)
+    return ModelSpec(spec.name, spec.label or "", options, fixed)
 
 
 def parse_prior(text: str) -> tuple[str, Any]:
@@ -95,20 +73,28 @@ def parse_prior(text: str) -> tuple[str, Any]:
 
 
 def parse_agent_arg(text: str) -> dict[str, Any]:
-    """'name' or 'name:p=v,q=w' -> agent spec dict; bad syntax raises ValueError naming it."""
-    name, _, rest = text.partition(":")
-    if not name:
-        raise CLIError(f"agent {text!r}: missing agent name before ':'")
-    params: dict[str, Any] = {}
-    for item in filter(None, rest.split(",")):
-        key, eq, value = item.partition("=")
-        if not eq or not key:
-            raise CLIError(f"agent {text!r}: parameter {item!r} must look like name=value")
-        try:
-            params[key] = float(value)
-        except ValueError:
-            raise CLIError(f"agent {text!r}: parameter {key} value {value!r} is not a number") from None
-    return {"name": name, "params": params}
+    """``--agent`` text (the syntax of :mod:`.specs`) -> agent spec dict; faults raise CLIError naming it."""
+    spec = agent_spec_dict(text)
+    if spec["name"] not in AGENTS:
+        raise CLIError(f"agent {text!r}: unknown agent {spec['name']!r}; registered: {sorted(AGENTS)}")
+    return spec
+
+
+def add_agent_options(p: argparse.ArgumentParser, what: str = "agent (repeatable)") -> None:
+    """``--agent TEXT`` and ``--agent-file YAML`` (both repeatable, used in the order given)."""
+    p.add_argument("--agent", action="append", default=None,
+                   help=f"{what} as {SYNTAX}; values are YAML scalars (numbers, true/false, text, paths, "
+                        "[a, b] or a+b lists), e.g. ppo:model_path=out/ppo.zip,deterministic=true")
+    p.add_argument("--agent-file", action="append", default=None, type=Path,
+                   help="agent spec YAML (name, label, params, options beside them; repeatable)")
+
+
+def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -> list[dict[str, Any]]:
+    """The agent specs of ``--agent`` then ``--agent-file`` (or ``default`` texts when neither is given)."""
+    texts = args.agent if args.agent or args.agent_file else default
+    specs = [parse_agent_arg(t) for t in texts or []]
+    specs += [read_agent_spec(path).as_dict() for path in args.agent_file or []]
+    return specs
 
 
 def add_world_options(p: argparse.ArgumentParser, sessions: bool = False) -> None:

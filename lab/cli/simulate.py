@@ -7,7 +7,7 @@ from pathlib import Path
 
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_world_options, parse_agent_arg, world_of
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, output_folder, seed, whole_number
 from shortcut_gym.lab.data.logs import log_format, log_from_simulation, write_log
 from shortcut_gym.lab.simulate import session_summary, simulate_agents
@@ -29,8 +29,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``simulate`` subcommand."""
     p = sub.add_parser("simulate", help="simulate agents on a scenario and summarise per session")
     add_world_options(p)
-    p.add_argument("--agent", action="append", default=None,
-                   help="agent as name or name:param=value,... (repeatable; default: the baselines)")
+    add_agent_options(p, "agent (repeatable; default: the baselines)")
     p.add_argument("--users", type=whole_number(1, MAX_USERS), default=5, help="simulated users per agent")
     p.add_argument("--seed", type=seed, default=0, help="first seed; users get seed, seed+1, ...")
     p.add_argument("--out", type=output_folder, default=None, help="folder for trials.parquet and summary.csv")
@@ -45,8 +44,7 @@ def run(args: argparse.Namespace) -> int:
     if args.seed + args.users - 1 > MAX_SEED:
         raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
     world = world_of(args)
-    agents = args.agent or ["always_menu", "always_hotkey", "learn_first_k:k=1"]
-    specs = [parse_agent_arg(a) for a in agents]
+    specs = agent_specs_of(args, default=["always_menu", "always_hotkey", "learn_first_k:k=1"])
     trials = simulate_agents(world, specs, range(args.seed, args.seed + args.users))
     summary = session_summary(trials)
     print(summary.to_string(index=False, float_format=lambda v: f"{v:.3f}"))

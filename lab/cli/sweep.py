@@ -6,6 +6,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.options import add_agent_options, agent_specs_of
 from shortcut_gym.lab.cli.ranges import output_folder, whole_number
 from shortcut_gym.lab.sweep.backends import BackendError
 
@@ -26,6 +27,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--retry-failed", action="store_true", help="recompute runs recorded as failed")
     p.add_argument("--plan-only", action="store_true", help="validate the spec and list its runs; write nothing")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_agent_options(p, "agent replacing the spec's agent list (repeatable)")
     p.set_defaults(func=run)
 
 
@@ -37,7 +39,7 @@ def run(args: argparse.Namespace) -> int:
 
     if args.address is not None and args.backend != "ray":
         raise SweepArgumentError("--address applies to --backend ray only")
-    spec = load_spec(args.spec)
+    spec = load_spec(args.spec, agents=agent_specs_of(args) or None)
     if args.plan_only:
         runs = plan_runs(spec, args.spec)
         for r in runs:

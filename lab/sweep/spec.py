@@ -231,8 +231,9 @@ def parse_spec(data: Any, source: str = "<sweep spec>") -> SweepSpec:
     return spec
 
 
-def load_spec(path: str | Path) -> SweepSpec:
-    """Read and validate a sweep spec YAML file (a bare name looks in the bundled configs/sweeps)."""
+def load_spec(path: str | Path, agents: list[dict[str, Any]] | None = None) -> SweepSpec:
+    """Read and validate a sweep spec YAML file (a bare name looks in the bundled configs/sweeps);
+    ``agents`` (agent spec dicts) replaces the file's agent list."""
     p = Path(path)
     if not p.exists() and p.suffix == "" and "/" not in str(path):
         from shortcut_gym.envs.config import bundled_config_dir
@@ -242,11 +243,19 @@ def load_spec(path: str | Path) -> SweepSpec:
         data = read_yaml(p)
     except ConfigError as err:
         raise SweepSpecError(str(err)) from None
-    return parse_spec(_relative_to(data, p.parent), str(p))
+    data = _relative_to(data, p.parent)
+    if agents is not None and isinstance(data, dict):
+        data = {**data, "agents": agents}
+    return parse_spec(data, str(p))
 
 
 def _relative_to(data: Any, folder: Path) -> Any:
-    """The spec with relative YAML paths of ``base.scenario/costs/memory`` taken from the spec's folder."""
+    """The spec with relative YAML paths of ``base.scenario/costs/memory`` and the agents' ``*_path``
+    options (a trained model's file) taken from the spec's folder."""
+    if isinstance(data, dict) and isinstance(data.get("agents"), list):
+        data = {**data, "agents": [
+            {k: str(folder / v) if k.endswith("_path") and isinstance(v, str) and not Path(v).is_absolute() else v
+             for k, v in entry.items()} if isinstance(entry, dict) else entry for entry in data["agents"]]}
     base = data.get("base") if isinstance(data, dict) else None
     if not isinstance(base, dict):
         return data
