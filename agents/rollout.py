@@ -220,7 +220,7 @@ def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_bat
         acts = stepper.actions(sim)
         sim.step(acts)
         dur = -sim.reward
-        cmd = sim.sched_cmd[:, t]
+        cmd = sim.sched_command[:, t]
         s = int(sessions[0, t]) if shared else sessions[:, t]
         where = (slice(None), s) if shared else (rows, s)
         out.trials[where] += 1
@@ -234,6 +234,6 @@ def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_bat
             kept.outcome[:, t] = sim.outcome
             kept.duration_s[:, t] = dur
             kept.p_recall[:, t] = sim.p_recall
-            kept.operator_s[:, t] = sim.ops
+            kept.operator_s[:, t] = sim.operator_time_s
         stepper.observe(sim, t, acts)
     return BatchRollout(out, kept)

@@ -100,13 +100,14 @@ class CommandSelectionEnv(gym.Env):
         if sim.n_users == 0:
             raise UsageError("call reset() before step()")
         a = action_index(action)
-        t = int(sim.us[0, k.U_TRIAL])
+        t = int(sim.user_state[0, k.U_TRIAL])
         if t >= sim.horizon:
             raise RuntimeError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
         self._act[0] = a
-        k.step_users(self._act, sim.ipar, sim.par, sim.cmdc, sim.fs, sim.ist, sim.tr, sim.us,
-                     sim.sched_cmd, sim.sched_clock, sim.sched_onset, sim.sched_u, sim.sched_session,
-                     sim.reward, sim.outcome, sim.ops, sim.p_recall, sim.obs)
+        k.step_users(self._act, sim.kernel_int_params, sim.kernel_params, sim.command_constants,
+                     sim.command_float_state, sim.command_counts, sim.traces, sim.user_state,
+                     sim.sched_command, sim.sched_clock, sim.sched_onset, sim.sched_uniform, sim.sched_session,
+                     sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall, sim.obs)
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
         truncated = t + 1 >= sim.horizon

@@ -93,7 +93,7 @@ def simulator_upcoming_info(sim: BatchSimulator, user: int, command_names: Seque
     """User ``user``'s upcoming-trial info on a batched simulator."""
     t = sim.trial
     last = min(t, sim.horizon - 1)
-    c = int(sim.sched_cmd[user, last])
+    c = int(sim.sched_command[user, last])
     return upcoming_info(c, command_names[c], t, float(sim.sched_onset[user, last]),
                          int(sim.sched_session[user, last]))
 
@@ -101,10 +101,10 @@ def simulator_upcoming_info(sim: BatchSimulator, user: int, command_names: Seque
 def simulator_step_info(sim: BatchSimulator, user: int, trial: int, action: int,
                         command_names: Sequence[str]) -> StepInfo:
     """User ``user``'s info after ``sim.step`` ran trial ``trial`` with ``action``."""
-    c = int(sim.sched_cmd[user, trial])
+    c = int(sim.sched_command[user, trial])
     return step_info(
         simulator_upcoming_info(sim, user, command_names), trial, int(sim.sched_session[user, trial]),
         float(sim.sched_onset[user, trial]), c, command_names[c], int(action), OUTCOME_NAMES[sim.outcome[user]],
         -float(sim.reward[user]), float(sim.p_recall[user]),
-        dict(zip(OPERATOR_NAMES, sim.ops[user].tolist(), strict=True)),
+        dict(zip(OPERATOR_NAMES, sim.operator_time_s[user].tolist(), strict=True)),
     )

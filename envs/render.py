@@ -77,17 +77,18 @@ def recall_probabilities(sim: BatchSimulator, user: int = 0) -> np.ndarray:
     Once the horizon is reached, at the last trial's clock plus the last trial interval (1 s for
     a one-trial schedule), so that the last trial's own trace has a positive age.
     """
-    t, h = int(sim.us[user, k.U_TRIAL]), sim.horizon
+    t, h = int(sim.user_state[user, k.U_TRIAL]), sim.horizon
     clock = sim.sched_clock[user]
     if t < h:
         now = float(clock[t])
     else:
         now = float(clock[h - 1]) + (float(clock[h - 1] - clock[h - 2]) if h > 1 else 1.0)
-    n_cmd = sim.fs.shape[1]
+    n_cmd = sim.command_float_state.shape[1]
     out = np.empty(n_cmd)
     for c in range(n_cmd):
-        a = k.activation(sim.ipar, sim.par, sim.fs[user, c], sim.ist[user, c], sim.tr[user, c], now)
-        out[c] = k.recall_p(sim.par, a)
+        a = k.activation(sim.kernel_int_params, sim.kernel_params, sim.command_float_state[user, c],
+                         sim.command_counts[user, c], sim.traces[user, c], now)
+        out[c] = k.recall_p(sim.kernel_params, a)
     return out
 
 
@@ -99,16 +100,16 @@ def scene_of(sim: BatchSimulator, last: dict[str, Any] | None, user: int = 0) ->
     before that trial is read back from its time breakdown: a menu or learn trial pays H only from
     the keyboard, a hotkey attempt pays H only from the pointing device.
     """
-    t, h = int(sim.us[user, k.U_TRIAL]), sim.horizon
+    t, h = int(sim.user_state[user, k.U_TRIAL]), sim.horizon
     tt = min(t, h - 1)
     scene: dict[str, Any] = {
         "trials_done": t,
         "horizon": h,
         "session": int(sim.sched_session[user, tt]),
         "n_sessions": int(sim.sched_session[user, h - 1]) + 1,
-        "upcoming": int(sim.sched_cmd[user, t]) if t < h else None,
+        "upcoming": int(sim.sched_command[user, t]) if t < h else None,
         "recall": recall_probabilities(sim, user),
-        "hand_on_keyboard": bool(sim.us[user, k.U_HAND] == k.HAND_KEYBOARD),
+        "hand_on_keyboard": bool(sim.user_state[user, k.U_HAND] == k.HAND_KEYBOARD),
     }
     if last is not None:
         time_s = dict(last["time_s"])

@@ -25,7 +25,7 @@ class _LazySchedules(Sequence[Schedule]):
 
     def __init__(self, sim: BatchSimulator, given: list[Schedule | None]) -> None:
         # this reset's arrays (a later reset makes new ones, so these stay this batch's)
-        self._rows = (sim.sched_cmd, sim.sched_onset, sim.sched_session, sim.sched_gap)
+        self._rows = (sim.sched_command, sim.sched_onset, sim.sched_session, sim.sched_gap)
         self._made: list[Schedule | None] = given
 
     def __len__(self) -> int:
@@ -51,12 +51,30 @@ class _LazySchedules(Sequence[Schedule]):
 
 
 class BatchSimulator:
-    """Step ``n_users`` simulated users of one :class:`World` in lock step."""
+    """Step ``n_users`` simulated users of one :class:`World` in lock step.
+
+    The arrays the compiled kernel reads and writes (B users, C commands, T trials; columns named
+    by the index constants of :mod:`shortcut_gym.envs.kernel`; times in seconds):
+
+    - ``kernel_params`` (float, ``P_*`` and ``W_*``) and ``kernel_int_params`` (int, ``I_*``): the
+      world's costs, memory and observation settings (:meth:`World.parameters`);
+      ``command_constants`` (C, ``C_*``): menu search, decision and pointing times and hotkey key count.
+    - ``sched_command``, ``sched_uniform``, ``sched_onset``, ``sched_clock``, ``sched_session``,
+      ``sched_gap`` (B, T): each trial's target, its recall uniform, onset, memory clock (onset
+      with session gaps scaled), session index and gap time before it.
+    - ``command_float_state`` (B, C, ``F_*``): folded-in old ACT-R traces, exponential trace
+      strength and time, onset of the last use; ``command_counts`` (B, C, ``S_*``, int): stored
+      traces, menu selections, exposures, hotkey successes and failures, learn actions;
+      ``traces`` (B, C, capacity, 3): each stored trace's clock time, weight and decay;
+      ``user_state`` (B, ``U_*``, int): upcoming trial index and hand position.
+    - After each step: ``reward`` (B, -seconds), ``outcome`` (B, ``OUT_*``), ``operator_time_s``
+      (B, ``O_*``: seconds per operator), ``p_recall`` (B) and ``obs`` (B, ``World.obs_dim``).
+    """
 
     def __init__(self, world: World) -> None:
         self.world = world
-        self.par, self.ipar = world.parameters()
-        self.cmdc = world.command_constants()
+        self.kernel_params, self.kernel_int_params = world.parameters()
+        self.command_constants = world.command_constants()
         self.n_users = 0
         self.schedules: Sequence[Schedule] = []
         # the sampled schedules' fixed part, the same for every user (computed once per world)
@@ -99,10 +117,10 @@ class BatchSimulator:
             raise ValueError(f"all users of a batch need the same horizon, got {sorted(horizons)}")
         h = horizons.pop()
         c = self.world.commands.n_commands
-        self.sched_cmd = np.empty((n, h), dtype=np.int64)
-        self.sched_u = np.empty((n, h))
+        self.sched_command = np.empty((n, h), dtype=np.int64)
+        self.sched_uniform = np.empty((n, h))
         if compiled is not None:  # World.draw's doubles for every user, seeded in one compiled call
-            seeded_schedules(compiled[0], compiled[1], self._cdf, self.sched_cmd, self.sched_u)
+            seeded_schedules(compiled[0], compiled[1], self._cdf, self.sched_command, self.sched_uniform)
         if len(replayed) == 0:
             # every user's onsets, sessions and gaps are the world's: read-only views of one row
             self.sched_onset = np.broadcast_to(self._onset, (n, h))
@@ -126,17 +144,17 @@ class BatchSimulator:
                 draws.append(g.random(2 * h))  # type: ignore[union-attr]
                 continue
             sch, u = self.world.draw(g, given[b])  # type: ignore[arg-type]
-            self.sched_cmd[b] = sch.command
+            self.sched_command[b] = sch.command
             self.sched_onset[b] = sch.onset_s
             self.sched_clock[b] = sch.memory_clock_s(scale)
             self.sched_session[b] = sch.session
             self.sched_gap[b] = sch.gap_total_s
-            self.sched_u[b] = u
+            self.sched_uniform[b] = u
         if sampled:
             drawn = np.stack(draws)
             rows = np.asarray(sampled) if len(sampled) < n else slice(None)
-            self.sched_cmd[rows] = self._cdf.searchsorted(drawn[:, :h], side="right")
-            self.sched_u[rows] = drawn[:, h:]
+            self.sched_command[rows] = self._cdf.searchsorted(drawn[:, :h], side="right")
+            self.sched_uniform[rows] = drawn[:, h:]
             if replayed:
                 self.sched_onset[rows] = self._onset
                 self.sched_clock[rows] = self._clock
@@ -145,36 +163,37 @@ class BatchSimulator:
         self.schedules = _LazySchedules(self, given)  # type: ignore[arg-type]
         cap = self._trace_capacity(c)
         self.n_users, self.horizon = n, h
-        self.fs = np.zeros((n, c, k.N_FS))
-        self.ist = np.zeros((n, c, k.N_IS), dtype=np.int64)
-        self.tr = np.zeros((n, c, cap, 3))
-        self.us = np.zeros((n, k.N_US), dtype=np.int64)
+        self.command_float_state = np.zeros((n, c, k.N_FS))
+        self.command_counts = np.zeros((n, c, k.N_IS), dtype=np.int64)
+        self.traces = np.zeros((n, c, cap, 3))
+        self.user_state = np.zeros((n, k.N_US), dtype=np.int64)
         self.reward = np.zeros(n)
         self.outcome = np.zeros(n, dtype=np.int64)
-        self.ops = np.zeros((n, k.N_OPS))
+        self.operator_time_s = np.zeros((n, k.N_OPS))
         self.p_recall = np.zeros(n)
         self.obs = np.zeros((n, self.world.obs_dim), dtype=np.float32)
-        k.write_obs_users(self.ipar, self.par, c, self.fs, self.ist, self.tr, self.us, self.sched_cmd,
-                          self.sched_clock, self.sched_onset, self.obs)
+        k.write_obs_users(self.kernel_int_params, self.kernel_params, c, self.command_float_state,
+                          self.command_counts, self.traces, self.user_state, self.sched_command, self.sched_clock,
+                          self.sched_onset, self.obs)
         return self.obs
 
     def _trace_capacity(self, n_cmd: int) -> int:
         """:meth:`World.trace_capacity` of the users' schedules, from the command array."""
         if self.world.memory.kind in ("actr", "exponential"):
             return self.world.trace_capacity([])
-        n = self.sched_cmd.shape[0]
-        flat = (self.sched_cmd + n_cmd * np.arange(n)[:, None]).ravel()
+        n = self.sched_command.shape[0]
+        flat = (self.sched_command + n_cmd * np.arange(n)[:, None]).ravel()
         return max(int(np.bincount(flat, minlength=n * n_cmd).max()), 1)
 
     @property
     def trial(self) -> int:
         """Index of the upcoming trial (the same for every user)."""
-        return int(self.us[0, k.U_TRIAL])
+        return int(self.user_state[0, k.U_TRIAL])
 
     def targets(self) -> np.ndarray:
         """Upcoming target command of every user."""
         t = min(self.trial, self.horizon - 1)
-        return self.sched_cmd[:, t]
+        return self.sched_command[:, t]
 
     def step(self, actions: np.ndarray) -> np.ndarray:
         """Advance all users one trial; returns rewards (= -seconds). Outcome etc. on attributes."""
@@ -191,9 +210,10 @@ class BatchSimulator:
         if bad.any():
             i = int(np.argmax(bad))
             raise ActionError(f"action {int(acts[i])} of user {i} is not 0 (menu), 1 (hotkey) or 2 (learn)")
-        k.step_users(acts.astype(np.int64), self.ipar, self.par, self.cmdc, self.fs, self.ist, self.tr,
-                     self.us, self.sched_cmd, self.sched_clock, self.sched_onset, self.sched_u, self.sched_session,
-                     self.reward, self.outcome, self.ops, self.p_recall, self.obs)
+        k.step_users(acts.astype(np.int64), self.kernel_int_params, self.kernel_params, self.command_constants,
+                     self.command_float_state, self.command_counts, self.traces, self.user_state, self.sched_command,
+                     self.sched_clock, self.sched_onset, self.sched_uniform, self.sched_session, self.reward,
+                     self.outcome, self.operator_time_s, self.p_recall, self.obs)
         return self.reward
 
 

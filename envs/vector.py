@@ -151,14 +151,15 @@ class CommandSelectionVectorEnv(VectorEnv):
 
     def _step_info(self, t: int, acts: np.ndarray) -> dict[str, Any]:
         sim = self.sim
-        cmd = sim.sched_cmd[:, t].astype(np.int64)
+        cmd = sim.sched_command[:, t].astype(np.int64)
         full = self.full_info
         info = step_info(
             self._upcoming(), np.full(self.num_envs, t, dtype=np.int64), self._sessions[:, t].copy(),
             sim.sched_onset[:, t].copy(), cmd, self._names[cmd] if full else None, acts.astype(np.int64),
             np.array(k.OUTCOME_NAMES, dtype=object)[sim.outcome] if full else sim.outcome.copy(),
             -sim.reward.copy(), sim.p_recall.copy(),
-            self._masked({name: sim.ops[:, j].copy() for j, name in enumerate(k.OPERATOR_NAMES)}) if full else None,
+            self._masked({name: sim.operator_time_s[:, j].copy() for j, name in enumerate(k.OPERATOR_NAMES)})
+            if full else None,
         )
         return self._masked(dict(info))
 

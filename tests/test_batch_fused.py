@@ -82,7 +82,8 @@ def test_fused_run_leaves_simulator_and_policy_as_stepping(name: str, memory: st
         acts = pol.actions(targets, sim.obs)
         sim.step(acts)
         pol.observe(targets, acts, sim.outcome, -sim.reward)
-    for attr in ("fs", "ist", "tr", "us", "obs", "reward", "outcome", "ops", "p_recall"):
+    for attr in ("command_float_state", "command_counts", "traces", "user_state", "obs", "reward", "outcome",
+                 "operator_time_s", "p_recall"):
         np.testing.assert_array_equal(getattr(sims[0], attr), getattr(sim, attr), err_msg=attr)
         np.testing.assert_array_equal(getattr(sim2, attr), getattr(sim, attr), err_msg=attr)
     for i, (a, b) in enumerate(zip(policies[0].state, pol.state, strict=True)):

@@ -21,19 +21,20 @@ def test_reset_draws_equal_world_draw(memory: str | None) -> None:
     for b, seed in enumerate(seeds):
         ref_rng = np.random.default_rng(seed)
         sched, u = world.draw(ref_rng)
-        np.testing.assert_array_equal(sim.sched_cmd[b], sched.command)
-        np.testing.assert_array_equal(sim.sched_u[b], u)
+        np.testing.assert_array_equal(sim.sched_command[b], sched.command)
+        np.testing.assert_array_equal(sim.sched_uniform[b], u)
         np.testing.assert_array_equal(sim.sched_onset[b], sched.onset_s)
         np.testing.assert_array_equal(sim.sched_clock[b], sched.memory_clock_s(world.memory.gap_time_scale))
         got = sim.schedules[b]
         for f in ("command", "onset_s", "session", "gap_total_s"):
             np.testing.assert_array_equal(getattr(got, f), getattr(sched, f), err_msg=f)
-    assert world.trace_capacity([sim.schedules[b] for b in range(len(seeds))]) == sim.tr.shape[2]
+    assert world.trace_capacity([sim.schedules[b] for b in range(len(seeds))]) == sim.traces.shape[2]
     # each user's initial observation equals write_obs of that user alone
     for b in (0, 17):
         obs = np.zeros(world.obs_dim, dtype=np.float32)
-        k.write_obs(sim.ipar, sim.par, world.commands.n_commands, sim.horizon, sim.fs[b], sim.ist[b], sim.tr[b],
-                    sim.us[b], sim.sched_cmd[b], sim.sched_clock[b], sim.sched_onset[b], obs)
+        k.write_obs(sim.kernel_int_params, sim.kernel_params, world.commands.n_commands, sim.horizon,
+                    sim.command_float_state[b], sim.command_counts[b], sim.traces[b], sim.user_state[b],
+                    sim.sched_command[b], sim.sched_clock[b], sim.sched_onset[b], obs)
         np.testing.assert_array_equal(sim.obs[b], obs)
 
 
@@ -47,8 +48,8 @@ def test_generators_end_in_the_same_state_and_mixed_replay() -> None:
     ref_draws = [world.draw(refs[0]), world.draw(refs[1], replay), world.draw(refs[2])]
     for b in range(3):
         assert gens[b].bit_generator.state == refs[b].bit_generator.state
-        np.testing.assert_array_equal(sim.sched_cmd[b], ref_draws[b][0].command)
-        np.testing.assert_array_equal(sim.sched_u[b], ref_draws[b][1])
+        np.testing.assert_array_equal(sim.sched_command[b], ref_draws[b][0].command)
+        np.testing.assert_array_equal(sim.sched_uniform[b], ref_draws[b][1])
     assert sim.schedules[1] is replay
 
 
@@ -82,7 +83,7 @@ def test_reset_by_seeds_equals_reset_by_generators() -> None:
     a, b = BatchSimulator(world), BatchSimulator(world)
     a.reset(seeds=seeds)
     b.reset(rngs=[np.random.default_rng(s) for s in seeds])
-    for attr in ("sched_cmd", "sched_u", "sched_onset", "sched_clock", "sched_session", "obs", "tr"):
+    for attr in ("sched_command", "sched_uniform", "sched_onset", "sched_clock", "sched_session", "obs", "traces"):
         np.testing.assert_array_equal(getattr(a, attr), getattr(b, attr), err_msg=attr)
     with pytest.raises(ValueError, match="negative"):
         BatchSimulator(world).reset(seeds=[1, -2])
@@ -93,9 +94,9 @@ def test_schedules_of_an_earlier_reset_keep_their_users() -> None:
     sim = BatchSimulator(world)
     sim.reset(seeds=[1, 2])
     first = sim.schedules
-    first_cmd = sim.sched_cmd.copy()
+    first_cmd = sim.sched_command.copy()
     sim.reset(seeds=[3, 4])
-    assert not np.array_equal(sim.sched_cmd, first_cmd)
+    assert not np.array_equal(sim.sched_command, first_cmd)
     np.testing.assert_array_equal(first[1].command, first_cmd[1])
-    np.testing.assert_array_equal(sim.schedules[1].command, sim.sched_cmd[1])
+    np.testing.assert_array_equal(sim.schedules[1].command, sim.sched_command[1])
     assert [s.horizon for s in first[0:2]] == [world.horizon] * 2

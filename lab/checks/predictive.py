@@ -55,7 +55,7 @@ def simulate_log(world: World, make: Any, n_users: int, rng: np.random.Generator
     maker = _maker(make)
     sim, actions, outcomes, durations = _drive(world, maker, n_users, rng, schedule)
     h = sim.horizon
-    cmd = sim.sched_cmd
+    cmd = sim.sched_command
     names = np.array(world.commands.names, dtype=object)
     return pd.DataFrame({
         "participant": np.repeat([f"{prefix}-{i}" for i in range(n_users)], h),
