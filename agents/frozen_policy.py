@@ -216,7 +216,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         last = t == h - 1
         o = ops[b] if last else scratch
         dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, o, last, fail_lat)
+                                   sched_u, sched_session, o, last, fail_lat)
         uses[b, c] += 1
         sums.trials[b, s] += 1
         sums.time_s[b, s] += dur
