@@ -52,6 +52,13 @@ TypistClass = Literal[
 ]
 
 
+#: Sane-range ceilings (a project choice, no source): a single KLM operator, Fitts or menu
+#: coefficient above 10 s, or an encoding time above an hour, is taken for a unit mistake
+#: (milliseconds for seconds) and refused with the field named.
+MAX_OPERATOR_S = 10.0
+MAX_ENCODING_S = 3600.0
+
+
 class _Strict(StrictModel):
     """Settings base: no unknown keys, finite numbers, no boolean as a number."""
 
@@ -61,12 +68,12 @@ class KLMOperators(_Strict):
 
     typist: TypistClass = "average_skilled_typist"
     keystroke_s: float | None = Field(
-        default=None, gt=0, description="K; overrides the typist class when given"
+        default=None, gt=0, le=MAX_OPERATOR_S, description="K; overrides the typist class when given"
     )
-    point_s: float = Field(default=KLM_POINT_S, gt=0, description="P")
-    button_s: float = Field(default=KLM_BUTTON_S, gt=0, description="B")
-    home_s: float = Field(default=KLM_HOME_S, ge=0, description="H")
-    mental_s: float = Field(default=KLM_MENTAL_S, ge=0, description="M")
+    point_s: float = Field(default=KLM_POINT_S, gt=0, le=MAX_OPERATOR_S, description="P")
+    button_s: float = Field(default=KLM_BUTTON_S, gt=0, le=MAX_OPERATOR_S, description="B")
+    home_s: float = Field(default=KLM_HOME_S, ge=0, le=MAX_OPERATOR_S, description="H")
+    mental_s: float = Field(default=KLM_MENTAL_S, ge=0, le=MAX_OPERATOR_S, description="M")
 
     @property
     def k_s(self) -> float:
@@ -84,8 +91,8 @@ class FittsLaw(_Strict):
     check the paper's table before relying on the exact figures.
     """
 
-    intercept_s: float = -0.107
-    slope_s_per_bit: float = Field(default=0.223, gt=0)
+    intercept_s: float = Field(default=-0.107, ge=-MAX_OPERATOR_S, le=MAX_OPERATOR_S)
+    slope_s_per_bit: float = Field(default=0.223, gt=0, le=MAX_OPERATOR_S)
 
 
 class MenuModel(_Strict):
@@ -98,11 +105,11 @@ class MenuModel(_Strict):
     et al. (2007); check the paper before relying on the exact figures.
     """
 
-    search_intercept_s: float = Field(default=0.0, ge=0)
-    search_slope_s_per_item: float = Field(default=0.1, ge=0)
-    decision_intercept_s: float = Field(default=0.08, ge=0)
-    decision_slope_s_per_bit: float = Field(default=0.15, ge=0)
-    item_height_px: float = Field(default=24.0, gt=0)
+    search_intercept_s: float = Field(default=0.0, ge=0, le=MAX_OPERATOR_S)
+    search_slope_s_per_item: float = Field(default=0.1, ge=0, le=MAX_OPERATOR_S)
+    decision_intercept_s: float = Field(default=0.08, ge=0, le=MAX_OPERATOR_S)
+    decision_slope_s_per_bit: float = Field(default=0.15, ge=0, le=MAX_OPERATOR_S)
+    item_height_px: float = Field(default=24.0, ge=1, le=10_000)
 
 
 class LearnModel(_Strict):
@@ -111,7 +118,7 @@ class LearnModel(_Strict):
     The encoding time is an assumption of this project (no source).
     """
 
-    encoding_s: float = Field(default=1.5, ge=0)
+    encoding_s: float = Field(default=1.5, ge=0, le=MAX_ENCODING_S)
 
 
 class ErrorModel(_Strict):
@@ -123,7 +130,7 @@ class ErrorModel(_Strict):
     """
 
     commission_share: float = Field(default=0.25, ge=0, le=1)
-    undo_keystrokes: int = Field(default=2, ge=1)
+    undo_keystrokes: int = Field(default=2, ge=1, le=20)
 
 
 class CostSettings(_Strict):

@@ -38,6 +38,13 @@ MEMORY_CODES: dict[str, int] = {
 }
 
 
+#: Sane ranges (a project choice, no source): a trace weight above 100 presentations, a
+#: threshold outside +-10, noise outside 0.01-10 s, a latency factor above 10 s or a
+#: retrieval-failure time F e^-tau above 10 minutes is taken for a mistake and refused.
+MAX_TRACE_WEIGHT = 100.0
+MAX_RETRIEVAL_FAIL_S = 600.0
+
+
 class TraceWeights(StrictModel):
     """Weight of the trace each event lays (1 = one standard ACT-R presentation).
 
@@ -46,10 +53,10 @@ class TraceWeights(StrictModel):
     label as feedback, plain menu use lays an incidental trace only when > 0.
     """
 
-    learn: float = Field(default=2.0, ge=0)
-    hotkey_success: float = Field(default=1.0, ge=0)
-    hotkey_failure: float = Field(default=0.5, ge=0)
-    menu: float = Field(default=0.0, ge=0)
+    learn: float = Field(default=2.0, ge=0, le=MAX_TRACE_WEIGHT)
+    hotkey_success: float = Field(default=1.0, ge=0, le=MAX_TRACE_WEIGHT)
+    hotkey_failure: float = Field(default=0.5, ge=0, le=MAX_TRACE_WEIGHT)
+    menu: float = Field(default=0.0, ge=0, le=MAX_TRACE_WEIGHT)
 
 
 class MemorySettings(StrictModel):
@@ -65,21 +72,27 @@ class MemorySettings(StrictModel):
 
     kind: MemoryKind = "actr"
     decay: float = Field(default=0.5, gt=0, lt=1)
-    threshold: float = -3.5
-    noise_s: float = Field(default=0.4, gt=0)
-    latency_factor_s: float = Field(default=0.05, gt=0)
+    threshold: float = Field(default=-3.5, ge=-10, le=10)
+    noise_s: float = Field(default=0.4, ge=0.01, le=10)
+    latency_factor_s: float = Field(default=0.05, gt=0, le=10)
     recent_traces: int = Field(default=3, ge=1, le=64)
-    spacing_scale: float = Field(default=0.217, ge=0)
+    spacing_scale: float = Field(default=0.217, ge=0, le=10)
     spacing_intercept: float = Field(default=0.177, gt=0)
-    exponential_rate_per_s: float = Field(default=2e-5, gt=0)
-    power_time_unit_s: float = Field(default=1.0, gt=0)
-    gap_time_scale: float = Field(default=1.0, gt=0, le=1)
+    exponential_rate_per_s: float = Field(default=2e-5, gt=0, le=1)
+    power_time_unit_s: float = Field(default=1.0, ge=1e-3, le=86_400)
+    gap_time_scale: float = Field(default=1.0, ge=1e-6, le=1)
     weights: TraceWeights = TraceWeights()
 
     @model_validator(mode="after")
     def _spacing_decay_below_one(self) -> MemorySettings:
         if self.kind == "pavlik_anderson" and self.spacing_intercept >= 1:
             raise ValueError(f"spacing_intercept must be < 1, got {self.spacing_intercept}")
+        fail_s = self.latency_factor_s * math.exp(-self.threshold)
+        if fail_s > MAX_RETRIEVAL_FAIL_S:
+            raise ValueError(
+                f"latency_factor_s={self.latency_factor_s} with threshold={self.threshold} gives a "
+                f"retrieval-failure time F e^-tau = {fail_s:.4g} s, above the {MAX_RETRIEVAL_FAIL_S:g} s limit"
+            )
         return self
 
 

@@ -75,7 +75,7 @@ class CommandSpec(StrictModel):
 
     name: str = Field(min_length=1)
     hotkey: str
-    weight: float | None = Field(default=None, gt=0)
+    weight: float | None = Field(default=None, gt=0, le=1e12)
 
     @field_validator("name")
     @classmethod
@@ -97,6 +97,13 @@ class MenuSpec(StrictModel):
     items: list[CommandSpec] = Field(min_length=1)
 
 
+#: Sane ranges (a project choice, no source): trial onsets at least 0.1 s and at most a week
+#: apart, session gaps at most 10 years; beyond them the memory clock loses its precision.
+MIN_TRIAL_INTERVAL_S = 0.1
+MAX_TRIAL_INTERVAL_S = 7 * 86_400.0
+MAX_GAP_H = 87_600.0
+
+
 class ScheduleSettings(StrictModel):
     """Sessions of trials: ``trial_interval_s`` between trial onsets, ``gap_h`` between sessions.
 
@@ -105,7 +112,7 @@ class ScheduleSettings(StrictModel):
 
     sessions: int = Field(default=10, ge=1)
     trials_per_session: int = Field(default=40, ge=1)
-    trial_interval_s: float = Field(default=60.0, gt=0)
+    trial_interval_s: float = Field(default=60.0, ge=MIN_TRIAL_INTERVAL_S, le=MAX_TRIAL_INTERVAL_S)
     gap_h: float | list[float] = 24.0
 
     @field_validator("gap_h")
@@ -113,8 +120,8 @@ class ScheduleSettings(StrictModel):
     def _gaps_positive(cls, v: float | list[float]) -> float | list[float]:
         values = v if isinstance(v, list) else [v]
         for i, g in enumerate(values):
-            if not g > 0:
-                raise ValueError(f"gap_h[{i}] = {g} must be > 0 hours")
+            if not 0 < g <= MAX_GAP_H:
+                raise ValueError(f"gap_h[{i}] = {g} must be > 0 and at most {MAX_GAP_H:g} hours (10 years)")
         return v
 
     @model_validator(mode="after")
@@ -142,7 +149,7 @@ class ScenarioSettings(StrictModel):
     name: str = Field(min_length=1)
     description: str = ""
     menus: list[MenuSpec] = Field(min_length=1)
-    zipf_exponent: float = Field(default=1.0, ge=0)
+    zipf_exponent: float = Field(default=1.0, ge=0, le=20)
     schedule: ScheduleSettings = ScheduleSettings()
 
     @model_validator(mode="after")

@@ -130,7 +130,44 @@ def with_id(pid: str) -> Path:
 FILE = TMP / "a_file"
 FILE.write_text("x")
 
+def short_run(**world: Any) -> bool:
+    """True if a 12-trial learn/hotkey/menu run in this world has finite times and rewards."""
+    from shortcut_gym.envs.world import make_world as build
+    env = CommandSelectionEnv(world=build(**world, schedule={"sessions": 3, "trials_per_session": 4}))
+    env.reset(seed=0)
+    for a in [2, 1, 0, 1, 1, 0, 1, 2, 1, 1, 0, 1]:
+        _, reward, *_, info = env.step(a)
+        if not (np.isfinite(reward) and all(np.isfinite(v) for v in info["time_s"].values())):
+            return False
+    return True
+
+
+def absurd(kind: str, path: str, value: Any) -> Callable[[], str]:
+    """A setting far outside any sane range (a unit mistake or an extreme): refused naming it."""
+    data: Any = value
+    for part in reversed(path.split(".")):
+        data = {part: data}
+    if kind == "schedule":
+        return lambda: raises(lambda: short_run(scenario=scen(schedule=data)), path.split(".")[-1])
+    return lambda: raises(lambda: short_run(**{kind: data}), path.split(".")[-1])
+
+
 CASES: dict[str, list[Callable[[], str]]] = {
+    "absurd magnitudes": [
+        absurd("costs", "klm.keystroke_s", 200.0), absurd("costs", "klm.keystroke_s", 1e300),
+        absurd("costs", "klm.point_s", 1e308), absurd("costs", "klm.mental_s", 1350.0),
+        absurd("costs", "fitts.intercept_s", 1e300), absurd("costs", "fitts.slope_s_per_bit", 223.0),
+        absurd("costs", "menu.search_slope_s_per_item", 1e300), absurd("costs", "learn.encoding_s", 1e300),
+        absurd("costs", "errors.undo_keystrokes", 10**18), absurd("costs", "menu.item_height_px", 1e-300),
+        absurd("memory", "threshold", -1e6), absurd("memory", "threshold", 1e6),
+        absurd("memory", "noise_s", 1e-300), absurd("memory", "noise_s", 1e300),
+        absurd("memory", "latency_factor_s", 1e300), absurd("memory", "spacing_scale", 1e300),
+        absurd("memory", "exponential_rate_per_s", 1e300), absurd("memory", "power_time_unit_s", 1e-300),
+        absurd("memory", "weights.learn", 1e300), absurd("schedule", "trial_interval_s", 1e300),
+        absurd("schedule", "trial_interval_s", 1e-300), absurd("schedule", "gap_h", 1e300),
+        lambda: accepts(lambda: short_run(memory={"decay": 1e-300}), bool),
+        lambda: accepts(lambda: short_run(scenario=scen(schedule={"gap_h": 1e-300})), bool),
+    ],
     "non-finite and absurd values": [
         lambda: raises(lambda: load_settings(CostSettings, {"fitts": {"intercept_s": NAN}}), "intercept_s"),
         lambda: raises(lambda: load_settings(CostSettings, {"klm": {"point_s": INF}}), "point_s"),
