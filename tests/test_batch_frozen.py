@@ -149,7 +149,8 @@ def test_compiled_run_leaves_simulator_as_stepping() -> None:
         acts = pol.actions(targets, sim.obs)
         sim.step(acts)
         pol.observe(targets, acts, sim.outcome, -sim.reward)
-    for attr in ("fs", "ist", "tr", "us", "obs", "reward", "outcome", "ops", "p_recall"):
+    for attr in ("command_float_state", "command_counts", "traces", "user_state", "obs", "reward", "outcome",
+                 "operator_time_s", "p_recall"):
         np.testing.assert_array_equal(getattr(sims[0], attr), getattr(sim, attr), err_msg=attr)
     np.testing.assert_array_equal(fused.uses, pol.uses)
     np.testing.assert_array_equal(fused.pcg, pol.pcg)  # the same number of draws per user
