@@ -318,9 +318,9 @@ class FrozenBatchPolicy:
         self._cover(sim.horizon, n_sessions)
         sums = SumArrays(**vars(UserSums.zeros(sim.n_users, n_sessions, sim.world.commands.n_commands)))
         _run_users(sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
-                   sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock,
-                   sim.sched_onset, sim.sched_uniform, sim.sched_session, sim.reward, sim.outcome,
-                   sim.operator_time_s, sim.p_recall, sim.obs, self.rule, self.uses, self.pcg, sums)
+                   sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock, sim.sched_onset,
+                   sim.sched_uniform, sim.sched_session, sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall,
+                   sim.obs, self.rule, self.uses, self.pcg, sums)
         self.trial = sim.horizon
         return UserSums(**sums._asdict())
 

@@ -181,3 +181,13 @@ def test_bad_policies_are_refused() -> None:
     assert unbound.batch_policy(2, [0, 1]).n_users == 2  # type: ignore[attr-defined]
     with pytest.raises(ConfigError):
         agent_from_spec({"name": "learn_first_k", "params": {"k": 1.5}})
+
+
+@pytest.mark.parametrize("aids", ["key_labels", "nudge", "menu_lockout", "warmup"])
+def test_compiled_policy_equals_looped_env_with_interface_aids(aids: str) -> None:
+    world = make_world(schedule=SCHEDULE, aids=aids)
+    for spec in ({"name": "learn_first_k", "params": {"k": 1}}, {"name": "static_softmax", "params": SOFTMAX}):
+        fused = simulate_users(world, spec, SEEDS)
+        looped = _looped_sums({"schedule": SCHEDULE, "aids": aids}, lambda s=spec: agent_from_spec(s),
+                              fused.trials.shape[1], world.commands.n_commands)
+        _assert_sums_equal(fused, looped)
