@@ -47,9 +47,7 @@ Approximations (each makes the planner exact only for its own model, not for the
    solve, measure the plan's usage-weighted share of uses that recall a hotkey (ks: the hand is
    on the keyboard before a trial) and that attempt one (q: the next trial wants the keyboard),
    solve again (at most 6 rounds); the same from a keyboard-only start; keep the plan of smaller
-   :func:`predicted_time_s`. That prediction is optimistic for plans that use hotkeys, so when
-   two different plans are predicted within 25 s (``TIE_MARGIN_S``) of each other, 16 simulated
-   users (the same for both) choose between them. A menu then costs ks H, a hotkey (1 - ks) H,
+   :func:`predicted_time_s`. A menu then costs ks H, a hotkey (1 - ks) H,
    and the action is charged the next trial's homing: q H if it leaves the hand on the mouse
    (menu, learn, failed hotkey), (1 - q) H if on the keyboard. Each switch is thus counted by
    both trials next to it: right for decisions (both cause it), so plan values overstate total
@@ -62,6 +60,15 @@ Approximations (each makes the planner exact only for its own model, not for the
    planned independently; failure costs use the world's commission share as an expectation.
 5. Uses left = 1 + round(p_c x trials after this one), not the realised count; the value of the
    next use is read at that count minus one whatever the gap drawn.
+
+The executed policy (:mod:`.selection`): because of these approximations a plan alone can lose
+to a simple rule where recall is hard (threshold -1.5, 30 days between sessions, fast typist: 10 s
+per user worse than always-menu). :func:`plan_world` therefore compares, on 32 common simulated
+users of the world's own model (seeds from :data:`SELECTION_SEED`, never the scored users), both
+plans, each plan restricted to the commands where it beat the menu, and the fixed rules
+(always-menu, always-hotkey, learn-first-k for k = 1, 2, 3, learn-first-1 on the commands where it
+pays), and executes the fastest (:class:`PolicyChoice`, in ``Plan.choice``; every candidate's mean in
+``Plan.candidate_times_s``). That is a policy of what the env shows.
 
 The agent (:class:`BoundedOptimalPlanner`) tracks each command's memory from its own history and
 costs the current trial exactly (see :mod:`.agent`). The analytic break-even
@@ -76,21 +83,20 @@ from shortcut_gym.agents.planner.mdp import GRID_HALF_WIDTH, CommandMDP, build_c
 from shortcut_gym.agents.planner.memory_model import N_GAP_QUANTILES, gap_distribution, weight_grid
 from shortcut_gym.agents.planner.next_uses import NextUses, next_use_points
 from shortcut_gym.agents.planner.search import (
-    TIE_MARGIN_S,
-    TIE_SEED,
+    SELECTION_USERS,
     Plan,
     expected_uses,
     plan_world,
     predicted_time_s,
-    simulated_time_s,
 )
+from shortcut_gym.agents.planner.selection import SELECTION_SEED, PolicyChoice, select_policy
 from shortcut_gym.agents.planner.solver import CsrRows, hotkey_shares, solve_finite_horizon, state_occupancy
 
 __all__ = [
     "GRID_HALF_WIDTH",
     "N_GAP_QUANTILES",
-    "TIE_MARGIN_S",
-    "TIE_SEED",
+    "SELECTION_SEED",
+    "SELECTION_USERS",
     "ActionTimes",
     "BoundedOptimalPlanner",
     "CommandMDP",
@@ -98,6 +104,7 @@ __all__ = [
     "GridConstants",
     "NextUses",
     "Plan",
+    "PolicyChoice",
     "action_rewards",
     "action_times",
     "break_even_table",
@@ -109,7 +116,7 @@ __all__ = [
     "next_use_points",
     "plan_world",
     "predicted_time_s",
-    "simulated_time_s",
+    "select_policy",
     "solve_finite_horizon",
     "state_occupancy",
     "weight_grid",

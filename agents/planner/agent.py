@@ -10,6 +10,7 @@ Memory is tracked with the world's formula (the O(1) hybrid base level of Petrov
 
 from __future__ import annotations
 
+import copy
 import math
 from pathlib import Path
 from typing import Any
@@ -19,7 +20,8 @@ import numpy as np
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.planner.action_costs import action_times
 from shortcut_gym.agents.planner.next_uses import next_use_points
-from shortcut_gym.agents.planner.search import Plan, plan_world
+from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, plan_world
+from shortcut_gym.agents.planner.selection import rule_action
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.memory import (
     HybridBaseLevel,
@@ -46,7 +48,7 @@ class BoundedOptimalPlanner(Agent):
 
     def __init__(self, context: AgentContext | None = None, world: World | dict | str | Path | None = None,
                  keyboard_share: float | None = None, n_bins: int = 40, n_weight_bins: int = 10,
-                 **params: float) -> None:
+                 select_users: int = SELECTION_USERS, **params: float) -> None:
         super().__init__(context, **params)
         if isinstance(world, (dict, str, Path)):
             world = make_world(**world) if isinstance(world, dict) else make_world(world)
@@ -59,18 +61,31 @@ class BoundedOptimalPlanner(Agent):
             raise ValueError(f"{self.name}: n_bins={n_bins} must be a whole number >= 2")
         if int(n_weight_bins) != n_weight_bins or n_weight_bins < 1:
             raise ValueError(f"{self.name}: n_weight_bins={n_weight_bins} must be a whole number >= 1")
+        if int(select_users) != select_users or select_users < 0:
+            raise ValueError(f"{self.name}: select_users={select_users} must be a whole number >= 0")
+        self.select_users = int(select_users)
         self.world = world
         self.keyboard_share = None if keyboard_share is None else float(keyboard_share)
         self.n_bins = int(n_bins)
         self.n_weight_bins = int(n_weight_bins)
         self.plan: Plan | None = None
 
+    def __deepcopy__(self, memo: dict) -> BoundedOptimalPlanner:
+        """A copy for another simulated user: its own memory tracking, the same read-only world,
+        context, plan and tables (copying the world per user cost more than the user's trials)."""
+        twin = object.__new__(type(self))
+        shared = ("world", "context", "plan", "_cmdc", "_clock", "_times", "_next_uses", "_times_for", "_memory",
+                  "_p_use", "_new_weights")
+        for key, value in self.__dict__.items():
+            twin.__dict__[key] = value if key in shared else copy.deepcopy(value, memo)
+        return twin
+
     def param_specs(self) -> dict[str, ParamSpec]:
         return {}
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "keyboard_share": self.keyboard_share, "n_bins": self.n_bins,
-                "n_weight_bins": self.n_weight_bins, "params": {}}
+                "n_weight_bins": self.n_weight_bins, "select_users": self.select_users, "params": {}}
 
     def _world(self) -> World:
         w = self.world or getattr(self.context, "world", None)
@@ -84,7 +99,7 @@ class BoundedOptimalPlanner(Agent):
         world = self._world()
         if self.plan is None:
             self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
-                                   n_weight_bins=self.n_weight_bins)
+                                   n_weight_bins=self.n_weight_bins, select_users=self.select_users)
         self._cmdc = world.command_constants()
         onset, _, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
@@ -104,6 +119,7 @@ class BoundedOptimalPlanner(Agent):
         self._hybrid: dict[int, HybridBaseLevel] = {}
         self._weight = np.zeros(world.commands.n_commands)
         self._menu_count = np.zeros(world.commands.n_commands, dtype=np.int64)
+        self._uses = np.zeros(world.commands.n_commands, dtype=np.int64)
         self._hand_on_keyboard = False  # the simulator starts every user with the hand on the mouse
 
     def _activation(self, c: int, now: float) -> float:
@@ -177,7 +193,15 @@ class BoundedOptimalPlanner(Agent):
         return q
 
     def decide(self, c: int, trial: int) -> int:
-        """Optimal action for command ``c`` at ``trial`` (ties to the lowest action index)."""
+        """The executed action for command ``c`` at ``trial``: the argmax of :meth:`action_values`
+        (ties to the lowest action index) where ``plan.choice`` follows the plan for ``c``, else
+        the choice's fixed rule (menu on commands a restricted choice leaves out)."""
+        if self.plan is None:
+            self.reset()
+        assert self.plan is not None
+        choice = self.plan.choice
+        if choice.kind != "plan" or not choice.allows(c):
+            return rule_action(choice, c, int(self._uses[c]))
         return int(self.action_values(c, trial).argmax())
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
@@ -198,6 +222,7 @@ class BoundedOptimalPlanner(Agent):
         outcome = info["outcome"]
         weight = {"menu": w.menu, "learned": w.learn, "hotkey": w.hotkey_success}.get(outcome, w.hotkey_failure)
         self._hand_on_keyboard = outcome == "hotkey"
+        self._uses[c] += 1
         if outcome != "hotkey":
             self._menu_count[c] += 1
         if weight > 0:

@@ -130,6 +130,14 @@ def spread(act_next: np.ndarray, w_next: np.ndarray, mass: np.ndarray, ag: np.nd
             np.add.at(P, (rows, 1 + (i + di) * n_w + np.minimum(j + dj, n_w - 1)), m * wi * wj)
 
 
+def clean_rows(P: np.ndarray) -> None:
+    """Make every row of ``P`` (actions x S x S) a probability vector in place: rounding in the
+    bilinear weights leaves entries like -1e-15 and rows off 1 by 1e-16; clip at 0 and divide by
+    the row sum, so entries are >= 0 and rows sum to 1 within 1e-12 (as MDP checkers require)."""
+    np.clip(P, 0.0, None, out=P)
+    P /= P.sum(axis=2, keepdims=True)
+
+
 def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_share: float = 0.5,
                       next_hotkey_share: float | None = None, n_weight_bins: int = 10) -> CommandMDP:
     """The discretised MDP of ``command`` (see the package docstring for every approximation).
@@ -161,5 +169,6 @@ def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_sha
             with np.errstate(divide="ignore"):
                 a_next = np.log(nxt)
             spread(a_next, (wts + weight)[:, None], prob[:, None] * gp[None, :], ag, wg, P[a])
+    clean_rows(P)
     R = action_rewards(action_times(world, command, keyboard_share, next_hotkey_share), act, p_rec)
     return CommandMDP(command, act, p_rec, P, R, wts, ag, wg)

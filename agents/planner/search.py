@@ -1,32 +1,35 @@
-"""Plan search: solve every command's MDP at hand shares found by fixed point, and choose
-between the menu-start and keyboard-start plans (by prediction, or by simulation on a near tie).
-See the package docstring, approximation 2."""
+"""Plan search: solve every command's MDP at hand shares found by fixed point (from a menu-only
+and from a keyboard-only start; the package docstring, approximation 2), then choose the executed
+policy among those plans and fixed rules on common simulated users (:mod:`.selection`)."""
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from shortcut_gym.agents.planner.action_costs import action_rewards, action_times
 from shortcut_gym.agents.planner.mdp import CommandMDP, build_command_mdp
+from shortcut_gym.agents.planner.selection import PolicyChoice, select_policy
 from shortcut_gym.agents.planner.solver import backward_induction_csr, hotkey_shares, stacked_csr, state_occupancy
 from shortcut_gym.envs.world import World
 
-#: Two self-consistent plans whose predicted times differ by less than this (s per user) are
-#: told apart by simulation: the prediction is optimistic for plans that use hotkeys, so it
-#: cannot rank them (project choice).
-TIE_MARGIN_S = 25.0
-#: First seed of the simulated users that break a near tie (far from the seeds users get).
-TIE_SEED = 2**20
+#: Simulated users the candidate policies are compared on by default (:func:`.selection.select_policy`).
+SELECTION_USERS = 32
 
 
 @dataclass
 class Plan:
-    """Optimal values and actions per command: ``policy[c][n, s]`` with n uses left.
+    """A solved plan and the policy the planner executes with it.
 
-    ``keyboard_share`` / ``next_hotkey_share``: the hand-position shares the plan was solved with.
+    ``values[c][n, s]`` and ``policy[c][n, s]``: the dynamic program's optimal value (minus expected
+    seconds) and action of command c's MDP (``mdps[c]``) in state s with n uses left (n = 0..max_uses;
+    row 0 is 0 / -1). ``keyboard_share`` / ``next_hotkey_share``: the hand-position shares it was
+    solved with. ``choice``: what the agent executes (the plan's argmax on some or all commands, or a
+    fixed rule, see :class:`~.selection.PolicyChoice`); ``candidate_times_s``: the mean seconds per
+    simulated user of every candidate compared (empty when no selection ran); ``simulated_time_s``:
+    the chosen one's.
     """
 
     mdps: list[CommandMDP]
@@ -36,7 +39,9 @@ class Plan:
     keyboard_share: float = 0.5
     next_hotkey_share: float = 0.5
     predicted_time_s: float = math.nan  # expected seconds per user, see predicted_time_s()
-    simulated_time_s: float = math.nan  # mean seconds per user in the simulator, when a near tie was simulated
+    simulated_time_s: float = math.nan  # mean seconds per user of the chosen policy on the selection users
+    choice: PolicyChoice = field(default_factory=PolicyChoice)
+    candidate_times_s: dict[str, float] = field(default_factory=dict)
 
     def __deepcopy__(self, memo: dict) -> Plan:
         # read-only once solved: copies of a planner agent (one per simulated user) share it
@@ -100,20 +105,6 @@ def fixed_point(world: World, n: int, mdps: list[CommandMDP], start: float, iter
     return plan
 
 
-def simulated_time_s(world: World, plan: Plan, n_users: int, n_bins: int, n_weight_bins: int) -> float:
-    """Mean seconds per simulated user of the planner agent following ``plan`` in the world's own
-    simulator (users seeded TIE_SEED, TIE_SEED + 1, ...)."""
-    from shortcut_gym.agents.planner.agent import BoundedOptimalPlanner
-    from shortcut_gym.agents.rollout import run_episode
-    from shortcut_gym.envs.env import CommandSelectionEnv
-
-    env = CommandSelectionEnv(world=world)
-    agent = BoundedOptimalPlanner(world=world, n_bins=n_bins, n_weight_bins=n_weight_bins)
-    agent.plan = plan
-    totals = [run_episode(env, agent, seed=TIE_SEED + i)["duration_s"].sum() for i in range(n_users)]
-    return float(np.mean(totals))
-
-
 def set_rewards(world: World, mdps: list[CommandMDP], plan: Plan) -> None:
     """The shared MDPs' R back to ``plan``'s hand shares."""
     for c, mdp in enumerate(mdps):
@@ -123,42 +114,39 @@ def set_rewards(world: World, mdps: list[CommandMDP], plan: Plan) -> None:
 
 def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
                keyboard_share: float | None = None, iterations: int = 6, n_weight_bins: int = 10,
-               tie_users: int = 16) -> Plan:
-    """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon).
+               select_users: int = SELECTION_USERS) -> Plan:
+    """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon) and choose
+    the policy to execute.
 
-    ``keyboard_share`` None (default): the hand shares are the plan's own (approximation 2). The
-    shares are found by fixed point twice, from a menu-only world (shares 0) and from a
-    keyboard-only one (shares 1): solve, measure the plan's usage-weighted hotkey success and
-    attempt shares, solve again, ``iterations`` times at most (stops once both move < 0.005);
-    the plan with the smaller :func:`predicted_time_s` is kept (a hotkey pays for one command only
-    if others keep the hand on the keyboard, so both ends can be self-consistent). When the two
-    plans differ but their predictions are within :data:`TIE_MARGIN_S`, ``tie_users`` simulated
-    users (the same for both, seeded from :data:`TIE_SEED`) decide instead; 0 turns that off.
-    A number fixes both shares to it.
+    ``keyboard_share`` None (default): the hand shares are the plan's own (approximation 2), found
+    by fixed point twice, from a menu-only world (shares 0) and from a keyboard-only one (shares 1):
+    solve, measure the plan's usage-weighted hotkey success and attempt shares, solve again,
+    ``iterations`` times at most (stops once both move < 0.005). A number fixes both shares to it
+    (one plan). ``select_users`` > 0: the executed policy is the best of those plans, their
+    per-command restrictions and the fixed rules on that many common simulated users
+    (:func:`.selection.select_policy`); 0 executes the plan of smaller :func:`predicted_time_s`
+    as it is (which can lose to always-menu where recall is hard).
     """
     n = world.horizon if max_uses is None else int(max_uses)
     if n < 1:
         raise ValueError(f"max_uses must be >= 1, got {max_uses}")
     if keyboard_share is not None and not 0.0 <= float(keyboard_share) <= 1.0:
         raise ValueError(f"keyboard_share must be in [0, 1] or None, got {keyboard_share}")
-    if int(tie_users) != tie_users or tie_users < 0:
-        raise ValueError(f"tie_users must be a whole number >= 0, got {tie_users}")
+    if int(select_users) != select_users or select_users < 0:
+        raise ValueError(f"select_users must be a whole number >= 0, got {select_users}")
     mdps = [build_command_mdp(world, c, n_bins, 0.0, 0.0, n_weight_bins) for c in range(world.commands.n_commands)]
-    if keyboard_share is not None:
-        plan = solve_at_shares(world, n, mdps, float(keyboard_share), float(keyboard_share))
-        plan.predicted_time_s = predicted_time_s(world, plan)
-        return plan
     candidates = []
-    for start in (0.0, 1.0):
-        plan = fixed_point(world, n, mdps, start, iterations)
+    for start in ((float(keyboard_share),) if keyboard_share is not None else (0.0, 1.0)):
+        if keyboard_share is not None:
+            plan = solve_at_shares(world, n, mdps, start, start)
+        else:
+            plan = fixed_point(world, n, mdps, start, iterations)
         plan.predicted_time_s = predicted_time_s(world, plan)
         candidates.append(plan)
-    low, high = candidates
-    best = high if high.predicted_time_s < low.predicted_time_s - 1e-9 else low
-    differ = any(not np.array_equal(a, b) for a, b in zip(low.policy, high.policy))
-    if tie_users and differ and abs(high.predicted_time_s - low.predicted_time_s) < TIE_MARGIN_S:
-        for plan in candidates:  # the agent reads the plan's values and shares, not the MDPs' R
-            plan.simulated_time_s = simulated_time_s(world, plan, int(tie_users), n_bins, n_weight_bins)
-        best = high if high.simulated_time_s < low.simulated_time_s - 1e-9 else low
+    if select_users:
+        best, table = select_policy(world, candidates, int(select_users), n_bins, n_weight_bins)
+        best.candidate_times_s = table
+    else:
+        best = min(candidates, key=lambda p: p.predicted_time_s)
     set_rewards(world, mdps, best)
     return best
