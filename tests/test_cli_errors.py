@@ -54,6 +54,11 @@ def _one_line_exit_2(argv: list[str], capsys, expected: str) -> str:
     (["recover", "--model", "static_softmax", "--out", "x", "--participants", "-3"], "--participants"),
     (["recover", "--model", "static_softmax", "--out", "x", "--study", "models"], "at least two --model options"),
     (["bench", "--suite", "warp"], "unknown suite 'warp'"),
+    (["allot", "--budget", "1000"], "--budget 1000 is more than can be handed out"),
+    (["allot", "--budget", "-1"], "--budget: must be a whole number >= 0, got -1"),
+    (["simulate", "--agent", "learn_first_k:k"], "'k' must look like key=value"),
+    (["simulate", "--log", "trials.txt"], "unknown file type '.txt'"),
+    (["audit", "no_such_folder"], "no such folder"),
     (["no_such_subcommand"], "invalid choice"),
 ])
 def test_a_users_mistake_exits_2_with_one_line(argv, expected, capsys, tmp_path, monkeypatch) -> None:

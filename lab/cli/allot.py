@@ -58,6 +58,10 @@ def run(args: argparse.Namespace) -> int:
     """Price every command by the planner, solve for each budget, print and optionally write."""
     pool = _pool(args)
     world = world_of(args)
+    most = min(len(pool), world.commands.n_commands)
+    if args.budget > most:
+        raise CLIError(f"--budget {args.budget} is more than can be handed out: {world.commands.n_commands} "
+                          f"commands, {len(pool)} free combinations (at most {most})")
     counts = {c.keystrokes for c in pool}
     specs = agent_specs_of(args)
     if specs:
