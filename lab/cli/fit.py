@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 import argparse
+from pathlib import Path
+
+import pandas as pd
 
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli.options import add_common, add_skip_bad, models_of, priors_of, report_skipped
 from shortcut_gym.lab.cli.ranges import input_file
 from shortcut_gym.lab.data.logs import read_log
-from shortcut_gym.lab.fitting import context_for, fit_log
+from shortcut_gym.lab.fitting import HierarchicalFit, context_for, fit_hierarchical_models, fit_log
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -19,6 +22,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_skip_bad(p)
     p.add_argument("--prior", action="append", default=None,
                    help="label:param=family:a:b (normal, beta, gamma, lognormal) for a MAP fit (repeatable)")
+    p.add_argument("--hierarchical", action="store_true",
+                   help="also fit each model hierarchically (EM, Gaussian group prior, Laplace per participant) "
+                        "and write its group parameters, MAPs with posterior SDs and integrated BIC")
+    p.add_argument("--covariance", choices=("diagonal", "full"), default="diagonal",
+                   help="group prior covariance of --hierarchical (default diagonal)")
     p.set_defaults(func=run)
 
 
@@ -37,4 +45,20 @@ def run(args: argparse.Namespace) -> int:
     show = fits[["participant", "model", "loglik", "n_params", "aic", "bic", "converged"]]
     print(show.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(f"wrote {path}")
+    if args.hierarchical:
+        summary, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names),
+                                                    args.starts, args.seed, args.covariance)
+        written = write_hierarchical(summary, by_model, args.out)
+        print(summary.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
+        print("wrote " + ", ".join(str(p) for p in written))
     return 0
+
+
+def write_hierarchical(summary: pd.DataFrame, by_model: dict[str, HierarchicalFit], out: Path) -> list[Path]:
+    """``hierarchical.csv`` (per model: evidence, iBIC), ``hierarchical_group.csv`` (group mean and SD
+    per parameter) and ``hierarchical_participants.csv`` (MAPs with posterior SDs) in ``out``."""
+    paths = [out / "hierarchical.csv", out / "hierarchical_group.csv", out / "hierarchical_participants.csv"]
+    summary.to_csv(paths[0], index=False)
+    pd.concat([f.group_table() for f in by_model.values()], ignore_index=True).to_csv(paths[1], index=False)
+    pd.concat([f.participant_table() for f in by_model.values()], ignore_index=True).to_csv(paths[2], index=False)
+    return paths

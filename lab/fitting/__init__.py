@@ -3,7 +3,8 @@
 Modules: :mod:`.criteria` (AIC, BIC), :mod:`.specs` (what to fit), :mod:`.replay` (the
 log-likelihood of a model on a log), :mod:`.priors` (MAP priors), :mod:`.optimise` (one
 participant), :mod:`.runner` (many participants x models), :mod:`.durations` (operator times from
-trial durations). The public names are re-exported here.
+trial durations), :mod:`.laplace_em` and :mod:`.hierarchical` (hierarchical fits by EM with Gaussian
+group priors). The public names are re-exported here.
 """
 
 from shortcut_gym.lab.fitting.criteria import aic, bic
@@ -15,6 +16,8 @@ from shortcut_gym.lab.fitting.durations import (
     fit_log_durations,
     implied_world,
 )
+from shortcut_gym.lab.fitting.hierarchical import HierarchicalFit, fit_hierarchical, fit_hierarchical_models
+from shortcut_gym.lab.fitting.laplace_em import EMResult, em_laplace
 from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT, FitResult, draw_start, fit_participant
 from shortcut_gym.lab.fitting.priors import PRIOR_FAMILIES, make_prior
 from shortcut_gym.lab.fitting.replay import LogLik, loglik_function, replay_probabilities
@@ -23,7 +26,8 @@ from shortcut_gym.lab.fitting.specs import ModelSpec
 
 __all__ = [
     "DURATION_PARAMETERS", "DurationFit", "DurationFitError", "fit_durations", "fit_log_durations", "implied_world",
-    "FREE_LIMIT", "PRIOR_FAMILIES", "UNBOUNDED_LIMIT", "FitResult", "LogLik", "ModelSpec", "aic", "bic",
-    "context_for", "draw_start", "fit_log", "fit_participant", "fitted_agent", "loglik_function", "make_prior",
+    "FREE_LIMIT", "PRIOR_FAMILIES", "UNBOUNDED_LIMIT", "EMResult", "FitResult", "HierarchicalFit", "LogLik",
+    "ModelSpec", "aic", "bic", "context_for", "draw_start", "em_laplace", "fit_hierarchical",
+    "fit_hierarchical_models", "fit_log", "fit_participant", "fitted_agent", "loglik_function", "make_prior",
     "replay_probabilities",
 ]
