@@ -337,3 +337,41 @@ def test_aid_settings_are_sweep_axes_and_aid_free_specs_keep_their_run_ids() -> 
         parse_spec({**plain, "vary": {"parameters": {"aids.menu_delay.delay": {"values": [1.0]}}}})
     with pytest.raises(SweepSpecError, match="unknown command 'Nope'"):
         plan_runs(parse_spec({**plain, "base": {**plain["base"], "aids": {"nudge": {"commands": ["Nope"]}}}}))
+
+
+# ---- the planner models the aids as the kernel applies them ---------------------------------
+
+def test_planner_tracks_the_memory_the_aids_lay_and_reacts_to_their_costs() -> None:
+    """The planner's tracked recall probability equals the simulator's on every trial with every
+    aid on (its model of the labels', nudges' and warm-up's traces is the kernel's), and a locked
+    or delayed menu makes it use hotkeys at least as much as the aid-free world does."""
+    from shortcut_gym.agents import make_agent
+    from shortcut_gym.agents.base import Transition
+    from shortcut_gym.agents.rollout import context_of_world
+    from shortcut_gym.envs.memory import recall_probability as p_of
+
+    aids = {"key_labels": {"commands": "all", "trace_weight": 0.4}, "nudge": {"commands": "all"},
+            "menu_lockout": {"commands": ["New pool record"], "after_uses": 3},
+            "warmup": {"commands": ["Attach photo", "Close survey"], "sessions": "every"}}
+    world = _world(aids, memory=None, schedule={"sessions": 2, "trials_per_session": 30})
+    agent = make_agent("bounded_optimal", n_bins=12)
+    agent.bind(context_of_world(world))
+    env = CommandSelectionEnv(world=world)
+    obs, info = env.reset(seed=4)
+    agent.reset(4)
+    m = world.memory
+    onset, _, gap = session_onsets(world.schedule)
+    clock = onset - (1.0 - m.gap_time_scale) * gap
+    for t in range(world.horizon):
+        a = agent.act(obs, info)
+        c = int(info["target"])
+        tracked = p_of(agent._activation(c, float(clock[t])), m.threshold, m.noise_s)
+        nobs, r, term, trunc, info = env.step(a)
+        assert info["p_recall"] == pytest.approx(tracked, rel=1e-9, abs=1e-12), t
+        agent.observe(Transition(obs, a, r, nobs, info, term, trunc))
+        obs = nobs
+    base = simulate_users(_world(memory=None), {"name": "bounded_optimal", "n_bins": 12}, range(8))
+    for pushed in ({"menu_lockout": {"commands": "all", "after_uses": 2}},
+                   {"menu_delay": {"commands": "all", "delay_s": 3.0}}):
+        aided = simulate_users(_world(pushed, memory=None), {"name": "bounded_optimal", "n_bins": 12}, range(8))
+        assert aided.actions[:, :, k.HOTKEY].sum() >= base.actions[:, :, k.HOTKEY].sum(), pushed

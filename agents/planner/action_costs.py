@@ -2,7 +2,8 @@
 
 Formulas of :mod:`shortcut_gym.envs.costs` as the kernel applies them: Keystroke-Level Model
 operators (Card, Moran & Newell 1980), Fitts' law pointing (MacKenzie 1992), the menu model of
-Cockburn, Gutwin & Greenberg (2007) at full expertise (e = 1, Hick-Hyman decision time).
+Cockburn, Gutwin & Greenberg (2007) at full expertise (e = 1, Hick-Hyman decision time), with the
+interface aids' menu delay (:mod:`shortcut_gym.envs.aids`; the other aids are costed at decision time).
 The hand position is a mean field: ``keyboard_share`` before the trial, ``next_hotkey_share``
 of next trials that start with a hotkey attempt (see the package docstring, approximation 2).
 """
@@ -54,7 +55,7 @@ def action_times(world: World, command: int, keyboard_share: float = 0.5,
     cmdc = world.command_constants()[command]
     item = cmdc[k.C_DECISION] + cmdc[k.C_POINTING]
     keys = cmdc[k.C_KEYS] * klm.k_s
-    menu_core = klm.point_s + 4 * klm.button_s + item
+    menu_core = klm.point_s + 4 * klm.button_s + item + cmdc[k.C_DELAY_S]  # an aid's delay (0 without)
     menu = klm.mental_s + keyboard_share * klm.home_s + menu_core
     hotkey_fixed = klm.mental_s + (1.0 - keyboard_share) * klm.home_s + keys
     fail_latency = world.memory.latency_factor_s * math.exp(-world.memory.threshold)

@@ -101,7 +101,7 @@ class BoundedOptimalPlanner(Agent):
             self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
                                    n_weight_bins=self.n_weight_bins, select_users=self.select_users)
         self._cmdc = world.command_constants()
-        onset, _, gap_total = session_onsets(world.schedule)
+        onset, self._session, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
         if getattr(self, "_times_for", None) is not self.plan:
             self._times = [action_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share)
@@ -121,6 +121,11 @@ class BoundedOptimalPlanner(Agent):
         self._menu_count = np.zeros(world.commands.n_commands, dtype=np.int64)
         self._uses = np.zeros(world.commands.n_commands, dtype=np.int64)
         self._hand_on_keyboard = False  # the simulator starts every user with the hand on the mouse
+        # interface aids (shortcut_gym.envs.aids), costed at decision time as the kernel applies them
+        self._aids = world.aids.any_on
+        self._warmup = world.parameters()[1][k.I_WARMUP]
+        self._warmed = -1  # last trial whose warm-up block is in the tracked memory
+        self._key_s = world.costs.klm.k_s
 
     def _activation(self, c: int, now: float) -> float:
         m = self._memory
@@ -157,6 +162,8 @@ class BoundedOptimalPlanner(Agent):
         if self.plan is None:
             self.reset()
         assert self.plan is not None
+        if self._warmup:
+            self._apply_warmup(trial)
         m = self._memory
         after = max(self._horizon - trial - 1, 0)
         p_c = self._p_use[c]
@@ -178,19 +185,71 @@ class BoundedOptimalPlanner(Agent):
         q_menu = -(times.menu_s + start_menu + times.return_after_mouse_s)
         q_hot = -(p * ok + (1.0 - p) * fail)
         q_learn = -(times.learn_s + start_menu + times.return_after_mouse_s)
+        new_weights = self._new_weights
+        if self._aids:  # this trial's aid costs on the menu paths, and the traces they lay
+            aid_s, aid_w, locked = self._aid_terms(c)
+            back = times.return_after_keyboard_s - times.return_after_mouse_s if locked else 0.0
+            q_menu -= aid_s + back
+            q_learn -= aid_s + back
+            fail += aid_s + back
+            q_hot = -(p * ok + (1.0 - p) * fail)
+            new_weights = new_weights + np.array([aid_w, aid_w, 0.0, aid_w])
         if uses > 1 and after > 0:
             V = self.plan.values[c][uses - 1]
             t_next = self._next_uses.clock_s[c, trial]
             # mean V at the next use after a menu, learn, recalled and failed hotkey trace
             f_menu, f_learn, f_ok, f_fail = self.plan.mdps[c].mean_after_traces(
                 V, self._activations(c, t_next), self._next_uses.fresh[c, trial], float(self._weight[c]),
-                self._new_weights)
+                new_weights)
             q_menu += f_menu
             q_learn += f_learn
             q_hot += p * f_ok + (1.0 - p) * f_fail
         q = np.empty(3)
         q[k.MENU], q[k.HOTKEY], q[k.LEARN] = q_menu, q_hot, q_learn
         return q
+
+    def _aid_terms(self, c: int) -> tuple[float, float, bool]:
+        """(seconds, trace weight, item locked) the aids add to a menu path of ``c`` now: the novice
+        label search and the nudge of this menu selection, the lockout's H + keys x K."""
+        cc = self._cmdc[c]
+        sel = self._menu_count[c] + 1
+        nudged = cc[k.C_NUDGE_FROM] <= sel < cc[k.C_NUDGE_UNTIL]
+        locked = bool(self._uses[c] >= cc[k.C_LOCK_AFTER])
+        seconds = cc[k.C_LABEL_SEARCH] / sel + (cc[k.C_NUDGE_S] if nudged else 0.0)
+        if locked:
+            seconds += self._home_s + cc[k.C_KEYS] * self._key_s
+        return float(seconds), float(cc[k.C_LABEL_W] + (cc[k.C_NUDGE_W] if nudged else 0.0)), locked
+
+    def _apply_warmup(self, trial: int) -> None:
+        """Lay the warm-up block's traces before ``trial`` if it opens a warm-up session (once)."""
+        if trial <= self._warmed or trial >= len(self._clock):
+            return
+        self._warmed = trial
+        starts = trial == 0 or (self._warmup == 2 and self._session[trial] != self._session[trial - 1])
+        if not starts:
+            return
+        block = float(self._cmdc[:, k.C_WARMUP_S].sum())
+        if not self._hand_on_keyboard:
+            block += self._home_s
+        for j in np.flatnonzero(self._cmdc[:, k.C_WARMUP_S] > 0):
+            self._lay(int(j), float(self._clock[trial]) - block, float(self._cmdc[j, k.C_WARMUP_W]))
+        self._hand_on_keyboard = True
+
+    def _lay(self, c: int, now: float, weight: float) -> None:
+        """Add a trace of ``weight`` to the tracked memory of ``c`` at clock ``now``."""
+        if weight <= 0:
+            return
+        m = self._memory
+        self._weight[c] += weight
+        if m.kind == "actr":
+            h = self._hybrid.get(c)
+            if h is None:
+                h = self._hybrid[c] = HybridBaseLevel(m.decay, m.recent_traces)
+            h.add(now, weight)
+        else:
+            times, weights = self._traces.setdefault(c, ([], []))
+            times.append(now)
+            weights.append(weight)
 
     def decide(self, c: int, trial: int) -> int:
         """The executed action for command ``c`` at ``trial``: the argmax of :meth:`action_values`
@@ -220,20 +279,15 @@ class BoundedOptimalPlanner(Agent):
         m = self._memory
         w = m.weights
         outcome = info["outcome"]
+        if self._warmup:
+            self._apply_warmup(t)
         weight = {"menu": w.menu, "learned": w.learn, "hotkey": w.hotkey_success}.get(outcome, w.hotkey_failure)
-        self._hand_on_keyboard = outcome == "hotkey"
-        self._uses[c] += 1
+        locked = False
+        if self._aids and outcome != "hotkey":
+            _, extra, locked = self._aid_terms(c)
+            weight += extra
+        self._hand_on_keyboard = outcome == "hotkey" or locked
         if outcome != "hotkey":
             self._menu_count[c] += 1
-        if weight > 0:
-            self._weight[c] += weight
-            now = float(self._clock[t])
-            if m.kind == "actr":
-                h = self._hybrid.get(c)
-                if h is None:
-                    h = self._hybrid[c] = HybridBaseLevel(m.decay, m.recent_traces)
-                h.add(now, weight)
-            else:
-                times, weights = self._traces.setdefault(c, ([], []))
-                times.append(now)
-                weights.append(weight)
+        self._uses[c] += 1
+        self._lay(c, float(self._clock[t]), weight)

@@ -160,10 +160,11 @@ def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_sha
     gaps, gp = gap_distribution(world, command)
     strength = np.where(np.isfinite(act), np.exp(act), 0.0)
     w = m.weights
+    label = float(world.command_constants()[command, k.C_LABEL_W])  # a key label's trace on menu paths
     n = len(act)
     P = np.zeros((3, n, n))
-    for a, outcomes in ((k.MENU, [(np.ones(n), w.menu)]), (k.LEARN, [(np.ones(n), w.learn)]),
-                        (k.HOTKEY, [(p_rec, w.hotkey_success), (1 - p_rec, w.hotkey_failure)])):
+    for a, outcomes in ((k.MENU, [(np.ones(n), w.menu + label)]), (k.LEARN, [(np.ones(n), w.learn + label)]),
+                        (k.HOTKEY, [(p_rec, w.hotkey_success), (1 - p_rec, w.hotkey_failure + label)])):
         for prob, weight in outcomes:
             nxt = aged_strength(world, strength, wts, weight, gaps)
             with np.errstate(divide="ignore"):

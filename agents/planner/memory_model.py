@@ -51,7 +51,8 @@ def weight_grid(world: World, n_weight_bins: int) -> np.ndarray:
     """Total-trace-weight grid: geometric from the smallest trace weight to the largest weight
     times the most frequent command's expected uses; one point for exponential memory (no need)."""
     w = world.memory.weights
-    pos = [x for x in (w.learn, w.hotkey_success, w.hotkey_failure, w.menu) if x > 0]
+    label = float(world.aids.key_labels.trace_weight) if world.aids.key_labels.on else 0.0
+    pos = [x for x in (w.learn, w.hotkey_success, w.hotkey_failure, w.menu, w.menu + label) if x > 0]
     if world.memory.kind == "exponential" or not pos or n_weight_bins == 1:
         return np.ones(1)
     lo = min(pos)
