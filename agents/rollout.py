@@ -49,7 +49,8 @@ def context_of(env: gym.Env) -> AgentContext:
 
 
 def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials: int | None = None) -> pd.DataFrame:
-    """One simulated user: reset env and agent with ``seed``, step until truncation.
+    """One simulated user: reset env and agent with ``seed``, step until the episode ends
+    (terminated at the schedule's end, or truncated by a wrapper such as ``TimeLimit``).
 
     Returns one row per trial: trial, session, onset_s, command, command_name, action (name),
     outcome, duration_s, p_recall and the time breakdown ``t_<operator>`` columns.
@@ -178,11 +179,11 @@ class _AgentStepper:
 
     def observe(self, sim: BatchSimulator, t: int, acts: np.ndarray) -> None:
         next_obs = sim.obs.copy()
-        truncated = t + 1 >= sim.horizon
+        terminated = t + 1 >= sim.horizon  # the schedule's end is a true end, as in the env
         for b, agent in enumerate(self.agents):
             info = simulator_step_info(sim, b, t, int(acts[b]), self.names)
             agent.observe(Transition(self.obs[b], int(acts[b]), float(sim.reward[b]), next_obs[b], info,  # type: ignore[arg-type]
-                                     False, truncated))
+                                     terminated, False))
             self.infos[b] = info
         self.obs = next_obs
 

@@ -14,7 +14,8 @@ The task decomposes by command: an action changes that command's memory (and the
 the next trial pays for), so each update bootstraps from the same command's state at its next
 use, not from the next trial's, which belongs to another command and would swamp the one-second
 differences between actions with the value of unrelated commands. ``discount`` is per use of
-the command. The end of the horizon is a true end (no bootstrap past a command's last use).
+the command. The schedule's end is a true end (``terminated``: no bootstrap past a command's last
+use); an episode a wrapper truncates leaves its open uses unlearned (their next state is unknown).
 ``reset`` starts a new episode and keeps the learned table; :meth:`clear` forgets it; updates
 happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
 """
@@ -110,9 +111,11 @@ class TabularAgent(Agent):
             s0, a0, r0 = previous
             self._td(s0, a0, r0, self._next_value(s, int(transition.action)))
         self._open[c] = (s, int(transition.action), float(transition.reward))
-        if transition.terminated or transition.truncated:  # the horizon is a true end
+        if transition.terminated:  # the schedule's end: a true end, nothing to bootstrap from
             for s0, a0, r0 in self._open.values():
                 self._td(s0, a0, r0, 0.0)
+            self._open.clear()
+        elif transition.truncated:  # cut short by a wrapper: the open uses have no next state to learn from
             self._open.clear()
 
     def _td(self, s: tuple[int, ...], a: int, r: float, next_value: float) -> None:

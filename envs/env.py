@@ -1,8 +1,11 @@
 """``CommandSelection-v0``: one simulated user's history of command selections.
 
 Each step is one trial: the user must issue the target command by menu (0), hotkey (1) or by
-menu while learning the hotkey (2). Reward is minus the trial's time in seconds. The episode is
-truncated at the schedule's horizon.
+menu while learning the hotkey (2). Reward is minus the trial's time in seconds. The episode
+*terminates* at the schedule's end: the horizon is part of the task and observed (the
+``horizon_left_fraction`` feature), so it is a true end in Gymnasium's sense and nothing is bootstrapped past
+it. ``truncated`` is never set by the env; wrappers such as ``TimeLimit`` set it when they cut an
+episode short.
 """
 
 from __future__ import annotations
@@ -110,8 +113,8 @@ class CommandSelectionEnv(gym.Env):
                      sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall, sim.obs)
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
-        truncated = t + 1 >= sim.horizon
-        return sim.obs[0].copy(), float(sim.reward[0]), False, truncated, info  # type: ignore[return-value]
+        terminated = t + 1 >= sim.horizon
+        return sim.obs[0].copy(), float(sim.reward[0]), terminated, False, info  # type: ignore[return-value]
 
     def render(self) -> str | np.ndarray | None:
         """ansi: a one-line summary of the last trial; rgb_array: a picture of it (H x W x 3 uint8)."""

@@ -3,8 +3,9 @@
 Sub-environment ``i`` behaves exactly like ``gymnasium.make("shortcut_gym/CommandSelection-v0")``
 inside a ``gymnasium.vector.SyncVectorEnv``: ``reset(seed=s)`` seeds user ``i`` with ``s + i``
 (or the i-th seed of a list), later episodes continue the same generator, and each autoreset
-draws the next user's schedule from it. All users share one horizon, so they all truncate on the
-same step. Autoreset modes: next-step (Gymnasium's default), same-step (``final_obs`` and
+draws the next user's schedule from it. All users share one horizon, so they all terminate on the
+same step (the schedule's end is a true end, as in the single env; ``truncated`` stays False).
+Autoreset modes: next-step (Gymnasium's default), same-step (``final_obs`` and
 ``final_info`` in the info) and disabled.
 
 :func:`make_sb3_vec_env` wraps the same simulator as a Stable-Baselines3 ``VecEnv`` (SB3 trains
@@ -106,10 +107,10 @@ class CommandSelectionVectorEnv(VectorEnv):
             raise ActionError(f"expected {n} integer actions in 0 (menu), 1 (hotkey), 2 (learn); got {actions!r}")
         t = self.sim.trial
         rewards = self.sim.step(acts).copy()
-        truncated = np.full(n, t + 1 >= self.sim.horizon, dtype=np.bool_)
+        terminated = np.full(n, t + 1 >= self.sim.horizon, dtype=np.bool_)
         info = self._step_info(t, acts)
         obs = self.sim.obs.copy()
-        if truncated[0]:
+        if terminated[0]:
             if self.autoreset_mode == AutoresetMode.SAME_STEP:
                 ones = np.ones(n, dtype=np.bool_)
                 final = {"final_obs": obs, "_final_obs": ones, "final_info": info, "_final_info": ones.copy()}
@@ -117,7 +118,7 @@ class CommandSelectionVectorEnv(VectorEnv):
                 info = {**final, **self._upcoming_info()}
             else:
                 self._autoreset = True
-        return obs, rewards, false, truncated, info
+        return obs, rewards, terminated, false, info
 
     def close_extras(self, **kwargs: Any) -> None:
         """Nothing to release (the simulator holds only arrays)."""
@@ -176,7 +177,8 @@ def _sb3_class() -> type:
 
     class CommandSelectionSB3VecEnv(SB3VecEnv):
         """Stable-Baselines3 ``VecEnv`` of ``num_envs`` simulated users (same numbers as a
-        ``DummyVecEnv`` of ``CommandSelection-v0`` envs given the same seeds)."""
+        ``DummyVecEnv`` of ``CommandSelection-v0`` envs given the same seeds). The schedule's end
+        is a true end: ``TimeLimit.truncated`` is False, so SB3 does not bootstrap past it."""
 
         def __init__(self, num_envs: int, world: World) -> None:
             self.world = world
@@ -207,7 +209,7 @@ def _sb3_class() -> type:
             done = t + 1 >= self.sim.horizon
             obs = self.sim.obs.copy()
             infos: list[dict[str, Any]] = [
-                {"outcome": k.OUTCOME_NAMES[o], "TimeLimit.truncated": done} for o in self.sim.outcome
+                {"outcome": k.OUTCOME_NAMES[o], "TimeLimit.truncated": False} for o in self.sim.outcome
             ]
             if done:
                 for i in range(self.num_envs):

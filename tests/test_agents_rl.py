@@ -87,7 +87,7 @@ def test_tabular_update_bootstraps_from_the_same_commands_next_use():
     agent.learning = True
     steps = [(0, fresh, 2, -5.0, False), (1, fresh, 0, -3.0, False), (0, learned_once, 1, -1.0, True)]
     for c, obs, a, r, last in steps:
-        agent.observe(Transition(obs, a, r, obs, {"command": c}, False, last))
+        agent.observe(Transition(obs, a, r, obs, {"command": c}, last, False))  # the schedule's end terminates
     assert agent.q[s0][2] == pytest.approx(0.5 * (-5.0 + 0.9 * 0.0))  # bootstrapped from s2 (all 0)
     assert agent.q[s2][1] == pytest.approx(0.5 * -1.0)  # its last use: a true end
     assert agent.q[s1][0] == pytest.approx(-100.0 + 0.5 * (-3.0 - -100.0))  # command 1 ends with the horizon
@@ -105,3 +105,24 @@ def test_q_learning_trained_greedy_beats_always_menu():
     menu = np.mean([run_episode(env, make_agent("always_menu"), seed=s)["duration_s"].sum() for s in seeds])
     assert agent.evaluate(env, seeds, greedy=True)["total_time_s"].mean() < menu
     assert agent.params["epsilon"] == 0.1  # greedy only for that evaluation
+
+
+def test_tabular_learns_nothing_from_uses_a_wrapper_cut_short():
+    """A truncated episode (a TimeLimit cut) has no next state for its open uses: they are dropped,
+    while a terminated one (the schedule's end) updates them toward the reward alone."""
+    import gymnasium as gym
+
+    from shortcut_gym import ENV_ID
+
+    ends = {}
+    for how, kwargs in (("terminated", {"schedule": {"sessions": 1, "trials_per_session": 1}}),
+                        ("truncated", {"schedule": {"sessions": 1, "trials_per_session": 5}, "max_episode_steps": 1})):
+        env = gym.make(ENV_ID, **kwargs)
+        agent = make_agent("q_learning", learning_rate=1.0, epsilon=0.0, initial_value=-7.0)
+        agent.train(env, 1, seed=3, progress_bar=False)
+        changed = agent.q != -7.0
+        ends[how] = (int(changed.sum()), agent.q[changed])
+    one = run_episode(gym.make(ENV_ID, schedule={"sessions": 1, "trials_per_session": 1}), make_agent("always_menu"),
+                      seed=3)
+    assert ends["terminated"][0] == 1 and ends["terminated"][1][0] == pytest.approx(-one["duration_s"].iloc[0])
+    assert ends["truncated"][0] == 0

@@ -38,6 +38,8 @@ def test_make_vec_env_with_the_plain_id_renders_pictures() -> None:
         assert not done.any()
     _, _, done, infos = venv.step(np.zeros(3, dtype=np.int64))
     assert done.all() and all(i["episode"]["l"] == SHORT["trials_per_session"] for i in infos)
+    # the schedule's end is a true end: SB3 must not bootstrap past it
+    assert not any(i["TimeLimit.truncated"] for i in infos)
     venv.close()
 
 

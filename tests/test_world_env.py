@@ -90,14 +90,38 @@ def test_commission_share_splits_failures() -> None:
     assert step["outcome"] == "hotkey_forgotten"
 
 
-def test_truncated_at_horizon_and_step_after_end_raises() -> None:
+def test_terminated_at_the_schedules_end_never_truncated_and_step_after_end_raises() -> None:
     env = _env()
     env.reset(seed=0)
     n = env.world.horizon
-    flags = [env.step(0)[3] for _ in range(n)]
-    assert flags == [False] * (n - 1) + [True]
+    steps = [env.step(0) for _ in range(n)]
+    assert [s[2] for s in steps] == [False] * (n - 1) + [True]  # the horizon is observed: a true end
+    assert not any(s[3] for s in steps)  # truncation is left to wrappers
+    assert steps[-1][0][env.world.observation_names().index("horizon_left_fraction")] == 0.0
     with pytest.raises(RuntimeError, match="horizon of 30 trials"):
         env.step(0)
+
+
+@pytest.mark.parametrize("limit", [1, 7, 29, 30, 31, 100])
+def test_only_a_time_limit_wrapper_truncates(limit: int) -> None:
+    import gymnasium as gym
+
+    from shortcut_gym import ENV_ID
+
+    env = gym.make(ENV_ID, max_episode_steps=limit)
+    env.reset(seed=3)
+    horizon = env.unwrapped.world.horizon
+    flags = []
+    done = False
+    while not done:
+        _, _, terminated, truncated, _ = env.step(0)
+        flags.append((terminated, truncated))
+        done = terminated or truncated
+    steps = min(limit, horizon)
+    assert len(flags) == steps
+    assert all(f == (False, False) for f in flags[:-1])
+    # at the schedule's end the episode terminates (TimeLimit also flags a limit reached on that step)
+    assert flags[-1] == (steps == horizon, limit <= horizon)
 
 
 @settings(max_examples=25, deadline=None)

@@ -42,7 +42,8 @@ def test_recorder_numbers_episodes_and_caps_rows_with_a_count() -> None:
         env.reset(seed=ep)
         done = False
         while not done:
-            done = env.step(0)[3]
+            _, _, terminated, truncated, _ = env.step(0)
+            done = terminated or truncated
     table = env.trials()
     assert len(table) == 15 and env.dropped == 60 - 15
     assert table["episode"].tolist() == [2] * 15  # the newest rows are the ones kept

@@ -99,7 +99,7 @@ def replay_probabilities(agent: Agent, trials: pd.DataFrame, context: AgentConte
         after = step_info(upcoming(t + 1), int(r["trial"]), int(r["session"]), float(r["onset_s"]), int(cmd[t]),
                           names[cmd[t]], a, r["outcome"], float(r["duration_s"]))
         next_obs = obs[min(t + 1, n - 1)]
-        agent.observe(Transition(obs[t], a, -float(r["duration_s"]), next_obs, after, False, t + 1 == n))  # type: ignore[arg-type]
+        agent.observe(Transition(obs[t], a, -float(r["duration_s"]), next_obs, after, t + 1 == n, False))  # type: ignore[arg-type]
         info = after
     return probs
 
