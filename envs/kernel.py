@@ -30,11 +30,12 @@ ACTION_NAMES = ("menu", "hotkey", "learn")
 OUT_MENU, OUT_HOTKEY, OUT_FORGOTTEN, OUT_WRONG, OUT_LEARNED = 0, 1, 2, 3, 4
 OUTCOME_NAMES = ("menu", "hotkey", "hotkey_forgotten", "hotkey_wrong", "learned")
 
-# ---- parameter vector ---------------------------------------------------------------------
+# ---- array layouts: each column is named and documented by a NamedTuple of kernel_layout ---
+# ---- parameter vector (KernelParams) -------------------------------------------------------
 (P_M, P_K, P_P, P_B, P_H, P_ENC, P_COMM, P_UNDOK, P_DECAY, P_TAU, P_S, P_F, P_PA_C, P_PA_A,
  P_EXP_RATE, P_POW_U, W_LEARN, W_HK_OK, W_HK_FAIL, W_MENU) = range(20)
 N_PAR = 20
-# integer parameters
+# integer parameters (KernelIntParams)
 I_KIND, I_RECENT, I_OBS_RECALL, I_ONEHOT, I_AIDS, I_WARMUP = range(6)
 N_IPAR = 6
 # I_AIDS: 1 when any interface aid is on (0 runs exactly the aid-free path); I_WARMUP: 0 off, 1 first
@@ -42,7 +43,7 @@ N_IPAR = 6
 # memory kinds (see memory.MEMORY_CODES)
 K_ACTR, K_ACTR_EXACT, K_PA, K_EXP, K_POW = range(5)
 
-# ---- per-command constants ----------------------------------------------------------------
+# ---- per-command constants (CommandConstants) ---------------------------------------------
 C_SEARCH, C_DECISION, C_POINTING, C_KEYS = range(4)
 # interface aids (0 when off): label search s, label trace, nudge window [from, until) of menu
 # selections, nudge s and trace, menu delay s, uses before lockout (inf: never), warm-up s and trace
@@ -50,12 +51,15 @@ C_SEARCH, C_DECISION, C_POINTING, C_KEYS = range(4)
  C_WARMUP_S, C_WARMUP_W) = range(4, 14)
 N_CMDC = 14
 
-# ---- per-user per-command state -----------------------------------------------------------
+# ---- per-user per-command state (CommandState: floats, then counts) --------------------------
 F_OLD_W, F_OLD_FIRST, F_OLD_LAST, F_EXP_S, F_EXP_T, F_LAST_USE = range(6)
 N_FS = 6
 S_NTR, S_MENU_SEL, S_EXPOSURE, S_HK_OK, S_HK_FAIL, S_LEARN = range(6)
 N_IS = 6
-# per-user state
+# one stored trace, a row of the per-command trace buffer (Trace): memory clock, weight, own decay
+T_CLOCK, T_WEIGHT, T_DECAY = range(3)
+N_TRACE = 3
+# per-user state (UserState)
 U_TRIAL, U_HAND = range(2)
 N_US = 2
 HAND_MOUSE, HAND_KEYBOARD = 0, 1
@@ -79,13 +83,13 @@ def activation(ipar, par, fs, ist, tr, now):
     n = ist[S_NTR]
     total = 0.0
     for j in range(n):
-        age = now - tr[j, 0]
+        age = now - tr[j, T_CLOCK]
         if kind == K_POW:
-            total += tr[j, 1] * (1.0 + age / par[P_POW_U]) ** (-par[P_DECAY])
+            total += tr[j, T_WEIGHT] * (1.0 + age / par[P_POW_U]) ** (-par[P_DECAY])
         elif kind == K_PA:
-            total += tr[j, 1] * age ** (-tr[j, 2])
+            total += tr[j, T_WEIGHT] * age ** (-tr[j, T_DECAY])
         else:
-            total += tr[j, 1] * age ** (-par[P_DECAY])
+            total += tr[j, T_WEIGHT] * age ** (-par[P_DECAY])
     if kind == K_ACTR and fs[F_OLD_W] > 0.0:
         d = par[P_DECAY]
         a_n = now - fs[F_OLD_LAST]
@@ -127,20 +131,20 @@ def add_trace(ipar, par, fs, ist, tr, now, w):
     n = ist[S_NTR]
     if kind == K_ACTR and n == ipar[I_RECENT]:
         if fs[F_OLD_W] == 0.0:
-            fs[F_OLD_FIRST] = tr[0, 0]
-        fs[F_OLD_LAST] = tr[0, 0]
-        fs[F_OLD_W] += tr[0, 1]
+            fs[F_OLD_FIRST] = tr[0, T_CLOCK]
+        fs[F_OLD_LAST] = tr[0, T_CLOCK]
+        fs[F_OLD_W] += tr[0, T_WEIGHT]
         for j in range(n - 1):
-            tr[j, 0] = tr[j + 1, 0]
-            tr[j, 1] = tr[j + 1, 1]
+            tr[j, T_CLOCK] = tr[j + 1, T_CLOCK]
+            tr[j, T_WEIGHT] = tr[j + 1, T_WEIGHT]
         n -= 1
     decay = par[P_DECAY]
     if kind == K_PA:
         m = activation(ipar, par, fs, ist, tr, now)
         decay = par[P_PA_A] if m == -np.inf else par[P_PA_C] * math.exp(m) + par[P_PA_A]
-    tr[n, 0] = now
-    tr[n, 1] = w
-    tr[n, 2] = decay
+    tr[n, T_CLOCK] = now
+    tr[n, T_WEIGHT] = w
+    tr[n, T_DECAY] = decay
     ist[S_NTR] = n + 1
 
 

@@ -77,7 +77,7 @@ def recall_probabilities(sim: BatchSimulator, user: int = 0) -> np.ndarray:
     Once the horizon is reached, at the last trial's clock plus the last trial interval (1 s for
     a one-trial schedule), so that the last trial's own trace has a positive age.
     """
-    t, h = int(sim.user_state[user, k.U_TRIAL]), sim.horizon
+    t, h = sim.user_state_of(user).trial, sim.horizon
     clock = sim.sched_clock[user]
     if t < h:
         now = float(clock[t])
@@ -100,7 +100,8 @@ def scene_of(sim: BatchSimulator, last: dict[str, Any] | None, user: int = 0) ->
     before that trial is read back from its time breakdown: a menu or learn trial pays H only from
     the keyboard, a hotkey attempt pays H only from the pointing device.
     """
-    t, h = int(sim.user_state[user, k.U_TRIAL]), sim.horizon
+    state = sim.user_state_of(user)
+    t, h = state.trial, sim.horizon
     tt = min(t, h - 1)
     scene: dict[str, Any] = {
         "trials_done": t,
@@ -109,7 +110,7 @@ def scene_of(sim: BatchSimulator, last: dict[str, Any] | None, user: int = 0) ->
         "n_sessions": int(sim.sched_session[user, h - 1]) + 1,
         "upcoming": int(sim.sched_command[user, t]) if t < h else None,
         "recall": recall_probabilities(sim, user),
-        "hand_on_keyboard": bool(sim.user_state[user, k.U_HAND] == k.HAND_KEYBOARD),
+        "hand_on_keyboard": state.hand == k.HAND_KEYBOARD,
     }
     if last is not None:
         time_s = dict(last["time_s"])

@@ -15,6 +15,7 @@ from numba import njit
 
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.kernel_layout import CommandState, ScheduleArrays, Trace, UserArrays, UserState
 from shortcut_gym.envs.task import Schedule, session_onsets
 from shortcut_gym.envs.world import World
 
@@ -25,7 +26,7 @@ class _LazySchedules(Sequence[Schedule]):
 
     def __init__(self, sim: BatchSimulator, given: list[Schedule | None]) -> None:
         # this reset's arrays (a later reset makes new ones, so these stay this batch's)
-        self._rows = (sim.sched_command, sim.sched_onset, sim.sched_session, sim.sched_gap)
+        self._rows = sim.schedule_arrays
         self._made: list[Schedule | None] = given
 
     def __len__(self) -> int:
@@ -43,9 +44,9 @@ class _LazySchedules(Sequence[Schedule]):
         b = range(len(self))[i]
         made = self._made[b]
         if made is None:
-            cmd, onset, session, gap = self._rows
-            made = Schedule(command=cmd[b].copy(), onset_s=onset[b].copy(), session=session[b].copy(),
-                            gap_total_s=gap[b].copy())
+            rows = self._rows
+            made = Schedule(command=rows.command[b].copy(), onset_s=rows.onset_s[b].copy(),
+                            session=rows.session[b].copy(), gap_total_s=rows.gap_total_s[b].copy())
             self._made[b] = made
         return made
 
@@ -165,7 +166,7 @@ class BatchSimulator:
         self.n_users, self.horizon = n, h
         self.command_float_state = np.zeros((n, c, k.N_FS))
         self.command_counts = np.zeros((n, c, k.N_IS), dtype=np.int64)
-        self.traces = np.zeros((n, c, cap, 3))
+        self.traces = np.zeros((n, c, cap, k.N_TRACE))
         self.user_state = np.zeros((n, k.N_US), dtype=np.int64)
         self.reward = np.zeros(n)
         self.outcome = np.zeros(n, dtype=np.int64)
@@ -184,6 +185,32 @@ class BatchSimulator:
         n = self.sched_command.shape[0]
         flat = (self.sched_command + n_cmd * np.arange(n)[:, None]).ravel()
         return max(int(np.bincount(flat, minlength=n * n_cmd).max()), 1)
+
+    @property
+    def schedule_arrays(self) -> ScheduleArrays:
+        """This batch's ``sched_*`` arrays, named."""
+        return ScheduleArrays(self.sched_command, self.sched_uniform, self.sched_onset, self.sched_clock,
+                              self.sched_session, self.sched_gap)
+
+    @property
+    def user_arrays(self) -> UserArrays:
+        """This batch's kernel state arrays, named."""
+        return UserArrays(self.command_float_state, self.command_counts, self.traces, self.user_state)
+
+    def command_state(self, user: int, command: int) -> CommandState:
+        """User ``user``'s memory and counts for ``command``, by name."""
+        floats = self.command_float_state[user, command].tolist()
+        counts = self.command_counts[user, command].tolist()
+        return CommandState(*floats, *counts)
+
+    def stored_traces(self, user: int, command: int) -> list[Trace]:
+        """The traces user ``user`` holds for ``command``, oldest first."""
+        n = int(self.command_counts[user, command, k.S_NTR])
+        return [Trace(*row) for row in self.traces[user, command, :n].tolist()]
+
+    def user_state_of(self, user: int) -> UserState:
+        """User ``user``'s upcoming trial index and hand, by name."""
+        return UserState(*self.user_state[user].tolist())
 
     @property
     def trial(self) -> int:

@@ -14,6 +14,7 @@ from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.config import load_settings, validate
 from shortcut_gym.envs.costs import CostSettings, fitts_time_s, hick_hyman_time_s
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.kernel_layout import KernelIntParams, KernelParams
 from shortcut_gym.envs.memory import MEMORY_CODES, MemorySettings
 from shortcut_gym.envs.observation import ObservationLayout
 from shortcut_gym.envs.task import (
@@ -61,38 +62,32 @@ class World:
         """Name of each observation entry."""
         return self.observation_layout().names(self.commands.names)
 
-    def parameters(self) -> tuple[np.ndarray, np.ndarray]:
-        """(float parameters, integer parameters) in the kernel's layout."""
-        c, m = self.costs, self.memory
-        par = np.zeros(k.N_PAR)
-        par[k.P_M] = c.klm.mental_s
-        par[k.P_K] = c.klm.k_s
-        par[k.P_P] = c.klm.point_s
-        par[k.P_B] = c.klm.button_s
-        par[k.P_H] = c.klm.home_s
-        par[k.P_ENC] = c.learn.encoding_s
-        par[k.P_COMM] = c.errors.commission_share
-        par[k.P_UNDOK] = c.errors.undo_keystrokes
-        par[k.P_DECAY] = m.decay
-        par[k.P_TAU] = m.threshold
-        par[k.P_S] = m.noise_s
-        par[k.P_F] = m.latency_factor_s
-        par[k.P_PA_C] = m.spacing_scale
-        par[k.P_PA_A] = m.spacing_intercept
-        par[k.P_EXP_RATE] = m.exponential_rate_per_s
-        par[k.P_POW_U] = m.power_time_unit_s
-        par[k.W_LEARN] = m.weights.learn
-        par[k.W_HK_OK] = m.weights.hotkey_success
-        par[k.W_HK_FAIL] = m.weights.hotkey_failure
-        par[k.W_MENU] = m.weights.menu
-        ipar = np.zeros(k.N_IPAR, dtype=np.int64)
-        ipar[k.I_KIND] = MEMORY_CODES[m.kind]
-        ipar[k.I_RECENT] = m.recent_traces
-        ipar[k.I_OBS_RECALL] = int(self.observe_recall)
-        ipar[k.I_ONEHOT] = int(self.target_encoding == "onehot")
-        ipar[k.I_AIDS] = int(self.aids.any_on)
-        ipar[k.I_WARMUP] = 0 if not self.aids.warmup.on else (1 if self.aids.warmup.sessions == "first" else 2)
+    def kernel_parameters(self) -> tuple[KernelParams, KernelIntParams]:
+        """The kernel's float and integer parameters, named (:mod:`shortcut_gym.envs.kernel_layout`)."""
+        c, m, aids = self.costs, self.memory, self.aids
+        par = KernelParams(
+            mental_s=c.klm.mental_s, keystroke_s=c.klm.k_s, point_s=c.klm.point_s, button_s=c.klm.button_s,
+            home_s=c.klm.home_s, encoding_s=c.learn.encoding_s, commission_share=c.errors.commission_share,
+            undo_keystrokes=c.errors.undo_keystrokes, decay=m.decay, threshold=m.threshold, noise_s=m.noise_s,
+            latency_factor_s=m.latency_factor_s, spacing_scale=m.spacing_scale,
+            spacing_intercept=m.spacing_intercept, exponential_rate_per_s=m.exponential_rate_per_s,
+            power_time_unit_s=m.power_time_unit_s, learn_weight=m.weights.learn,
+            hotkey_success_weight=m.weights.hotkey_success, hotkey_failure_weight=m.weights.hotkey_failure,
+            menu_weight=m.weights.menu,
+        )
+        ipar = KernelIntParams(
+            memory_kind=MEMORY_CODES[m.kind], recent_traces=m.recent_traces,
+            observe_recall=int(self.observe_recall), onehot_target=int(self.target_encoding == "onehot"),
+            aids_on=int(aids.any_on),
+            warmup_sessions=0 if not aids.warmup.on else (1 if aids.warmup.sessions == "first" else 2),
+        )
         return par, ipar
+
+    def parameters(self) -> tuple[np.ndarray, np.ndarray]:
+        """(float parameters, integer parameters) as the kernel's flat vectors (``kernel.P_*``,
+        ``kernel.I_*``): :meth:`kernel_parameters` as arrays."""
+        par, ipar = self.kernel_parameters()
+        return par.array(), ipar.array()
 
     def command_constants(self) -> np.ndarray:
         """Per command: visual search time, Hick-Hyman decision time, pointing time, key count, and

@@ -102,7 +102,7 @@ def operator_design(trials: pd.DataFrame, world: World) -> OperatorDesign:
     cap = world.trace_capacity([schedule])
     fs = np.zeros((n_cmd, k.N_FS))
     ist = np.zeros((n_cmd, k.N_IS), dtype=np.int64)
-    tr = np.zeros((n_cmd, cap, 3))
+    tr = np.zeros((n_cmd, cap, k.N_TRACE))
     weight = {"menu": par[k.W_MENU], "learned": par[k.W_LEARN], "hotkey": par[k.W_HK_OK]}
     fail_x = math.exp(-par[k.P_TAU])
     b4 = 4.0 * par[k.P_B]

@@ -1,0 +1,120 @@
+"""The named layouts of kernel_layout match the kernel's index constants, and the simulator's named
+views report what happened in the trials (counted from the trial history, not from the arrays)."""
+
+from __future__ import annotations
+
+import inspect
+
+import numpy as np
+import pytest
+
+from shortcut_gym.envs import BatchSimulator, make_world
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.kernel_layout import (
+    CommandConstants,
+    CommandState,
+    KernelIntParams,
+    KernelParams,
+    ScheduleArrays,
+    Trace,
+    UserArrays,
+    UserState,
+)
+
+# every layout: (NamedTuple, the kernel constant of each field in field order, the kernel's width)
+LAYOUTS = [
+    (KernelParams, ["P_M", "P_K", "P_P", "P_B", "P_H", "P_ENC", "P_COMM", "P_UNDOK", "P_DECAY", "P_TAU", "P_S",
+                    "P_F", "P_PA_C", "P_PA_A", "P_EXP_RATE", "P_POW_U", "W_LEARN", "W_HK_OK", "W_HK_FAIL",
+                    "W_MENU"], "N_PAR"),
+    (KernelIntParams, ["I_KIND", "I_RECENT", "I_OBS_RECALL", "I_ONEHOT", "I_AIDS", "I_WARMUP"], "N_IPAR"),
+    (CommandConstants, ["C_SEARCH", "C_DECISION", "C_POINTING", "C_KEYS", "C_LABEL_SEARCH", "C_LABEL_W",
+                        "C_NUDGE_FROM", "C_NUDGE_UNTIL", "C_NUDGE_S", "C_NUDGE_W", "C_DELAY_S", "C_LOCK_AFTER",
+                        "C_WARMUP_S", "C_WARMUP_W"], "N_CMDC"),
+    (Trace, ["T_CLOCK", "T_WEIGHT", "T_DECAY"], "N_TRACE"),
+    (UserState, ["U_TRIAL", "U_HAND"], "N_US"),
+]
+
+
+@pytest.mark.parametrize(("layout", "constants", "width"), LAYOUTS, ids=lambda v: getattr(v, "__name__", None))
+def test_each_field_sits_at_its_kernel_constant(layout, constants, width) -> None:
+    assert len(layout._fields) == len(constants) == getattr(k, width)
+    assert [getattr(k, c) for c in constants] == list(range(len(constants)))
+    assert_comments_name(layout, constants)
+
+
+def assert_comments_name(layout, constants: list[str]) -> None:
+    """Each field's comment starts with its kernel constant (the documentation cannot drift)."""
+    lines = {ln.split(":")[0].strip(): ln for ln in inspect.getsource(layout).splitlines() if "  # " in ln}
+    for field, const in zip(layout._fields, constants, strict=True):
+        assert lines[field].split("  # ", 1)[1].startswith(f"{const}:") or lines[field].endswith(f"# {const}")
+
+
+def test_command_state_fields_cover_both_state_arrays_in_order() -> None:
+    floats = ["F_OLD_W", "F_OLD_FIRST", "F_OLD_LAST", "F_EXP_S", "F_EXP_T", "F_LAST_USE"]
+    counts = ["S_NTR", "S_MENU_SEL", "S_EXPOSURE", "S_HK_OK", "S_HK_FAIL", "S_LEARN"]
+    assert len(CommandState._fields) == k.N_FS + k.N_IS == len(floats) + len(counts)
+    assert [getattr(k, c) for c in floats] == list(range(k.N_FS))
+    assert [getattr(k, c) for c in counts] == list(range(k.N_IS))
+    assert_comments_name(CommandState, floats + counts)
+
+
+def test_named_parameters_are_the_world_settings_and_the_flat_vectors() -> None:
+    world = make_world(costs={"klm": {"mental_s": 1.11}, "learn": {"encoding_s": 7.5}},
+                       memory={"threshold": -2.25, "weights": {"menu": 0.125}}, observe_recall=True,
+                       target_encoding="index")
+    par, ipar = world.kernel_parameters()
+    flat, iflat = world.parameters()
+    np.testing.assert_array_equal(flat, np.asarray(par))
+    np.testing.assert_array_equal(iflat, np.asarray(ipar))
+    assert flat[k.P_M] == par.mental_s == 1.11
+    assert flat[k.P_ENC] == par.encoding_s == 7.5
+    assert flat[k.P_TAU] == par.threshold == -2.25
+    assert flat[k.W_MENU] == par.menu_weight == 0.125
+    assert iflat[k.I_OBS_RECALL] == ipar.observe_recall == 1
+    assert iflat[k.I_ONEHOT] == ipar.onehot_target == 0
+    named = CommandConstants.of(world.command_constants())
+    np.testing.assert_array_equal(named.hotkey_keys, world.commands.keystrokes)
+
+
+@pytest.mark.parametrize("memory", ["actr", "actr_exact", "exponential"])
+def test_named_views_report_the_trial_history(memory: str) -> None:
+    world = make_world(schedule={"sessions": 2, "trials_per_session": 30}, memory={"kind": memory})
+    w = world.memory.weights
+    weight = {k.OUT_MENU: w.menu, k.OUT_LEARNED: w.learn, k.OUT_HOTKEY: w.hotkey_success,
+              k.OUT_FORGOTTEN: w.hotkey_failure, k.OUT_WRONG: w.hotkey_failure}
+    sim = BatchSimulator(world)
+    sim.reset(seeds=[3, 4])
+    rng = np.random.default_rng(0)
+    history = []  # (user, trial, command, action, outcome)
+    for t in range(sim.horizon):
+        acts = rng.integers(0, 3, size=2)
+        cmds = sim.targets().copy()
+        sim.step(acts)
+        history += [(b, t, int(cmds[b]), int(acts[b]), int(sim.outcome[b])) for b in range(2)]
+    sched = sim.schedule_arrays
+    assert isinstance(sched, ScheduleArrays) and sched.command is sim.sched_command
+    assert isinstance(sim.user_arrays, UserArrays) and sim.user_arrays.traces is sim.traces
+    for b in range(2):
+        assert sim.user_state_of(b).trial == sim.horizon
+        for c in range(world.commands.n_commands):
+            mine = [h for h in history if h[0] == b and h[2] == c]
+            st = sim.command_state(b, c)
+            assert st.exposures == len(mine)
+            assert st.learn_actions == sum(h[3] == k.LEARN for h in mine)
+            assert st.hotkey_successes == sum(h[4] == k.OUT_HOTKEY for h in mine)
+            assert st.hotkey_failures == sum(h[4] in (k.OUT_FORGOTTEN, k.OUT_WRONG) for h in mine)
+            assert st.menu_selections == sum(h[3] != k.HOTKEY or h[4] != k.OUT_HOTKEY for h in mine)
+            if mine:
+                assert st.last_use_onset_s == sched.onset_s[b, mine[-1][1]]
+            laid = [(float(sched.clock_s[b, h[1]]), weight[h[4]]) for h in mine if weight[h[4]] > 0]
+            held = sim.stored_traces(b, c)
+            if memory == "exponential":
+                assert held == [] and (st.exp_strength > 0) == bool(laid)
+                continue
+            kept = laid if memory == "actr_exact" else laid[-world.memory.recent_traces:]
+            assert [(tr.clock_s, tr.weight) for tr in held] == kept
+            assert all(tr.decay == world.memory.decay for tr in held)
+            folded = laid[:len(laid) - len(kept)]
+            assert st.old_weight == pytest.approx(sum(wt for _, wt in folded))
+            if folded:
+                assert (st.old_first_clock_s, st.old_last_clock_s) == (folded[0][0], folded[-1][0])
