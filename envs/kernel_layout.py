@@ -1,11 +1,12 @@
 """Named views of the compiled kernel's flat arrays, one field per column, for Python-side code.
 
 The kernel's entry points (:func:`~shortcut_gym.envs.kernel.step_users` and friends) take flat
-arrays whose columns are the index constants of :mod:`shortcut_gym.envs.kernel`: handing numba a
-NamedTuple from Python costs about three times as much per call as flat arrays, which the single
-env's step would feel. These NamedTuples name and document every column in the same order (a test
-pairs each field with its constant), so Python code builds and reads the arrays by name. Times are
-in seconds; "clock" times are memory-clock times (onsets with between-session gaps scaled).
+arrays whose columns are the index constants of :mod:`shortcut_gym.envs.kernel`, because numba
+unboxes a NamedTuple argument on every call from Python, which the single env's step would feel
+(``scripts/bench_env.py`` measures that step). These NamedTuples name and document every column
+in the same order (a test pairs each field with its constant), so Python code builds and reads the
+arrays by name. Times are in seconds; "clock" times are memory-clock times (onsets with
+between-session gaps scaled).
 """
 
 from __future__ import annotations

@@ -10,7 +10,7 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
 LAYERS = {"envs": 0, "agents": 1, "lab": 2}
-#: DESIGN.md asks for modules under about 500 lines; this ceiling leaves a little slack.
+#: DEVELOPERS.md asks for small modules (under about 500 lines); this ceiling leaves a little slack.
 MAX_LINES = 560
 
 

@@ -63,9 +63,7 @@ def test_subproc_vec_env_matches_dummy_vec_env(env_id, start_method) -> None:
 
 
 def test_ppo_trained_through_make_vec_env_beats_always_menu() -> None:
-    """Plain SB3 usage: make_vec_env + VecNormalize + PPO on 2 sessions x 40 trials, 20,000 steps.
-    Measured when written: PPO 253.5 s per user against always-menu's 270.2 s on seeds 100-115
-    (10,000 steps gave 263.7 s)."""
+    """Plain SB3 usage: make_vec_env + VecNormalize + PPO on 2 sessions x 40 trials, 20,000 steps."""
     import torch
     from stable_baselines3 import PPO
     from stable_baselines3.common.env_util import make_vec_env

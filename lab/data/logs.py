@@ -1,6 +1,6 @@
 """Trial logs: read, write and validate the lab's CSV/Parquet trial tables.
 
-Schema (one row per trial; DESIGN.md "The lab"):
+Schema (one row per trial, columns in the order of :data:`LOG_COLUMNS`; the project's own format):
 
 =============  ======================================================================
 participant    identifier of the person (any string or integer)

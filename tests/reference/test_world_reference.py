@@ -56,7 +56,8 @@ def test_klm_operator_constants_match_card_moran_newell_1980() -> None:
 
 
 def test_kieras_mental_operator_is_marked_from_memory() -> None:
-    # Kieras' KLM guide uses M = 1.2 s (from memory, as DESIGN.md records).
+    # Kieras, "Using the keystroke-level model to estimate execution times" (KLM guide, 1993/2001)
+    # uses M = 1.2 s: from memory, as envs/costs.py marks it; check the guide before relying on it.
     assert C.KIERAS_MENTAL_S == 1.2
 
 
