@@ -11,7 +11,15 @@ from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli.options import add_common, add_skip_bad, models_of, priors_of, report_skipped
 from shortcut_gym.lab.cli.ranges import input_file
 from shortcut_gym.lab.data.logs import read_log
-from shortcut_gym.lab.fitting import HierarchicalFit, context_for, fit_hierarchical_models, fit_log
+from shortcut_gym.lab.fitting import (
+    HierarchicalFit,
+    context_for,
+    cross_validate,
+    cv_summary,
+    cv_table,
+    fit_hierarchical_models,
+    fit_log,
+)
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -27,6 +35,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                         "and write its group parameters, MAPs with posterior SDs and integrated BIC")
     p.add_argument("--covariance", choices=("diagonal", "full"), default="diagonal",
                    help="group prior covariance of --hierarchical (default diagonal)")
+    p.add_argument("--cross-validate", action="store_true",
+                   help="also score each model on held-out sessions (leave one session out): cv_folds.csv, cv.csv")
     p.set_defaults(func=run)
 
 
@@ -51,6 +61,12 @@ def run(args: argparse.Namespace) -> int:
         written = write_hierarchical(summary, by_model, args.out)
         print(summary.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
         print("wrote " + ", ".join(str(p) for p in written))
+    if args.cross_validate:
+        folds = cross_validate(log, specs, context_for(log, world.commands.names), args.starts, args.seed)
+        folds.to_csv(args.out / "cv_folds.csv", index=False)
+        cv_table(folds).to_csv(args.out / "cv.csv", index=False)
+        print(cv_summary(folds).to_string(index=False, float_format=lambda v: f"{v:.2f}"))
+        print(f"wrote {args.out / 'cv_folds.csv'}, {args.out / 'cv.csv'}")
     return 0
 
 

@@ -4,10 +4,12 @@ Modules: :mod:`.criteria` (AIC, BIC), :mod:`.specs` (what to fit), :mod:`.replay
 log-likelihood of a model on a log), :mod:`.priors` (MAP priors), :mod:`.optimise` (one
 participant), :mod:`.runner` (many participants x models), :mod:`.durations` (operator times from
 trial durations), :mod:`.laplace_em` and :mod:`.hierarchical` (hierarchical fits by EM with Gaussian
-group priors). The public names are re-exported here.
+group priors), :mod:`.crossval` (leave-one-session-out predictive log-likelihood). The public names
+are re-exported here.
 """
 
 from shortcut_gym.lab.fitting.criteria import aic, bic
+from shortcut_gym.lab.fitting.crossval import cross_validate, cv_summary, cv_table
 from shortcut_gym.lab.fitting.durations import (
     DURATION_PARAMETERS,
     DurationFit,
@@ -27,7 +29,8 @@ from shortcut_gym.lab.fitting.specs import ModelSpec
 __all__ = [
     "DURATION_PARAMETERS", "DurationFit", "DurationFitError", "fit_durations", "fit_log_durations", "implied_world",
     "FREE_LIMIT", "PRIOR_FAMILIES", "UNBOUNDED_LIMIT", "EMResult", "FitResult", "HierarchicalFit", "LogLik",
-    "ModelSpec", "aic", "bic", "context_for", "draw_start", "em_laplace", "fit_hierarchical",
+    "ModelSpec", "aic", "bic", "context_for", "cross_validate", "cv_summary", "cv_table", "draw_start",
+    "em_laplace", "fit_hierarchical",
     "fit_hierarchical_models", "fit_log", "fit_participant", "fitted_agent", "loglik_function", "make_prior",
     "replay_probabilities",
 ]

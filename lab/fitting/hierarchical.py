@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import AgentContext, ParamSpec
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.data.logs import participant_trials, participants
 from shortcut_gym.lab.fitting.laplace_em import EMResult, FreeLogLik, em_laplace
 from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT
@@ -126,7 +127,7 @@ def fit_hierarchical(log: pd.DataFrame, spec: ModelSpec, context: AgentContext, 
     """
     ids = participants(log)
     if len(ids) < 2:
-        raise ValueError(f"a hierarchical fit needs at least 2 participants, the log has {len(ids)}")
+        raise ConfigError(f"a hierarchical fit needs at least 2 participants, the log has {len(ids)}")
     functions, counts = [], []
     specs: dict[str, ParamSpec] = {}
     for pid in ids:
@@ -136,7 +137,7 @@ def fit_hierarchical(log: pd.DataFrame, spec: ModelSpec, context: AgentContext, 
         functions.append(f)
         counts.append(len(trials))
     if not specs:
-        raise ValueError(f"model {spec.label!r} has no free parameters to fit hierarchically")
+        raise ConfigError(f"model {spec.label!r} has no free parameters to fit hierarchically")
     start = np.array([s.to_free(s.default) for s in specs.values()])
     bounds = [free_box(s) for s in specs.values()]
     em = em_laplace(functions, counts, start, 10.0, bounds, covariance, tolerance, max_iterations, n_starts,
@@ -154,7 +155,7 @@ def fit_hierarchical_models(log: pd.DataFrame, specs: Sequence[ModelSpec], conte
     fits = {s.label: fit_hierarchical(log, s, context, n_starts, seed, covariance, tolerance)
             for s in specs if s.free_parameters()}
     if not fits:
-        raise ValueError("no model with free parameters to fit hierarchically")
+        raise ConfigError(f"no model with free parameters to fit hierarchically among {[s.label for s in specs]}")
     table = pd.DataFrame([f.summary() for f in fits.values()]).sort_values("ibic").reset_index(drop=True)
     table["delta_ibic"] = table["ibic"] - table["ibic"].min()
     return table, fits
