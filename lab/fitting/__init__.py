@@ -3,9 +3,9 @@
 Modules: :mod:`.criteria` (AIC, BIC), :mod:`.specs` (what to fit), :mod:`.replay` (the
 log-likelihood of a model on a log), :mod:`.priors` (MAP priors), :mod:`.optimise` (one
 participant), :mod:`.runner` (many participants x models), :mod:`.durations` (operator times from
-trial durations), :mod:`.laplace_em` and :mod:`.hierarchical` (hierarchical fits by EM with Gaussian
-group priors), :mod:`.crossval` (leave-one-session-out predictive log-likelihood). The public names
-are re-exported here.
+trial durations), :mod:`.joint` (choices and durations together), :mod:`.laplace_em` and
+:mod:`.hierarchical` (hierarchical fits by EM with Gaussian group priors), :mod:`.crossval`
+(leave-one-session-out predictive log-likelihood). The public names are re-exported here.
 """
 
 from shortcut_gym.lab.fitting.criteria import aic, bic
@@ -20,6 +20,7 @@ from shortcut_gym.lab.fitting.durations import (
 )
 from shortcut_gym.lab.fitting.hierarchical import HierarchicalFit, fit_hierarchical, fit_hierarchical_models
 from shortcut_gym.lab.fitting.laplace_em import EMResult, em_laplace
+from shortcut_gym.lab.fitting.joint import joint_table
 from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT, FitResult, draw_start, fit_participant
 from shortcut_gym.lab.fitting.priors import PRIOR_FAMILIES, make_prior
 from shortcut_gym.lab.fitting.replay import LogLik, loglik_function, replay_probabilities
@@ -28,6 +29,7 @@ from shortcut_gym.lab.fitting.specs import ModelSpec
 
 __all__ = [
     "DURATION_PARAMETERS", "DurationFit", "DurationFitError", "fit_durations", "fit_log_durations", "implied_world",
+    "joint_table",
     "FREE_LIMIT", "PRIOR_FAMILIES", "UNBOUNDED_LIMIT", "EMResult", "FitResult", "HierarchicalFit", "LogLik",
     "ModelSpec", "aic", "bic", "context_for", "cross_validate", "cv_summary", "cv_table", "draw_start",
     "em_laplace", "fit_hierarchical",

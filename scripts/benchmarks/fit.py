@@ -3,7 +3,9 @@
 1. One log-likelihood evaluation of a learning model (rescorla_wagner, every default mechanism)
    over 1,000 trials: the compiled likelihood versus (a) the same kernel code run as plain Python
    (numba's ``py_func`` of every rule) and (b) the lab's generic replay loop through
-   ``action_probabilities`` + ``observe``. Medians of repeated timings.
+   ``action_probabilities`` + ``observe``. Medians of repeated timings. Also the planned-choice
+   model's likelihood per call against the compiled delta rule (target within 5x), and its one-off
+   set-up (the plan and the log's action values).
 2. Fitting 3 models (static_softmax, choice_kernel, rescorla_wagner) x 50 participants x 1,000
    trials x 10 starts with 2 worker processes: wall time (target < 120 s).
 
@@ -61,10 +63,10 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     try:
         for r in names[:-1]:
             setattr(rules, r, saved[r].py_func)
-        log = TrialArrays.from_frame(trials, ctx.n_commands).logged()
+        logged = TrialArrays.from_frame(trials, ctx.n_commands).logged()
         rule_set = agent.rule_set(theta)
         py = saved["log_likelihood_kernel"].py_func
-        call = (log, len(trials), ctx.n_commands, rule_set)
+        call = (logged, len(trials), ctx.n_commands, rule_set)
         plain_value = py(*call)
         plain = median_seconds(lambda: py(*call), slow_repeats)
     finally:
@@ -85,6 +87,19 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     out(f"replay loop (protocol)     {replay_t * 1e6:10.1f} us   ln L = {replay_value:.6f}   "
         f"ratio {replay_t / compiled:8.1f}x")
     out("target: compiled at least 50x the plain loop")
+
+    # 1b. the planned-choice likelihood (plan and logged action values once, then a compiled loop)
+    planned = ModelSpec("planned_choice", options={"world": world})
+    t = time.perf_counter()
+    g, _ = loglik_function(planned, trials, ctx)
+    setup = time.perf_counter() - t
+    beta = np.array([2.0])
+    g(beta)
+    per_call = median_seconds(lambda: g(beta), 50 if quick else 200)
+    out(f"planned_choice per call    {per_call * 1e6:10.1f} us   ln L = {g(beta):.6f}   "
+        f"ratio to compiled delta rule {per_call / compiled:6.2f}x (target within 5x)")
+    out(f"planned_choice set-up      {setup:10.2f} s    (the plan and the log's action values, once per world "
+        f"and log)")
 
     # 2. the 3-model fit on worker processes
     specs = [ModelSpec("static_softmax"), ModelSpec("choice_kernel"), rw]

@@ -1,0 +1,214 @@
+"""Planned choice: a softmax over the yardstick planner's action values in the chooser's own world.
+
+P(a) = (1 - lapse) softmax(beta Q(a)) + lapse / 3, with Q(a) the planner's action value of menu,
+hotkey and learn for this trial (minus expected seconds, this use and the later ones; see
+:meth:`shortcut_gym.agents.planner.BoundedOptimalPlanner.action_values`) and ``beta`` the inverse
+temperature in 1/s: beta -> infinity is the planner itself, beta = 0 is uniform choice. The lapse
+is an optional mechanism (``with_lapse=True``; mixing with uniform choice, common practice, no source).
+Softmax choice over values: Luce (1959), *Individual Choice Behavior*; the same rule as
+Wilson & Collins (2019), eLife 8, model 3's choice stage, here over planned rather than learned values.
+
+The planner's state follows the logged outcomes only, so a log's Q values do not depend on beta
+or the lapse: they are computed once per (world, log) and the likelihood is a compiled loop over
+them. The plan itself is made once per world and planner options and cached (:func:`cached_plan`).
+The world is ``world=`` or the bound context's; its schedule must have at least as many trials as
+the log (the planner reads the schedule's clock at the trial index).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections import OrderedDict
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from numba import njit
+
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.planner import BoundedOptimalPlanner, Plan
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.kernel import ACTION_NAMES
+from shortcut_gym.envs.world import World, make_world
+
+_PLANS: OrderedDict[tuple, Plan] = OrderedDict()
+_VALUES: OrderedDict[tuple, np.ndarray] = OrderedDict()
+#: Largest inverse temperature fitted (1/s); choices are then deterministic for any gap of 0.1 s.
+BETA_MAX = 200.0
+#: Plans and logged action values kept (least recently used dropped first).
+CACHE_SIZE = 128
+
+
+def world_key(world: World) -> str:
+    """A string identifying a world's settings (equal settings, equal key)."""
+    parts = [world.scenario.model_dump_json(), world.costs.model_dump_json(), world.memory.model_dump_json(),
+             world.schedule.model_dump_json(), str(world.observe_recall), world.target_encoding]
+    return json.dumps(parts)
+
+
+def _remember(cache: OrderedDict, key: tuple, value: Any) -> Any:
+    cache[key] = value
+    cache.move_to_end(key)
+    while len(cache) > CACHE_SIZE:
+        cache.popitem(last=False)
+    return value
+
+
+def cached_plan(world: World, keyboard_share: float | None, n_bins: int, n_weight_bins: int) -> BoundedOptimalPlanner:
+    """A reset planner for ``world`` whose plan is made once per world and options."""
+    key = (world_key(world), keyboard_share, n_bins, n_weight_bins)
+    planner = BoundedOptimalPlanner(world=world, keyboard_share=keyboard_share, n_bins=n_bins,
+                                    n_weight_bins=n_weight_bins)
+    if key in _PLANS:
+        _PLANS.move_to_end(key)
+        planner.plan = _PLANS[key]
+    planner.reset(0)
+    if key not in _PLANS:
+        _remember(_PLANS, key, planner.plan)
+    return planner
+
+
+def logged_action_values(planner_of: Callable[[], BoundedOptimalPlanner], key: tuple, command: np.ndarray,
+                         outcome: np.ndarray) -> np.ndarray:
+    """(n, 3) planner action values before each logged trial (cached per plan key and log)."""
+    full = (*key, command.tobytes(), "|".join(map(str, outcome)))
+    if full in _VALUES:
+        _VALUES.move_to_end(full)
+        return _VALUES[full]
+    planner = planner_of()
+    n = len(command)
+    q = np.empty((n, 3))
+    empty = np.zeros(0, dtype=np.float32)
+    for t in range(n):
+        c = int(command[t])
+        q[t] = planner.action_values(c, t)
+        planner.observe(Transition(empty, 0, 0.0, empty, {"command": c, "trial": t, "outcome": str(outcome[t])}))
+    q.setflags(write=False)
+    return _remember(_VALUES, full, q)
+
+
+@njit(cache=True)
+def softmax_log_likelihood(q, actions, beta, lapse):
+    """Sum over trials of ln((1 - lapse) softmax(beta q_t)[a_t] + lapse / 3)."""
+    total = 0.0
+    for t in range(q.shape[0]):
+        z0, z1, z2 = beta * q[t, 0], beta * q[t, 1], beta * q[t, 2]
+        m = max(z0, max(z1, z2))
+        lse = m + math.log(math.exp(z0 - m) + math.exp(z1 - m) + math.exp(z2 - m))
+        a = actions[t]
+        za = z0 if a == 0 else (z1 if a == 1 else z2)
+        lp = za - lse
+        if lapse > 0.0:
+            lp = math.log((1.0 - lapse) * math.exp(lp) + lapse / 3.0)
+        total += lp
+    return total
+
+
+def softmax_probabilities(q: np.ndarray, beta: float, lapse: float = 0.0) -> np.ndarray:
+    """(1 - lapse) softmax(beta q) + lapse / 3 over the last axis."""
+    z = beta * np.asarray(q, dtype=float)
+    z = z - z.max(axis=-1, keepdims=True)
+    p = np.exp(z)
+    p /= p.sum(axis=-1, keepdims=True)
+    return (1.0 - lapse) * p + lapse / 3.0
+
+
+class PlannedChoice(Agent):
+    """Softmax (inverse temperature ``beta``, optional ``lapse``) over the planner's action values."""
+
+    name = "planned_choice"
+    likelihood_input = "frame"
+
+    def __init__(self, context: AgentContext | None = None, world: World | dict | str | None = None,
+                 with_lapse: bool = False, keyboard_share: float | None = None, n_bins: int = 20,
+                 n_weight_bins: int = 5, **params: float) -> None:
+        if not isinstance(with_lapse, bool):
+            raise ValueError(f"{self.name}: with_lapse must be true or false, got {with_lapse!r}")
+        self.with_lapse = with_lapse
+        super().__init__(context, **params)
+        if isinstance(world, (dict, str)):
+            world = make_world(**world) if isinstance(world, dict) else make_world(world)
+        if world is not None and not isinstance(world, World):
+            raise ValueError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
+                             f"{type(world).__name__}")
+        # checks the planner options now, with the planner's own messages
+        BoundedOptimalPlanner(keyboard_share=keyboard_share, n_bins=n_bins, n_weight_bins=n_weight_bins)
+        self.world = world
+        self.keyboard_share = keyboard_share
+        self.n_bins, self.n_weight_bins = int(n_bins), int(n_weight_bins)
+        self._planner: BoundedOptimalPlanner | None = None
+
+    def param_specs(self) -> dict[str, ParamSpec]:
+        # natural scale on [0, BETA_MAX]: a log transform leaves the optimiser stranded on the flat
+        # likelihood near beta = 0 (the gradient in log beta vanishes there)
+        specs = {"beta": ParamSpec("beta", 2.0, 0.0, BETA_MAX, "none", "inverse temperature (1/s of action value)")}
+        if self.with_lapse:
+            specs["lapse"] = ParamSpec("lapse", 0.05, 0.0, 1.0, "logit", "share of uniformly random choices")
+        return specs
+
+    def spec(self) -> dict[str, Any]:
+        return {"name": self.name, "with_lapse": self.with_lapse, "keyboard_share": self.keyboard_share,
+                "n_bins": self.n_bins, "n_weight_bins": self.n_weight_bins, "params": dict(self.params)}
+
+    def planner_world(self) -> World:
+        """The world the planner plans for (``world=`` or the bound context's)."""
+        w = self.world or getattr(self.context, "world", None)
+        if w is None:
+            raise ConfigError(f"{self.name}: needs the chooser's world: make_agent('{self.name}', world=...) or a "
+                              "context with .world")
+        return w
+
+    def plan_key(self) -> tuple:
+        """Cache key of this agent's plan."""
+        return (world_key(self.planner_world()), self.keyboard_share, self.n_bins, self.n_weight_bins)
+
+    def planner(self) -> BoundedOptimalPlanner:
+        """A fresh (reset) planner on the cached plan."""
+        return cached_plan(self.planner_world(), self.keyboard_share, self.n_bins, self.n_weight_bins)
+
+    # ---- protocol -------------------------------------------------------------------------
+    def reset(self, seed: int | None = None) -> None:
+        super().reset(seed)
+        self._planner = self.planner()
+
+    def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
+        if self._planner is None:
+            self.reset()
+        assert self._planner is not None
+        q = self._planner.action_values(int(info["target"]), int(info["next_trial"]))
+        return softmax_probabilities(q, self.params["beta"], self.params.get("lapse", 0.0))
+
+    def observe(self, transition: Transition) -> None:
+        if self._planner is None:
+            self.reset()
+        assert self._planner is not None
+        self._planner.observe(transition)
+
+    # ---- fast likelihood ------------------------------------------------------------------
+    def action_values_of(self, trials: pd.DataFrame) -> np.ndarray:
+        """(n, 3) planner action values before each trial of a one-participant frame (trial order)."""
+        horizon = self.planner_world().horizon
+        if len(trials) > horizon:
+            raise ConfigError(f"{self.name}: the log has {len(trials)} trials, the planner's world only {horizon}; "
+                              "give a world whose schedule covers the log")
+        d = trials.sort_values("trial", kind="stable")
+        return logged_action_values(self.planner, self.plan_key(), d["command"].to_numpy(dtype=np.int64),
+                                    d["outcome"].to_numpy())
+
+    def likelihood_function(self, trials: pd.DataFrame) -> Callable[[np.ndarray], float]:
+        """f(theta = [beta(, lapse)]) -> ln L of one participant's frame; Q computed once here."""
+        q = np.ascontiguousarray(self.action_values_of(trials))
+        d = trials.sort_values("trial", kind="stable")
+        lookup = {n: i for i, n in enumerate(ACTION_NAMES)}
+        actions = np.array([lookup[str(a)] for a in d["action"]], dtype=np.int64)
+        n_par = len(self.param_specs())
+
+        def log_likelihood(theta: np.ndarray) -> float:
+            t = np.asarray(theta, dtype=np.float64)
+            if t.shape != (n_par,):
+                raise ValueError(f"theta must have {n_par} entries {list(self.param_specs())}, got shape {t.shape}")
+            return float(softmax_log_likelihood(q, actions, t[0], t[1] if n_par == 2 else 0.0))
+
+        return log_likelihood
