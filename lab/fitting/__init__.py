@@ -19,8 +19,8 @@ from shortcut_gym.lab.fitting.durations import (
     implied_world,
 )
 from shortcut_gym.lab.fitting.hierarchical import HierarchicalFit, fit_hierarchical, fit_hierarchical_models
-from shortcut_gym.lab.fitting.laplace_em import EMResult, em_laplace
 from shortcut_gym.lab.fitting.joint import joint_table
+from shortcut_gym.lab.fitting.laplace_em import EMResult, em_laplace
 from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT, FitResult, draw_start, fit_participant
 from shortcut_gym.lab.fitting.priors import PRIOR_FAMILIES, make_prior
 from shortcut_gym.lab.fitting.replay import LogLik, loglik_function, replay_probabilities
