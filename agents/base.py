@@ -223,3 +223,12 @@ class BatchAgent(Protocol):
     agent reset with ``seeds[i]`` draws."""
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> BatchPolicy: ...
+
+
+@runtime_checkable
+class PreparedAgent(Protocol):
+    """An agent with costly set-up done once per world before it acts (a planner's plan, shared by
+    every user of the world); drivers call ``prepare()`` first, which returns the seconds the set-up
+    took (0.0 when it was done before), and report them apart from simulation time."""
+
+    def prepare(self) -> float: ...

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import hashlib
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -166,6 +167,22 @@ class World:
                 f"the scenario has {self.commands.n_commands} commands"
             )
         return schedule, rng.random(schedule.horizon)
+
+    def digest(self) -> str:
+        """Content digest (hex) of everything the world holds: equal worlds, equal digests (a key for
+        what is computed once per world, such as a plan)."""
+        h = hashlib.sha256()
+        for name in self.__dataclass_fields__:
+            value = getattr(self, name)
+            h.update(name.encode())
+            if hasattr(value, "model_dump_json"):
+                h.update(value.model_dump_json().encode())
+            elif name == "commands":
+                for part in vars(value).values():
+                    h.update(part.tobytes() if isinstance(part, np.ndarray) else repr(part).encode())
+            else:
+                h.update(repr(value).encode())
+        return h.hexdigest()
 
     def with_changes(self, **changes: Any) -> World:
         """A copy with some fields replaced."""

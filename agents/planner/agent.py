@@ -19,8 +19,9 @@ import numpy as np
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.planner.action_costs import action_times
+from shortcut_gym.agents.planner.cache import timed_cached_plan
 from shortcut_gym.agents.planner.next_uses import next_use_points
-from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, plan_world
+from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan
 from shortcut_gym.agents.planner.selection import rule_action
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.memory import (
@@ -97,9 +98,8 @@ class BoundedOptimalPlanner(Agent):
     def reset(self, seed: int | None = None) -> None:
         super().reset(seed)
         world = self._world()
-        if self.plan is None:
-            self.plan = plan_world(world, world.horizon, self.n_bins, self.keyboard_share,
-                                   n_weight_bins=self.n_weight_bins, select_users=self.select_users)
+        self.prepare()  # one plan per world and options in the process (agents.planner.cache)
+        assert self.plan is not None
         self._cmdc = world.command_constants()
         onset, self._session, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
@@ -126,6 +126,16 @@ class BoundedOptimalPlanner(Agent):
         self._warmup = world.parameters()[1][k.I_WARMUP]
         self._warmed = -1  # last trial whose warm-up block is in the tracked memory
         self._key_s = world.costs.klm.k_s
+
+    def prepare(self) -> float:
+        """Make (or fetch) the plan of the bound world before the first ``reset``; returns the
+        seconds spent planning (0.0 when this world's plan was made before in the process)."""
+        if self.plan is not None:
+            return 0.0
+        world = self._world()
+        self.plan, seconds = timed_cached_plan(world, world.horizon, self.n_bins, self.keyboard_share,
+                                               self.n_weight_bins, self.select_users)
+        return seconds
 
     def _activation(self, c: int, now: float) -> float:
         m = self._memory

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent
+from shortcut_gym.agents.base import Agent, PreparedAgent
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import BatchRollout, UserSums, context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
@@ -74,6 +74,14 @@ def build_agent(spec: dict[str, Any] | Agent, world: World) -> Agent:
     agent = agent_from_spec(spec.spec() if isinstance(spec, Agent) else spec)
     agent.bind(context_of_world(world))
     return agent
+
+
+def prepare_agent(spec: dict[str, Any] | Agent, world: World) -> float:
+    """Do the agent's once-per-world set-up (a planner's plan, kept for every later user of the
+    world in this process) and return the seconds it took (0 for agents without one, or when the
+    plan was made before)."""
+    agent = build_agent(spec if not isinstance(spec, Agent) else spec.spec(), world)
+    return float(agent.prepare()) if isinstance(agent, PreparedAgent) else 0.0
 
 
 #: Users simulated together in one block sum; larger batches are cut into chunks of this size,

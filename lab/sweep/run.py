@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.lab.sweep.batch import BlockSums, simulate_users, trial_table
+from shortcut_gym.lab.sweep.batch import BlockSums, prepare_agent, simulate_users, trial_table
 from shortcut_gym.lab.sweep.plan import world_from_settings
 
 #: Per-session metric columns of the result table (means over simulated users).
@@ -65,10 +65,14 @@ def command_table(run: dict[str, Any], sums: BlockSums, names: tuple[str, ...]) 
 
 
 def compute_run(run: dict[str, Any]) -> dict[str, Any]:
-    """Simulate one run; returns status, tables (or the error) and the compute time."""
+    """Simulate one run; returns status, tables (or the error), the compute time ``compute_s`` and,
+    within it, the time spent planning ``plan_s`` (a planner's plan for the run's world, made once per
+    world in the worker process: 0 when an earlier run of the same world made it)."""
     start = time.perf_counter()
+    plan_s = 0.0
     try:
         world = world_from_settings(run["settings"])
+        plan_s = prepare_agent(run["agent"], world)
         record = "trials" if run.get("trial_tables") else "blocks"
         sums = simulate_users(world, run["agent"], run["seeds"], record=record)
         result: dict[str, Any] = {
@@ -84,6 +88,7 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
         result = {"run_id": run["run_id"], "status": "failed", "error": f"{type(err).__name__}: {err}",
                   "traceback": traceback.format_exc()}
     result["compute_s"] = time.perf_counter() - start
+    result["plan_s"] = plan_s
     result["pid"] = os.getpid()
     log = os.environ.get(COMPUTE_LOG_ENV)
     if log and not run.get("warm_up"):

@@ -39,6 +39,8 @@ class SweepReport:
     outputs: dict[str, Path] = field(default_factory=dict)
     recomputed: list[str] = field(default_factory=list)  # finished runs found missing or damaged, computed again
     notes: list[str] = field(default_factory=list)  # what the resume found (stale lock, damaged runs, code change)
+    compute_s: float = 0.0  # summed in-worker seconds of the runs computed now, planning included
+    plan_s: float = 0.0  # of which planning (plans are made once per world in each worker process)
 
     def lines(self) -> list[str]:
         """Human-readable summary lines."""
@@ -47,6 +49,9 @@ class SweepReport:
         if self.recomputed:
             out.append(f"  {len(self.recomputed)} finished run(s) were missing or damaged and were computed again "
                        f"(damaged files set aside under damaged/): {', '.join(self.recomputed)}")
+        if self.computed:
+            out.append(f"  in-worker compute {self.compute_s:.2f} s: simulation {self.compute_s - self.plan_s:.2f} s, "
+                       f"planning {self.plan_s:.2f} s")
         out += [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
         out += [f"  wrote {name}: {path}" for name, path in self.outputs.items()]
         return out
@@ -121,6 +126,7 @@ def run_sweep(
             engine.stop()
         raise
     computed = 0
+    compute_s = plan_s = 0.0
     try:
         previous = store.open(sweep.model_dump(mode="json"), runs, digest)
         check = store.check([r["run_id"] for r in runs]) if previous is not None else None
@@ -155,6 +161,8 @@ def run_sweep(
             for result in engine.run(todo):
                 store.write_result(result)
                 computed += 1
+                compute_s += float(result.get("compute_s") or 0.0)
+                plan_s += float(result.get("plan_s") or 0.0)
                 bar.update(1)
             bar.close()
         if started:
@@ -162,7 +170,7 @@ def run_sweep(
             started = False
         status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
         report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0, recomputed=redo,
-                             notes=notes)
+                             notes=notes, compute_s=compute_s, plan_s=plan_s)
         store.log({"event": "finish", **status})
         if write_outputs:
             from shortcut_gym.lab.sweep.outputs import write_outputs as _write

@@ -225,7 +225,8 @@ class SweepStore:
         """Store one run's result atomically (a folder rename, or a failure file rename) and record its digests."""
         run_id = result["run_id"]
         if result["status"] == "failed":
-            record = {k: result.get(k) for k in ("run_id", "status", "error", "traceback", "compute_s", "pid")}
+            keys = ("run_id", "status", "error", "traceback", "compute_s", "plan_s", "pid")
+            record = {k: result.get(k) for k in keys}
             atomic_write_text(self.runs_dir / f"{run_id}.failed.json", json.dumps(record, indent=1))
             self.log({"event": "run_failed", "run_id": run_id, "error": result.get("error")})
             return
@@ -238,7 +239,8 @@ class SweepStore:
                     path = tmp / f"{table}.parquet"
                     result[table].to_parquet(path, index=False)
                     tables[path.name] = file_digest(path)
-            meta = {"run_id": run_id, "status": "done", "compute_s": result.get("compute_s"), "pid": result.get("pid"),
+            meta = {"run_id": run_id, "status": "done", "compute_s": result.get("compute_s"),
+                    "plan_s": result.get("plan_s"), "pid": result.get("pid"),
                     "written": time.time(), "files": tables}
             (tmp / "meta.json").write_text(json.dumps(meta, indent=1))
             for f in tmp.iterdir():
