@@ -33,6 +33,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--sims", type=whole_number(1), default=50, help="simulated replicates per participant x model")
     p.add_argument("--block", type=_block, default="session", help="'session' or trials per block")
     p.add_argument("--knockout", default=None, help="label of a learning model whose mechanisms to knock out")
+    p.add_argument("--hierarchical", action="store_true",
+                   help="also fit each model hierarchically and weigh its integrated BIC in the verdict")
+    p.add_argument("--cross-validate", action="store_true",
+                   help="also compare models on held-out sessions (leave one out) and weigh it in the verdict")
     p.set_defaults(func=run)
 
 
@@ -43,7 +47,8 @@ def run(args: argparse.Namespace) -> int:
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
-                                args.block, priors_of(args.prior, specs), args.knockout, not args.quiet)
+                                args.block, priors_of(args.prior, specs), args.knockout, not args.quiet,
+                                args.hierarchical, args.cross_validate)
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(tables["bms"].to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     print(f"report in {index.parent}")

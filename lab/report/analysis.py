@@ -11,7 +11,13 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.checks.predictive import plot_predictive, posterior_predictive
 from shortcut_gym.lab.checks.recovery import knockout_study, knockout_variants
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
-from shortcut_gym.lab.fitting import context_for, fit_log
+from shortcut_gym.lab.fitting import context_for, cross_validate, cv_summary, cv_table, fit_hierarchical_models, fit_log
+from shortcut_gym.lab.report.criteria_verdict import (
+    agreement_words,
+    criterion_winners,
+    cross_validation_section,
+    hierarchical_section,
+)
 from shortcut_gym.lab.report.markdown import markdown_table, write_index, write_table
 from shortcut_gym.lab.report.plots import plot_comparison
 from shortcut_gym.lab.report.sections import comparison_sections
@@ -19,13 +25,16 @@ from shortcut_gym.lab.report.sections import comparison_sections
 
 def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int = 10, seed: int = 0,
                 n_jobs: int = 1, n_sims: int = 50, block: str | int = "session", priors: dict | None = None,
-                knockout: str | None = None, progress: bool = False,
-                extra_sections: Sequence[tuple[str, str]] = (), extra_entries: Sequence[tuple[Path, str]] = (),
+                knockout: str | None = None, progress: bool = False, hierarchical: bool = False,
+                cross_validated: bool = False, extra_sections: Sequence[tuple[str, str]] = (),
+                extra_entries: Sequence[tuple[Path, str]] = (),
                 ) -> tuple[Path, dict[str, pd.DataFrame]]:
     """Fit, compare, posterior-predictive check (and optional knock-out) of a validated log into ``out``.
 
     ``index.md`` gives the findings (verdict, tables, plots) then the files; ``extra_sections`` and
-    ``extra_entries`` (already written) are added to it. Returns (index path, the tables by name).
+    ``extra_entries`` (already written) are added to it. ``hierarchical`` adds the hierarchical fits
+    (iBIC), ``cross_validated`` the leave-one-session-out comparison; the verdict then weighs them
+    too. Returns (index path, the tables by name).
     """
     by_label = {s.label: s for s in specs}
     if knockout is not None:  # checked before any fit is made
@@ -50,6 +59,26 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     ]
     tables = {"fits": fits, "comparison": table, "summed": summed, "bms": bms.table(), "predictive": group}
     sections = comparison_sections(summed, bms)
+    ibic = cv = None
+    if hierarchical:
+        ibic, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names), n_starts, seed)
+        groups = pd.concat([f.group_table() for f in by_model.values()], ignore_index=True)
+        entries.append((write_table(ibic, out, "hierarchical"), "hierarchical fits: Laplace evidence, iBIC per model"))
+        entries.append((write_table(groups, out, "hierarchical_group"), "group mean and SD per parameter"))
+        entries.append((write_table(pd.concat([f.participant_table() for f in by_model.values()], ignore_index=True),
+                                    out, "hierarchical_participants"), "MAP and posterior SD per participant"))
+        tables["hierarchical"] = ibic
+        sections.append(hierarchical_section(ibic, groups))
+    if cross_validated:
+        folds = cross_validate(log, specs, context_for(log, world.commands.names), n_starts, seed)
+        cv = cv_summary(folds)
+        entries.append((write_table(folds, out, "cv_folds"), "held-out ln L per participant x model x session"))
+        entries.append((write_table(cv_table(folds), out, "cv"), "held-out ln L per participant x model, rank"))
+        tables["cv"] = cv
+        sections.append(cross_validation_section(cv, summed))
+    if hierarchical or cross_validated:
+        verdict = dict(sections)["Verdict"] + "\n\n" + agreement_words(criterion_winners(summed, bms, ibic, cv))
+        sections[0] = ("Verdict", verdict)
     sections.append(("Posterior-predictive check",
                      f"Hotkey share per {block} block, data against {n_sims} simulations of each fitted model "
                      "on each participant's own schedule (`predictive_group.csv`).\n\n"
