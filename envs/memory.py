@@ -39,7 +39,7 @@ MEMORY_CODES: dict[str, int] = {
 
 
 #: Sane ranges (a project choice, no source): a trace weight above 100 presentations, a
-#: threshold outside +-10, noise outside 0.01-10 s, a latency factor above 10 s or a
+#: threshold outside +-50 (its scale differs by memory kind), noise outside 0.01-10 s, a latency factor above 10 s or a
 #: retrieval-failure time F e^-tau above 10 minutes is taken for a mistake and refused.
 MAX_TRACE_WEIGHT = 100.0
 MAX_RETRIEVAL_FAIL_S = 600.0
@@ -72,7 +72,7 @@ class MemorySettings(StrictModel):
 
     kind: MemoryKind = "actr"
     decay: float = Field(default=0.5, gt=0, lt=1)
-    threshold: float = Field(default=-3.5, ge=-10, le=10)
+    threshold: float = Field(default=-3.5, ge=-50, le=50)
     noise_s: float = Field(default=0.4, ge=0.01, le=10)
     latency_factor_s: float = Field(default=0.05, gt=0, le=10)
     recent_traces: int = Field(default=3, ge=1, le=64)

@@ -7,6 +7,7 @@ envs/costs.py, envs/memory.py and envs/task.py.
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -100,8 +101,8 @@ SETTINGS = st.fixed_dictionaries({
         "learn": st.fixed_dictionaries({"encoding_s": _edge(0.0, 3600.0)}),
     }),
     "memory": st.fixed_dictionaries({
-        "threshold": _edge(-10.0, 10.0), "noise_s": _edge(0.01, 10.0),
-        "latency_factor_s": _edge(1e-6, 0.02), "decay": _edge(0.01, 0.99),
+        "threshold": _edge(-50.0, 50.0), "noise_s": _edge(0.01, 10.0),
+        "latency_factor_s": _edge(1e-6, 10.0), "decay": _edge(0.01, 0.99),
         "gap_time_scale": _edge(1e-6, 1.0),
         "weights": st.fixed_dictionaries({"learn": _edge(0.0, 100.0), "menu": _edge(0.0, 100.0)}),
     }),
@@ -114,7 +115,9 @@ SETTINGS = st.fixed_dictionaries({
 @given(SETTINGS, st.integers(0, 2**31))
 def test_every_accepted_setting_gives_finite_times_and_probabilities(cfg, seed) -> None:
     """Within the ranges, a short learn-then-hotkey run stays finite in the env and the batch."""
-    world = make_world(costs=cfg["costs"], memory=cfg["memory"], observe_recall=True,
+    memory = dict(cfg["memory"])  # F e^-tau <= 600 s is the joint limit: keep F inside it
+    memory["latency_factor_s"] = min(memory["latency_factor_s"], 600.0 * math.exp(memory["threshold"]))
+    world = make_world(costs=cfg["costs"], memory=memory, observe_recall=True,
                        schedule={**cfg["schedule"], "sessions": 3, "trials_per_session": 4})
     env = CommandSelectionEnv(world=world)
     obs, _ = env.reset(seed=seed)
