@@ -24,6 +24,7 @@ COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cli.report",
     "shortcut_gym.lab.cli.bench",
     "shortcut_gym.lab.cli.allot",
+    "shortcut_gym.lab.cli.aids",
 ]
 
 

@@ -37,3 +37,31 @@ def budget_figure(curve: pd.DataFrame, title: str = "Hotkey assignment") -> Figu
     ax.xaxis.set_major_locator(MaxNLocator(integer=True))
     ax.legend(fontsize=8)
     return fig
+
+
+def aid_figure(table: pd.DataFrame, population: str, title: str = "Interface aids") -> Figure:
+    """Seconds saved per user by each aid (bars, +- 1 SE) at each population value, one panel per agent."""
+    for col in (population, "agent", "aid", "saved_s", "saved_se_s"):
+        if col not in table.columns:
+            raise ValueError(f"aid table lacks column {col!r}; has {list(table.columns)}")
+    agents = list(dict.fromkeys(table["agent"]))
+    aids = list(dict.fromkeys(table["aid"]))
+    values = list(dict.fromkeys(table[population]))
+    fig = Figure(figsize=(max(5.0, 1.2 * len(values) * max(1, len(aids)) / 3 + 2), 2.6 * len(agents) + 0.6),
+                 constrained_layout=True)
+    axes = fig.subplots(len(agents), 1, squeeze=False)[:, 0]
+    width = 0.8 / max(len(aids), 1)
+    for ax, agent in zip(axes, agents, strict=True):
+        part = table[table["agent"] == agent]
+        for j, aid in enumerate(aids):
+            rows = part[part["aid"] == aid].set_index(population).reindex(values)
+            x = [i + (j - (len(aids) - 1) / 2) * width for i in range(len(values))]
+            ax.bar(x, rows["saved_s"], width, yerr=rows["saved_se_s"], label=aid, capsize=2)
+        ax.axhline(0.0, color="black", lw=0.8)
+        ax.set_xticks(range(len(values)), [str(v) for v in values], fontsize=8)
+        ax.set_ylabel("saved per user (s)")
+        ax.set_title(agent, fontsize=9)
+    axes[-1].set_xlabel(population)
+    axes[0].legend(fontsize=7, ncol=min(len(aids), 5))
+    fig.suptitle(title, fontsize=10)
+    return fig

@@ -1,0 +1,43 @@
+"""``shortcut-gym aids``: rank interface aids by the time they save per user, for each population."""
+
+from __future__ import annotations
+
+import argparse
+
+from shortcut_gym.lab.cli.ranges import output_folder, whole_number
+from shortcut_gym.lab.design.aid_study import load_study, run_study
+from shortcut_gym.lab.design.plots import aid_figure, save_figure
+from shortcut_gym.lab.sweep.spec import SeedBlock
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``aids`` subcommand."""
+    p = sub.add_parser("aids", help="rank interface aids (key labels, nudges, menu delay, lockout, warm-up) by "
+                                    "time saved per user, for each value of a population setting")
+    p.add_argument("study", help="aid study YAML (or the name of a bundled one in configs/studies)")
+    p.add_argument("--users", type=whole_number(1), default=None,
+                   help="simulated users instead of the study's count (same first seed)")
+    p.add_argument("--threads", type=whole_number(1, 64), default=None,
+                   help="worker threads instead of the study's (the compiled loops release the GIL)")
+    p.add_argument("--out", type=output_folder, default=None, help="folder for ranking.csv and aids.png")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run the study, print the ranking per population value and agent, optionally write it."""
+    spec, aids = load_study(args.study)
+    if args.users is not None:
+        spec = spec.model_copy(update={"users": SeedBlock(first=spec.users.first, count=args.users)})
+    table = run_study(spec, aids, threads=args.threads)
+    path = spec.population.path
+    print(f"{spec.name}: {len(aids)} aids x {len(spec.population.values)} values of {path} x "
+          f"{len(spec.agents)} agents; seconds saved per user over the horizon (aid costs included)")
+    cols = [path, "agent", "rank", "aid", "saved_s", "saved_se_s", "pays_share", "first_hotkey_session",
+            "first_session_hotkey_share", "base_first_session_hotkey_share"]
+    print(table[cols].to_string(index=False, float_format=lambda v: f"{v:.3f}"))
+    if args.out is not None:
+        args.out.mkdir(parents=True, exist_ok=True)
+        table.to_csv(args.out / "ranking.csv", index=False)
+        save_figure(aid_figure(table, path, f"{spec.name}: time saved per user by each aid"), args.out / "aids.png")
+        print(f"wrote ranking.csv and aids.png to {args.out}")
+    return 0
