@@ -21,41 +21,34 @@ from shortcut_gym.envs.kernel_layout import (
     UserState,
 )
 
-# every layout: (NamedTuple, the kernel constant of each field in field order, the kernel's width)
+# every layout: (NamedTuple, the kernel's width constants, the prefixes of its column constants)
 LAYOUTS = [
-    (KernelParams, ["P_M", "P_K", "P_P", "P_B", "P_H", "P_ENC", "P_COMM", "P_UNDOK", "P_DECAY", "P_TAU", "P_S",
-                    "P_F", "P_PA_C", "P_PA_A", "P_EXP_RATE", "P_POW_U", "W_LEARN", "W_HK_OK", "W_HK_FAIL",
-                    "W_MENU"], "N_PAR"),
-    (KernelIntParams, ["I_KIND", "I_RECENT", "I_OBS_RECALL", "I_ONEHOT", "I_AIDS", "I_WARMUP"], "N_IPAR"),
-    (CommandConstants, ["C_SEARCH", "C_DECISION", "C_POINTING", "C_KEYS", "C_LABEL_SEARCH", "C_LABEL_W",
-                        "C_NUDGE_FROM", "C_NUDGE_UNTIL", "C_NUDGE_S", "C_NUDGE_W", "C_DELAY_S", "C_LOCK_AFTER",
-                        "C_WARMUP_S", "C_WARMUP_W"], "N_CMDC"),
-    (Trace, ["T_CLOCK", "T_WEIGHT", "T_DECAY"], "N_TRACE"),
-    (UserState, ["U_TRIAL", "U_HAND"], "N_US"),
+    (KernelParams, ["N_PAR"], ("P_", "W_")),
+    (KernelIntParams, ["N_IPAR"], ("I_",)),
+    (CommandConstants, ["N_CMDC"], ("C_",)),
+    (CommandState, ["N_FS", "N_IS"], ("F_", "S_")),
+    (Trace, ["N_TRACE"], ("T_",)),
+    (UserState, ["N_US"], ("U_",)),
 ]
 
 
-@pytest.mark.parametrize(("layout", "constants", "width"), LAYOUTS, ids=lambda v: getattr(v, "__name__", None))
-def test_each_field_sits_at_its_kernel_constant(layout, constants, width) -> None:
-    assert len(layout._fields) == len(constants) == getattr(k, width)
-    assert [getattr(k, c) for c in constants] == list(range(len(constants)))
-    assert_comments_name(layout, constants)
+def constants_named(layout) -> list[str]:
+    """The kernel constant each field's comment starts with (``field: type  # CONSTANT: ...``)."""
+    comments = {ln.split(":")[0].strip(): ln.split("  # ", 1)[1] for ln in inspect.getsource(layout).splitlines()
+                if "  # " in ln and ln.startswith("    ") and not ln.startswith("     ")}
+    return [comments[f].split(":")[0].strip() for f in layout._fields]
 
 
-def assert_comments_name(layout, constants: list[str]) -> None:
-    """Each field's comment starts with its kernel constant (the documentation cannot drift)."""
-    lines = {ln.split(":")[0].strip(): ln for ln in inspect.getsource(layout).splitlines() if "  # " in ln}
-    for field, const in zip(layout._fields, constants, strict=True):
-        assert lines[field].split("  # ", 1)[1].startswith(f"{const}:") or lines[field].endswith(f"# {const}")
-
-
-def test_command_state_fields_cover_both_state_arrays_in_order() -> None:
-    floats = ["F_OLD_W", "F_OLD_FIRST", "F_OLD_LAST", "F_EXP_S", "F_EXP_T", "F_LAST_USE"]
-    counts = ["S_NTR", "S_MENU_SEL", "S_EXPOSURE", "S_HK_OK", "S_HK_FAIL", "S_LEARN"]
-    assert len(CommandState._fields) == k.N_FS + k.N_IS == len(floats) + len(counts)
-    assert [getattr(k, c) for c in floats] == list(range(k.N_FS))
-    assert [getattr(k, c) for c in counts] == list(range(k.N_IS))
-    assert_comments_name(CommandState, floats + counts)
+@pytest.mark.parametrize(("layout", "widths", "prefixes"), LAYOUTS, ids=lambda v: getattr(v, "__name__", None))
+def test_each_field_names_the_kernel_constant_of_its_column(layout, widths, prefixes) -> None:
+    named = constants_named(layout)
+    assert len(layout._fields) == sum(getattr(k, w) for w in widths)
+    # every column constant of the kernel is named once, by the field at its position
+    kernel = {n for n in vars(k) if n.startswith(prefixes) and isinstance(getattr(k, n), int)}
+    assert sorted(named) == sorted(kernel)
+    # a field's position is its constant's column (CommandState: the counts follow the N_FS floats)
+    offset = {"S_": k.N_FS} if layout is CommandState else {}
+    assert [getattr(k, n) + offset.get(n[:2], 0) for n in named] == list(range(len(named)))
 
 
 def test_named_parameters_are_the_world_settings_and_the_flat_vectors() -> None:
