@@ -192,7 +192,7 @@ def _decide_users(rule, targets, uses, session, obs, cell_cols, pcg, out):
 
 @njit(**RULE_JIT)
 def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-              reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch):
+              sched_noise, reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch):
     """Every trial of user ``b``: choose, step, count, add to the sums."""
     h = sched_cmd.shape[1]
     kind = rule.ints[0]
@@ -216,7 +216,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         last = t == h - 1
         o = ops[b] if last else scratch
         dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, sched_session, o, last, fail_lat)
+                                   sched_u, sched_session, o, last, fail_lat, sched_noise)
         uses[b, c] += 1
         sums.trials[b, s] += 1
         sums.time_s[b, s] += dur
@@ -232,14 +232,14 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
 
 @njit(cache=True, nogil=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-               reward, outcome, ops, p_recall, obs, rule, uses, pcg, sums):
+               sched_noise, reward, outcome, ops, p_recall, obs, rule, uses, pcg, sums):
     """:func:`_run_user` for every user, then its final observation (without the GIL)."""
     n_users, h = sched_cmd.shape
     n_cmd = cmdc.shape[0]
     scratch = np.empty(k.N_OPS)
     for b in range(n_users):
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-                  reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch)
+                  sched_noise, reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch)
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
@@ -319,8 +319,8 @@ class FrozenBatchPolicy:
         sums = SumArrays(**vars(UserSums.zeros(sim.n_users, n_sessions, sim.world.commands.n_commands)))
         _run_users(sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
                    sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock, sim.sched_onset,
-                   sim.sched_uniform, sim.sched_session, sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall,
-                   sim.obs, self.rule, self.uses, self.pcg, sums)
+                   sim.sched_uniform, sim.sched_session, sim.sched_noise, sim.reward, sim.outcome, sim.operator_time_s,
+                   sim.p_recall, sim.obs, self.rule, self.uses, self.pcg, sums)
         self.trial = sim.horizon
         return UserSums(**sums._asdict())
 

@@ -11,6 +11,9 @@ Wilson & Collins (2019), eLife 8, model 3's choice stage, here over planned rath
 The planner's state follows the logged outcomes only, so a log's Q values do not depend on beta
 or the lapse: they are computed once per (world, log) and the likelihood is a compiled loop over
 them. The plan itself is made once per world and planner options and cached (:func:`cached_plan`).
+Planner options: ``keyboard_share``, ``n_bins`` (20), ``n_weight_bins`` (5) and ``select_users``
+(0: the action values are the dynamic program's whichever policy a selection among fixed rules
+would execute; a selection only changes which of the two hand-share plans supplies them).
 The world is ``world=`` or the bound context's; its schedule must have at least as many trials as
 the log (the planner reads the schedule's clock at the trial index).
 """
@@ -56,11 +59,12 @@ def _remember(cache: OrderedDict, key: tuple, value: Any) -> Any:
     return value
 
 
-def cached_plan(world: World, keyboard_share: float | None, n_bins: int, n_weight_bins: int) -> BoundedOptimalPlanner:
+def cached_plan(world: World, keyboard_share: float | None, n_bins: int, n_weight_bins: int,
+                select_users: int = 0) -> BoundedOptimalPlanner:
     """A reset planner for ``world`` whose plan is made once per world and options."""
-    key = (world_key(world), keyboard_share, n_bins, n_weight_bins)
+    key = (world_key(world), keyboard_share, n_bins, n_weight_bins, select_users)
     planner = BoundedOptimalPlanner(world=world, keyboard_share=keyboard_share, n_bins=n_bins,
-                                    n_weight_bins=n_weight_bins)
+                                    n_weight_bins=n_weight_bins, select_users=select_users)
     if key in _PLANS:
         _PLANS.move_to_end(key)
         planner.plan = _PLANS[key]
@@ -123,7 +127,7 @@ class PlannedChoice(Agent):
 
     def __init__(self, context: AgentContext | None = None, world: World | dict | str | None = None,
                  with_lapse: bool = False, keyboard_share: float | None = None, n_bins: int = 20,
-                 n_weight_bins: int = 5, **params: float) -> None:
+                 n_weight_bins: int = 5, select_users: int = 0, **params: float) -> None:
         if not isinstance(with_lapse, bool):
             raise ValueError(f"{self.name}: with_lapse must be true or false, got {with_lapse!r}")
         self.with_lapse = with_lapse
@@ -134,7 +138,9 @@ class PlannedChoice(Agent):
             raise ValueError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
                              f"{type(world).__name__}")
         # checks the planner options now, with the planner's own messages
-        BoundedOptimalPlanner(keyboard_share=keyboard_share, n_bins=n_bins, n_weight_bins=n_weight_bins)
+        BoundedOptimalPlanner(keyboard_share=keyboard_share, n_bins=n_bins, n_weight_bins=n_weight_bins,
+                              select_users=select_users)
+        self.select_users = int(select_users)
         self.world = world
         self.keyboard_share = keyboard_share
         self.n_bins, self.n_weight_bins = int(n_bins), int(n_weight_bins)
@@ -150,7 +156,8 @@ class PlannedChoice(Agent):
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "with_lapse": self.with_lapse, "keyboard_share": self.keyboard_share,
-                "n_bins": self.n_bins, "n_weight_bins": self.n_weight_bins, "params": dict(self.params)}
+                "n_bins": self.n_bins, "n_weight_bins": self.n_weight_bins, "select_users": self.select_users,
+                "params": dict(self.params)}
 
     def planner_world(self) -> World:
         """The world the planner plans for (``world=`` or the bound context's)."""
@@ -162,11 +169,13 @@ class PlannedChoice(Agent):
 
     def plan_key(self) -> tuple:
         """Cache key of this agent's plan."""
-        return (world_key(self.planner_world()), self.keyboard_share, self.n_bins, self.n_weight_bins)
+        return (world_key(self.planner_world()), self.keyboard_share, self.n_bins, self.n_weight_bins,
+                self.select_users)
 
     def planner(self) -> BoundedOptimalPlanner:
         """A fresh (reset) planner on the cached plan."""
-        return cached_plan(self.planner_world(), self.keyboard_share, self.n_bins, self.n_weight_bins)
+        return cached_plan(self.planner_world(), self.keyboard_share, self.n_bins, self.n_weight_bins,
+                           self.select_users)
 
     # ---- protocol -------------------------------------------------------------------------
     def reset(self, seed: int | None = None) -> None:

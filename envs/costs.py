@@ -133,6 +133,19 @@ class ErrorModel(_Strict):
     undo_keystrokes: int = Field(default=2, ge=1, le=20)
 
 
+class TrialTimeNoise(_Strict):
+    """Optional trial-to-trial variability of a trial's time: the model's time times a lognormal
+    factor of mean 1 and coefficient of variation ``cv`` (log-scale sigma = sqrt(ln(1 + cv^2))).
+
+    ``cv`` = 0 (default) is off: every trial takes exactly the model's time. A lognormal with a
+    constant CV is common practice for response times, no source for a value; the factors come
+    from their own random stream (see :mod:`shortcut_gym.envs.simulator`), so switching the noise
+    on changes no other draw.
+    """
+
+    cv: float = Field(default=0.0, ge=0, le=5)
+
+
 class CostSettings(_Strict):
     """All time-model settings; one YAML preset in ``configs/costs/`` is one of these."""
 
@@ -142,6 +155,7 @@ class CostSettings(_Strict):
     menu: MenuModel = MenuModel()
     learn: LearnModel = LearnModel()
     errors: ErrorModel = ErrorModel()
+    noise: TrialTimeNoise = TrialTimeNoise()
 
     @model_validator(mode="after")
     def _pointing_positive(self) -> CostSettings:

@@ -110,7 +110,7 @@ class CommandSelectionEnv(gym.Env):
         k.step_users(self._act, sim.kernel_int_params, sim.kernel_params, sim.command_constants,
                      sim.command_float_state, sim.command_counts, sim.traces, sim.user_state,
                      sim.sched_command, sim.sched_clock, sim.sched_onset, sim.sched_uniform, sim.sched_session,
-                     sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall, sim.obs)
+                     sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall, sim.obs, sim.sched_noise)
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
         terminated = t + 1 >= sim.horizon

@@ -247,7 +247,7 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
 @njit(cache=True)
 def step_user(
     b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session, ops, full,
-    fail_lat,
+    fail_lat, sched_noise,
 ):
     """Advance user ``b`` one trial with action ``act``; returns (duration_s, outcome code, p_recall).
 
@@ -255,7 +255,8 @@ def step_user(
     computed only when the action needs it (a hotkey attempt) and returned as -1.0 otherwise; the
     duration, outcome and memory state are the same either way. Writes no observation.
     ``fail_lat`` is :func:`failed_retrieval_s` of ``par`` (computed once by the caller).
-    ``sched_session`` is read only by the warm-up aid (a session's first trial).
+    ``sched_session`` is read only by the warm-up aid (a session's first trial). ``sched_noise``
+    (users x trials) multiplies the trial's time and its breakdown (1.0: no trial-time noise).
     """
     t = us[b, U_TRIAL]
     c = sched_cmd[b, t]
@@ -332,6 +333,10 @@ def step_user(
     s[S_EXPOSURE] += 1
     f[F_LAST_USE] = sched_onset[b, t]
     us[b, U_TRIAL] = t + 1
+    g = sched_noise[b, t]
+    if g != 1.0:
+        dur *= g
+        o *= g
     return dur, res, p
 
 
@@ -362,7 +367,7 @@ def write_obs_users(ipar, par, n_cmd, fs, ist, tr, us, sched_cmd, sched_clock, s
 @njit(cache=True)
 def step_users(
     actions, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-    reward, outcome, ops, p_recall, obs,
+    reward, outcome, ops, p_recall, obs, sched_noise,
 ):
     """Advance every user one trial with its action; write reward, outcome, breakdown, obs."""
     n_users = actions.shape[0]
@@ -371,7 +376,7 @@ def step_users(
     fail_lat = failed_retrieval_s(par)
     for b in range(n_users):
         dur, res, p = step_user(b, actions[b], ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock,
-                                sched_onset, sched_u, sched_session, ops[b], True, fail_lat)
+                                sched_onset, sched_u, sched_session, ops[b], True, fail_lat, sched_noise)
         p_recall[b] = p
         reward[b] = -dur
         outcome[b] = res

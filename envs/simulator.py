@@ -7,6 +7,7 @@ both step through :func:`shortcut_gym.envs.kernel.step_users`, so trajectories a
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from typing import overload
 
@@ -51,6 +52,11 @@ class _LazySchedules(Sequence[Schedule]):
         return made
 
 
+#: The trial-time factor without noise (broadcast to users x trials, read-only).
+_NO_NOISE = np.ones(1)
+_NO_NOISE.setflags(write=False)
+
+
 class BatchSimulator:
     """Step ``n_users`` simulated users of one :class:`World` in lock step.
 
@@ -62,7 +68,8 @@ class BatchSimulator:
       ``command_constants`` (C, ``C_*``): menu search, decision and pointing times and hotkey key count.
     - ``sched_command``, ``sched_uniform``, ``sched_onset``, ``sched_clock``, ``sched_session``,
       ``sched_gap`` (B, T): each trial's target, its recall uniform, onset, memory clock (onset
-      with session gaps scaled), session index and gap time before it.
+      with session gaps scaled), session index and gap time before it; ``sched_noise`` (B, T): the
+      trial-time factor of each trial (ones without ``costs.noise``).
     - ``command_float_state`` (B, C, ``F_*``): folded-in old ACT-R traces, exponential trace
       strength and time, onset of the last use; ``command_counts`` (B, C, ``S_*``, int): stored
       traces, menu selections, exposures, hotkey successes and failures, learn actions;
@@ -162,6 +169,7 @@ class BatchSimulator:
                 self.sched_session[rows] = self._session
                 self.sched_gap[rows] = self._gap
         self.schedules = _LazySchedules(self, given)  # type: ignore[arg-type]
+        self.sched_noise = self._noise_factors(n, h, seeds, gens)
         cap = self._trace_capacity(c)
         self.n_users, self.horizon = n, h
         self.command_float_state = np.zeros((n, c, k.N_FS))
@@ -177,6 +185,29 @@ class BatchSimulator:
                           self.command_counts, self.traces, self.user_state, self.sched_command, self.sched_clock,
                           self.sched_onset, self.obs)
         return self.obs
+
+    def _noise_factors(self, n: int, h: int, seeds: Sequence[int] | None,
+                       gens: Sequence[np.random.Generator | None]) -> np.ndarray:
+        """(users x trials) trial-time factors: ones without noise (a read-only view), else lognormal
+        factors of mean 1 and the world's CV, drawn from each user's own noise stream: the first
+        child of its seed sequence (``SeedSequence(seed).spawn(1)[0]``; for a given generator the
+        next child of the sequence it was made from), so no other draw changes."""
+        cv = self.world.costs.noise.cv
+        if cv == 0.0:
+            return np.broadcast_to(_NO_NOISE, (n, h))
+        sigma = math.sqrt(math.log1p(cv * cv))
+        out = np.empty((n, h))
+        for b in range(n):
+            if seeds is not None:
+                child = np.random.SeedSequence(int(seeds[b])).spawn(1)[0]
+            else:
+                made_from = getattr(gens[b].bit_generator, "seed_seq", None)  # type: ignore[union-attr]
+                if not isinstance(made_from, np.random.SeedSequence):
+                    raise ValueError("trial-time noise (costs.noise.cv > 0) needs generators made from a seed "
+                                     "sequence, such as numpy.random.default_rng(seed)")
+                child = made_from.spawn(1)[0]
+            out[b] = np.exp(np.random.default_rng(child).normal(-0.5 * sigma * sigma, sigma, h))
+        return out
 
     def _trace_capacity(self, n_cmd: int) -> int:
         """:meth:`World.trace_capacity` of the users' schedules, from the command array."""
@@ -240,7 +271,7 @@ class BatchSimulator:
         k.step_users(acts.astype(np.int64), self.kernel_int_params, self.kernel_params, self.command_constants,
                      self.command_float_state, self.command_counts, self.traces, self.user_state, self.sched_command,
                      self.sched_clock, self.sched_onset, self.sched_uniform, self.sched_session, self.reward,
-                     self.outcome, self.operator_time_s, self.p_recall, self.obs)
+                     self.outcome, self.operator_time_s, self.p_recall, self.obs, self.sched_noise)
         return self.reward
 
 

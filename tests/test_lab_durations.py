@@ -85,3 +85,11 @@ def test_fit_log_durations_gives_one_row_and_one_world_per_participant(world):
     assert {"keystroke_s", "se_keystroke_s", "cv", "loglik"} <= set(table.columns)
     for pid, w in worlds.items():
         assert w.costs.klm.k_s == pytest.approx(table.set_index("participant").loc[pid, "keystroke_s"])
+
+
+def test_an_operator_in_fixed_proportion_to_an_earlier_one_is_held(world):
+    log = _log(world, make_agent("always_menu"))  # every trial M + P (+ H): P is not separable from M
+    fit = fit_durations(participant_trials(log, log["participant"].iloc[0]), world)
+    assert fit.identified["mental_s"] and not fit.identified["point_s"]
+    assert fit.estimates["point_s"] == world.costs.klm.point_s
+    assert fit.estimates["mental_s"] == pytest.approx(world.costs.klm.mental_s, rel=1e-6)

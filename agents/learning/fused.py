@@ -52,7 +52,8 @@ class AgentDraws(NamedTuple):
 
 @njit(**RULE_JIT)
 def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-              reward, outcome, ops, p_recall, rules, horizon, st, draws, sums, probs, scratch, pool, state32):
+              sched_noise, reward, outcome, ops, p_recall, rules, horizon, st, draws, sums, probs, scratch, pool,
+              state32):
     """Every trial of user ``b``: decide, step, learn, add to the sums (see module docstring)."""
     h = sched_cmd.shape[1]
     forgetting = rules.flags[mech.M_FORGETTING] == 1
@@ -81,7 +82,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         last = t == h - 1
         o = ops[b] if last else scratch
         dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, sched_session, o, last, fail_lat)
+                                   sched_u, sched_session, o, last, fail_lat, sched_noise)
         update(b, c, a, res, dur, p, rules, st)
         s = sched_session[b, t]
         sums.trials[b, s] += 1
@@ -98,7 +99,7 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
 
 @njit(cache=True, nogil=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-               reward, outcome, ops, p_recall, obs, rules, horizon, st, draws, sums):
+               sched_noise, reward, outcome, ops, p_recall, obs, rules, horizon, st, draws, sums):
     """:func:`_run_user` for every user, then each user's final observation (without the GIL, so
     chunks of users can run on several Python threads)."""
     n_users, h = sched_cmd.shape
@@ -109,7 +110,8 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
     state32 = np.empty(8, dtype=np.uint64)
     for b in range(n_users):
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-                  reward, outcome, ops, p_recall, rules, horizon, st, draws, sums, probs, scratch, pool, state32)
+                  sched_noise, reward, outcome, ops, p_recall, rules, horizon, st, draws, sums, probs, scratch, pool,
+                  state32)
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
@@ -124,6 +126,6 @@ def run_fused(sim: BatchSimulator, rules: RuleSet, horizon: int, state: LearnerS
                                           sim.world.commands.n_commands)))
     _run_users(sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
                sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock, sim.sched_onset,
-               sim.sched_uniform, sim.sched_session, sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall,
-               sim.obs, rules, horizon, state, draws, sums)
+               sim.sched_uniform, sim.sched_session, sim.sched_noise, sim.reward, sim.outcome, sim.operator_time_s,
+               sim.p_recall, sim.obs, rules, horizon, state, draws, sums)
     return UserSums(**sums._asdict())

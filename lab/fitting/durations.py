@@ -22,7 +22,9 @@ on a menu path, so not separable from P); the menu model's search, decision and 
 terms (per-command constants of the menu layout); the commission share and undo key count
 (counts, not times); the memory dynamics (decay, threshold, noise, trace weights), which set the
 activation the latency term reads. An operator that never occurs in a participant's trials (no
-learn trial: no ``encoding_s``) is not identified: it keeps the base value and gets no error.
+learn trial: no ``encoding_s``), or only in fixed proportion to operators listed before it (P
+beside M when every trial is a menu), is not identified: it keeps the base value and gets no
+standard error (:func:`identified_columns`).
 
 Duration likelihoods: ``lognormal`` (default), d ~ LogNormal(ln mu - sigma^2 / 2, sigma), so the
 mean is the predicted time mu and the coefficient of variation is sqrt(exp(sigma^2) - 1) (the
@@ -90,6 +92,9 @@ def operator_design(trials: pd.DataFrame, world: World) -> OperatorDesign:
     the menu expertise of the t-th menu selection of a command is 1 - 1/t; the activation is
     replayed from the logged outcomes with the world's memory model at the memory clock.
     """
+    if world.aids.any_on:
+        raise DurationFitError("the duration fit models the world without interface aids; this world has aids on "
+                               "(their times are not in the operator design)")
     par, ipar = world.parameters()
     cmdc = world.command_constants()
     n_cmd = world.commands.n_commands
@@ -211,6 +216,21 @@ def implied_world(world: World, estimates: dict[str, float]) -> World:
                               memory=MemorySettings.model_validate(memory))
 
 
+def identified_columns(counts: np.ndarray) -> np.ndarray:
+    """Indices of the operators the counts identify: in :data:`DURATION_PARAMETERS` order, each
+    column that raises the rank of the ones kept (an operator that never occurs, or one always in
+    fixed proportion to those before it, such as P beside M when every trial is a menu, is not)."""
+    kept: list[int] = []
+    scale = np.abs(counts).max(axis=0)
+    for j in range(counts.shape[1]):
+        if scale[j] == 0:
+            continue
+        trial = counts[:, kept + [j]] / scale[kept + [j]]
+        if np.linalg.matrix_rank(trial, tol=1e-8 * max(1.0, np.sqrt(len(counts)))) == len(kept) + 1:
+            kept.append(j)
+    return np.asarray(kept, dtype=np.int64)
+
+
 def _check_durations(design: OperatorDesign, participant: str, positive: bool) -> None:
     d = design.duration_s
     bad = ~np.isfinite(d) | ((d <= 0) if positive else (d < 0))
@@ -229,9 +249,11 @@ def fit_durations(trials: pd.DataFrame, world: World, noise: DurationNoise = "lo
     design = operator_design(trials, world)
     _check_durations(design, participant, noise == "lognormal")
     base = base_values(world)
-    free = np.flatnonzero(np.abs(design.counts).sum(axis=0) > 0)
+    free = identified_columns(design.counts)
     X = design.counts[:, free]
-    y = design.duration_s - design.offset_s  # operators that never occur have all-zero counts
+    held = np.setdiff1d(np.arange(len(base)), free)
+    fixed_s = design.offset_s + design.counts[:, held] @ base[held]  # held operators at the base values
+    y = design.duration_s - fixed_s
     n = len(y)
     if n <= len(free):
         raise DurationFitError(f"participant {participant!r}: {n} trials cannot identify {len(free)} operators")
@@ -246,7 +268,7 @@ def fit_durations(trials: pd.DataFrame, world: World, noise: DurationNoise = "lo
         se[free] = np.sqrt(np.diag(cov))
         ll = float(np.sum(-0.5 * math.log(2 * math.pi * sigma ** 2) - resid ** 2 / (2 * sigma ** 2)))
     else:
-        theta_free, sigma, ll, cov = _lognormal_ml(X, y, design.duration_s, design.offset_s, base[free])
+        theta_free, sigma, ll, cov = _lognormal_ml(X, y, design.duration_s, fixed_s, base[free])
         theta[free] = theta_free
         se[free] = np.sqrt(np.clip(np.diag(cov), 0.0, np.inf))
         se[free[theta_free <= 1.01 * MIN_OPERATOR_S]] = np.nan
