@@ -6,7 +6,16 @@ PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed-stamp
 OUT ?= out/demo
 
-.PHONY: setup demo test lint typecheck bench docs clean
+# `make test-lowest`: a fresh venv with every direct dependency at the lower bound pyproject.toml
+# declares (scripts/lowest_pins.py; torch is the machine's CPU wheel, older CPU builds are not on
+# PyPI), checked to be those versions, then a fast subset of the tests.
+LOWEST_VENV := .venv-lowest
+LOWEST_TESTS := tests/test_world_env.py tests/test_world_config.py tests/test_world_memory.py \
+	tests/test_world_observation.py tests/test_vector_env.py tests/test_world_wrappers.py \
+	tests/test_world_render.py tests/test_sb3_ecosystem.py tests/test_lab_logs.py tests/test_sweep_spec.py \
+	tests/test_cli_errors.py tests/test_cli_specs.py tests/test_cli_train.py tests/test_manners.py
+
+.PHONY: setup demo test test-lowest lint typecheck bench docs clean
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -25,6 +34,17 @@ test: $(STAMP)
 	$(PY) scripts/typecheck.py
 	$(VENV)/bin/pytest -n 2 -q
 
+test-lowest:
+	rm -rf $(LOWEST_VENV)
+	$(PYTHON) -m venv $(LOWEST_VENV)
+	$(LOWEST_VENV)/bin/python -m pip install --quiet --upgrade pip
+	$(LOWEST_VENV)/bin/python -m pip install --quiet torch==2.13.0
+	$(PYTHON) scripts/lowest_pins.py > $(LOWEST_VENV)/lowest-pins.txt
+	$(LOWEST_VENV)/bin/python -m pip install --quiet -c $(LOWEST_VENV)/lowest-pins.txt -e . \
+		"pytest>=8" "pytest-xdist>=3.5" "hypothesis>=6.100"
+	$(LOWEST_VENV)/bin/python scripts/lowest_pins.py --check
+	$(LOWEST_VENV)/bin/pytest -n 2 -q $(LOWEST_TESTS)
+
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 
@@ -38,4 +58,4 @@ docs: $(STAMP)
 	$(PY) scripts/build_api_docs.py site/api
 
 clean:
-	rm -rf $(VENV) out site build *.egg-info
+	rm -rf $(VENV) $(LOWEST_VENV) out site build *.egg-info

@@ -33,6 +33,7 @@ from tqdm.auto import tqdm
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
+from shortcut_gym.envs.errors import ConfigError
 
 _FEATURES = CELL_FEATURES
 _EDGES = {  # bucket upper edges (counts or seconds), in feature order
@@ -57,12 +58,24 @@ class TabularAgent(Agent):
             "initial_value": ParamSpec("initial_value", 0.0, -100.0, 100.0, "none", "initial Q (-seconds)"),
         }
 
-    def __init__(self, context: AgentContext | None = None, **params: float) -> None:
+    def __init__(self, context: AgentContext | None = None, model_path: str | Path | None = None,
+                 **params: float) -> None:
         super().__init__(context, **params)
         self.learning = False
         self.q: np.ndarray | None = None
+        self.model_path = None if model_path is None else str(model_path)
         self._index: list[int] | None = None
         self._open: dict[int, tuple[tuple[int, ...], int, float]] = {}  # command -> its last (s, a, r)
+        if self.model_path is not None:
+            self.load(self.model_path)
+
+    def bind(self, context: AgentContext) -> None:
+        """Attach the world facts; a loaded table must have one row block per command of the world."""
+        if self.q is not None and self.q.shape[0] != context.n_commands:
+            raise ConfigError(f"{self.name}: the Q table {self.model_path or ''} has {self.q.shape[0]} commands, "
+                              f"the world {context.n_commands} (train it on this scenario)")
+        super().bind(context)
+        self._index = None
 
     def clear(self) -> None:
         """Forget the learned table."""
@@ -144,6 +157,7 @@ class TabularAgent(Agent):
             raise ValueError(f"{self.name}: nothing to save, train first")
         p = Path(path).with_suffix(".npz")
         np.savez(p, q=self.q, name=self.name)
+        self.model_path = str(p)
         return p
 
     def load(self, path: str | Path) -> TabularAgent:
@@ -151,13 +165,19 @@ class TabularAgent(Agent):
         p = Path(path)
         if not p.is_file():
             raise ValueError(f"{self.name}: no Q table at {p}")
-        with np.load(p) as d:
-            if str(d["name"]) != self.name:
-                raise ValueError(f"{self.name}: {p} holds a {d['name']} table")
-            q = d["q"]
+        try:
+            with np.load(p) as d:
+                name, q = str(d["name"]), d["q"]
+        except (OSError, ValueError, KeyError) as err:
+            raise ValueError(f"{self.name}: {p} is not a Q table written by save ({err})") from None
+        if name != self.name:
+            raise ValueError(f"{self.name}: {p} holds a {name} table")
+        if q.ndim != 2 + len(_SIZES) or q.shape[1:] != (*_SIZES, 3):
+            raise ValueError(f"{self.name}: {p} holds a table of shape {q.shape}, not commands x {(*_SIZES, 3)}")
         if self.context is not None and q.shape[0] != self.context.n_commands:
             raise ValueError(f"{self.name}: {p} has {q.shape[0]} commands, the context {self.context.n_commands}")
         self.q = q.copy()
+        self.model_path = str(p)
         return self
 
     def evaluate(self, env: Any, seeds: Any, greedy: bool = False) -> pd.DataFrame:
@@ -172,7 +192,10 @@ class TabularAgent(Agent):
             self.params["epsilon"] = epsilon
 
     def spec(self) -> dict[str, Any]:
-        return {"name": self.name, "params": dict(self.params)}
+        out: dict[str, Any] = {"name": self.name, "params": dict(self.params)}
+        if self.model_path is not None:
+            out["model_path"] = self.model_path
+        return out
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled epsilon-greedy policy of the current table for ``n_users`` users (learning off);

@@ -4,7 +4,8 @@
 declared floors are the versions actually tested. torch is left out (the Makefile installs the
 machine's CPU wheel first: older CPU builds are not on PyPI, only CUDA builds).
 
-Usage: ``python scripts/lowest_pins.py [--extra NAME ...]``
+Usage: ``python scripts/lowest_pins.py [--extra NAME ...]``; ``--check`` instead verifies that the
+running interpreter has exactly those versions installed (exit 1 naming each one that differs).
 """
 
 from __future__ import annotations
@@ -42,13 +43,42 @@ def floor_pins(requirements: list[str]) -> list[str]:
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--extra", action="append", default=[], help="also pin this extra's floors")
+    parser.add_argument("--check", action="store_true", help="check the installed versions against the floors")
     args = parser.parse_args(argv)
     project = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]
     reqs = list(project["dependencies"])
     for extra in args.extra:
         reqs += project["optional-dependencies"][extra]
-    sys.stdout.write("\n".join(floor_pins(reqs)) + "\n")
-    return 0
+    pins = floor_pins(reqs)
+    if not args.check:
+        sys.stdout.write("\n".join(pins) + "\n")
+        return 0
+    return check_installed(pins)
+
+
+def check_installed(pins: list[str]) -> int:
+    """0 when every pinned distribution is installed at its floor (release segments compared, so
+    ``1.26`` is ``1.26.0``), else 1 with one line per difference on stderr."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    def release(text: str) -> tuple[int, ...]:
+        parts = [int(p) for p in re.findall(r"\d+", text.split("+")[0])[:3]]
+        return tuple(parts + [0] * (3 - len(parts)))
+
+    bad = []
+    for pin in pins:
+        name, floor = pin.split("==")
+        try:
+            have = version(name)
+        except PackageNotFoundError:
+            bad.append(f"{name}: not installed (floor {floor})")
+            continue
+        if release(have) != release(floor):
+            bad.append(f"{name}: {have} installed, the floor is {floor}")
+    for line in bad:
+        print(line, file=sys.stderr)
+    print(f"{len(pins) - len(bad)} of {len(pins)} direct dependencies at their lower bound")
+    return 1 if bad else 0
 
 
 if __name__ == "__main__":

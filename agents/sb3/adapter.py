@@ -23,6 +23,7 @@ from shortcut_gym.agents.rollout import context_of, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
 from shortcut_gym.agents.sb3.training import train_model
+from shortcut_gym.envs.errors import ConfigError
 
 
 class SB3Agent(Agent):
@@ -46,6 +47,14 @@ class SB3Agent(Agent):
         self.model: Any = None
         if self.model_path is not None:
             self.load(self.model_path)
+
+    def bind(self, context: AgentContext) -> None:
+        """Attach the world facts; a loaded model must read this world's observation length."""
+        shape = getattr(getattr(self.model, "observation_space", None), "shape", None)
+        if shape is not None and context.obs_names and shape[0] != len(context.obs_names):
+            raise ConfigError(f"{self.name}: the model {self.model_path or ''} reads observations of length "
+                              f"{shape[0]}, this world's have {len(context.obs_names)} (train it on this scenario)")
+        super().bind(context)
 
     def spec(self) -> dict[str, Any]:
         return {"name": self.name, "model_path": self.model_path, "deterministic": self.deterministic,

@@ -158,13 +158,11 @@ def posterior_predictive(
 
 def plot_predictive(group: pd.DataFrame, path: str | Path, title: str = "Hotkey use per block") -> Path:
     """One panel per model: data mean (dots) vs model mean and interval band; saved as PNG."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure  # object API: the global backend is left alone
 
     models = list(dict.fromkeys(group["model"]))
-    fig, axes = plt.subplots(1, len(models), figsize=(4 * len(models), 3.2), sharey=True, squeeze=False)
+    fig = Figure(figsize=(4 * len(models), 3.2))
+    axes = fig.subplots(1, len(models), sharey=True, squeeze=False)
     for ax, label in zip(axes[0], models, strict=True):
         g = group[group["model"] == label]
         x = g["block"].to_numpy() + 1
@@ -181,5 +179,4 @@ def plot_predictive(group: pd.DataFrame, path: str | Path, title: str = "Hotkey 
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
     fig.savefig(p, dpi=110)
-    plt.close(fig)
     return p

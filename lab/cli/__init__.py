@@ -16,6 +16,8 @@ from shortcut_gym.envs.errors import ShortcutGymError
 
 COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cli.simulate",
+    "shortcut_gym.lab.cli.train",
+    "shortcut_gym.lab.cli.score",
     "shortcut_gym.lab.cli.sweep",
     "shortcut_gym.lab.cli.audit",
     "shortcut_gym.lab.cli.fit",

@@ -28,7 +28,7 @@ def _log_path(text: str) -> Path:
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``simulate`` subcommand."""
     p = sub.add_parser("simulate", help="simulate agents on a scenario and summarise per session")
-    add_world_options(p)
+    add_world_options(p, sessions=True)
     add_agent_options(p, "agent (repeatable; default: the baselines)")
     p.add_argument("--users", type=whole_number(1, MAX_USERS), default=5, help="simulated users per agent")
     p.add_argument("--seed", type=seed, default=0, help="first seed; users get seed, seed+1, ...")

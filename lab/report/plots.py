@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -10,19 +11,17 @@ import pandas as pd
 from shortcut_gym.lab.compare import BMSResult
 
 
-def _plt():
-    import matplotlib
+def _figure(**kwargs: Any) -> Any:
+    """A matplotlib ``Figure`` (object API: no pyplot, the global backend is left alone)."""
+    from matplotlib.figure import Figure
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
+    return Figure(**kwargs)
 
 
 def plot_comparison(summed: pd.DataFrame, bms: BMSResult, path: Path) -> Path:
     """Summed BIC difference to the best model, and BMS expected frequency / protected exceedance."""
-    plt = _plt()
-    fig, (a1, a2) = plt.subplots(1, 2, figsize=(9, 3.2))
+    fig = _figure(figsize=(9, 3.2))
+    a1, a2 = fig.subplots(1, 2)
     a1.barh(summed["model"], summed["delta_bic"], color="C0")
     a1.set_xlabel("summed BIC - best summed BIC")
     a1.invert_yaxis()
@@ -36,15 +35,14 @@ def plot_comparison(summed: pd.DataFrame, bms: BMSResult, path: Path) -> Path:
     a2.set_title(f"random-effects BMS (BOR {bms.bor:.2f})", fontsize=9)
     fig.tight_layout()
     fig.savefig(path, dpi=110)
-    plt.close(fig)
     return path
 
 
 def plot_parameter_recovery(pairs: pd.DataFrame, summary: pd.DataFrame, path: Path) -> Path:
     """True vs fitted value per parameter, with the identity line and r in the title."""
-    plt = _plt()
     params = list(dict.fromkeys(pairs["parameter"]))
-    fig, axes = plt.subplots(1, len(params), figsize=(3 * len(params), 3), squeeze=False)
+    fig = _figure(figsize=(3 * len(params), 3))
+    axes = fig.subplots(1, len(params), squeeze=False)
     for ax, p in zip(axes[0], params, strict=True):
         d = pairs[pairs["parameter"] == p]
         ax.plot(d["true"], d["fitted"], "o", ms=3)
@@ -56,14 +54,13 @@ def plot_parameter_recovery(pairs: pd.DataFrame, summary: pd.DataFrame, path: Pa
     axes[0][0].set_ylabel("fitted")
     fig.tight_layout()
     fig.savefig(path, dpi=110)
-    plt.close(fig)
     return path
 
 
 def plot_confusion(confusion: pd.DataFrame, path: Path) -> Path:
     """Heat map of the model-recovery confusion matrix (fraction of simulated participants won)."""
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(1.2 * len(confusion.columns) + 2, 1.0 * len(confusion) + 1.5))
+    fig = _figure(figsize=(1.2 * len(confusion.columns) + 2, 1.0 * len(confusion) + 1.5))
+    ax = fig.subplots()
     ax.imshow(confusion.to_numpy(), vmin=0, vmax=1, cmap="Blues")
     ax.set_xticks(range(len(confusion.columns)), confusion.columns, rotation=20, fontsize=8)
     ax.set_yticks(range(len(confusion.index)), confusion.index, fontsize=8)
@@ -74,5 +71,4 @@ def plot_confusion(confusion: pd.DataFrame, path: Path) -> Path:
     ax.set_ylabel("generating model")
     fig.tight_layout()
     fig.savefig(path, dpi=110)
-    plt.close(fig)
     return path

@@ -5,15 +5,12 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-import matplotlib
+import numpy as np
+import pandas as pd
+from matplotlib.figure import Figure  # object API: no pyplot, the global backend is left alone
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-
-from shortcut_gym.lab.sweep.spec import SweepSpec  # noqa: E402
-from shortcut_gym.lab.sweep.store import unique_suffix  # noqa: E402
+from shortcut_gym.lab.sweep.spec import SweepSpec
+from shortcut_gym.lab.sweep.store import unique_suffix
 
 
 def _save(fig: Any, path: Path) -> Path:
@@ -23,7 +20,6 @@ def _save(fig: Any, path: Path) -> Path:
         fig.savefig(tmp, dpi=110, bbox_inches="tight", format="png")
         tmp.replace(path)
     finally:
-        plt.close(fig)
         tmp.unlink(missing_ok=True)
     return path
 
@@ -39,8 +35,8 @@ def adoption_plot(spec: SweepSpec, blocks: pd.DataFrame, path: Path) -> Path:
     n = len(levels)
     cols = min(n, int(np.ceil(np.sqrt(n))))
     rows = -(-n // cols)
-    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.2 * rows), squeeze=False, sharey=True,
-                             constrained_layout=True)
+    fig = Figure(figsize=(4.2 * cols, 3.2 * rows), constrained_layout=True)
+    axes = fig.subplots(rows, cols, squeeze=False, sharey=True)
     for ax, level in zip(axes.ravel(), levels, strict=False):
         part = blocks if by is None else blocks[blocks[by] == level]
         curve = part.groupby(["agent", "session"])["hotkey_share"].mean().reset_index()
@@ -62,7 +58,8 @@ def break_even_plot(grid: dict[str, Any], path: Path) -> Path:
     """Simulated saving of learning over the menu, with the planner's analytic boundary overlaid."""
     xs, ys = np.asarray(grid["x"], float), np.asarray(grid["y"], float)
     sav = grid["simulated_saving_s"]
-    fig, ax = plt.subplots(figsize=(6, 4.6))
+    fig = Figure(figsize=(6, 4.6))
+    ax = fig.subplots()
     lim = float(np.nanmax(np.abs(sav))) if np.isfinite(sav).any() else 1.0
     mesh = ax.pcolormesh(_edges(xs), _edges(ys), sav, cmap="RdBu", vmin=-lim, vmax=lim, shading="flat")
     fig.colorbar(mesh, ax=ax, label=f"time saved per user on '{grid['command_name']}' (s)\n"
@@ -102,7 +99,8 @@ def _edges(v: np.ndarray) -> np.ndarray:
 
 def time_saved_plot(summary: pd.DataFrame, reference: str, path: Path) -> Path:
     """Per point: each agent's time saved over always-menu against the reference agent's saving."""
-    fig, ax = plt.subplots(figsize=(5.4, 4.6))
+    fig = Figure(figsize=(5.4, 4.6))
+    ax = fig.subplots()
     ref = summary[summary["agent"] == reference].set_index("point_index")["time_saved_vs_menu_s"]
     for agent, g in summary.groupby("agent", sort=False):
         if agent == reference:

@@ -1,0 +1,80 @@
+"""``shortcut-gym train``: train an SB3 (ppo, a2c, dqn) or tabular (q_learning, sarsa) agent on a
+world and save its model, which ``simulate``, ``sweep`` and ``score`` then load with
+``--agent NAME:model_path=FILE``."""
+
+from __future__ import annotations
+
+import argparse
+import math
+from pathlib import Path
+
+from shortcut_gym.agents.registry import agent_from_spec, make_agent
+from shortcut_gym.agents.rollout import context_of, evaluate_agent
+from shortcut_gym.agents.sb3 import SB3Agent
+from shortcut_gym.agents.tabular import TabularAgent
+from shortcut_gym.envs.env import CommandSelectionEnv
+from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
+from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_number
+
+#: Agents ``train`` knows how to train and save (registry names).
+TRAINABLE = ("ppo", "a2c", "dqn", "q_learning", "sarsa")
+#: Most trials of experience one ``train`` call gathers.
+MAX_TRIALS = 100_000_000
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``train`` subcommand."""
+    p = sub.add_parser("train", help="train an SB3 or tabular agent and save its model for --agent ...:model_path=")
+    add_world_options(p, sessions=True)
+    add_agent_options(p, f"the agent to train, one of {', '.join(TRAINABLE)} (options such as "
+                         "deterministic=true are kept for its evaluation)")
+    p.add_argument("--trials", type=whole_number(1, MAX_TRIALS), default=40_000,
+                   help="trials of experience (SB3: timesteps; tabular: whole simulated users of the horizon)")
+    p.add_argument("--seed", type=seed, default=0, help="seed of the training users (and the model's own draws)")
+    p.add_argument("--envs", type=whole_number(1, 1024), default=8, help="parallel simulated users (SB3 only)")
+    p.add_argument("--out", type=output_file, required=True,
+                   help="model file to write (SB3: .zip plus .obs_norm.npz beside it; tabular: .npz)")
+    p.add_argument("--eval-users", type=whole_number(0, 100_000), default=20,
+                   help="users (seeds after the training ones) to compare the trained agent with always-menu on")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Train, save, and print the trained agent's time per user against always-menu."""
+    specs = agent_specs_of(args)
+    if len(specs) != 1:
+        raise CLIError(f"train takes exactly one --agent or --agent-file, got {len(specs)}")
+    spec = specs[0]
+    if spec["name"] not in TRAINABLE:
+        raise CLIError(f"train: agent {spec['name']!r} is not trained by this command; trainable: {list(TRAINABLE)}")
+    if "model_path" in spec:
+        raise CLIError("train: the agent spec names a model_path; give the file to write with --out")
+    world = world_of(args)
+    env = CommandSelectionEnv(world=world)
+    agent = agent_from_spec(spec)
+    episodes = math.ceil(args.trials / world.horizon)
+    first_eval = args.seed + (episodes if isinstance(agent, TabularAgent) else 0) + 1
+    if first_eval + args.eval_users > MAX_SEED:
+        raise CLIError(f"--seed {args.seed}: the evaluation seeds would exceed {MAX_SEED}")
+    if isinstance(agent, SB3Agent):
+        agent.train(world, total_timesteps=args.trials, seed=args.seed, progress_bar=not args.quiet, n_envs=args.envs)
+        trained = f"{args.trials} timesteps on {args.envs} parallel users"
+    elif isinstance(agent, TabularAgent):
+        agent.bind(context_of(env))
+        agent.train(env, episodes, seed=args.seed, progress_bar=not args.quiet)
+        trained = f"{episodes} simulated users of {world.horizon} trials"
+    else:  # pragma: no cover - TRAINABLE lists only the two kinds
+        raise CLIError(f"train: no training for {spec['name']!r}")
+    Path(args.out).parent.mkdir(parents=True, exist_ok=True)
+    path = agent.save(Path(args.out))
+    print(f"trained {spec['name']} for {trained}; wrote {path}")
+    if args.eval_users:
+        seeds = range(first_eval, first_eval + args.eval_users)
+        mine = evaluate_agent(env, agent, seeds)["total_time_s"].mean()
+        menu = evaluate_agent(env, make_agent("always_menu"), seeds)["total_time_s"].mean()
+        print(f"time per user over {args.eval_users} new users: {spec['name']} {mine:.1f} s, "
+              f"always_menu {menu:.1f} s ({mine - menu:+.1f} s per user)")
+    print(f"load it with --agent {spec['name']}:model_path={path}")
+    return 0
