@@ -47,22 +47,29 @@ class DecisionRule(NamedTuple):
     ``ints``: kind, constant action, k, uses rows (0: not a covariate), session columns (0: not a
     covariate), cells per command, then the number of bucket edges of each cell feature. ``cdf``
     (rows, 3): cumulative action probabilities. ``thresholds`` (4, 3) float32: per cell feature,
-    the smallest float32 feature value of each next bucket (+inf pads).
+    the smallest float32 feature value of each next bucket (+inf pads). ``menu_only`` (commands,)
+    int64: 1 where a constant or first-uses rule gives the menu instead (empty: nowhere).
     """
 
     ints: np.ndarray
     cdf: np.ndarray
     thresholds: np.ndarray
+    menu_only: np.ndarray
 
 
-def constant_rule(action: int) -> DecisionRule:
-    """Always ``action``."""
-    return _rule(RULE_CONSTANT, action=action)
+def constant_rule(action: int, menu_only: Sequence[bool] = ()) -> DecisionRule:
+    """Always ``action`` (the menu on the commands ``menu_only`` marks)."""
+    return _rule(RULE_CONSTANT, action=action)._replace(menu_only=_mask(menu_only))
 
 
-def first_uses_rule(k_uses: int) -> DecisionRule:
-    """Learn while the target has been used fewer than ``k_uses`` times, then the hotkey."""
-    return _rule(RULE_FIRST_USES, k_uses=k_uses)
+def first_uses_rule(k_uses: int, menu_only: Sequence[bool] = ()) -> DecisionRule:
+    """Learn while the target has been used fewer than ``k_uses`` times, then the hotkey (the menu
+    on the commands ``menu_only`` marks)."""
+    return _rule(RULE_FIRST_USES, k_uses=k_uses)._replace(menu_only=_mask(menu_only))
+
+
+def _mask(menu_only: Sequence[bool]) -> np.ndarray:
+    return np.asarray([1 if m else 0 for m in menu_only], dtype=np.int64)
 
 
 def cdf_of(p: np.ndarray) -> np.ndarray:
@@ -108,7 +115,7 @@ def _rule(kind: int, action: int = 0, k_uses: int = 0, uses_rows: int = 0, sessi
     edges_per_feature = [int((row < np.inf).sum()) for row in thr]
     ints = np.array([kind, action, k_uses, uses_rows, session_cols, cells, *edges_per_feature], dtype=np.int64)
     table = np.ascontiguousarray(cdf if cdf is not None else np.ones((1, N_ACTIONS)), dtype=np.float64)
-    return DecisionRule(ints, table, np.ascontiguousarray(thr, dtype=np.float32))
+    return DecisionRule(ints, table, np.ascontiguousarray(thr, dtype=np.float32), np.zeros(0, dtype=np.int64))
 
 
 # ---- compiled decision ---------------------------------------------------------------------------------
@@ -131,6 +138,14 @@ def _cell(rule, c, f_learn, f_ok, f_fail, f_since):
     idx = idx * (n[8] + 1) + _bucket(thr, 2, f_fail)
     idx = idx * (n[9] + 1) + _bucket(thr, 3, f_since)
     return c * n[5] + idx
+
+
+@njit(**RULE_JIT)
+def _masked(rule, c, a):
+    """``a``, or the menu where the rule leaves command ``c`` to it."""
+    if rule.menu_only.shape[0] > 0 and rule.menu_only[c] == 1:
+        return k.MENU
+    return a
 
 
 @njit(**RULE_JIT)
@@ -178,9 +193,9 @@ def _decide_users(rule, targets, uses, session, obs, cell_cols, pcg, out):
     for b in range(targets.shape[0]):
         c = targets[b]
         if kind == RULE_CONSTANT:
-            out[b] = rule.ints[1]
+            out[b] = _masked(rule, c, rule.ints[1])
         elif kind == RULE_FIRST_USES:
-            out[b] = k.LEARN if uses[b, c] < rule.ints[2] else k.HOTKEY
+            out[b] = _masked(rule, c, k.LEARN if uses[b, c] < rule.ints[2] else k.HOTKEY)
         else:
             if kind == RULE_BY_USES_SESSION:
                 row = _uses_session_row(rule, uses[b, c], session[b])
@@ -201,9 +216,9 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
         c = sched_cmd[b, t]
         s = sched_session[b, t]
         if kind == RULE_CONSTANT:
-            a = rule.ints[1]
+            a = _masked(rule, c, rule.ints[1])
         elif kind == RULE_FIRST_USES:
-            a = k.LEARN if uses[b, c] < rule.ints[2] else k.HOTKEY
+            a = _masked(rule, c, k.LEARN if uses[b, c] < rule.ints[2] else k.HOTKEY)
         else:
             if kind == RULE_BY_USES_SESSION:
                 row = _uses_session_row(rule, uses[b, c], s)

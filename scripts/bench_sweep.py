@@ -1,12 +1,16 @@
-"""Sweeps at scale: batched simulator versus the gym loop, and a 200-run sweep local versus Ray.
+"""Sweeps at scale: trials per second per agent family (against the looped gym env + agent and
+gymnasium's native CartPole vector env) and the held-out style sweep, then the batched simulator
+versus the gym loop and a 200-run sweep local versus Ray.
 
-The measurement lives in ``benchmarks.sweep`` (also ``shortcut-gym bench --suite sweep``).
+The measurement lives in ``benchmarks.families`` and ``benchmarks.sweep`` (also
+``shortcut-gym bench --suite sweep``).
 """
 
 from __future__ import annotations
 
 import argparse
 
+from benchmarks import families
 from benchmarks import sweep as bench_sweep
 
 
@@ -17,9 +21,17 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--sweep-users", type=int, default=32, help="simulated users per sweep run")
     parser.add_argument("--skip-batch", action="store_true", help="skip part 1")
     parser.add_argument("--skip-ray", action="store_true", help="skip the Ray half of part 2")
+    parser.add_argument("--skip-families", action="store_true",
+                        help="skip the per-family figures and the held-out style sweep")
+    parser.add_argument("--families-only", action="store_true", help="only the per-family figures and the sweep")
+    parser.add_argument("--sb3", action="store_true", help="add a small PPO model to the families (trains it)")
     args = parser.parse_args(argv)
+    if args.families_only:
+        families.run(quick=False, sessions=args.sessions, sb3=args.sb3)
+        return 0
     bench_sweep.run(quick=False, sessions=args.sessions, sweep_users=args.sweep_users,
-                    skip_batch=args.skip_batch, skip_ray=args.skip_ray)
+                    skip_batch=args.skip_batch, skip_ray=args.skip_ray, families=not args.skip_families,
+                    sb3=args.sb3)
     return 0
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import Any
 
 import gymnasium as gym
@@ -11,7 +12,8 @@ import pytest
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
 from shortcut_gym.agents.base import Agent
-from shortcut_gym.agents.frozen_policy import first_float32_decoding_to
+from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy, first_float32_decoding_to
+from shortcut_gym.agents.planner.selection import PolicyChoice
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import UserSums, context_of_world, drive_batch, run_episode
 from shortcut_gym.envs import ENV_ID, BatchSimulator, make_world
@@ -191,3 +193,38 @@ def test_compiled_policy_equals_looped_env_with_interface_aids(aids: str) -> Non
         looped = _looped_sums({"schedule": SCHEDULE, "aids": aids}, lambda s=spec: agent_from_spec(s),
                               fused.trials.shape[1], world.commands.n_commands)
         _assert_sums_equal(fused, looped)
+
+
+PLANNER_CHOICES = [
+    PolicyChoice("always_menu"),
+    PolicyChoice("always_hotkey", commands=(True, False) * 6),
+    PolicyChoice("learn_first_k", 2),
+    PolicyChoice("learn_first_k", 1, commands=(False, True, True) * 4),
+    PolicyChoice("plan"),
+    PolicyChoice("plan", commands=(True, True, False) * 4),
+]
+
+
+@pytest.mark.parametrize("choice", PLANNER_CHOICES, ids=[c.label for c in PLANNER_CHOICES])
+def test_planner_batch_policy_equals_looped_env_for_every_kind_of_choice(choice: PolicyChoice) -> None:
+    schedule = {"sessions": 2, "trials_per_session": 15, "gap_h": 20.0}
+    world = make_world(schedule=schedule)
+    assert world.commands.n_commands == 12
+    agent = build_agent({"name": "bounded_optimal", "n_bins": 8, "n_weight_bins": 3, "select_users": 2}, world)
+    agent.prepare()  # type: ignore[attr-defined]
+    agent.plan = replace(agent.plan, choice=choice)  # type: ignore[attr-defined]
+    runs = []
+    for batch, fused in ((True, True), (True, False), (False, True)):
+        sim = BatchSimulator(world)
+        sim.reset(seeds=SEEDS)
+        runs.append(drive_batch(sim, agent, SEEDS, use_batch_policy=batch, fused=fused).sums)
+    looped = _looped_sums({"schedule": schedule}, lambda: agent, runs[0].trials.shape[1], world.commands.n_commands)
+    for other in runs[1:] + [looped]:
+        _assert_sums_equal(runs[0], other)
+    compiled = not (choice.kind == "plan")
+    assert isinstance(agent.batch_policy(2, [0, 1]), FrozenBatchPolicy) == compiled  # type: ignore[attr-defined]
+    if choice.commands is not None:  # the commands left out are always selected from the menu
+        left_out = ~np.array(choice.commands)
+        assert runs[0].command_uses[:, left_out].sum() > 0
+        n_menu = runs[0].actions[:, :, k.MENU].sum()
+        assert n_menu >= runs[0].command_uses[:, left_out].sum()

@@ -12,13 +12,16 @@ from __future__ import annotations
 
 import copy
 import math
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy
 from shortcut_gym.agents.planner.action_costs import action_times
+from shortcut_gym.agents.planner.batch import PlanLookupBatch, rule_policy
 from shortcut_gym.agents.planner.cache import timed_cached_plan
 from shortcut_gym.agents.planner.next_uses import next_use_points
 from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan
@@ -272,6 +275,15 @@ class BoundedOptimalPlanner(Agent):
         if choice.kind != "plan" or not choice.allows(c):
             return rule_action(choice, c, int(self._uses[c]))
         return int(self.action_values(c, trial).argmax())
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy | PlanLookupBatch:
+        """Many simulated users at once (:mod:`.batch`): a fixed-rule choice as a compiled rule, a
+        plan looked up per user; either way each user's actions are this agent's for that user."""
+        self.prepare()
+        assert self.plan is not None
+        if self.plan.choice.kind != "plan":
+            return rule_policy(self, self.plan.choice, n_users, seeds)
+        return PlanLookupBatch(self, n_users, seeds)
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         p = np.zeros(3)

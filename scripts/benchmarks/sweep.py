@@ -25,6 +25,7 @@ import gymnasium as gym
 import numpy as np
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
+from benchmarks import families as agent_families
 from benchmarks.timing import Out
 from shortcut_gym.agents.base import Transition
 from shortcut_gym.agents.registry import agent_from_spec
@@ -120,10 +121,11 @@ def sweep_spec(points: int, users: int) -> dict:
 
 
 def run(quick: bool = False, out: Out = print, sessions: int = 10, sweep_users: int | None = None,
-        skip_batch: bool = False, skip_ray: bool | None = None) -> None:
-    """Print both parts. ``sessions`` of 40 trials per simulated user in part 1; ``sweep_users`` per
-    sweep run in part 2 (default 32, 8 when ``quick``); Ray is skipped when ``quick`` unless
-    ``skip_ray=False``."""
+        skip_batch: bool = False, skip_ray: bool | None = None, families: bool = True, sb3: bool = False) -> None:
+    """Print the per-family figures and the held-out style sweep (:mod:`benchmarks.families`, unless
+    ``families`` is False; ``sb3`` adds a small PPO model), then both parts. ``sessions`` of 40
+    trials per simulated user in part 1; ``sweep_users`` per sweep run in part 2 (default 32, 8
+    when ``quick``); Ray is skipped when ``quick`` unless ``skip_ray=False``."""
     if sessions < 1:
         raise ValueError(f"sessions must be >= 1, got {sessions}")
     sweep_users = sweep_users if sweep_users is not None else (8 if quick else 32)
@@ -132,6 +134,8 @@ def run(quick: bool = False, out: Out = print, sessions: int = 10, sweep_users: 
     skip_ray = quick if skip_ray is None else skip_ray
     schedule = {"sessions": sessions, "trials_per_session": 40}
     out(f"CartPole-v1 via gymnasium.make: {cartpole_us_per_step():.2f} us/step (machine anchor)")
+    if families:
+        agent_families.run(quick=quick, out=out, sessions=sessions, sb3=sb3)
     if not skip_batch:
         part_one(schedule, sessions, quick, out)
     if quick:

@@ -1,0 +1,189 @@
+"""Trials per second per agent family, against references measured in the same run.
+
+For each family (fixed baselines, random, static softmax, tabular, learning model, planner, and
+with ``sb3`` a small PPO model): simulated trials per second of ``simulate_users`` (block sums,
+the compiled batch policy where the agent has one) at 1,024 and 100,000 users, on one thread and
+on one thread per core, against
+
+* the looped ``gymnasium.make`` env + the same agent stepped one trial at a time (act, step,
+  observe; a few users), and
+* gymnasium's native CartPole vector env (``gymnasium.make_vec(..., "vector_entry_point")``) at
+  1,024 envs, random actions, in steps per second.
+
+Targets (issue 14): every compiled agent >= 100x the looped env at 1,000 users and >= 0.5x the
+CartPole vector env; the fixed baselines above 1x. The planner's plan is made before the clock
+starts (planning time is printed apart). Families without a compiled decision are timed at 1,024
+users only (100,000 would take minutes) and say so.
+
+Then the held-out style sweep: 48 LHS points x 3 agents (always-menu, learn-first-1, the
+planner) x 6 users x 120 trials on local processes, planning time printed apart from the runs'
+simulation compute (target: simulation compute under 3 s).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+import gymnasium as gym
+import numpy as np
+
+import shortcut_gym.envs  # noqa: F401 - registers the env
+from benchmarks.timing import Out
+from shortcut_gym.agents.base import PreparedAgent, Transition
+from shortcut_gym.agents.registry import agent_from_spec
+from shortcut_gym.agents.rollout import context_of
+from shortcut_gym.envs import ENV_ID, make_world
+from shortcut_gym.lab.sweep.batch import build_agent, simulate_users
+from shortcut_gym.lab.sweep.runner import run_sweep
+
+#: (family, agent spec, has a compiled decision)
+FAMILIES: list[tuple[str, dict[str, Any], bool]] = [
+    ("fixed: always_menu", {"name": "always_menu"}, True),
+    ("fixed: learn_first_k(k=1)", {"name": "learn_first_k", "params": {"k": 1}}, True),
+    ("random", {"name": "random"}, True),
+    ("static_softmax", {"name": "static_softmax", "params": {"b_hotkey": -1.0, "w_hotkey_log_exposure": 0.8}}, True),
+    ("tabular: q_learning (frozen)", {"name": "q_learning"}, True),
+    ("learning: rescorla_wagner", {"name": "rescorla_wagner"}, True),
+    ("planner: bounded_optimal", {"name": "bounded_optimal"}, False),
+]
+USERS = (1_024, 100_000)
+
+
+def cartpole_vector_steps_per_s(n_envs: int = 1_024, steps: int = 500) -> float:
+    """Steps per second (summed over envs) of gymnasium's native CartPole vector env."""
+    env = gym.make_vec("CartPole-v1", num_envs=n_envs, vectorization_mode="vector_entry_point")
+    env.reset(seed=0)
+    acts = np.random.default_rng(0).integers(0, 2, size=(steps, n_envs))
+    for a in acts[:20]:
+        env.step(a)
+    t0 = time.perf_counter()
+    for a in acts:
+        env.step(a)
+    return steps * n_envs / (time.perf_counter() - t0)
+
+
+def looped_trials_per_s(spec: dict[str, Any], schedule: dict, users: int = 4, agent: Any = None) -> float:
+    """Trials per second of gymnasium.make env + agent: act, step, observe (no trial table kept)."""
+    env = gym.make(ENV_ID, schedule=schedule)
+    agent = agent if agent is not None else agent_from_spec(spec)
+    agent.bind(context_of(env))
+    n, t0 = 0, 0.0
+    for seed in range(-1, users):  # seed -1: warm-up (compiles, plans), not timed
+        if seed == 0:
+            t0 = time.perf_counter()
+        obs, info = env.reset(seed=abs(seed))
+        agent.reset(abs(seed))
+        done = False
+        while not done:
+            a = agent.act(obs, info)
+            nxt, r, term, trunc, info = env.step(a)
+            agent.observe(Transition(obs, a, r, nxt, info, term, trunc))
+            obs, done = nxt, term or trunc
+            n += seed >= 0
+    return n / (time.perf_counter() - t0)
+
+
+def batched_trials_per_s(world: Any, spec: Any, users: int, threads: int) -> float:
+    """Trials per second of ``simulate_users`` (best of 3 below 10,000 users, else one run)."""
+    simulate_users(world, spec, [0, 1], threads=threads)  # warm-up: compiles, plans
+    best = 0.0
+    for _ in range(3 if users < 10_000 else 1):
+        t0 = time.perf_counter()
+        sums = simulate_users(world, spec, range(users), threads=threads)
+        best = max(best, int(sums.trials.sum()) / (time.perf_counter() - t0))
+    return best
+
+
+def _trained_ppo(world: Any, steps: int) -> Any:
+    agent = agent_from_spec({"name": "ppo", "hyperparameters": {"n_steps": 128, "batch_size": 64}})
+    agent.train(world, total_timesteps=steps, seed=0, progress_bar=False, n_envs=8)
+    return agent
+
+
+def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print) -> None:
+    """Per-family trials per second (``quick``: 1,024 users only, one thread)."""
+    schedule = {"sessions": sessions, "trials_per_session": 40}
+    world = make_world(schedule=schedule)
+    cores = os.cpu_count() or 1
+    cart = cartpole_vector_steps_per_s()
+    out(f"\nA. Agent families on {sessions * 40} trials per user; load average {_load()}")
+    out(f"   CartPole-v1 native vector env, 1,024 envs: {cart:>12,.0f} steps/s (reference)")
+    families = list(FAMILIES)
+    extra: dict[str, Any] = {}
+    if sb3:
+        t0 = time.perf_counter()
+        extra["sb3: ppo"] = _trained_ppo(world, 1_024 if quick else 4_096)
+        out(f"   (trained a small PPO model in {time.perf_counter() - t0:.1f} s)")
+        families.append(("sb3: ppo", {}, True))
+    for family, spec, compiled in families:
+        agent = extra.get(family)
+        spec_or_agent: Any = agent if agent is not None else spec
+        if agent is None:
+            prepared = build_agent(spec, world)
+            if isinstance(prepared, PreparedAgent):
+                out(f"   {family}: planning the world took {prepared.prepare():.2f} s (not in the figures below)")
+        looped = looped_trials_per_s(spec, schedule, users=2 if "planner" in family or agent else 4, agent=agent)
+        out(f"   {family}")
+        out(f"      looped gymnasium.make env + agent: {looped:>12,.0f} trials/s")
+        for users in USERS[:1] if quick or not compiled else USERS:
+            for threads in (1,) if quick else (1, cores):
+                if agent is not None and threads > 1:
+                    continue
+                rate = batched_trials_per_s(world, spec_or_agent, users, threads)
+                verdict = "meets" if rate >= 100 * looped and rate >= 0.5 * cart else "below"
+                out(f"      batched, {users:>7,} users, {threads} thread{'s' if threads > 1 else ' '}: {rate:>12,.0f} "
+                    f"trials/s  {rate / looped:>8,.1f}x looped  {rate / cart:5.2f}x CartPole vec  "
+                    f"(targets 100x, 0.5x: {verdict})")
+        if not compiled:
+            out("      (no compiled decision: 100,000 users not timed)")
+    out(f"   load average at end {_load()}")
+
+
+def heldout_spec(points: int = 48, users: int = 6) -> dict[str, Any]:
+    """The held-out style sweep: LHS points x (always-menu, learn-first-1, planner), 120 trials per user."""
+    return {
+        "name": "bench_heldout",
+        "base": {"schedule": {"sessions": 3, "trials_per_session": 40, "gap_h": 20.0}},
+        "vary": {"design": "lhs", "points": points, "seed": 1, "parameters": {
+            "costs.klm.keystroke_s": {"low": 0.1, "high": 0.6},
+            "costs.learn.encoding_s": {"low": 1.0, "high": 20.0, "scale": "log"},
+            "memory.threshold": {"low": -4.0, "high": -2.0},
+        }},
+        "agents": [{"name": "always_menu"}, {"name": "learn_first_k", "params": {"k": 1}}, {"name": "bounded_optimal"}],
+        "seeds": {"first": 0, "count": users},
+        "outputs": {"plots": False},
+    }
+
+
+def part_heldout(quick: bool, out: Out = print) -> None:
+    """The held-out style sweep on 2 local processes: wall time, simulation and planning compute."""
+    points = 8 if quick else 48
+    spec = heldout_spec(points)
+    runs = points * 3
+    with tempfile.TemporaryDirectory() as tmp:
+        t0 = time.perf_counter()
+        report = run_sweep(spec, Path(tmp) / "s", workers=2, progress=False, write_outputs=False)
+        wall = time.perf_counter() - t0
+        metas = [json.loads(p.read_text()) for p in (Path(tmp) / "s" / "runs").glob("*/meta.json")]
+    plan_s = sum(m["plan_s"] for m in metas)
+    compute_s = sum(m["compute_s"] for m in metas)
+    verdict = "meets" if compute_s - plan_s < 3.0 else "above"
+    out(f"\nB. Held-out style sweep: {points} points x 3 agents x 6 users x 120 trials ({runs} runs), 2 processes")
+    out(f"   wall {wall:.2f} s; in-worker compute {compute_s:.2f} s = planning {plan_s:.2f} s "
+        f"+ simulation {compute_s - plan_s:.2f} s (target < 3 s after planning: {verdict}); "
+        f"{len(report.failed)} failed")
+
+
+def _load() -> str:
+    return ", ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
+def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True) -> None:
+    """Both parts (``quick``: 1,024 users, one thread, an 8-point sweep)."""
+    part_families(sessions, quick, sb3, out)
+    part_heldout(quick, out)
