@@ -126,6 +126,7 @@ class ScheduleArrays(NamedTuple):
     clock_s: np.ndarray  # sched_clock: memory clock of the trial
     session: np.ndarray  # sched_session: session index (int64)
     gap_total_s: np.ndarray  # sched_gap: time in between-session gaps before the trial
+    noise: np.ndarray  # sched_noise: factor on the trial's time and breakdown (1.0 without costs.noise)
 
 
 class UserArrays(NamedTuple):

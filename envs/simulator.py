@@ -61,11 +61,13 @@ class BatchSimulator:
     """Step ``n_users`` simulated users of one :class:`World` in lock step.
 
     The arrays the compiled kernel reads and writes (B users, C commands, T trials; columns named
-    by the index constants of :mod:`shortcut_gym.envs.kernel`; times in seconds):
+    by the index constants of :mod:`shortcut_gym.envs.kernel` and documented field by field in
+    :mod:`shortcut_gym.envs.kernel_layout`; times in seconds):
 
     - ``kernel_params`` (float, ``P_*`` and ``W_*``) and ``kernel_int_params`` (int, ``I_*``): the
       world's costs, memory and observation settings (:meth:`World.parameters`);
-      ``command_constants`` (C, ``C_*``): menu search, decision and pointing times and hotkey key count.
+      ``command_constants`` (C, ``C_*``): menu search, decision and pointing times, hotkey key
+      count and the interface aids' constants.
     - ``sched_command``, ``sched_uniform``, ``sched_onset``, ``sched_clock``, ``sched_session``,
       ``sched_gap`` (B, T): each trial's target, its recall uniform, onset, memory clock (onset
       with session gaps scaled), session index and gap time before it; ``sched_noise`` (B, T): the
@@ -73,7 +75,7 @@ class BatchSimulator:
     - ``command_float_state`` (B, C, ``F_*``): folded-in old ACT-R traces, exponential trace
       strength and time, onset of the last use; ``command_counts`` (B, C, ``S_*``, int): stored
       traces, menu selections, exposures, hotkey successes and failures, learn actions;
-      ``traces`` (B, C, capacity, 3): each stored trace's clock time, weight and decay;
+      ``traces`` (B, C, capacity, ``T_*``): each stored trace's clock time, weight and decay;
       ``user_state`` (B, ``U_*``, int): upcoming trial index and hand position.
     - After each step: ``reward`` (B, -seconds), ``outcome`` (B, ``OUT_*``), ``operator_time_s``
       (B, ``O_*``: seconds per operator), ``p_recall`` (B) and ``obs`` (B, ``World.obs_dim``).
@@ -168,8 +170,8 @@ class BatchSimulator:
                 self.sched_clock[rows] = self._clock
                 self.sched_session[rows] = self._session
                 self.sched_gap[rows] = self._gap
-        self.schedules = _LazySchedules(self, given)  # type: ignore[arg-type]
         self.sched_noise = self._noise_factors(n, h, seeds, gens)
+        self.schedules = _LazySchedules(self, given)  # type: ignore[arg-type]
         cap = self._trace_capacity(c)
         self.n_users, self.horizon = n, h
         self.command_float_state = np.zeros((n, c, k.N_FS))
@@ -221,7 +223,7 @@ class BatchSimulator:
     def schedule_arrays(self) -> ScheduleArrays:
         """This batch's ``sched_*`` arrays, named."""
         return ScheduleArrays(self.sched_command, self.sched_uniform, self.sched_onset, self.sched_clock,
-                              self.sched_session, self.sched_gap)
+                              self.sched_session, self.sched_gap, self.sched_noise)
 
     @property
     def user_arrays(self) -> UserArrays:

@@ -85,7 +85,7 @@ def test_named_views_report_the_trial_history(memory: str) -> None:
         sim.step(acts)
         history += [(b, t, int(cmds[b]), int(acts[b]), int(sim.outcome[b])) for b in range(2)]
     sched = sim.schedule_arrays
-    assert isinstance(sched, ScheduleArrays) and sched.command is sim.sched_command
+    assert isinstance(sched, ScheduleArrays) and sched.command is sim.sched_command and sched.noise is sim.sched_noise
     assert isinstance(sim.user_arrays, UserArrays) and sim.user_arrays.traces is sim.traces
     for b in range(2):
         assert sim.user_state_of(b).trial == sim.horizon
