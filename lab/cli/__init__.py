@@ -27,6 +27,7 @@ COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cli.bench",
     "shortcut_gym.lab.cli.allot",
     "shortcut_gym.lab.cli.aids",
+    "shortcut_gym.lab.cli.yardstick",
 ]
 
 

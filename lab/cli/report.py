@@ -7,6 +7,7 @@ import argparse
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli.options import add_common, add_skip_bad, models_of, priors_of, report_skipped
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
+from shortcut_gym.lab.cli.yardstick import add_planner_options
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.report import analyse_log
 
@@ -33,6 +34,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--sims", type=whole_number(1), default=50, help="simulated replicates per participant x model")
     p.add_argument("--block", type=_block, default="session", help="'session' or trials per block")
     p.add_argument("--knockout", default=None, help="label of a learning model whose mechanisms to knock out")
+    p.add_argument("--rationality", action="store_true",
+                   help="add the yardstick section: each participant against the planner in their own world "
+                        "(the --model models are the learning models it is compared with)")
+    add_planner_options(p)
     p.add_argument("--hierarchical", action="store_true",
                    help="also fit each model hierarchically and weigh its integrated BIC in the verdict")
     p.add_argument("--cross-validate", action="store_true",

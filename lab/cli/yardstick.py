@@ -1,0 +1,71 @@
+"""``shortcut-gym yardstick``: was each participant bounded-optimal given their own costs?
+
+Fits each participant's operator times to their trial durations, plans for the world they imply,
+scores their choices against the plan and fits the planned-choice model against the learning
+models given with ``--model``; writes tables, plots and ``index.md`` into ``--out``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.options import MODEL_HELP, add_common, add_skip_bad, parse_model, report_skipped
+from shortcut_gym.lab.cli.ranges import input_file, whole_number
+from shortcut_gym.lab.data.logs import read_log
+from shortcut_gym.lab.rationality import PLANNED, PlannerOptions, rationality_analysis
+from shortcut_gym.lab.rationality.report import write_rationality
+from shortcut_gym.lab.report.markdown import write_index
+
+
+def add_planner_options(p: argparse.ArgumentParser) -> None:
+    """The yardstick planner's grid and selection options, and the duration likelihood."""
+    p.add_argument("--plan-bins", type=whole_number(2, 200), default=20, help="planner activation grid points")
+    p.add_argument("--plan-weight-bins", type=whole_number(1, 50), default=5, help="planner trace-weight grid points")
+    p.add_argument("--plan-select-users", type=whole_number(0, 1024), default=0,
+                   help="simulated users on which the planner picks among its plans and fixed rules (0: none)")
+    p.add_argument("--optimum-sims", type=whole_number(1, 4096), default=16,
+                   help="simulated planner users per participant for the optimum time")
+    p.add_argument("--duration-noise", choices=("lognormal", "gaussian"), default="lognormal",
+                   help="duration likelihood of the operator-time fit")
+
+
+def planner_options_of(args: argparse.Namespace) -> PlannerOptions:
+    """The :class:`PlannerOptions` of :func:`add_planner_options`."""
+    return PlannerOptions(args.plan_bins, args.plan_weight_bins, None, args.plan_select_users)
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``yardstick`` subcommand."""
+    p = sub.add_parser("yardstick", help="each participant's choices against the planner in their own world")
+    p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
+    add_common(p, models=False)
+    p.add_argument("--model", action="append", default=None,
+                   help=f"learning model to compare with planned_choice (default rescorla_wagner); {MODEL_HELP}")
+    add_skip_bad(p)
+    add_planner_options(p)
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Write the folder; print the per-participant table and the group figures."""
+    world = make_world(args.scenario)
+    learning = [parse_model(m) for m in (args.model or ["rescorla_wagner"])]
+    if any(s.label == PLANNED for s in learning):
+        raise CLIError(f"--model: {PLANNED!r} is the model every learning model is compared with; give learning "
+                       "models only")
+    log = read_log(args.log, world.commands, args.skip_bad_participants)
+    report_skipped(log)
+    start = time.perf_counter()
+    result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed, args.jobs,
+                                  args.duration_noise, args.optimum_sims)
+    entries, sections = write_rationality(result, args.out)
+    index = write_index(args.out, entries, "Rationality against each participant's own optimum", sections)
+    cols = [c for c in ("participant", "time_lost_s", "excess_time_s", "optimal_share", "beta", "beta_low",
+                        "beta_high", "better_model") if c in result.participants.columns]
+    print(result.participants[cols].to_string(index=False, float_format=lambda v: f"{v:.3g}"))
+    print(result.group.to_string(index=False, float_format=lambda v: f"{v:.3g}"))
+    print(f"report in {index.parent} ({time.perf_counter() - start:.1f} s)")
+    return 0

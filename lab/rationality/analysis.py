@@ -1,0 +1,256 @@
+"""Was each participant bounded-optimal? Their choices against the yardstick planner in their own world.
+
+Per participant: the operator times fitted to their own trial durations (:mod:`..fitting.durations`)
+give the world they imply; the yardstick planner (:class:`~shortcut_gym.agents.planner.BoundedOptimalPlanner`)
+plans for that world and tracks their memory from their logged outcomes. On every logged trial:
+
+* the optimal action a* is what the planner executes in the participant's state (its ``decide``);
+* the time lost is Q(a*) - Q(a), the planner's expected seconds (this use and the later ones of the
+  command) given up by the logged action a. Summed over trials this is the performance-difference
+  estimate of the whole history's loss against the optimum (Kakade & Langford 2002, "Approximately
+  optimal approximate reinforcement learning", ICML, lemma 6.1): E[sum of advantages along one's own
+  trajectory] = V(own policy) - V(optimal). It is zero for the planner's own choices. It is in the
+  planner's own accounting, which charges each hand switch to both trials beside it (the planner's
+  approximation 2), so it overstates losses that come from homing (about twice the simulated loss
+  of an always-menu user on the demo scenario);
+* the excess time is the logged time minus the planner's mean time over ``n_sims`` simulated users
+  on the participant's own schedule in their world (with its standard error): the loss in seconds
+  as the simulator counts it, including the participant's luck with recall and trial-time noise.
+
+Per command: whether learning it pays *for them* (the planner's analytic break-even in their world,
+:func:`~shortcut_gym.agents.planner.break_even_table`, and whether the planner ever chooses learn or
+hotkey for it on their history) and whether they learned it (a learn trial, and most hotkey attempts
+of its last half of uses recalled). The rationality index is the fitted inverse temperature of the
+``planned_choice`` model in their world with its profile-likelihood interval (ln L within
+chi2(1, 0.95) / 2 = 1.92 of the maximum, Wilks 1938); the planned-choice model is compared by BIC
+with the learning models fitted to the same choices.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+from collections.abc import Sequence
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import optimize
+
+from shortcut_gym.agents.base import AgentContext, Transition
+from shortcut_gym.agents.planned_choice import BETA_MAX, cached_plan
+from shortcut_gym.agents.planner import break_even_table
+from shortcut_gym.agents.rollout import drive_batch
+from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.kernel import ACTION_NAMES
+from shortcut_gym.envs.simulator import BatchSimulator
+from shortcut_gym.envs.world import World
+from shortcut_gym.lab.compare import bms_of_fits
+from shortcut_gym.lab.data.logs import participant_trials, participants, schedule_of
+from shortcut_gym.lab.fitting import ModelSpec, fit_durations, fit_participant, joint_table, loglik_function
+
+#: chi2(1) 95% quantile / 2: the drop in ln L bounding a 95% profile-likelihood interval (Wilks 1938).
+PROFILE_DROP = 3.841458820694124 / 2.0
+PLANNED = "planned_choice"
+
+
+@dataclass(frozen=True)
+class PlannerOptions:
+    """Options of the yardstick planner used for every participant (see ``BoundedOptimalPlanner``)."""
+
+    n_bins: int = 20
+    n_weight_bins: int = 5
+    keyboard_share: float | None = None
+    select_users: int = 0
+
+    def spec(self, world: World) -> ModelSpec:
+        """The planned-choice model in ``world`` with these planner options."""
+        return ModelSpec(PLANNED, options={"world": world, "n_bins": self.n_bins, "n_weight_bins": self.n_weight_bins,
+                                           "keyboard_share": self.keyboard_share, "select_users": self.select_users})
+
+
+@dataclass
+class RationalityResult:
+    """Tables of the rationality analysis (see the module docstring)."""
+
+    participants: pd.DataFrame
+    commands: pd.DataFrame
+    trials: pd.DataFrame
+    fits: pd.DataFrame
+    durations: pd.DataFrame
+    group: pd.DataFrame = field(default_factory=pd.DataFrame)
+
+
+def own_world(base: World, estimates: dict[str, float], n_trials: int) -> World:
+    """The world a participant's fitted operator times imply (the base world's schedule, which must
+    cover their ``n_trials``)."""
+    from shortcut_gym.lab.fitting import implied_world
+
+    if n_trials > base.horizon:
+        raise ConfigError(f"a participant has {n_trials} trials, the world's schedule only {base.horizon}; give "
+                          "a world whose schedule covers the log")
+    return implied_world(base, estimates)
+
+
+def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
+    """Per logged trial: the planner's action values, its optimal action and the time lost (s)."""
+    planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
+    d = trials.sort_values("trial", kind="stable")
+    command = d["command"].to_numpy(dtype=np.int64)
+    outcome = d["outcome"].astype(str).to_numpy()
+    code = {n: i for i, n in enumerate(ACTION_NAMES)}
+    action = np.array([code[str(a)] for a in d["action"]], dtype=np.int64)
+    n = len(d)
+    q = np.empty((n, 3))
+    best = np.empty(n, dtype=np.int64)
+    empty = np.zeros(0, dtype=np.float32)
+    for t in range(n):
+        c = int(command[t])
+        q[t] = planner.action_values(c, t)
+        best[t] = planner.decide(c, t)
+        info = {"command": c, "trial": t, "outcome": outcome[t]}
+        planner.observe(Transition(empty, int(action[t]), 0.0, empty, info))
+    rows = np.arange(n)
+    return pd.DataFrame({
+        "trial": d["trial"].to_numpy(), "command": command, "action": d["action"].astype(str).to_numpy(),
+        "optimal_action": np.array(ACTION_NAMES, dtype=object)[best], "q_menu": q[:, 0], "q_hotkey": q[:, 1],
+        "q_learn": q[:, 2], "time_lost_s": q[rows, best] - q[rows, action], "optimal": action == best,
+    })
+
+
+def planner_time_s(trials: pd.DataFrame, world: World, options: PlannerOptions, n_sims: int,
+                   seed: int) -> tuple[float, float]:
+    """Mean and standard error of the planner's total time (s) over ``n_sims`` simulated users on
+    the participant's own schedule (targets and onsets) in ``world``."""
+    schedule = schedule_of(trials.sort_values("trial", kind="stable"))
+    seeds = [int(x) for x in np.random.SeedSequence([seed, 0x71AE]).generate_state(n_sims)]
+    sim = BatchSimulator(world)
+    sim.reset(seeds=seeds, schedules=[schedule] * n_sims)
+    planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
+    totals = drive_batch(sim, planner, seeds).sums.time_s.sum(axis=1)
+    return float(totals.mean()), float(totals.std(ddof=1) / np.sqrt(n_sims)) if n_sims > 1 else float("nan")
+
+
+def command_table(trials: pd.DataFrame, assessed: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
+    """Per command of one participant: does learning pay for them, did they learn it."""
+    pays = break_even_table(world, options.keyboard_share, options.n_bins).set_index("command")
+    rows = []
+    for c, part in trials.groupby("command", sort=True):
+        mine = assessed[assessed["command"] == c]
+        half = part.iloc[len(part) // 2:]
+        attempts = half[half["action"] == "hotkey"]
+        recalled = float((attempts["outcome"] == "hotkey").mean()) if len(attempts) else 0.0
+        learned = bool(((part["action"] == "learn").any() or (part["outcome"] == "hotkey").any())
+                       and len(attempts) >= max(1, len(half) // 2) and recalled >= 0.5)
+        rows.append({"command": int(c), "uses": len(part),
+                     "learning_pays": bool(pays.loc[c, "learning_pays"]),
+                     "break_even_uses": float(pays.loc[c, "break_even_uses"]),
+                     "planner_uses_hotkey": bool((mine["optimal_action"] != "menu").any()),
+                     "learned": learned, "hotkey_share_last_half": float((half["outcome"] == "hotkey").mean()),
+                     "time_lost_s": float(mine["time_lost_s"].sum())})
+    return pd.DataFrame(rows)
+
+
+def profile_interval(f: Any, beta_hat: float, ll_hat: float) -> tuple[float, float]:
+    """95% profile-likelihood interval of the inverse temperature (one parameter: the likelihood itself)."""
+    def g(b: float) -> float:
+        return f(np.array([b])) - (ll_hat - PROFILE_DROP)
+
+    lo = 0.0 if g(0.0) >= 0 else optimize.brentq(g, 0.0, beta_hat) if beta_hat > 0 else 0.0
+    hi = BETA_MAX if g(BETA_MAX) >= 0 else optimize.brentq(g, beta_hat, BETA_MAX)
+    return float(lo), float(hi)
+
+
+def _participant(job: tuple) -> dict[str, Any]:
+    pid, trials, base, options, learning, n_starts, seed, noise, n_sims = job
+    dfit = fit_durations(trials, base, noise, pid)
+    world = own_world(base, dfit.estimates, len(trials))
+    assessed = assess_choices(trials, world, options).assign(participant=pid)
+    commands = command_table(trials, assessed, world, options).assign(participant=pid)
+    ctx = AgentContext(base.commands.n_commands, len(trials), base.commands.names, tuple(base.observation_names()))
+    spec = options.spec(world)
+    fits = [fit_participant(spec, trials, ctx, n_starts, np.random.SeedSequence([seed, 0]), participant=pid)]
+    for j, s in enumerate(learning):
+        fits.append(fit_participant(s, trials, ctx, n_starts, np.random.SeedSequence([seed, j + 1]), participant=pid))
+    planned = fits[0]
+    optimum_s, optimum_se = planner_time_s(trials, world, options, n_sims, seed)
+    f, _ = loglik_function(spec, trials, ctx)
+    lo, hi = profile_interval(f, planned.params["beta"], planned.loglik)
+    best_learning = min(fits[1:], key=lambda r: r.bic) if learning else None
+    row: dict[str, Any] = {
+        "participant": pid, "n_trials": len(trials), "observed_time_s": float(trials["duration_s"].sum()),
+        "time_lost_s": float(assessed["time_lost_s"].sum()),
+        "optimum_time_s": optimum_s, "optimum_time_se": optimum_se,
+        "excess_time_s": float(trials["duration_s"].sum()) - optimum_s,
+        "optimal_share": float(assessed["optimal"].mean()),
+        "beta": planned.params["beta"], "beta_low": lo, "beta_high": hi,
+        "planned_bic": planned.bic,
+        "commands_pay": int(commands["learning_pays"].sum()), "commands_learned": int(commands["learned"].sum()),
+        "learned_where_pays": int((commands["learning_pays"] & commands["learned"]).sum()),
+        "duration_cv": dfit.cv, **{f"own_{k}": v for k, v in dfit.estimates.items()},
+    }
+    if best_learning is not None:
+        row.update(best_learning_model=best_learning.model, learning_bic=best_learning.bic,
+                   delta_bic=best_learning.bic - planned.bic,
+                   better_model=PLANNED if planned.bic < best_learning.bic else best_learning.model)
+    return {"row": row, "commands": commands, "trials": assessed, "fits": [r.row() for r in fits],
+            "duration": dfit.row()}
+
+
+def rationality_analysis(log: pd.DataFrame, base: World, learning: Sequence[ModelSpec] = (),
+                         options: PlannerOptions | None = None, n_starts: int = 5, seed: int = 0, n_jobs: int = 1,
+                         noise: str = "lognormal", n_sims: int = 16) -> RationalityResult:
+    """The rationality analysis of every participant of a validated log (see the module docstring).
+
+    ``learning``: the learning models the planned-choice model competes with (labels must differ
+    from ``planned_choice``). ``n_jobs`` > 1 runs participants on that many processes.
+    """
+    options = options or PlannerOptions()
+    labels = [s.label for s in learning]
+    if PLANNED in labels or len(set(labels)) != len(labels):
+        raise ConfigError(f"learning model labels must be unique and not {PLANNED!r}, got {labels}")
+    if n_sims < 1:
+        raise ConfigError(f"n_sims must be >= 1, got {n_sims}")
+    jobs = [(pid, participant_trials(log, pid), base, options, list(learning), n_starts, seed, noise, n_sims)
+            for pid in participants(log)]
+    if n_jobs <= 1:
+        parts = [_participant(j) for j in jobs]
+    else:
+        with ProcessPoolExecutor(max_workers=n_jobs, mp_context=multiprocessing.get_context("spawn")) as pool:
+            parts = list(pool.map(_participant, jobs))
+    per = pd.DataFrame([p["row"] for p in parts])
+    fits = pd.DataFrame([r for p in parts for r in p["fits"]])
+    durations = pd.DataFrame([p["duration"] for p in parts])
+    result = RationalityResult(per, pd.concat([p["commands"] for p in parts], ignore_index=True),
+                               pd.concat([p["trials"] for p in parts], ignore_index=True),
+                               joint_table(fits, durations), durations)
+    result.group = group_summary(result)
+    return result
+
+
+def group_summary(result: RationalityResult) -> pd.DataFrame:
+    """One row per figure of the group (means with their SE over participants, counts, BMS)."""
+    per = result.participants
+    n = len(per)
+    rows = []
+    for name in ("time_lost_s", "excess_time_s", "optimal_share", "beta"):
+        v = per[name].to_numpy(dtype=float)
+        rows.append({"figure": f"mean {name}", "value": float(v.mean()),
+                     "se": float(v.std(ddof=1) / np.sqrt(n)) if n > 1 else float("nan")})
+    rows.append({"figure": "median beta", "value": float(per["beta"].median()), "se": float("nan")})
+    cmd = result.commands
+    rows.append({"figure": "share of commands where learning pays that were learned",
+                 "value": float(cmd.loc[cmd["learning_pays"], "learned"].mean()) if cmd["learning_pays"].any()
+                 else float("nan"), "se": float("nan")})
+    rows.append({"figure": "share of commands where learning does not pay that were learned",
+                 "value": float(cmd.loc[~cmd["learning_pays"], "learned"].mean()) if (~cmd["learning_pays"]).any()
+                 else float("nan"), "se": float("nan")})
+    if "better_model" in per:
+        rows.append({"figure": "participants better explained by planned_choice (BIC)",
+                     "value": float((per["better_model"] == PLANNED).sum()), "se": float("nan")})
+        if result.fits["model"].nunique() > 1 and n > 1:
+            bms = bms_of_fits(result.fits).table().set_index("model")
+            rows.append({"figure": "BMS protected exceedance probability of planned_choice",
+                         "value": float(bms.loc[PLANNED, "protected_exceedance"]), "se": float("nan")})
+    return pd.DataFrame(rows)

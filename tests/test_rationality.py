@@ -1,0 +1,137 @@
+"""The rationality analysis: choices against the yardstick planner in each participant's own world."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from shortcut_gym.agents import make_agent
+from shortcut_gym.agents.planned_choice import cached_plan
+from shortcut_gym.envs.env import CommandSelectionEnv
+from shortcut_gym.envs.world import make_world
+from shortcut_gym.lab.checks.predictive import simulate_log
+from shortcut_gym.lab.checks.recovery import model_recovery, parameter_recovery
+from shortcut_gym.lab.data.logs import participant_trials, schedule_of, validate_log
+from shortcut_gym.lab.fitting import ModelSpec
+from shortcut_gym.lab.rationality import rationality_analysis
+
+SCHEDULE = {"sessions": 4, "trials_per_session": 40}
+
+
+@pytest.fixture(scope="module")
+def world():
+    return make_world(schedule=SCHEDULE)
+
+
+@pytest.fixture(scope="module")
+def analysed(world):
+    rng = np.random.default_rng(0)
+    planner = make_agent("bounded_optimal", world=world, n_bins=20, n_weight_bins=5, select_users=0)
+    log = pd.concat([simulate_log(world, planner, 1, rng, prefix="plan"),
+                     simulate_log(world, make_agent("always_menu"), 1, rng, prefix="menu")], ignore_index=True)
+    log = validate_log(log, world.commands)
+    return log, rationality_analysis(log, world, [ModelSpec("rescorla_wagner")], n_starts=2, n_sims=24)
+
+
+def test_the_planner_itself_loses_no_time_and_always_chooses_optimally(analysed):
+    _, res = analysed
+    me = res.participants.set_index("participant").loc["plan-0"]
+    assert me["time_lost_s"] == 0.0
+    assert me["optimal_share"] == 1.0
+    assert res.trials.loc[res.trials["participant"] == "plan-0", "optimal"].all()
+    # its excess over the planner's own simulated mean is luck only (its recall draws): within 3 SD
+    # of one simulated user's total (SE x sqrt(24 simulations))
+    assert abs(me["excess_time_s"]) < 3 * me["optimum_time_se"] * np.sqrt(24)
+
+
+def test_always_menu_loses_what_the_planner_predicts_on_its_schedule(analysed, world):
+    log, res = analysed
+    me = res.participants.set_index("participant").loc["menu-0"]
+    trials = participant_trials(log, "menu-0")
+    # the planner's predicted loss, by an independent path: the Gymnasium env replaying the schedule
+    env = CommandSelectionEnv(world=world)
+    planner = cached_plan(world, None, 20, 5, 0)
+    totals = []
+    for seed in range(24):
+        env.reset(seed=1000 + seed, options={"schedule": schedule_of(trials)})
+        totals.append(run_episode_on_reset(env, planner, seed))
+    predicted = trials["duration_s"].sum() - np.mean(totals)
+    se = np.std(totals, ddof=1) / np.sqrt(len(totals))
+    assert predicted > 20.0
+    assert me["excess_time_s"] == pytest.approx(predicted, abs=4 * np.hypot(se, me["optimum_time_se"]))
+    assert me["time_lost_s"] > 0 and me["optimal_share"] < 1.0
+    assert me["commands_learned"] == 0
+
+
+def run_episode_on_reset(env, agent, seed):
+    """Total seconds of one episode of ``agent`` on an env already reset with a replayed schedule."""
+    from shortcut_gym.agents.base import Transition
+
+    agent.reset(seed)
+    obs, info = env.unwrapped._sim.obs[0].copy(), env.unwrapped._upcoming_info()
+    total, done = 0.0, False
+    while not done:
+        a = agent.act(obs, info)
+        nxt, r, term, trunc, step = env.step(a)
+        agent.observe(Transition(obs, a, r, nxt, step, term, trunc))
+        total -= r
+        obs, info, done = nxt, step, term or trunc
+    return total
+
+
+def test_commands_say_where_learning_pays_and_the_group_table_has_the_figures(analysed):
+    _, res = analysed
+    cmd = res.commands
+    assert set(cmd["participant"]) == {"plan-0", "menu-0"}
+    assert cmd["learning_pays"].any() and not cmd["learning_pays"].all()
+    assert not cmd.loc[cmd["participant"] == "menu-0", "learned"].any()
+    figures = set(res.group["figure"])
+    assert {"mean time_lost_s", "mean optimal_share", "median beta"} <= figures
+    assert {"joint_loglik", "joint_bic"} <= set(res.fits.columns)
+    beta = res.participants.set_index("participant")
+    assert beta.loc["plan-0", "beta_low"] > beta.loc["menu-0", "beta_high"]
+
+
+def test_inverse_temperature_is_recovered(world):
+    spec = ModelSpec("planned_choice", options={"world": world})
+    pairs, summary = parameter_recovery(world, spec, n_participants=14, seed=3, n_starts=2,
+                                        ranges={"beta": (0.1, 3.0)})
+    beta = pairs[pairs["parameter"] == "beta"]
+    r_log = np.corrcoef(np.log(beta["true"]), np.log(np.maximum(beta["fitted"], 1e-3)))[0, 1]
+    assert summary.set_index("parameter").loc["beta", "correlation"] >= 0.8
+    assert r_log >= 0.8, r_log
+
+
+def test_planned_choice_and_the_delta_rule_are_told_apart(world):
+    specs = [ModelSpec("planned_choice", options={"world": world}), ModelSpec("rescorla_wagner")]
+    confusion, _ = model_recovery(world, specs, n_participants=10, seed=5, n_starts=2,
+                                  ranges={"planned_choice": {"beta": (0.3, 6.0)}})
+    assert confusion.loc["planned_choice", "planned_choice"] >= 0.85
+    assert confusion.loc["rescorla_wagner", "rescorla_wagner"] >= 0.85
+
+
+def test_yardstick_cli_writes_the_folder_and_refuses_planned_choice_as_a_learning_model(tmp_path, capsys):
+    import yaml
+
+    from shortcut_gym.envs.config import bundled_config_dir
+    from shortcut_gym.lab.cli import main
+    from shortcut_gym.lab.data.logs import write_log
+
+    scenario = yaml.safe_load((bundled_config_dir() / "scenarios" / "tidepool_logbook.yaml").read_text())
+    scenario["schedule"].update(sessions=2, trials_per_session=30)
+    path = tmp_path / "small.yaml"
+    path.write_text(yaml.safe_dump(scenario))
+    world = make_world(path)
+    log = simulate_log(world, ModelSpec("rescorla_wagner"), 2, np.random.default_rng(1))
+    log_path = write_log(log, tmp_path / "log.csv")
+    out = tmp_path / "out"
+    code = main(["yardstick", str(log_path), "--scenario", str(path), "--out", str(out), "--starts", "1",
+                 "--optimum-sims", "4", "--quiet"])
+    assert code == 0
+    assert (out / "rationality_participants.csv").is_file() and (out / "time_lost.png").is_file()
+    assert "Rationality against each participant's own optimum" in (out / "index.md").read_text()
+    assert "sim-1" in capsys.readouterr().out
+    assert main(["yardstick", str(log_path), "--scenario", str(path), "--out", str(out), "--model",
+                 "planned_choice"]) == 2
+    assert "is the model every learning model is compared with" in capsys.readouterr().err
