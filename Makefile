@@ -39,10 +39,10 @@ test-lowest:
 	$(PYTHON) -m venv $(LOWEST_VENV)
 	$(LOWEST_VENV)/bin/python -m pip install --quiet --upgrade pip
 	$(LOWEST_VENV)/bin/python -m pip install --quiet torch==2.13.0
-	$(PYTHON) scripts/lowest_pins.py > $(LOWEST_VENV)/lowest-pins.txt
-	$(LOWEST_VENV)/bin/python -m pip install --quiet -c $(LOWEST_VENV)/lowest-pins.txt -e . \
+	$(PYTHON) scripts/lowest_pins.py --extra rl > $(LOWEST_VENV)/lowest-pins.txt
+	$(LOWEST_VENV)/bin/python -m pip install --quiet -c $(LOWEST_VENV)/lowest-pins.txt -e ".[rl]" \
 		"pytest>=8" "pytest-xdist>=3.5" "hypothesis>=6.100"
-	$(LOWEST_VENV)/bin/python scripts/lowest_pins.py --check
+	$(LOWEST_VENV)/bin/python scripts/lowest_pins.py --extra rl --check
 	$(LOWEST_VENV)/bin/pytest -n 2 -q $(LOWEST_TESTS)
 
 lint: $(STAMP)

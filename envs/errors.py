@@ -23,5 +23,20 @@ class InputFileError(ShortcutGymError, FileNotFoundError):
     """An input file the user named does not exist or cannot be read; the message names it."""
 
 
+class MissingExtraError(ShortcutGymError, ImportError):
+    """An optional dependency is not installed; the message names the extra that brings it."""
+
+
+def require_extra(module: str, extra: str) -> None:
+    """Import ``module`` or raise :class:`MissingExtraError` naming ``pip install 'shortcut-gym[extra]'``."""
+    import importlib
+
+    try:
+        importlib.import_module(module)
+    except ImportError as err:
+        raise MissingExtraError(f"{module} is not installed ({err}); it comes with the '{extra}' extra: "
+                                f"pip install 'shortcut-gym[{extra}]'") from None
+
+
 class UsageError(ShortcutGymError, RuntimeError):
     """An object was used out of order (e.g. ``step`` before ``reset``); the message says what to call."""

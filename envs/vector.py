@@ -23,7 +23,7 @@ from gymnasium.vector.utils import batch_space
 
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.env import CommandSelectionEnv
-from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.errors import ActionError, require_extra
 from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World, make_world
@@ -173,6 +173,7 @@ def _sb3_class() -> type:
     global _SB3_CLASS
     if _SB3_CLASS is not None:
         return _SB3_CLASS
+    require_extra("stable_baselines3", "rl")
     from stable_baselines3.common.vec_env.base_vec_env import VecEnv as SB3VecEnv
 
     class CommandSelectionSB3VecEnv(SB3VecEnv):

@@ -7,6 +7,7 @@ from __future__ import annotations
 import os
 import subprocess
 import sys
+import textwrap
 import tomllib
 from pathlib import Path
 
@@ -89,3 +90,37 @@ def test_regular_wheel_install_imports_every_subpackage(tmp_path: Path) -> None:
     for mod, path in info["mods"].items():
         assert Path(path).is_relative_to(target), (mod, path)
     assert (Path(info["configs"]) / "scenarios" / "tidepool_logbook.yaml").is_file()
+
+
+def test_the_base_install_works_without_the_rl_extra_and_names_it_when_needed(tmp_path: Path) -> None:
+    """torch and Stable-Baselines3 are the 'rl' extra: everything else imports and runs without them,
+    and an SB3 agent or VecEnv asked for without them names the extra to install."""
+    code = textwrap.dedent('''
+        import sys
+        class NotInstalled:  # as if torch and SB3 were not installed: importing them raises ImportError
+            def find_spec(self, name, path=None, target=None):
+                if name.split(".")[0] in ("torch", "stable_baselines3"):
+                    raise ImportError(f"No module named {name!r}")
+        sys.meta_path.insert(0, NotInstalled())
+        from shortcut_gym.agents import make_agent, run_episode
+        from shortcut_gym.envs import CommandSelectionEnv, make_world
+        from shortcut_gym.envs.errors import MissingExtraError
+        from shortcut_gym.envs.vector import make_sb3_vec_env
+        from shortcut_gym.lab.cli import main
+        world = make_world(schedule={"sessions": 1, "trials_per_session": 5})
+        assert len(run_episode(CommandSelectionEnv(world=world), make_agent("q_learning"), seed=0)) == 5
+        calls = (lambda: make_agent("ppo").train(world, 10, progress_bar=False), lambda: make_sb3_vec_env(2, world))
+        for call in calls:
+            try:
+                call()
+            except MissingExtraError as err:
+                assert "pip install 'shortcut-gym[rl]'" in str(err), err
+            else:
+                raise AssertionError("no MissingExtraError")
+        assert main(["train", "--agent", "ppo", "--out", sys.argv[1] + "/m.zip"]) == 2
+        assert "torch" not in sys.modules and "stable_baselines3" not in sys.modules
+        print("ok")
+    ''')
+    res = subprocess.run([sys.executable, "-c", code, str(tmp_path)], capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0 and res.stdout.strip().endswith("ok"), res.stderr[-3000:]
+    assert "shortcut-gym[rl]" in res.stderr  # the CLI's one line names the extra
