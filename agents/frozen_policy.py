@@ -350,3 +350,27 @@ def frozen_policy(agent, n_users: int, seeds: Sequence[int], rule_for,
     n_sessions = world.schedule.sessions if world is not None else 1
     return FrozenBatchPolicy(agent.name, n_users, seeds, context.n_commands, context.horizon, n_sessions, rule_for,
                              cell_columns)
+
+
+@njit(cache=True)
+def _sample_rows(cdf, pcg, out):
+    for b in range(cdf.shape[0]):
+        out[b] = _pick(cdf, b, _draw(pcg, b))
+
+
+class UserDraws:
+    """Each user's agent generator (``agent_rng(seed)``) as compiled PCG64 states: ``sample(p)``
+    draws one action per user as ``rng.choice(3, p=p[b])`` would."""
+
+    def __init__(self, name: str, seeds: Sequence[int]) -> None:
+        words = seed_words(np.asarray([int(s) for s in seeds]), (AGENT_STREAM,))
+        if words is None:
+            raise ValueError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {list(seeds)}")
+        self.pcg = np.zeros((len(seeds), 4), dtype=np.uint64)
+        _seed_all(words[0], words[1].astype(np.int64), self.pcg)
+
+    def sample(self, p: np.ndarray) -> np.ndarray:
+        """(B,) actions for probabilities ``p`` (B, 3)."""
+        out = np.empty(len(p), dtype=np.int64)
+        _sample_rows(np.ascontiguousarray(cdf_of(np.asarray(p, dtype=np.float64))), self.pcg, out)
+        return out

@@ -12,6 +12,7 @@ and torch are imported on first use; torch runs on :data:`~.algorithms.MAX_TORCH
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any, ClassVar
 
@@ -19,6 +20,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext
+from shortcut_gym.agents.frozen_policy import UserDraws
 from shortcut_gym.agents.rollout import context_of, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
@@ -117,6 +119,29 @@ class SB3Agent(Agent):
             probs = policy.get_distribution(tensor).distribution.probs[0].numpy().astype(np.float64)
         return probs / probs.sum()
 
+    def probability_rows(self, obs: np.ndarray) -> np.ndarray:
+        """(B, 3) :meth:`action_probabilities` of B observations in one forward pass of the policy."""
+        if self.model is None:
+            raise ValueError(f"{self.name}: train or load a model before use")
+        import torch
+
+        policy = self.model.policy
+        with torch.no_grad():
+            tensor = policy.obs_to_tensor(self._prepare(obs))[0]
+            if self.algorithm == "dqn":
+                q = policy.q_net(tensor).numpy()
+                eps = float(self.model.exploration_rate)
+                p = np.full((len(q), 3), eps / 3)
+                p[np.arange(len(q)), np.argmax(q, axis=1)] += 1 - eps
+                return p
+            probs = policy.get_distribution(tensor).distribution.probs.numpy().astype(np.float64)
+        return probs / probs.sum(axis=1, keepdims=True)
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> SB3BatchPolicy:
+        """The policy for many users: one forward pass per trial over every user's observation
+        (the vector env's batch), each user's action drawn from its own agent generator."""
+        return SB3BatchPolicy(self, n_users, seeds)
+
     def act(self, obs: np.ndarray, info: dict[str, Any]) -> int:
         p = self.action_probabilities(obs, info)
         if self.deterministic:
@@ -126,6 +151,28 @@ class SB3Agent(Agent):
     def evaluate(self, env: Any, seeds: list[int] | range) -> pd.DataFrame:
         """Total time (s) and hotkey share per simulated user."""
         return evaluate_agent(env, self, seeds)
+
+
+class SB3BatchPolicy:
+    """Users of one SB3 model: ``actions`` is one batched forward pass, then each user's draw."""
+
+    def __init__(self, agent: SB3Agent, n_users: int, seeds: Sequence[int]) -> None:
+        if len(seeds) != n_users:
+            raise ValueError(f"{agent.name}: {len(seeds)} seeds for {n_users} users")
+        if agent.model is None:
+            raise ValueError(f"{agent.name}: train or load a model before use")
+        self.agent = agent
+        self.draws = None if agent.deterministic else UserDraws(agent.name, seeds)
+
+    def actions(self, targets: np.ndarray, obs: np.ndarray) -> np.ndarray:
+        """One action per user from the model's distribution for its observation."""
+        p = self.agent.probability_rows(obs)
+        if self.draws is None:
+            return np.argmax(p, axis=1).astype(np.int64)
+        return self.draws.sample(p)
+
+    def observe(self, targets: np.ndarray, actions: np.ndarray, outcomes: np.ndarray, durations_s: np.ndarray) -> None:
+        """A trained model does not learn while it is simulated."""
 
 
 class PPOAgent(SB3Agent):
