@@ -4,7 +4,8 @@ The measurement lives in ``benchmarks.fit`` (also ``shortcut-gym bench --suite f
 the group-level suite instead (``benchmarks.group``: hierarchical EM on 100 participants x 500 trials,
 model selection on 10,000 participants x 5 models).
 
-Run: .venv/bin/python scripts/bench_fit.py [--participants 50] [--starts 10] [--jobs 2] | [--group]
+Run: .venv/bin/python scripts/bench_fit.py [--participants 50] [--starts 10] [--jobs 2]
+     [--rationality-participants 50] | [--group]
 """
 
 from __future__ import annotations

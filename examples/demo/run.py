@@ -8,6 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from demo.lab import lab_section
+from demo.rationality import rationality_section
 from demo.sweep import sweep_section
 from demo.zoo import zoo_section
 from shortcut_gym.envs.world import make_world
@@ -44,6 +45,7 @@ def main(argv: list[str] | None = None) -> int:
     zoo_section(args.out, args.users)
     lab_section(args.out, args.users)
     sweep_section(args.out)
+    rationality_section(args.out)
     print(f"\ndemo outputs in {args.out.resolve()}")
     return 0
 

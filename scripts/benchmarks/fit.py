@@ -9,7 +9,12 @@
 2. Fitting 3 models (static_softmax, choice_kernel, rescorla_wagner) x 50 participants x 1,000
    trials x 10 starts with 2 worker processes: wall time (target < 120 s).
 
-``quick`` uses 400 trials per participant, 4 participants, 2 starts and fewer repeats.
+3. The rationality analysis (lab/rationality: duration fit, own-world plan, choice scoring,
+   planned_choice and rescorla_wagner fits, optimum simulation) on 50 participants x 400 trials
+   with trial-time noise (CV 0.2) on 2 processes: wall time (target < 180 s).
+
+``quick`` uses 400 trials per participant, 4 participants, 2 starts and fewer repeats (and 3
+participants x 160 trials for part 3).
 """
 
 from __future__ import annotations
@@ -33,7 +38,7 @@ def _load() -> str:
 
 
 def run(quick: bool = False, out: Out = print, participants: int | None = None, starts: int | None = None,
-        jobs: int = 2) -> None:
+        jobs: int = 2, rationality_participants: int | None = None) -> None:
     """Print both parts; ``participants`` and ``starts`` default to 50 and 10 (4 and 2 when ``quick``)."""
     participants = participants if participants is not None else (4 if quick else 50)
     starts = starts if starts is not None else (2 if quick else 10)
@@ -112,4 +117,22 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     out(f"wall time {wall:.1f} s (target < 120 s); converged {int(fits['converged'].sum())}/{len(fits)}; "
         f"{wall / len(fits):.2f} s per participant x model")
     out(fits.groupby("model")[["loglik", "bic"]].sum().to_string(float_format=lambda v: f"{v:.1f}"))
+    rationality(quick, out, rationality_participants, jobs)
     out(f"load average (1, 5, 15 min) at end: {_load()}")
+
+
+def rationality(quick: bool, out: Out, participants: int | None, jobs: int) -> None:
+    """Part 3: wall time of the whole rationality analysis."""
+    from shortcut_gym.lab.rationality import rationality_analysis
+
+    n = participants if participants is not None else (3 if quick else 50)
+    world = make_world(schedule={"sessions": 4 if quick else 10, "trials_per_session": 40},
+                       costs={"noise": {"cv": 0.2}})
+    log = validate_log(simulate_log(world, ModelSpec("rescorla_wagner"), n, np.random.default_rng(1), prefix="R"),
+                       world.commands)
+    t = time.perf_counter()
+    result = rationality_analysis(log, world, [ModelSpec("rescorla_wagner")], n_starts=2, n_jobs=jobs)
+    wall = time.perf_counter() - t
+    out(f"\n== rationality analysis, {n} participants x {world.horizon} trials on {jobs} processes")
+    out(f"wall time {wall:.1f} s (target < 180 s for 50 x 400); {wall / n:.2f} s per participant")
+    out(result.group.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
