@@ -1,4 +1,4 @@
-"""Benchmark the agent zoo: decision cost, SB3 PPO fps, planner growth (see ``benchmarks.agents``).
+"""Benchmark the agent zoo: decision cost, SB3 PPO fps, planner growth, optimality gap (see ``benchmarks.agents``).
 
 Same as ``shortcut-gym bench --suite agents``.
 """

@@ -227,12 +227,11 @@ def _reference_action_values(agent, c: int, trial: int) -> np.ndarray:
     lat = m.latency_factor_s * math.exp(-a_now) if a_now > -math.inf else 0.0
     times = agent._times[c]
     home = world.costs.klm.home_s
-    ks = agent.plan.keyboard_share
     on_kb = 1.0 if agent._hand_on_keyboard else 0.0
     cmdc = agent._cmdc[c]
     novice = (cmdc[C_SEARCH] - cmdc[C_DECISION]) / (agent._menu_count[c] + 1)
-    start_menu = home * (on_kb - ks) + novice
-    start_hot = home * ((1.0 - on_kb) - (1.0 - ks))
+    start_menu = home * (on_kb - times.menu_keyboard_share) + novice
+    start_hot = home * ((1.0 - on_kb) - (1.0 - times.hotkey_keyboard_share))
     ok = times.hotkey_fixed_s + start_hot + lat + times.return_after_keyboard_s
     fail = times.failure_s + start_hot + novice + times.return_after_mouse_s
     q = np.array([-(times.menu_s + start_menu + times.return_after_mouse_s), -(p * ok + (1.0 - p) * fail),

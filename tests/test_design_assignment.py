@@ -107,7 +107,8 @@ def test_savings_are_the_planner_values_of_each_command_world(share: float) -> N
     assert np.all(table.saving_s >= 0) and table.saving_s[0, 0] > 0
     assert (table.uses == 1).any() and (table.uses > 1).any()
     for i, k in enumerate((1, 2, 3)):
-        plan = plan_world(with_keystrokes(world, k), keyboard_share=share, n_bins=16, max_uses=int(table.uses.max()))
+        plan = plan_world(with_keystrokes(world, k), keyboard_share=share, n_bins=16, max_uses=int(table.uses.max()),
+                          select_users=0, menu_expertise=False)  # the values the table separates
         for c in range(world.commands.n_commands):
             n_c = expected_uses(world, c)
             t = action_times(world, c, share)

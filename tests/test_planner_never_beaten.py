@@ -14,7 +14,7 @@ import pytest
 
 from shortcut_gym.agents import make_agent
 from shortcut_gym.agents.planner import SELECTION_SEED, build_command_mdp, plan_world
-from shortcut_gym.agents.planner.selection import simulate
+from shortcut_gym.agents.planner.selection import SELECTION_TRIALS, simulate
 from shortcut_gym.envs import make_world
 
 #: An invented four-command tool (two menus), Zipf usage, 3 sessions of 20 trials.
@@ -78,7 +78,7 @@ def test_selection_keeps_the_menu_where_the_plan_alone_lost():
     assert plan.simulated_time_s == min(table.values()) == table[plan.choice.label]
     alone = plan_world(world, n_bins=20, select_users=0)
     assert alone.choice.kind == "plan" and alone.choice.commands is None and not alone.candidate_times_s
-    seeds = [SELECTION_SEED + i for i in range(32)]
+    seeds = [SELECTION_SEED + i for i in range(max(32, -(-SELECTION_TRIALS // world.horizon)))]
     agent = make_agent("bounded_optimal", world=world, n_bins=20)
     agent.plan = plan
     assert simulate(world, agent, seeds)[0].mean() == pytest.approx(plan.simulated_time_s, abs=1e-9)

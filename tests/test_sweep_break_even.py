@@ -1,4 +1,4 @@
-"""The break-even map's boundary agrees with the planner's analytic break-even on the swept grid."""
+"""The break-even map's boundary agrees with the break-even rule on the swept grid."""
 
 from __future__ import annotations
 
@@ -55,7 +55,7 @@ def test_break_even_map_boundary_matches_the_analytic_rule(tmp_path: Path) -> No
     index = (tmp_path / "s" / "index.md").read_text()
     share = float(((sav > 0) == direct).mean())
     assert f"on {share:.0%} of the swept cells" in index
-    assert "![break-even map with the bounded-optimal boundary](plots/break_even.png)" in index
+    assert "![break-even map with the break-even rule's boundary](plots/break_even.png)" in index
     summary = pd.read_csv(tmp_path / "s" / "summary.csv")
     row = summary[(summary["agent"] == "learn_first_k(k=1)") & (summary["costs.klm.keystroke_s"] == 0.08)
                   & (summary["costs.learn.encoding_s"] == 0.5)]

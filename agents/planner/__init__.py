@@ -46,16 +46,19 @@ Approximations (each makes the planner exact only for its own model, not for the
    None (default) the plan finds its own shares by fixed point: start from a menu-only world,
    solve, measure the plan's usage-weighted share of uses that recall a hotkey (ks: the hand is
    on the keyboard before a trial) and that attempt one (q: the next trial wants the keyboard),
-   solve again (at most 6 rounds); the same from a keyboard-only start; keep the plan of smaller
-   :func:`predicted_time_s`. A menu then costs ks H, a hotkey (1 - ks) H,
-   and the action is charged the next trial's homing: q H if it leaves the hand on the mouse
-   (menu, learn, failed hotkey), (1 - q) H if on the keyboard. Each switch is thus counted by
-   both trials next to it: right for decisions (both cause it), so plan values overstate total
-   homing time. A number fixes ks = q. The shares of the other trials are taken as independent
-   of this command's state and constant over the horizon (the plan's average).
-3. Menu selections in the MDP are costed at full menu expertise (e = 1, Hick-Hyman decision
-   time); only the current trial's novice term (search - decision) / t for its t-th menu
-   selection is added at decision time, later uses keep e = 1.
+   solve again (at most 6 rounds); the same from a keyboard-only start. A trial next to this one
+   is the same command with its usage probability p_c and taken to repeat this trial's device, so
+   a hotkey sees the hand on the keyboard before and after it with p_c + (1 - p_c) ks (q), a menu
+   with (1 - p_c) ks (q). A menu then costs its share of H, a hotkey the rest, and the action is
+   charged the next trial's homing too. Each switch is thus counted by both trials next to it:
+   right for decisions (both cause it), so plan values overstate total homing time
+   (:func:`predicted_time_s` and the break-even table count each once). A number fixes ks = q
+   before every trial (no own-command correction). The shares of the other trials are taken as
+   independent of this command's state and constant over the horizon (the plan's average).
+3. Menu expertise: a menu selection at n uses left is taken as the command's t-th with
+   t = U - n + 1 (U its expected uses: exact on a menu-only path, too high after hotkey uses) and
+   pays the novice term (search - decision) / t on top of the full-expertise menu; at decision
+   time the current trial's term uses the known count. (``menu_expertise=False``: e = 1 throughout.)
 4. Recall latency and probability of a future use come from the grid state; commands are
    planned independently; failure costs use the world's commission share as an expectation.
 5. Uses left = 1 + round(p_c x trials after this one), not the realised count; the value of the
@@ -71,13 +74,16 @@ pays), and executes the fastest (:class:`PolicyChoice`, in ``Plan.choice``; ever
 ``Plan.candidate_times_s``). That is a policy of what the env shows.
 
 The agent (:class:`BoundedOptimalPlanner`) tracks each command's memory from its own history and
-costs the current trial exactly (see :mod:`.agent`). The analytic break-even
-(:func:`break_even_table`) compares the all-menu world with the learn-at-first-use world.
+costs the current trial exactly (see :mod:`.agent`). The break-even rule (:func:`break_even_table`)
+compares the all-menu world with the learn-at-first-use world with the recall the simulator's own
+memory gives along that path (:func:`learn_once_recall`). :mod:`.exact` solves small worlds exactly
+over the simulator's full state (the reference the planner's optimality gap is measured against).
 """
 
 from shortcut_gym.agents.planner.action_costs import ActionTimes, action_rewards, action_times
 from shortcut_gym.agents.planner.agent import BoundedOptimalPlanner
-from shortcut_gym.agents.planner.break_even import break_even_table, learn_once_recall
+from shortcut_gym.agents.planner.break_even import PATH_USERS, break_even_table, learn_once_recall
+from shortcut_gym.agents.planner.exact import ExactMDP, evaluate_exactly, exact_mdp, small_world
 from shortcut_gym.agents.planner.interpolation import GridConstants
 from shortcut_gym.agents.planner.mdp import GRID_HALF_WIDTH, CommandMDP, build_command_mdp
 from shortcut_gym.agents.planner.memory_model import N_GAP_QUANTILES, gap_distribution, weight_grid
@@ -95,12 +101,14 @@ from shortcut_gym.agents.planner.solver import CsrRows, hotkey_shares, solve_fin
 __all__ = [
     "GRID_HALF_WIDTH",
     "N_GAP_QUANTILES",
+    "PATH_USERS",
     "SELECTION_SEED",
     "SELECTION_USERS",
     "ActionTimes",
     "BoundedOptimalPlanner",
     "CommandMDP",
     "CsrRows",
+    "ExactMDP",
     "GridConstants",
     "NextUses",
     "Plan",
@@ -109,6 +117,8 @@ __all__ = [
     "action_times",
     "break_even_table",
     "build_command_mdp",
+    "evaluate_exactly",
+    "exact_mdp",
     "expected_uses",
     "gap_distribution",
     "hotkey_shares",
@@ -117,6 +127,7 @@ __all__ = [
     "plan_world",
     "predicted_time_s",
     "select_policy",
+    "small_world",
     "solve_finite_horizon",
     "state_occupancy",
     "weight_grid",

@@ -20,11 +20,10 @@ import numpy as np
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy
-from shortcut_gym.agents.planner.action_costs import action_times
 from shortcut_gym.agents.planner.batch import PlanLookupBatch, rule_policy
 from shortcut_gym.agents.planner.cache import timed_cached_plan
 from shortcut_gym.agents.planner.next_uses import next_use_points
-from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan
+from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, command_times
 from shortcut_gym.agents.planner.selection import rule_action
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.memory import (
@@ -39,11 +38,13 @@ from shortcut_gym.envs.world import World, make_world
 
 
 class BoundedOptimalPlanner(Agent):
-    """Looks up the exact optimal action of its discretised MDP (see the package docstring).
+    """Executes the policy its plan chose: the discretised MDP's argmax, restricted to some commands
+    or not, or a fixed rule that beat it on common simulated users (see the package docstring).
 
     Build with ``world=`` (a World, or a dict of :func:`make_world` arguments, e.g. from YAML);
     without it the bound context's ``world`` is used. Options: ``keyboard_share`` (0..1, or None
-    for the plan's own shares), ``n_bins``. Deterministic: ``action_probabilities`` is one-hot.
+    for the plan's own shares), ``n_bins``, ``n_weight_bins``, ``select_users`` (0: execute the
+    plan's argmax as it is). Deterministic: ``action_probabilities`` is one-hot.
     At decision time the plan's expected hand and menu-expertise costs of the current trial are
     replaced by the known ones (where the last trial left the hand; this command's menu count).
     """
@@ -107,7 +108,8 @@ class BoundedOptimalPlanner(Agent):
         onset, self._session, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
         if getattr(self, "_times_for", None) is not self.plan:
-            self._times = [action_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share)
+            self._times = [command_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share,
+                                         self.plan.own_device)
                            for c in range(world.commands.n_commands)]
             self._next_uses = next_use_points(world, self._clock)
             self._times_for = self.plan
@@ -187,12 +189,11 @@ class BoundedOptimalPlanner(Agent):
         lat = m.latency_factor_s * math.exp(-a_now) if a_now > -math.inf else 0.0
         times = self._times[c]
         home = self._home_s
-        ks = self.plan.keyboard_share
         on_kb = 1.0 if self._hand_on_keyboard else 0.0
         cmdc = self._cmdc[c]
         novice = (cmdc[k.C_SEARCH] - cmdc[k.C_DECISION]) / (self._menu_count[c] + 1)
-        start_menu = home * (on_kb - ks) + novice
-        start_hot = home * ((1.0 - on_kb) - (1.0 - ks))
+        start_menu = home * (on_kb - times.menu_keyboard_share) + novice
+        start_hot = home * ((1.0 - on_kb) - (1.0 - times.hotkey_keyboard_share))
         ok = times.hotkey_fixed_s + start_hot + lat + times.return_after_keyboard_s
         fail = times.failure_s + start_hot + novice + times.return_after_mouse_s
         q_menu = -(times.menu_s + start_menu + times.return_after_mouse_s)

@@ -9,10 +9,11 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from shortcut_gym.agents.planner.action_costs import action_rewards, action_times
+from shortcut_gym.agents.planner.action_costs import ActionTimes, action_rewards, action_times
 from shortcut_gym.agents.planner.mdp import CommandMDP, build_command_mdp
 from shortcut_gym.agents.planner.selection import PolicyChoice, select_policy
-from shortcut_gym.agents.planner.solver import backward_induction_csr, hotkey_shares, stacked_csr, state_occupancy
+from shortcut_gym.agents.planner.solver import backward_induction_staged, hotkey_shares, stacked_csr, state_occupancy
+from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.world import World
 
 #: Simulated users the candidate policies are compared on by default (:func:`.selection.select_policy`).
@@ -40,6 +41,7 @@ class Plan:
     next_hotkey_share: float = 0.5
     predicted_time_s: float = math.nan  # expected seconds per user, see predicted_time_s()
     simulated_time_s: float = math.nan  # mean seconds per user of the chosen policy on the selection users
+    own_device: bool = True  # the shares' own-command correction (see command_times); off for a fixed share
     choice: PolicyChoice = field(default_factory=PolicyChoice)
     candidate_times_s: dict[str, float] = field(default_factory=dict)
 
@@ -53,15 +55,44 @@ def expected_uses(world: World, command: int) -> int:
     return max(1, int(round(float(world.commands.probability[command]) * world.horizon)))
 
 
-def solve_at_shares(world: World, n: int, mdps: list[CommandMDP], ks: float, q: float) -> Plan:
-    """Set every MDP's rewards for hand shares (ks, q) and solve it (sparse P: rows are short)."""
+def command_times(world: World, command: int, ks: float, q: float, own_device: bool = True) -> ActionTimes:
+    """:func:`action_times` of ``command`` at the plan's hand shares; with ``own_device`` its own
+    usage probability is taken as the chance that the neighbouring trial repeats its device
+    (approximation 2), without it the shares are the same before every trial."""
+    return action_times(world, command, ks, q, float(world.commands.probability[command]) if own_device else 0.0)
+
+
+def novice_terms(world: World, command: int, mdp: CommandMDP, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """The menu-expertise reward: (extra (S x actions), per_stage (n + 1,)). A menu selection at
+    n uses left is taken as the command's t-th, t = max(1, U - n + 1) with U its expected uses (the
+    count of a menu-only path), and costs the novice term (search - decision) / t on top of the
+    full-expertise menu of R (Cockburn, Gutwin & Greenberg 2007): menu and learn always, a hotkey
+    when it fails (1 - p)."""
+    cmdc = world.command_constants()[command]
+    gap = float(cmdc[k.C_SEARCH] - cmdc[k.C_DECISION])
+    extra = np.zeros((mdp.n_states, 3))
+    extra[:, k.MENU] = extra[:, k.LEARN] = -gap
+    extra[:, k.HOTKEY] = -gap * (1.0 - mdp.p_recall)
+    used = expected_uses(world, command) - np.arange(n + 1) + 1
+    return extra, 1.0 / np.maximum(used, 1).astype(np.float64)
+
+
+def solve_at_shares(world: World, n: int, mdps: list[CommandMDP], ks: float, q: float,
+                    own_device: bool = True, menu_expertise: bool = True) -> Plan:
+    """Set every MDP's rewards for hand shares (ks, q) and solve it (sparse P: rows are short), with
+    the menu-expertise term by stage (:func:`novice_terms`) unless ``menu_expertise`` is False
+    (full expertise throughout, e = 1)."""
     values, policies = [], []
     for c, mdp in enumerate(mdps):
-        mdp.R = action_rewards(action_times(world, c, ks, q), mdp.activation, mdp.p_recall)
-        V, pol = backward_induction_csr(stacked_csr(mdp), np.ascontiguousarray(mdp.R, dtype=np.float64), n)
+        mdp.R = action_rewards(command_times(world, c, ks, q, own_device), mdp.activation, mdp.p_recall)
+        extra, per_stage = novice_terms(world, c, mdp, n)
+        if not menu_expertise:
+            per_stage = np.zeros_like(per_stage)
+        V, pol = backward_induction_staged(stacked_csr(mdp), np.ascontiguousarray(mdp.R, dtype=np.float64),
+                                           extra, per_stage, n)
         values.append(V)
         policies.append(pol)
-    return Plan(mdps, values, policies, n, ks, q)
+    return Plan(mdps, values, policies, n, ks, q, own_device=own_device)
 
 
 def plan_shares(world: World, plan: Plan) -> tuple[float, float]:
@@ -83,7 +114,7 @@ def predicted_time_s(world: World, plan: Plan) -> float:
     keyboard share (each switch counted once), full menu expertise."""
     total = 0.0
     for c, mdp in enumerate(plan.mdps):
-        own = replace(action_times(world, c, plan.keyboard_share, plan.next_hotkey_share),
+        own = replace(command_times(world, c, plan.keyboard_share, plan.next_hotkey_share, plan.own_device),
                       return_after_mouse_s=0.0, return_after_keyboard_s=0.0)
         R = action_rewards(own, mdp.activation, mdp.p_recall)
         rows = plan.policy[c][np.arange(min(expected_uses(world, c), plan.max_uses), 0, -1)]
@@ -92,29 +123,31 @@ def predicted_time_s(world: World, plan: Plan) -> float:
     return total
 
 
-def fixed_point(world: World, n: int, mdps: list[CommandMDP], start: float, iterations: int) -> Plan:
+def fixed_point(world: World, n: int, mdps: list[CommandMDP], start: float, iterations: int,
+                menu_expertise: bool = True) -> Plan:
     """Solve from hand shares ``start``, then at the plan's own shares until both move < 0.005."""
     ks = q = start
-    plan = solve_at_shares(world, n, mdps, ks, q)
+    plan = solve_at_shares(world, n, mdps, ks, q, menu_expertise=menu_expertise)
     for _ in range(iterations):
         new_ks, new_q = plan_shares(world, plan)
         if abs(new_ks - ks) < 0.005 and abs(new_q - q) < 0.005:
             break
         ks, q = new_ks, new_q
-        plan = solve_at_shares(world, n, mdps, ks, q)
+        plan = solve_at_shares(world, n, mdps, ks, q, menu_expertise=menu_expertise)
     return plan
 
 
 def set_rewards(world: World, mdps: list[CommandMDP], plan: Plan) -> None:
     """The shared MDPs' R back to ``plan``'s hand shares."""
     for c, mdp in enumerate(mdps):
-        mdp.R = action_rewards(action_times(world, c, plan.keyboard_share, plan.next_hotkey_share), mdp.activation,
+        mdp.R = action_rewards(command_times(world, c, plan.keyboard_share, plan.next_hotkey_share, plan.own_device),
+                               mdp.activation,
                                mdp.p_recall)
 
 
 def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
                keyboard_share: float | None = None, iterations: int = 6, n_weight_bins: int = 10,
-               select_users: int = SELECTION_USERS) -> Plan:
+               select_users: int = SELECTION_USERS, menu_expertise: bool = True) -> Plan:
     """Solve every command's MDP for up to ``max_uses`` uses left (default: the horizon) and choose
     the policy to execute.
 
@@ -125,7 +158,9 @@ def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
     (one plan). ``select_users`` > 0: the executed policy is the best of those plans, their
     per-command restrictions and the fixed rules on that many common simulated users
     (:func:`.selection.select_policy`); 0 executes the plan of smaller :func:`predicted_time_s`
-    as it is (which can lose to always-menu where recall is hard).
+    as it is (which can lose to always-menu where recall is hard). ``menu_expertise`` False costs
+    every future menu selection at full expertise (no novice term; the model of the values the
+    hotkey assignment in ``lab.design`` separates into per-command savings).
     """
     n = world.horizon if max_uses is None else int(max_uses)
     if n < 1:
@@ -138,9 +173,9 @@ def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
     candidates = []
     for start in ((float(keyboard_share),) if keyboard_share is not None else (0.0, 1.0)):
         if keyboard_share is not None:
-            plan = solve_at_shares(world, n, mdps, start, start)
+            plan = solve_at_shares(world, n, mdps, start, start, own_device=False, menu_expertise=menu_expertise)
         else:
-            plan = fixed_point(world, n, mdps, start, iterations)
+            plan = fixed_point(world, n, mdps, start, iterations, menu_expertise)
         plan.predicted_time_s = predicted_time_s(world, plan)
         candidates.append(plan)
     if select_users:

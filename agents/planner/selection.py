@@ -33,6 +33,8 @@ if TYPE_CHECKING:
 
 #: First seed of the simulated users the candidates are compared on (far from the seeds users get).
 SELECTION_SEED = 2**20
+#: The candidates are compared on at least this many simulated trials (more users than asked in short worlds).
+SELECTION_TRIALS = 4096
 #: Learning trials per command of the learn-first-k candidates.
 LEARN_FIRST_KS = (1, 2, 3)
 
@@ -147,11 +149,13 @@ def simulate(world: World, agent: Agent, seeds: list[int]) -> tuple[np.ndarray, 
 
 def select_policy(world: World, plans: list[Plan], n_users: int, n_bins: int,
                   n_weight_bins: int) -> tuple[Plan, dict[str, float]]:
-    """The candidate of least mean time per user on ``n_users`` common simulated users (see the
-    module docstring); returns the plan to execute (a copy of one of ``plans`` carrying its
-    :class:`PolicyChoice` and ``simulated_time_s``) and every candidate's mean seconds per user."""
+    """The candidate of least mean time per user on ``n_users`` common simulated users, or on as
+    many as make :data:`SELECTION_TRIALS` trials if more (see the module docstring); returns the
+    plan to execute (a copy of one of ``plans`` carrying its :class:`PolicyChoice` and
+    ``simulated_time_s``) and every candidate's mean seconds per user."""
     from shortcut_gym.agents.planner.agent import BoundedOptimalPlanner
 
+    n_users = max(int(n_users), -(-SELECTION_TRIALS // world.horizon))
     seeds = [SELECTION_SEED + i for i in range(n_users)]
     n_cmd = world.commands.n_commands
 

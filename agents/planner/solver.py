@@ -72,6 +72,33 @@ def backward_induction_csr(P: CsrRows, R: np.ndarray, n_stages: int) -> tuple[np
     return V, policy
 
 
+@njit(cache=True)
+def backward_induction_staged(P: CsrRows, R: np.ndarray, extra: np.ndarray, per_stage: np.ndarray,
+                              n_stages: int) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`backward_induction_csr` with a stage-dependent reward R[s, a] + extra[s, a] x
+    per_stage[n] at n stages left (the menu-expertise term, see :func:`.search.solve_at_shares`)."""
+    n_states, n_actions = R.shape
+    V = np.zeros((n_stages + 1, n_states))
+    policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
+    for n in range(1, n_stages + 1):
+        prev = V[n - 1]
+        w = per_stage[n]
+        for s in range(n_states):
+            best = -np.inf
+            best_a = -1
+            for a in range(n_actions):
+                row = a * n_states + s
+                acc = 0.0
+                for jj in range(P.indptr[row], P.indptr[row + 1]):
+                    acc += P.data[jj] * prev[P.indices[jj]]
+                q = R[s, a] + extra[s, a] * w + acc
+                if best_a < 0 or q > best:
+                    best, best_a = q, a
+            policy[n, s] = best_a
+            V[n, s] = best
+    return V, policy
+
+
 def stacked_csr(mdp: CommandMDP) -> CsrRows:
     """:func:`csr_rows` of the MDP's P, built once per MDP."""
     cached = getattr(mdp, "_csr", None)

@@ -368,7 +368,8 @@ def assignment_world_savings(world: World, table: SavingTable, combos: Sequence[
         strokes[c] = combos[j].keystrokes
     mixed = with_keystrokes(world, strokes)  # type: ignore[arg-type]
     plan = plan_world(mixed, max_uses=int(table.uses.max()), n_bins=n_bins,
-                      keyboard_share=_check_share(keyboard_share), n_weight_bins=n_weight_bins)
+                      keyboard_share=_check_share(keyboard_share), n_weight_bins=n_weight_bins, select_users=0,
+                      menu_expertise=False)
     total = sum(float(plan.values[c][table.uses[c], 0]) for c in range(world.commands.n_commands))
     return float(table.menu_only_s.sum()) + total
 

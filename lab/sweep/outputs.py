@@ -189,7 +189,7 @@ _OUTPUT_NOTES = {
     "summary": "per run: total time, time saved over always-menu, gap to the reference agent",
     "failures": "runs that raised, with their error",
     "adoption_plot": "hotkey adoption curves per condition",
-    "break_even_plot": "break-even map with the bounded-optimal boundary",
+    "break_even_plot": "break-even map with the break-even rule's boundary",
     "time_saved_plot": "time saved per agent versus the reference",
 }
 
@@ -210,7 +210,7 @@ def sweep_index(spec: SweepSpec, folder: Path, runs: list[dict[str, Any]], summa
                          else f"{len(table)} conditions: see `summary.csv`."))
     if grid is not None:
         sections.append(("Break-even", f"On '{grid['command_name']}', the simulated verdict of {grid['learner']} "
-                         f"against {grid['menu']} agrees with the planner's analytic break-even rule on "
+                         f"against {grid['menu']} agrees with the break-even rule on "
                          f"{fraction_agreeing(grid):.0%} of the swept cells."))
     plots = [k for k in ("adoption_plot", "break_even_plot", "time_saved_plot") if k in written]
     if plots:

@@ -55,7 +55,8 @@ def adoption_plot(spec: SweepSpec, blocks: pd.DataFrame, path: Path) -> Path:
 
 
 def break_even_plot(grid: dict[str, Any], path: Path) -> Path:
-    """Simulated saving of learning over the menu, with the planner's analytic boundary overlaid."""
+    """Simulated saving of learning over the menu, with the break-even rule's boundary overlaid
+    (:func:`shortcut_gym.agents.planner.break_even_table`: its recall is the simulator's)."""
     xs, ys = np.asarray(grid["x"], float), np.asarray(grid["y"], float)
     sav = grid["simulated_saving_s"]
     fig = Figure(figsize=(6, 4.6))
@@ -72,7 +73,7 @@ def break_even_plot(grid: dict[str, Any], path: Path) -> Path:
     pays = np.asarray(grid["fine_pays"], float)
     if 0 < pays.sum() < pays.size and len(fx) > 1 and len(fy) > 1:
         ax.contour(fx, fy, pays, levels=[0.5], colors="k", linewidths=2)
-    ax.plot([], [], "k-", lw=2, label="analytic break-even (bounded-optimal rule)")
+    ax.plot([], [], "k-", lw=2, label="break-even rule (recall from the simulator along learn-then-hotkey)")
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), fontsize=7)
     for vals, setter in ((xs, ax.set_xscale), (ys, ax.set_yscale)):
         if _logish(vals):

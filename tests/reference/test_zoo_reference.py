@@ -12,7 +12,7 @@ import scipy.special
 from shortcut_gym.agents import make_agent
 from shortcut_gym.agents.base import AgentContext, Transition
 from shortcut_gym.agents.planner import break_even_table, build_command_mdp, plan_world, solve_finite_horizon
-from shortcut_gym.envs.kernel import LEARN, MENU
+from shortcut_gym.envs.kernel import C_DECISION, LEARN, MENU
 from shortcut_gym.envs.world import make_world
 
 
@@ -91,9 +91,10 @@ def test_break_even_matches_planner_switch_point_worked_by_hand():
     """Analytic break-even (learning pays when U (menu - hotkey) > learning cost) against the
     planner's switch point, in a world where recall after one learning trace is certain.
 
-    Set-up: exponential memory with negligible decay (1e-9 /s), threshold -20 (so p = 1 once a
+    Set-up: exponential memory with negligible decay (1e-9 /s), threshold -10 (so p = 1 - 3e-12 once a
     trace exists), failed attempts and menu use lay no trace, no commission errors, hand always on
-    the mouse (keyboard_share 0), encoding 2.5 s. Command 0 ("New pool record", Ctrl+N) is item 0
+    the mouse (keyboard_share 0: the same share before every trial), encoding 2.5 s, novice menu
+    search equal to the decision time (no expertise term). Command 0 ("New pool record", Ctrl+N) is item 0
     of the 4-item Survey menu. Defaults: Card, Moran & Newell (1980) M 1.35, P 1.1, B 0.1, H 0.4,
     K 0.20 (average skilled typist); Fitts a = -0.107, b = 0.223 s/bit; Hick-Hyman 0.08 + 0.15 log2(1/p).
     Zipf over 12 commands: Survey holds ranks 1-4, weights 1, 1/2, 1/3, 1/4 (sum 2.0833),
@@ -114,12 +115,14 @@ def test_break_even_matches_planner_switch_point_worked_by_hand():
     menu = 3.1123 - 0 (no H in it either way), hotkey = 1.75 s, U* = 2.5 / 1.3623 = 1.835, so
     the planner learns iff n - 1 >= 2, switching at n = 3.
     """
-    world = make_world(
-        costs={"learn": {"encoding_s": 2.5}, "errors": {"commission_share": 0.0}},
-        memory={"kind": "exponential", "exponential_rate_per_s": 1e-9, "threshold": -20.0,
-                "latency_factor_s": 1e-12, "weights": {"hotkey_failure": 0.0, "menu": 0.0}},
-        schedule={"sessions": 2, "trials_per_session": 40},
-    )
+    memory = {"kind": "exponential", "exponential_rate_per_s": 1e-9, "threshold": -10.0,
+              "latency_factor_s": 1e-12, "weights": {"hotkey_failure": 0.0, "menu": 0.0}}
+    costs = {"learn": {"encoding_s": 2.5}, "errors": {"commission_share": 0.0}}
+    decision = float(make_world(costs=costs, memory=memory).command_constants()[0, C_DECISION])
+    # the novice visual search of command 0's 4-item menu set equal to its decision time, so menu
+    # expertise (search -> decision over the first selections) plays no part in either rule
+    costs["menu"] = {"search_intercept_s": 0.0, "search_slope_s_per_item": decision / 4}
+    world = make_world(costs=costs, memory=memory, schedule={"sessions": 2, "trials_per_session": 40})
     table = break_even_table(world, keyboard_share=0.0)
     row = table.iloc[0]
     assert row["menu_s"] == pytest.approx(3.1123, abs=1e-3)
@@ -139,3 +142,36 @@ def test_break_even_matches_planner_switch_point_worked_by_hand():
     assert row0["break_even_uses"] == pytest.approx(1.835, abs=5e-3)
     no_trace0 = plan_world(flat, max_uses=10, keyboard_share=0.0).policy[0][1:, 0]
     assert 1 + int(np.argmax(no_trace0 == LEARN)) == math.floor(row0["break_even_uses"]) + 2 == 3
+
+
+@pytest.mark.parametrize("kwargs", [
+    {"n_commands": 1, "sessions": 2, "trials_per_session": 2, "threshold": -2.0, "gap_h": 720.0},
+    {"n_commands": 2, "sessions": 1, "trials_per_session": 3, "encoding_s": 0.5, "keystroke_s": 0.08},
+    {"n_commands": 1, "sessions": 2, "trials_per_session": 2, "memory_kind": "exponential"},
+], ids=["one_command_hard_recall", "two_commands", "exponential"])
+def test_exact_small_world_solver_equals_pymdptoolbox_finite_horizon(kwargs):
+    """The exact small-world MDP (every decision state of the simulator's full state, one end state)
+    solved by our stage-wise backward induction (Bellman 1957; Puterman 1994, ch. 4) against
+    pymdptoolbox's FiniteHorizon (Chades et al. 2014, "MDPtoolbox: a multi-platform toolbox to solve
+    stochastic dynamic programming problems", Ecography 37) on the same P and R, with N = horizon
+    stages: its V[:, 0] is the optimum of every state (the end state is absorbing at reward 0).
+    The MDP passes pymdptoolbox's own check of P and R."""
+    mdptoolbox_mdp = pytest.importorskip("mdptoolbox.mdp")
+    from mdptoolbox.util import check
+
+    from shortcut_gym.agents.planner.exact import exact_mdp, small_world
+
+    world = small_world(**kwargs)
+    m = exact_mdp(world)
+    dense = np.stack([p.toarray() for p in m.P])
+    check(dense, m.R)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fh = mdptoolbox_mdp.FiniteHorizon(dense, m.R, 1.0, world.horizon)
+        fh.run()
+    np.testing.assert_allclose(m.V, fh.V[:, 0], rtol=1e-12, atol=1e-10)
+    Q = m.R + np.stack([p @ m.V for p in m.P], axis=1)  # (S, actions)
+    top2 = np.sort(Q, axis=1)[:, -2:]
+    clear = (top2[:, 1] - top2[:, 0]) > 1e-9
+    assert np.array_equal(m.policy[clear], np.asarray(fh.policy[:, 0])[clear])
+    assert m.n_states > 20 and len(set(m.policy[m.stage < world.horizon].tolist())) >= 2  # not trivial
