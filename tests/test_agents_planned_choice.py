@@ -33,7 +33,7 @@ def _trials(world, agent, seed=0) -> pd.DataFrame:
 def test_probabilities_are_the_lapse_mixed_softmax_of_the_planner_values(world):
     agent = make_agent("planned_choice", world=world, with_lapse=True, beta=1.7, lapse=0.1)
     agent.reset(0)
-    planner = make_agent("bounded_optimal", world=world, n_bins=20, n_weight_bins=5)
+    planner = make_agent("bounded_optimal", world=world, n_bins=20, n_weight_bins=5, select_users=0)
     planner.reset(0)
     empty = np.zeros(0, dtype=np.float32)
     steps = [(0, "menu"), (0, "learned"), (3, "menu"), (0, "hotkey"), (3, "hotkey_forgotten")]
@@ -49,7 +49,7 @@ def test_probabilities_are_the_lapse_mixed_softmax_of_the_planner_values(world):
 
 
 def test_a_high_inverse_temperature_chooses_what_the_planner_chooses(world):
-    planner = make_agent("bounded_optimal", world=world, n_bins=20, n_weight_bins=5)
+    planner = make_agent("bounded_optimal", world=world, n_bins=20, n_weight_bins=5, select_users=0)
     chosen = _trials(world, planner, seed=3)
     sharp = make_agent("planned_choice", world=world, beta=BETA_MAX)
     codes = chosen["action"].map({"menu": 0, "hotkey": 1, "learn": 2}).to_numpy()

@@ -49,7 +49,9 @@ class PolicyChoice:
     command; None: every command) and the menu on the others; "always_menu", "always_hotkey" and
     "learn_first_k" are the fixed rules (``k`` learning trials per command, then the hotkey;
     restricted to ``commands`` when given, the menu elsewhere). ``plan_index`` names which of the
-    candidate plans (0: menu-start fixed point, 1: keyboard-start) a "plan" choice follows.
+    candidate plans (0: menu-start fixed point, 1: keyboard-start) a "plan" choice follows, and for
+    a fixed rule the plan whose values ``action_values`` reads (the one predicted best, as the
+    planner without selection would use).
     """
 
     kind: RuleKind = "plan"
@@ -186,5 +188,8 @@ def select_policy(world: World, plans: list[Plan], n_users: int, n_bins: int,
         restricted(choice, plans[i])
     means = {choice: float(totals.mean()) for choice, (totals, _) in results.items()}
     best = min(means, key=lambda ch: (means[ch], ch.kind != "plan"))  # a tie keeps the plan
-    chosen = replace(plans[best.plan_index], choice=best, simulated_time_s=means[best])
+    best_s = means[best]
+    if best.kind != "plan":  # a fixed rule carries the values of the plan predicted best (as without selection)
+        best = replace(best, plan_index=min(range(len(plans)), key=lambda i: plans[i].predicted_time_s))
+    chosen = replace(plans[best.plan_index], choice=best, simulated_time_s=best_s)
     return chosen, {choice.label: means[choice] for choice in means}
