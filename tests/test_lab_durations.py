@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from shortcut_gym.agents import make_agent
@@ -93,3 +94,27 @@ def test_an_operator_in_fixed_proportion_to_an_earlier_one_is_held(world):
     assert fit.identified["mental_s"] and not fit.identified["point_s"]
     assert fit.estimates["point_s"] == world.costs.klm.point_s
     assert fit.estimates["mental_s"] == pytest.approx(world.costs.klm.mental_s, rel=1e-6)
+
+
+def test_the_group_fit_shrinks_keystroke_times_toward_the_truth_and_fills_unidentified_operators():
+    from shortcut_gym.lab.fitting.durations_group import fit_durations_hierarchical
+
+    base = make_world(schedule={"sessions": 2, "trials_per_session": 40}, costs={"noise": {"cv": 0.15}})
+    rng = np.random.default_rng(2)
+    frames, truth = [], []
+    for i in range(8):
+        k_s, enc = rng.uniform(0.1, 0.6), rng.uniform(0.8, 2.5)
+        w = implied_world(base, {"keystroke_s": k_s, "encoding_s": enc})
+        agent = make_agent("random", p_hotkey=0.5, p_learn=0.1 if i % 2 else 0.0)
+        frames.append(simulate_log(w, agent, 1, rng, prefix=f"p{i}"))
+        truth.append(k_s)
+    log = validate_log(pd.concat(frames, ignore_index=True), base.commands)
+    em, table, worlds = fit_durations_hierarchical(log, base)
+    assert em.converged and len(worlds) == 8
+    ml = np.array([fit_durations(participant_trials(log, p), base).estimates["keystroke_s"]
+                   for p in table["participant"]])
+    err_group = np.mean((table["keystroke_s"].to_numpy() - truth) ** 2)
+    err_ml = np.mean((ml - truth) ** 2)
+    assert err_group < err_ml
+    no_learn = table["encoding_s"].to_numpy()[0::2]  # participants without a learn trial
+    assert np.allclose(no_learn, no_learn[0], rtol=1e-3) and abs(no_learn[0] - base.costs.learn.encoding_s) > 0.05

@@ -3,7 +3,8 @@
 Modules: :mod:`.criteria` (AIC, BIC), :mod:`.specs` (what to fit), :mod:`.replay` (the
 log-likelihood of a model on a log), :mod:`.priors` (MAP priors), :mod:`.optimise` (one
 participant), :mod:`.runner` (many participants x models), :mod:`.durations` (operator times from
-trial durations), :mod:`.joint` (choices and durations together), :mod:`.laplace_em` and
+trial durations; :mod:`.durations_group` the same under the hierarchical EM), :mod:`.joint`
+(choices and durations together), :mod:`.laplace_em` and
 :mod:`.hierarchical` (hierarchical fits by EM with Gaussian group priors), :mod:`.crossval`
 (leave-one-session-out predictive log-likelihood). The public names are re-exported here.
 """
