@@ -58,6 +58,9 @@ class _Kernel:
         self._cmd = np.zeros((1, self.horizon), dtype=np.int64)  # the kernel reads only entry t
         self._u = np.zeros((1, self.horizon))
         self._ops = np.zeros(k.N_OPS)
+        # trial-time noise (costs.noise) has mean 1 and does not depend on the decisions: expected
+        # times are those without it
+        self._noise = np.ones((1, self.horizon))
 
     def fresh(self) -> tuple[np.ndarray, ...]:
         """The arrays of a user before the first trial (hand on the mouse)."""
@@ -114,7 +117,7 @@ class _Kernel:
         self._u[0, t] = u
         us[0, k.U_TRIAL] = t
         dur, _, _ = k.step_user(0, action, self.ipar, self.par, self.cmdc, fs, ist, tr, us, self._cmd, self.clock,
-                                self.onset, self._u, self.session, self._ops, False, self.fail_lat)
+                                self.onset, self._u, self.session, self._ops, False, self.fail_lat, self._noise)
         return float(dur), (fs, ist, tr, us)
 
 
