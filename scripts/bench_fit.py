@@ -21,12 +21,14 @@ def main() -> int:
     parser.add_argument("--participants", type=int, default=50)
     parser.add_argument("--starts", type=int, default=10)
     parser.add_argument("--jobs", type=int, default=2)
+    parser.add_argument("--rationality-participants", type=int, default=50)
     parser.add_argument("--group", action="store_true", help="run the group-level suite (hierarchical EM, BMS)")
     args = parser.parse_args()
     if args.group:
         bench_group.run(quick=False)
         return 0
-    bench_fit.run(quick=False, participants=args.participants, starts=args.starts, jobs=args.jobs)
+    bench_fit.run(quick=False, participants=args.participants, starts=args.starts, jobs=args.jobs,
+                  rationality_participants=args.rationality_participants)
     return 0
 
 
