@@ -25,9 +25,12 @@ def main(argv: list[str] | None = None) -> int:
                         help="skip the per-family figures and the held-out style sweep")
     parser.add_argument("--families-only", action="store_true", help="only the per-family figures and the sweep")
     parser.add_argument("--sb3", action="store_true", help="add a small PPO model to the families (trains it)")
+    parser.add_argument("--only", action="append", default=[], metavar="TEXT",
+                        help="with --families-only: only the families whose name contains TEXT ('sweep': the "
+                             "held-out style sweep alone); repeatable")
     args = parser.parse_args(argv)
     if args.families_only:
-        families.run(quick=False, sessions=args.sessions, sb3=args.sb3)
+        families.run(quick=False, sessions=args.sessions, sb3=args.sb3, only=tuple(args.only))
         return 0
     bench_sweep.run(quick=False, sessions=args.sessions, sweep_users=args.sweep_users,
                     skip_batch=args.skip_batch, skip_ray=args.skip_ray, families=not args.skip_families,

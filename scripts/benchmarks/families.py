@@ -88,11 +88,11 @@ def looped_trials_per_s(spec: dict[str, Any], schedule: dict, users: int = 4, ag
     return n / (time.perf_counter() - t0)
 
 
-def batched_trials_per_s(world: Any, spec: Any, users: int, threads: int) -> float:
-    """Trials per second of ``simulate_users`` (best of 3 below 10,000 users, else one run)."""
+def batched_trials_per_s(world: Any, spec: Any, users: int, threads: int, repeats: int = 3) -> float:
+    """Trials per second of ``simulate_users`` (best of ``repeats`` below 10,000 users, else one run)."""
     simulate_users(world, spec, [0, 1], threads=threads)  # warm-up: compiles, plans
     best = 0.0
-    for _ in range(3 if users < 10_000 else 1):
+    for _ in range(repeats if users < 10_000 else 1):
         t0 = time.perf_counter()
         sums = simulate_users(world, spec, range(users), threads=threads)
         best = max(best, int(sums.trials.sum()) / (time.perf_counter() - t0))
@@ -105,15 +105,16 @@ def _trained_ppo(world: Any, steps: int) -> Any:
     return agent
 
 
-def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print) -> None:
-    """Per-family trials per second (``quick``: 1,024 users only, one thread)."""
+def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print, only: tuple[str, ...] = ()) -> None:
+    """Per-family trials per second (``quick``: 1,024 users only, one thread; ``only``: the
+    families whose name contains one of these strings)."""
     schedule = {"sessions": sessions, "trials_per_session": 40}
     world = make_world(schedule=schedule)
     cores = os.cpu_count() or 1
     cart = cartpole_vector_steps_per_s()
     out(f"\nA. Agent families on {sessions * 40} trials per user; load average {_load()}")
     out(f"   CartPole-v1 native vector env, 1,024 envs: {cart:>12,.0f} steps/s (reference)")
-    families = list(FAMILIES)
+    families = [f for f in FAMILIES if not only or any(o in f[0] for o in only)]
     extra: dict[str, Any] = {}
     if sb3:
         t0 = time.perf_counter()
@@ -134,7 +135,7 @@ def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print) -> No
             for threads in (1,) if quick else (1, cores):
                 if agent is not None and threads > 1:
                     continue
-                rate = batched_trials_per_s(world, spec_or_agent, users, threads)
+                rate = batched_trials_per_s(world, spec_or_agent, users, threads, 3 if compiled else 1)
                 verdict = "meets" if rate >= 100 * looped and rate >= 0.5 * cart else "below"
                 out(f"      batched, {users:>7,} users, {threads} thread{'s' if threads > 1 else ' '}: {rate:>12,.0f} "
                     f"trials/s  {rate / looped:>8,.1f}x looped  {rate / cart:5.2f}x CartPole vec  "
@@ -183,7 +184,11 @@ def _load() -> str:
     return ", ".join(f"{x:.2f}" for x in os.getloadavg())
 
 
-def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True) -> None:
-    """Both parts (``quick``: 1,024 users, one thread, an 8-point sweep)."""
-    part_families(sessions, quick, sb3, out)
-    part_heldout(quick, out)
+def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True,
+        only: tuple[str, ...] = ()) -> None:
+    """Both parts (``quick``: 1,024 users, one thread, an 8-point sweep); ``only`` limits part A
+    to the families whose name contains one of these strings ("sweep" runs part B alone)."""
+    if only != ("sweep",):
+        part_families(sessions, quick, sb3, out, only)
+    if not only or "sweep" in only:
+        part_heldout(quick, out)
