@@ -90,9 +90,11 @@ def test_threads_do_not_change_the_table() -> None:
     pd.testing.assert_frame_equal(run_study(spec, aids, threads=1), run_study(spec, aids, threads=2))
 
 
-def test_bundled_study_loads() -> None:
-    spec, aids = load_study("tidepool_aids")
-    assert len(aids) == 5 and len(spec.population.values) == 4
+@pytest.mark.parametrize(("name", "path"), [("tidepool_aids", "costs.klm.typist"),
+                                            ("tidepool_aids_memory", "memory.threshold")])
+def test_bundled_studies_load(name: str, path: str) -> None:
+    spec, aids = load_study(name)
+    assert len(aids) == 5 and len(spec.population.values) == 4 and spec.population.path == path
     assert {a.name for a in spec.agents} >= {"bounded_optimal", "rescorla_wagner", "always_menu"}
 
 

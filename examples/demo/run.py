@@ -7,6 +7,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from demo.design import aid_section, assignment_section
 from demo.lab import lab_section
 from demo.rationality import rationality_section
 from demo.sweep import sweep_section
@@ -46,6 +47,8 @@ def main(argv: list[str] | None = None) -> int:
     lab_section(args.out, args.users)
     sweep_section(args.out)
     rationality_section(args.out)
+    aid_section(args.out)
+    assignment_section(args.out)
     print(f"\ndemo outputs in {args.out.resolve()}")
     return 0
 

@@ -4,8 +4,9 @@ from __future__ import annotations
 
 import argparse
 
+from shortcut_gym.lab.cli.options import parse_agent_arg
 from shortcut_gym.lab.cli.ranges import output_folder, whole_number
-from shortcut_gym.lab.design.aid_study import load_study, run_study
+from shortcut_gym.lab.design.aid_study import StudyAgent, load_study, parse_study, run_study
 from shortcut_gym.lab.design.plots import aid_figure, save_figure
 from shortcut_gym.lab.sweep.spec import SeedBlock
 
@@ -17,6 +18,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("study", help="aid study YAML (or the name of a bundled one in configs/studies)")
     p.add_argument("--users", type=whole_number(1), default=None,
                    help="simulated users instead of the study's count (same first seed)")
+    p.add_argument("--agent", action="append", default=None,
+                   help="simulated users' agent instead of the study's, as [label=]name[:key=value,...] (repeatable)")
     p.add_argument("--threads", type=whole_number(1, 64), default=None,
                    help="worker threads instead of the study's (the compiled loops release the GIL)")
     p.add_argument("--out", type=output_folder, default=None, help="folder for ranking.csv and aids.png")
@@ -26,6 +29,10 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run the study, print the ranking per population value and agent, optionally write it."""
     spec, aids = load_study(args.study)
+    if args.agent:
+        agents = [StudyAgent(**parse_agent_arg(a)) for a in args.agent]
+        spec, aids = parse_study({**spec.model_dump(exclude_none=True), "agents": [a.model_dump() for a in agents]},
+                                 f"{args.study} with --agent")
     if args.users is not None:
         spec = spec.model_copy(update={"users": SeedBlock(first=spec.users.first, count=args.users)})
     table = run_study(spec, aids, threads=args.threads)
