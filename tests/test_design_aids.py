@@ -106,6 +106,10 @@ def test_cli_writes_the_ranking_and_plot(tmp_path: Path, capsys: pytest.CaptureF
     assert len(table) == 6 and (table["users"] == 3).all()
     assert (tmp_path / "out" / "aids.png").stat().st_size > 1000
     assert "delay" in capsys.readouterr().out
+    out2 = str(tmp_path / "o2")
+    assert main(["aids", str(study), "--users", "2", "--agent", "learn_first_k:k=1", "--out", out2]) == 0
+    assert set(pd.read_csv(tmp_path / "o2" / "ranking.csv")["agent"]) == {"learn_first_k(k=1)"}
+    capsys.readouterr()
     study.write_text(yaml.safe_dump(_study(population={"path": "costs.klm.typo", "values": [1]})))
     assert main(["aids", str(study)]) == 2
     err = capsys.readouterr().err
