@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -23,7 +23,7 @@ import pandas as pd
 from shortcut_gym.agents.base import AgentContext, ParamSpec
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.data.logs import participant_trials, participants
-from shortcut_gym.lab.fitting.laplace_em import EMResult, FreeLogLik, em_laplace
+from shortcut_gym.lab.fitting.laplace_em import EMResult, FreeLogLik, em_laplace, sampled_log_evidence
 from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT
 from shortcut_gym.lab.fitting.replay import loglik_function
 from shortcut_gym.lab.fitting.specs import ModelSpec
@@ -56,11 +56,21 @@ class HierarchicalFit:
     participants: list[str]
     n_trials: list[int]
     em: EMResult
+    functions: list[FreeLogLik] = field(default_factory=list, repr=False)  # ln L_i of unbounded coordinates
 
     @property
     def ibic(self) -> float:
         """Integrated BIC (Huys et al. 2011)."""
         return self.em.ibic
+
+    def sampled_evidence(self, draws: int = 2000, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
+        """Per participant: ln p(D_i | group prior) by sampling the fitted prior (Huys et al. 2011's
+        estimate), and its standard error; a check of the Laplace evidence the iBIC uses."""
+        if len(self.functions) != len(self.participants):
+            raise ValueError("this fit kept no log-likelihood functions to sample")
+        rng = np.random.default_rng(seed)
+        out = [sampled_log_evidence(f, self.em.mean, self.em.cov, draws, rng) for f in self.functions]
+        return np.array([v for v, _ in out]), np.array([se for _, se in out])
 
     def group_table(self) -> pd.DataFrame:
         """Per parameter: group mean and SD (unbounded coordinates), transform, group median and the
@@ -142,7 +152,7 @@ def fit_hierarchical(log: pd.DataFrame, spec: ModelSpec, context: AgentContext, 
     bounds = [free_box(s) for s in specs.values()]
     em = em_laplace(functions, counts, start, 10.0, bounds, covariance, tolerance, max_iterations, n_starts,
                     np.random.default_rng(np.random.SeedSequence([seed, 15])))
-    return HierarchicalFit(spec.label, specs, ids, counts, em)
+    return HierarchicalFit(spec.label, specs, ids, counts, em, functions)
 
 
 def fit_hierarchical_models(log: pd.DataFrame, specs: Sequence[ModelSpec], context: AgentContext,

@@ -156,6 +156,19 @@ def posterior_of(loglik: FreeLogLik, mean: np.ndarray, cov: np.ndarray, starts: 
     return ParticipantPosterior(mode, np.linalg.inv(hess), ll, lp, evidence, repaired)
 
 
+def sampled_log_evidence(loglik: FreeLogLik, mean: np.ndarray, cov: np.ndarray, draws: int,
+                         rng: np.random.Generator) -> tuple[float, float]:
+    """ln p(D_i | mu, Sigma) estimated by sampling the prior, ln (1/K sum_k L_i(x_k)) with x_k ~ N(mu, Sigma)
+    (the estimate of Huys et al. 2011 for the iBIC), and its standard error by the delta method."""
+    if draws < 2:
+        raise ValueError(f"draws must be >= 2, got {draws}")
+    x = rng.multivariate_normal(mean, cov, size=draws)
+    values = np.array([loglik(row) for row in x])
+    top = float(values.max())
+    w = np.exp(values - top)
+    return top + math.log(float(w.mean())), float(w.std(ddof=1) / w.mean() / math.sqrt(draws))
+
+
 def em_laplace(
     logliks: Sequence[FreeLogLik],
     n_obs: Sequence[int],
