@@ -97,7 +97,7 @@ class RandomAgent(Agent):
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         ph, pl = self.params["p_hotkey"], self.params["p_learn"]
         if ph + pl > 1.0 + 1e-12:
-            raise ValueError(f"{self.name}: p_hotkey + p_learn = {ph + pl} exceeds 1")
+            raise ConfigError(f"{self.name}: p_hotkey + p_learn = {ph + pl} exceeds 1")
         return np.array([max(1.0 - ph - pl, 0.0), ph, pl])
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:

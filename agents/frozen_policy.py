@@ -31,6 +31,7 @@ from shortcut_gym.agents.learning.fused import SumArrays
 from shortcut_gym.agents.learning.rules import RULE_JIT
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError, NotReadyError, UsageError
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded, seed_words
 
 #: rule kinds: one action; learn on the first k uses then hotkey; a cdf per (uses, session); a cdf per tabular cell
@@ -272,7 +273,7 @@ class FrozenBatchPolicy:
     def __init__(self, name: str, n_users: int, seeds: Sequence[int], n_commands: int, horizon: int,
                  n_sessions: int, rule_for, cell_columns: Sequence[int] = ()) -> None:
         if len(seeds) != n_users:
-            raise ValueError(f"{name}: {len(seeds)} seeds for {n_users} users")
+            raise ConfigError(f"{name}: {len(seeds)} seeds for {n_users} users")
         self.name = name
         self.n_users = n_users
         self.seeds = [int(s) for s in seeds]
@@ -287,7 +288,7 @@ class FrozenBatchPolicy:
         if self.draws:
             words = seed_words(np.asarray(self.seeds), (AGENT_STREAM,))
             if words is None:
-                raise ValueError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {self.seeds}")
+                raise ConfigError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {self.seeds}")
             _seed_all(words[0], words[1].astype(np.int64), self.pcg)
         self.trial = 0
 
@@ -324,11 +325,11 @@ class FrozenBatchPolicy:
         """Run a just-reset simulator to its horizon in one compiled loop; per-user sums equal to
         stepping ``actions`` / ``sim.step`` / ``observe`` trial by trial."""
         if sim.n_users == 0 or sim.trial != 0:
-            raise RuntimeError("a fused run needs a simulator just reset (trial 0)")
+            raise UsageError("a fused run needs a simulator just reset (trial 0)")
         if self.trial != 0:
-            raise RuntimeError("a fused run needs a fresh batch policy (trial 0)")
+            raise UsageError("a fused run needs a fresh batch policy (trial 0)")
         if self.n_users != sim.n_users:
-            raise ValueError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
+            raise ConfigError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
         n_sessions = int(sim.sched_session.max()) + 1
         self._cover(sim.horizon, n_sessions)
         sums = SumArrays(**vars(UserSums.zeros(sim.n_users, n_sessions, sim.world.commands.n_commands)))
@@ -345,7 +346,7 @@ def frozen_policy(agent, n_users: int, seeds: Sequence[int], rule_for,
     """:class:`FrozenBatchPolicy` of a bound agent (its context gives the commands, horizon and sessions)."""
     context = agent.context
     if context is None or not context.n_commands:
-        raise ValueError(f"{agent.name}: bind a context before batch_policy")
+        raise NotReadyError(f"{agent.name}: bind a context before batch_policy")
     world = getattr(context, "world", None)
     n_sessions = world.schedule.sessions if world is not None else 1
     return FrozenBatchPolicy(agent.name, n_users, seeds, context.n_commands, context.horizon, n_sessions, rule_for,
@@ -365,7 +366,7 @@ class UserDraws:
     def __init__(self, name: str, seeds: Sequence[int]) -> None:
         words = seed_words(np.asarray([int(s) for s in seeds]), (AGENT_STREAM,))
         if words is None:
-            raise ValueError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {list(seeds)}")
+            raise ConfigError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {list(seeds)}")
         self.pcg = np.zeros((len(seeds), 4), dtype=np.uint64)
         _seed_all(words[0], words[1].astype(np.int64), self.pcg)
 

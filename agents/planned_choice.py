@@ -129,14 +129,14 @@ class PlannedChoice(Agent):
                  with_lapse: bool = False, keyboard_share: float | None = None, n_bins: int = 20,
                  n_weight_bins: int = 5, select_users: int = 0, **params: float) -> None:
         if not isinstance(with_lapse, bool):
-            raise ValueError(f"{self.name}: with_lapse must be true or false, got {with_lapse!r}")
+            raise ConfigError(f"{self.name}: with_lapse must be true or false, got {with_lapse!r}")
         self.with_lapse = with_lapse
         super().__init__(context, **params)
         if isinstance(world, (dict, str)):
             world = make_world(**world) if isinstance(world, dict) else make_world(world)
         if world is not None and not isinstance(world, World):
-            raise ValueError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
-                             f"{type(world).__name__}")
+            raise ConfigError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
+                              f"{type(world).__name__}")
         # checks the planner options now, with the planner's own messages
         BoundedOptimalPlanner(keyboard_share=keyboard_share, n_bins=n_bins, n_weight_bins=n_weight_bins,
                               select_users=select_users)
@@ -217,7 +217,7 @@ class PlannedChoice(Agent):
         def log_likelihood(theta: np.ndarray) -> float:
             t = np.asarray(theta, dtype=np.float64)
             if t.shape != (n_par,):
-                raise ValueError(f"theta must have {n_par} entries {list(self.param_specs())}, got shape {t.shape}")
+                raise ConfigError(f"theta must have {n_par} entries {list(self.param_specs())}, got shape {t.shape}")
             return float(softmax_log_likelihood(q, actions, t[0], t[1] if n_par == 2 else 0.0))
 
         return log_likelihood

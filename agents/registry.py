@@ -25,7 +25,7 @@ AGENTS: dict[str, type[Agent]] = {}
 def register_agent(cls: type[Agent]) -> type[Agent]:
     """Add an agent class under its ``name`` (usable as a decorator)."""
     if cls.name in AGENTS and AGENTS[cls.name] is not cls:
-        raise ValueError(f"agent name {cls.name!r} is already registered by {AGENTS[cls.name].__name__}")
+        raise ConfigError(f"agent name {cls.name!r} is already registered by {AGENTS[cls.name].__name__}")
     AGENTS[cls.name] = cls
     return cls
 

@@ -30,6 +30,7 @@ from shortcut_gym.agents.base import (
     SessionBatchPolicy,
     Transition,
 )
+from shortcut_gym.envs.errors import ConfigError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.kernel import N_OPS, OUTCOME_NAMES
 from shortcut_gym.envs.simulator import BatchSimulator
@@ -199,9 +200,9 @@ def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_bat
     """
     seeds = [int(s) for s in seeds]
     if sim.n_users == 0 or sim.trial != 0:
-        raise RuntimeError("drive_batch needs a simulator just reset (trial 0)")
+        raise UsageError("drive_batch needs a simulator just reset (trial 0)")
     if len(seeds) != sim.n_users:
-        raise ValueError(f"{len(seeds)} agent seeds for {sim.n_users} simulated users")
+        raise ConfigError(f"{len(seeds)} agent seeds for {sim.n_users} simulated users")
     stepper: _PolicyStepper | _AgentStepper
     if use_batch_policy and isinstance(agent, BatchAgent):
         policy = agent.batch_policy(sim.n_users, seeds)

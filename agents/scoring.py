@@ -15,6 +15,7 @@ from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs.env import CommandSelectionEnv
+from shortcut_gym.envs.errors import DataError
 from shortcut_gym.envs.world import World
 
 
@@ -26,7 +27,7 @@ def simulate_trials(world: World, agents: Mapping[str, Agent], seeds: Sequence[i
 def score_trials(trials: pd.DataFrame, reference: str) -> pd.DataFrame:
     """Per agent: time per trial, total per user, adoption trial, hotkey share, time lost vs ``reference``."""
     if reference not in set(trials["agent"]):
-        raise ValueError(f"reference agent {reference!r} is not in the trial table ({sorted(set(trials['agent']))})")
+        raise DataError(f"reference agent {reference!r} is not in the trial table ({sorted(set(trials['agent']))})")
     per_user = trials.groupby(["agent", "user"], sort=False).agg(
         total_time_s=("duration_s", "sum"), time_per_trial_s=("duration_s", "mean"),
         hotkey_share=("outcome", lambda o: float((o == "hotkey").mean())),

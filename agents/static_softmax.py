@@ -22,6 +22,7 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import DecisionRule, FrozenBatchPolicy, cdf_of, frozen_policy, uses_session_rule
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 
 COVARIATES: tuple[str, ...] = ("log_exposure", "session")
@@ -44,7 +45,7 @@ def covariate_matrix(command: np.ndarray, session: np.ndarray, covariates: Seque
         elif name == "session":
             cols.append(np.asarray(session, dtype=float))
         else:
-            raise ValueError(f"unknown covariate {name!r}; known: {list(COVARIATES)}")
+            raise ConfigError(f"unknown covariate {name!r}; known: {list(COVARIATES)}")
     return np.column_stack(cols) if cols else np.zeros((len(command), 0))
 
 
@@ -56,7 +57,7 @@ def _action_codes(action: Any) -> np.ndarray:
     try:
         return np.array([lookup[str(x)] for x in a], dtype=np.int64)
     except KeyError as err:
-        raise ValueError(f"unknown action {err.args[0]!r}; expected one of {list(ACTION_NAMES)}") from None
+        raise ConfigError(f"unknown action {err.args[0]!r}; expected one of {list(ACTION_NAMES)}") from None
 
 
 class StaticSoftmax(Agent):
@@ -72,9 +73,9 @@ class StaticSoftmax(Agent):
             covariates = [c for c in covariates.split("+") if c]
         unknown = [c for c in covariates if c not in COVARIATES]
         if unknown:
-            raise ValueError(f"{self.name}: unknown covariate(s) {unknown}; known: {list(COVARIATES)}")
+            raise ConfigError(f"{self.name}: unknown covariate(s) {unknown}; known: {list(COVARIATES)}")
         if len(set(covariates)) != len(covariates):
-            raise ValueError(f"{self.name}: covariates {list(covariates)} repeat a name")
+            raise ConfigError(f"{self.name}: covariates {list(covariates)} repeat a name")
         self.covariates = tuple(covariates)
         super().__init__(context, **params)
 
@@ -105,8 +106,8 @@ class StaticSoftmax(Agent):
         session = 0
         if "session" in self.covariates:
             if "next_session" not in info:
-                raise ValueError(f"{self.name}: the session covariate reads info['next_session'] (the upcoming "
-                                 f"trial's session); the info given has only {sorted(info)}")
+                raise ConfigError(f"{self.name}: the session covariate reads info['next_session'] (the upcoming "
+                                  f"trial's session); the info given has only {sorted(info)}")
             session = int(info["next_session"])
         uses = np.array([self.exposures.get(int(info["target"]), 0)], dtype=np.int64)
         return self.probability_rows(uses, np.array([session], dtype=np.int64))[0]

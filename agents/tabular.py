@@ -33,7 +33,7 @@ from tqdm.auto import tqdm
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
 
 _FEATURES = CELL_FEATURES
 _EDGES = {  # bucket upper edges (counts or seconds), in feature order
@@ -80,7 +80,7 @@ class TabularAgent(Agent):
     def clear(self) -> None:
         """Forget the learned table."""
         if self.context is None:
-            raise ValueError(f"{self.name}: bind a context before use")
+            raise NotReadyError(f"{self.name}: bind a context before use")
         self.q = np.full((self.context.n_commands, *_SIZES, 3), self.params["initial_value"])
 
     def reset(self, seed: int | None = None) -> None:
@@ -94,7 +94,7 @@ class TabularAgent(Agent):
         if self._index is None:
             names = list(getattr(self.context, "obs_names", ()) or ())
             if not names:
-                raise ValueError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
+                raise NotReadyError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
             self._index = [names.index(f) for f in _FEATURES]
         raw = np.expm1(np.asarray(obs, dtype=np.float64)[self._index])
         cells = tuple(int(np.searchsorted(_EDGES[f], v, side="right")) for f, v in zip(_FEATURES, raw))
@@ -154,7 +154,7 @@ class TabularAgent(Agent):
     def save(self, path: str | Path) -> Path:
         """Write the Q table and parameters to ``path`` (.npz)."""
         if self.q is None:
-            raise ValueError(f"{self.name}: nothing to save, train first")
+            raise NotReadyError(f"{self.name}: nothing to save, train first")
         p = Path(path).with_suffix(".npz")
         np.savez(p, q=self.q, name=self.name)
         self.model_path = str(p)
@@ -164,18 +164,18 @@ class TabularAgent(Agent):
         """Read a Q table written by :meth:`save` (shape must fit the bound context)."""
         p = Path(path)
         if not p.is_file():
-            raise ValueError(f"{self.name}: no Q table at {p}")
+            raise ConfigError(f"{self.name}: no Q table at {p}")
         try:
             with np.load(p) as d:
                 name, q = str(d["name"]), d["q"]
         except (OSError, ValueError, KeyError) as err:
-            raise ValueError(f"{self.name}: {p} is not a Q table written by save ({err})") from None
+            raise DataError(f"{self.name}: {p} is not a Q table written by save ({err})") from None
         if name != self.name:
-            raise ValueError(f"{self.name}: {p} holds a {name} table")
+            raise DataError(f"{self.name}: {p} holds a {name} table")
         if q.ndim != 2 + len(_SIZES) or q.shape[1:] != (*_SIZES, 3):
-            raise ValueError(f"{self.name}: {p} holds a table of shape {q.shape}, not commands x {(*_SIZES, 3)}")
+            raise DataError(f"{self.name}: {p} holds a table of shape {q.shape}, not commands x {(*_SIZES, 3)}")
         if self.context is not None and q.shape[0] != self.context.n_commands:
-            raise ValueError(f"{self.name}: {p} has {q.shape[0]} commands, the context {self.context.n_commands}")
+            raise DataError(f"{self.name}: {p} has {q.shape[0]} commands, the context {self.context.n_commands}")
         self.q = q.copy()
         self.model_path = str(p)
         return self
@@ -201,13 +201,13 @@ class TabularAgent(Agent):
         """Compiled epsilon-greedy policy of the current table for ``n_users`` users (learning off);
         user i draws what ``reset(seeds[i])`` draws."""
         if self.learning:
-            raise ValueError(f"{self.name}: a batch policy acts with a frozen table; switch learning off "
-                             "(it is on only inside train)")
+            raise ConfigError(f"{self.name}: a batch policy acts with a frozen table; switch learning off "
+                              "(it is on only inside train)")
         if self.q is None:
             self.clear()
         names = list(getattr(self.context, "obs_names", ()) or ())
         if not names:
-            raise ValueError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
+            raise NotReadyError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
         q = self.q.reshape(-1, 3)  # type: ignore[union-attr]
         eps = self.params["epsilon"]
         p = np.full(q.shape, eps / 3)

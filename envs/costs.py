@@ -19,6 +19,7 @@ from typing import Literal
 
 from pydantic import Field, model_validator
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.strict import StrictModel
 
 #: KLM keystroke time K (s) by typist class, Card, Moran & Newell (1980), Figure 1.
@@ -173,7 +174,7 @@ class CostSettings(_Strict):
 def fitts_index_of_difficulty(distance: float, width: float) -> float:
     """Shannon index of difficulty ID = log2(D/W + 1) in bits (MacKenzie 1992)."""
     if distance < 0 or width <= 0:
-        raise ValueError(f"Fitts' law needs distance >= 0 and width > 0, got D={distance}, W={width}")
+        raise ConfigError(f"Fitts' law needs distance >= 0 and width > 0, got D={distance}, W={width}")
     return math.log2(distance / width + 1.0)
 
 
@@ -188,7 +189,7 @@ def effective_throughput_bits_per_s(distance: float, endpoint_sd: float, movemen
     Soukoreff & MacKenzie (2004), "Towards a standard for pointing device evaluation", IJHCS 61.
     """
     if movement_time_s <= 0:
-        raise ValueError(f"movement time must be > 0 s, got {movement_time_s}")
+        raise ConfigError(f"movement time must be > 0 s, got {movement_time_s}")
     effective_width = 4.133 * endpoint_sd
     return fitts_index_of_difficulty(distance, effective_width) / movement_time_s
 
@@ -196,14 +197,14 @@ def effective_throughput_bits_per_s(distance: float, endpoint_sd: float, movemen
 def hick_hyman_time_s(probability: float, intercept_s: float, slope_s_per_bit: float) -> float:
     """Decision time a + b log2(1/p) (s) for choosing an item of probability p (Hick-Hyman)."""
     if not 0 < probability <= 1:
-        raise ValueError(f"item probability must be in (0, 1], got {probability}")
+        raise ConfigError(f"item probability must be in (0, 1], got {probability}")
     return intercept_s + slope_s_per_bit * math.log2(1.0 / probability)
 
 
 def menu_expertise(selections: int) -> float:
     """Expertise e = 1 - 1/t for the t-th selection of an item (Cockburn et al. 2007)."""
     if selections < 1:
-        raise ValueError(f"the selection count t starts at 1, got {selections}")
+        raise ConfigError(f"the selection count t starts at 1, got {selections}")
     return 1.0 - 1.0 / selections
 
 

@@ -20,7 +20,7 @@ from gymnasium import spaces
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.costs import CostSettings
-from shortcut_gym.envs.errors import ActionError, UsageError
+from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.memory import MemorySettings
 from shortcut_gym.envs.simulator import BatchSimulator
@@ -71,7 +71,7 @@ class CommandSelectionEnv(gym.Env):
         aids: str | Path | dict | AidSettings | None = None,
     ) -> None:
         if render_mode is not None and render_mode not in self.metadata["render_modes"]:
-            raise ValueError(f"render_mode must be one of {self.metadata['render_modes']}, got {render_mode!r}")
+            raise ConfigError(f"render_mode must be one of {self.metadata['render_modes']}, got {render_mode!r}")
         self.world = world or make_world(scenario, costs, memory, schedule, observe_recall, target_encoding, aids)
         self.render_mode = render_mode
         self.action_space = spaces.Discrete(3)
@@ -89,10 +89,10 @@ class CommandSelectionEnv(gym.Env):
         if options:
             unknown = set(options) - {"schedule"}
             if unknown:
-                raise ValueError(f"unknown reset option(s) {sorted(unknown)}; known: ['schedule']")
+                raise ConfigError(f"unknown reset option(s) {sorted(unknown)}; known: ['schedule']")
             schedule = options.get("schedule")
             if schedule is not None and not isinstance(schedule, Schedule):
-                raise ValueError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
+                raise ConfigError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
         obs = self._sim.reset(rngs=[self.np_random], schedules=[schedule])
         self._last = None
         return obs[0].copy(), self._upcoming_info()  # type: ignore[return-value]
@@ -105,7 +105,7 @@ class CommandSelectionEnv(gym.Env):
         a = action_index(action)
         t = int(sim.user_state[0, k.U_TRIAL])
         if t >= sim.horizon:
-            raise RuntimeError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
+            raise UsageError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
         self._act[0] = a
         k.step_users(self._act, sim.kernel_int_params, sim.kernel_params, sim.command_constants,
                      sim.command_float_state, sim.command_counts, sim.traces, sim.user_state,

@@ -40,3 +40,13 @@ def require_extra(module: str, extra: str) -> None:
 
 class UsageError(ShortcutGymError, RuntimeError):
     """An object was used out of order (e.g. ``step`` before ``reset``); the message says what to call."""
+
+
+class DataError(ShortcutGymError, ValueError):
+    """A table, array or saved file handed to the package is malformed; the message names the column,
+    row or file and what is wrong with it."""
+
+
+class NotReadyError(UsageError, ValueError):
+    """An object is asked for something it does not have yet (no bound context, no trained model, no
+    kept trials); the message says what to do first. A ValueError too, as it was before."""

@@ -25,6 +25,7 @@ import numpy as np
 from numba import njit
 from pydantic import Field, model_validator
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.strict import StrictModel
 
 MemoryKind = Literal["actr", "actr_exact", "pavlik_anderson", "exponential", "power"]
@@ -114,7 +115,7 @@ def retrieval_latency_s(activation: float, latency_factor_s: float) -> float:
 def _check_ages(now: float, times: Sequence[float]) -> None:
     for t in times:
         if not t < now:
-            raise ValueError(f"trace at {t} s is not before now = {now} s")
+            raise ConfigError(f"trace at {t} s is not before now = {now} s")
 
 
 def actr_activation(
@@ -186,9 +187,9 @@ class HybridBaseLevel:
 
     def __init__(self, decay: float = 0.5, recent: int = 3) -> None:
         if not 0 < decay < 1:
-            raise ValueError(f"decay must be in (0, 1), got {decay}")
+            raise ConfigError(f"decay must be in (0, 1), got {decay}")
         if recent < 1:
-            raise ValueError(f"recent must be >= 1, got {recent}")
+            raise ConfigError(f"recent must be >= 1, got {recent}")
         self.decay = decay
         self.recent = recent
         self.times: list[float] = []
@@ -202,7 +203,7 @@ class HybridBaseLevel:
         if weight <= 0:
             return
         if self.times and time < self.times[-1]:
-            raise ValueError(f"traces must be laid in time order, got {time} after {self.times[-1]}")
+            raise ConfigError(f"traces must be laid in time order, got {time} after {self.times[-1]}")
         self.times.append(time)
         self.weights.append(weight)
         if len(self.times) > self.recent:

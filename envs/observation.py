@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from gymnasium import spaces
 
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, DataError
 
 #: Features after the target block, in order (times in seconds before the log1p).
 FEATURES: tuple[str, ...] = (
@@ -86,7 +86,7 @@ class ObservationLayout:
         """Position of a feature (a name of :meth:`feature_names`) in the vector."""
         names = self.feature_names()
         if feature not in names:
-            raise ValueError(f"observation feature {feature!r} is not in this layout; features: {names}")
+            raise ConfigError(f"observation feature {feature!r} is not in this layout; features: {names}")
         return self.target_size + names.index(feature)
 
     def high(self) -> np.ndarray:
@@ -111,8 +111,8 @@ def layout_of_length(n_commands: int, dim: int) -> ObservationLayout:
             if layout.dim == dim:
                 fits.setdefault(layout.target_size, layout)
     if len(fits) != 1:
-        raise ValueError(f"cannot tell the observation layout of {dim} entries for {n_commands} commands "
-                         f"({len(fits)} layouts fit); give the observation names")
+        raise ConfigError(f"cannot tell the observation layout of {dim} entries for {n_commands} commands "
+                          f"({len(fits)} layouts fit); give the observation names")
     return next(iter(fits.values()))
 
 
@@ -121,8 +121,8 @@ def feature_index(feature: str, dim: int, n_commands: int, names: Sequence[str] 
     (one name per entry), else from the one layout of that length (:func:`layout_of_length`)."""
     if names:
         if len(names) != dim:
-            raise ValueError(f"observation has {dim} entries, the names given are {len(names)}")
+            raise DataError(f"observation has {dim} entries, the names given are {len(names)}")
         if feature not in names:
-            raise ValueError(f"observation feature {feature!r} is not among the names given")
+            raise ConfigError(f"observation feature {feature!r} is not among the names given")
         return list(names).index(feature)
     return layout_of_length(n_commands, dim).index(feature)

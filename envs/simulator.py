@@ -15,7 +15,7 @@ import numpy as np
 from numba import njit
 
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.envs.errors import ActionError
+from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError
 from shortcut_gym.envs.kernel_layout import CommandState, ScheduleArrays, Trace, UserArrays, UserState
 from shortcut_gym.envs.task import Schedule, session_onsets
 from shortcut_gym.envs.world import World
@@ -103,7 +103,7 @@ class BatchSimulator:
     ) -> np.ndarray:
         """Start one user per seed (or per generator); returns observations (users x obs_dim)."""
         if (seeds is None) == (rngs is None):
-            raise ValueError("give either seeds or rngs")
+            raise ConfigError("give either seeds or rngs")
         compiled = None
         if seeds is not None and schedules is None and len(seeds) > 0:
             compiled = seed_words(np.asarray([int(s) for s in seeds]))
@@ -115,16 +115,16 @@ class BatchSimulator:
             gens = list(rngs)  # type: ignore[arg-type]
         n = len(gens)
         if n == 0:
-            raise ValueError("need at least one user")
+            raise ConfigError("need at least one user")
         given = list(schedules) if schedules is not None else [None] * n
         if len(given) != n:
-            raise ValueError(f"{len(given)} schedules for {n} users")
+            raise ConfigError(f"{len(given)} schedules for {n} users")
         replayed = [b for b, s in enumerate(given) if s is not None]
         horizons = {given[b].horizon for b in replayed}  # type: ignore[union-attr]
         if len(replayed) < n:
             horizons.add(self.world.horizon)
         if len(horizons) != 1:
-            raise ValueError(f"all users of a batch need the same horizon, got {sorted(horizons)}")
+            raise ConfigError(f"all users of a batch need the same horizon, got {sorted(horizons)}")
         h = horizons.pop()
         c = self.world.commands.n_commands
         self.sched_command = np.empty((n, h), dtype=np.int64)
@@ -205,8 +205,8 @@ class BatchSimulator:
             else:
                 made_from = getattr(gens[b].bit_generator, "seed_seq", None)  # type: ignore[union-attr]
                 if not isinstance(made_from, np.random.SeedSequence):
-                    raise ValueError("trial-time noise (costs.noise.cv > 0) needs generators made from a seed "
-                                     "sequence, such as numpy.random.default_rng(seed)")
+                    raise ConfigError("trial-time noise (costs.noise.cv > 0) needs generators made from a seed "
+                                      "sequence, such as numpy.random.default_rng(seed)")
                 child = made_from.spawn(1)[0]
             out[b] = np.exp(np.random.default_rng(child).normal(-0.5 * sigma * sigma, sigma, h))
         return out
@@ -258,9 +258,9 @@ class BatchSimulator:
     def step(self, actions: np.ndarray) -> np.ndarray:
         """Advance all users one trial; returns rewards (= -seconds). Outcome etc. on attributes."""
         if self.n_users == 0:
-            raise RuntimeError("call reset() before step()")
+            raise UsageError("call reset() before step()")
         if self.trial >= self.horizon:
-            raise RuntimeError(f"the horizon of {self.horizon} trials is reached; call reset()")
+            raise UsageError(f"the horizon of {self.horizon} trials is reached; call reset()")
         acts = np.asarray(actions)
         if acts.shape != (self.n_users,):
             raise ActionError(f"expected {self.n_users} actions, got shape {acts.shape}")
@@ -423,7 +423,7 @@ def seed_words(seeds: np.ndarray, extra: Sequence[int] = ()) -> tuple[np.ndarray
 
 def _int_words(x: int) -> list[int]:
     if x < 0:
-        raise ValueError(f"entropy {x} must be >= 0")
+        raise ConfigError(f"entropy {x} must be >= 0")
     out = [x & 0xFFFFFFFF]
     x >>= 32
     while x:

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from pydantic import Field, field_validator, model_validator
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.strict import StrictModel
 
 _MODIFIERS = {"Ctrl", "Alt", "Shift", "Cmd", "Meta", "Option"}
@@ -41,15 +42,15 @@ def hotkey_parts(hotkey: str) -> tuple[tuple[str, ...], str]:
         head, key = "", hotkey
     modifiers = tuple(_CANONICAL_MODIFIER.get(m.lower(), m) for m in head.split("+")) if head else ()
     if not _KEY.match(key):
-        raise ValueError(
+        raise ConfigError(
             f"hotkey {hotkey!r}: the key {key!r} must be one printable character (letter, digit or "
             "punctuation) or F1-F24, e.g. 'K', 'Ctrl+K', 'Ctrl+Shift+/', 'F5'"
         )
     unknown = [m for m in modifiers if m not in _MODIFIERS]
     if unknown:
-        raise ValueError(f"hotkey {hotkey!r}: modifier {unknown[0]!r} is not one of {sorted(_MODIFIERS)}")
+        raise ConfigError(f"hotkey {hotkey!r}: modifier {unknown[0]!r} is not one of {sorted(_MODIFIERS)}")
     if len(set(modifiers)) != len(modifiers):
-        raise ValueError(f"hotkey {hotkey!r} names a modifier twice")
+        raise ConfigError(f"hotkey {hotkey!r} names a modifier twice")
     return modifiers, key
 
 
@@ -200,7 +201,7 @@ class CommandSet:
 def zipf_probabilities(n: int, exponent: float) -> np.ndarray:
     """p_i = i^-s / sum_k k^-s for ranks i = 1..n (Zipf law)."""
     if n < 1:
-        raise ValueError(f"need at least one command, got n={n}")
+        raise ConfigError(f"need at least one command, got n={n}")
     ranks = np.arange(1, n + 1, dtype=float)
     w = ranks ** (-exponent)
     return w / w.sum()
@@ -256,12 +257,12 @@ class Schedule:
         n = len(self.command)
         for field in ("onset_s", "session", "gap_total_s"):
             if len(getattr(self, field)) != n:
-                raise ValueError(f"schedule.{field} has {len(getattr(self, field))} entries, command has {n}")
+                raise ConfigError(f"schedule.{field} has {len(getattr(self, field))} entries, command has {n}")
         if n == 0:
-            raise ValueError("a schedule needs at least one trial")
+            raise ConfigError("a schedule needs at least one trial")
         if np.any(np.diff(self.onset_s) <= 0):
             bad = int(np.argmax(np.diff(self.onset_s) <= 0)) + 1
-            raise ValueError(f"schedule onsets must increase; trial {bad} starts at {self.onset_s[bad]} s")
+            raise ConfigError(f"schedule onsets must increase; trial {bad} starts at {self.onset_s[bad]} s")
 
     @property
     def horizon(self) -> int:

@@ -23,7 +23,7 @@ from gymnasium.vector.utils import batch_space
 
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.env import CommandSelectionEnv
-from shortcut_gym.envs.errors import ActionError, require_extra
+from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError, require_extra
 from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World, make_world
@@ -36,7 +36,7 @@ def _seed_list(seed: int | Sequence[int | None] | None, n: int) -> list[int | No
         return [int(seed) + i for i in range(n)]
     seeds = list(seed)
     if len(seeds) != n:
-        raise ValueError(f"{len(seeds)} seeds given for num_envs={n}")
+        raise ConfigError(f"{len(seeds)} seeds given for num_envs={n}")
     return [None if s is None else int(s) for s in seeds]
 
 
@@ -57,9 +57,9 @@ class CommandSelectionVectorEnv(VectorEnv):
         **world_kwargs: Any,
     ) -> None:
         if int(num_envs) != num_envs or num_envs < 1:
-            raise ValueError(f"num_envs must be a whole number >= 1, got {num_envs!r}")
+            raise ConfigError(f"num_envs must be a whole number >= 1, got {num_envs!r}")
         if world is not None and world_kwargs:
-            raise ValueError(f"give either world or world settings, not both (got {sorted(world_kwargs)})")
+            raise ConfigError(f"give either world or world settings, not both (got {sorted(world_kwargs)})")
         self.world = world or make_world(**world_kwargs)
         self.num_envs = int(num_envs)
         self.autoreset_mode = autoreset_mode if isinstance(autoreset_mode, AutoresetMode) else AutoresetMode(
@@ -84,7 +84,7 @@ class CommandSelectionVectorEnv(VectorEnv):
     ) -> tuple[np.ndarray, dict[str, Any]]:
         """Start a new user in every sub-environment (seeds as in ``SyncVectorEnv``)."""
         if options:
-            raise ValueError(f"unknown reset option(s) {sorted(options)}; this vector env takes none")
+            raise ConfigError(f"unknown reset option(s) {sorted(options)}; this vector env takes none")
         seeds = _seed_list(seed, self.num_envs)
         if self._rngs is None or seed is not None:
             self._rngs = [np.random.default_rng(s) for s in seeds]
@@ -94,12 +94,12 @@ class CommandSelectionVectorEnv(VectorEnv):
     def step(self, actions: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, dict[str, Any]]:
         """One trial for every user; autoresets per ``metadata['autoreset_mode']``."""
         if self._rngs is None:
-            raise RuntimeError("call reset() before step()")
+            raise UsageError("call reset() before step()")
         n = self.num_envs
         false = np.zeros(n, dtype=np.bool_)
         if self._autoreset:
             if self.autoreset_mode == AutoresetMode.DISABLED:
-                raise RuntimeError("the horizon is reached; call reset() (autoreset is disabled)")
+                raise UsageError("the horizon is reached; call reset() (autoreset is disabled)")
             self._autoreset = False
             return self._start(), np.zeros(n), false, false.copy(), self._upcoming_info()
         acts = np.asarray(actions)
@@ -204,7 +204,7 @@ def _sb3_class() -> type:
 
         def step_wait(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[dict[str, Any]]]:
             if self._rngs is None or self._actions is None:
-                raise RuntimeError("call reset() and step_async() before step_wait()")
+                raise UsageError("call reset() and step_async() before step_wait()")
             t = self.sim.trial
             rewards = self.sim.step(self._actions).astype(np.float32)
             done = t + 1 >= self.sim.horizon
@@ -241,9 +241,9 @@ def _sb3_class() -> type:
 def make_sb3_vec_env(num_envs: int, world: World | None = None, seed: int | None = None, **world_kwargs: Any) -> Any:
     """A Stable-Baselines3 ``VecEnv`` over the batched simulator (``seed`` seeds user i with seed + i)."""
     if int(num_envs) != num_envs or num_envs < 1:
-        raise ValueError(f"num_envs must be a whole number >= 1, got {num_envs!r}")
+        raise ConfigError(f"num_envs must be a whole number >= 1, got {num_envs!r}")
     if world is not None and world_kwargs:
-        raise ValueError(f"give either world or world settings, not both (got {sorted(world_kwargs)})")
+        raise ConfigError(f"give either world or world settings, not both (got {sorted(world_kwargs)})")
     venv = _sb3_class()(num_envs, world or make_world(**world_kwargs))
     if seed is not None:
         venv.seed(seed)

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.envs.env import CommandSelectionEnv
+from shortcut_gym.envs.errors import ConfigError, UsageError
 from shortcut_gym.envs.kernel import ACTION_NAMES, OPERATOR_NAMES
 from shortcut_gym.envs.task import Schedule
 
@@ -56,7 +57,7 @@ class TrialRecorder(gym.Wrapper):
         super().__init__(env)
         _command_env(env, "TrialRecorder")
         if max_trials is not None and (int(max_trials) != max_trials or max_trials < 1):
-            raise ValueError(f"TrialRecorder: max_trials must be a whole number >= 1 or None, got {max_trials!r}")
+            raise ConfigError(f"TrialRecorder: max_trials must be a whole number >= 1 or None, got {max_trials!r}")
         self.max_trials = None if max_trials is None else int(max_trials)
         self._rows: deque[dict[str, Any]] = deque(maxlen=self.max_trials)
         self.episode = -1
@@ -68,7 +69,7 @@ class TrialRecorder(gym.Wrapper):
 
     def step(self, action: Any) -> tuple[Any, float, bool, bool, dict[str, Any]]:
         if self.episode < 0:
-            raise RuntimeError("call reset() before step()")
+            raise UsageError("call reset() before step()")
         out = self.env.step(action)
         if self.max_trials is not None and len(self._rows) == self.max_trials:
             self.dropped += 1
@@ -99,17 +100,17 @@ class ScheduleReplay(gym.Wrapper):
         base = _command_env(env, "ScheduleReplay")
         self.schedules = list(schedules)
         if not self.schedules:
-            raise ValueError("ScheduleReplay: needs at least one schedule")
+            raise ConfigError("ScheduleReplay: needs at least one schedule")
         horizon = base.world.horizon
         for i, s in enumerate(self.schedules):
             if not isinstance(s, Schedule):
                 raise TypeError(f"ScheduleReplay: schedules[{i}] must be a Schedule, got {type(s).__name__}")
             if len(s.command) != horizon:
-                raise ValueError(f"ScheduleReplay: schedules[{i}] has {len(s.command)} trials, the env's "
-                                 f"horizon is {horizon}")
+                raise ConfigError(f"ScheduleReplay: schedules[{i}] has {len(s.command)} trials, the env's "
+                                  f"horizon is {horizon}")
             n_commands = base.world.commands.n_commands
             if np.any((s.command < 0) | (s.command >= n_commands)):
-                raise ValueError(f"ScheduleReplay: schedules[{i}] names commands outside 0..{n_commands - 1}")
+                raise ConfigError(f"ScheduleReplay: schedules[{i}] names commands outside 0..{n_commands - 1}")
         self.cycle = bool(cycle)
         self.position = 0  # index of the schedule the next reset replays
 
@@ -118,8 +119,8 @@ class ScheduleReplay(gym.Wrapper):
             return self.env.reset(seed=seed, options=options)
         if self.position >= len(self.schedules):
             if not self.cycle:
-                raise RuntimeError(f"ScheduleReplay: all {len(self.schedules)} schedules are used "
-                                   "(cycle=False)")
+                raise UsageError(f"ScheduleReplay: all {len(self.schedules)} schedules are used "
+                                 "(cycle=False)")
             self.position = 0
         schedule = self.schedules[self.position]
         self.position += 1

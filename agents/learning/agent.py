@@ -35,6 +35,7 @@ from shortcut_gym.agents.learning.rules import (
     update,
 )
 from shortcut_gym.agents.learning.trials import TrialArrays
+from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
 from shortcut_gym.envs.kernel import OUTCOME_NAMES
 
 
@@ -51,14 +52,14 @@ class LearningAgent(Agent):
         for p in params:
             owner = mech.owner_of(p)
             if owner is not None and owner not in self.mechanisms:
-                raise ValueError(f"{self.name}: parameter {p!r} belongs to mechanism {owner!r}, which is switched "
-                                 f"off (on: {list(self.mechanisms)})")
+                raise ConfigError(f"{self.name}: parameter {p!r} belongs to mechanism {owner!r}, which is switched "
+                                  f"off (on: {list(self.mechanisms)})")
         opts = dict(mech.OPTION_DEFAULTS)
         for key, value in (options or {}).items():
             if key not in opts:
-                raise ValueError(f"{self.name}: unknown option {key!r}; known: {sorted(opts)}")
+                raise ConfigError(f"{self.name}: unknown option {key!r}; known: {sorted(opts)}")
             if not (isinstance(value, (int, float)) and value >= 0 and math.isfinite(value)):
-                raise ValueError(f"{self.name}: option {key}={value!r} must be a number of seconds >= 0")
+                raise ConfigError(f"{self.name}: option {key}={value!r} must be a number of seconds >= 0")
             opts[key] = float(value)
         self.options = opts
         super().__init__(context, **params)
@@ -117,22 +118,22 @@ class LearningAgent(Agent):
     def reset(self, seed: int | None = None) -> None:
         super().reset(seed)
         if self.context is None:
-            raise ValueError(f"{self.name}: bind a context (command count, horizon) before reset")
+            raise NotReadyError(f"{self.name}: bind a context (command count, horizon) before reset")
         self._alloc()
 
     def _dt_from_obs(self, obs: np.ndarray | None) -> float:
         if self._rules.flags[mech.M_FORGETTING] == 0:
             return 0.0
         if obs is None or np.ndim(obs) != 1 or len(obs) == 0:
-            raise ValueError(f"{self.name}: the forgetting mechanism reads {DT_FEATURE!r} from the observation; "
-                             "none was given")
+            raise ConfigError(f"{self.name}: the forgetting mechanism reads {DT_FEATURE!r} from the observation; "
+                              "none was given")
         if self._dt_index is None:
             self._dt_index = dt_feature_index(self.context, len(obs))
         return float(decode_dt_s(obs[self._dt_index]))
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         if self.context is None:
-            raise ValueError(f"{self.name}: bind a context before use")
+            raise NotReadyError(f"{self.name}: bind a context before use")
         c, trial = int(info["target"]), int(info["next_trial"])
         dt = self._dt_from_obs(obs)
         p = belief_now(0, c, dt, self._rules, self._state)
@@ -161,7 +162,7 @@ class LearningAgent(Agent):
         (order of ``param_specs()``); uses the bound context's horizon and command count when bound."""
         n_cmd = self.context.n_commands if self.context is not None else trials.n_commands
         if trials.command.max() >= n_cmd:
-            raise ValueError(f"log names command {int(trials.command.max())}, the agent knows {n_cmd} commands")
+            raise DataError(f"log names command {int(trials.command.max())}, the agent knows {n_cmd} commands")
         horizon = self.context.horizon if self.context is not None else trials.n_trials
         flags = self.flags()
         slots = self.param_slots()
@@ -172,7 +173,7 @@ class LearningAgent(Agent):
         def log_likelihood(theta: np.ndarray) -> float:
             theta = np.asarray(theta, dtype=np.float64)
             if theta.shape != (k,):
-                raise ValueError(f"theta must have {k} entries {list(self.param_specs())}, got shape {theta.shape}")
+                raise ConfigError(f"theta must have {k} entries {list(self.param_specs())}, got shape {theta.shape}")
             par = base.copy()
             par[slots] = theta
             return float(log_likelihood_kernel(log, horizon, n_cmd, RuleSet(par, flags)))

@@ -17,6 +17,7 @@ from shortcut_gym.agents.learning.features import DT_FEATURE, decode_dt_s, dt_fe
 from shortcut_gym.agents.learning.fused import AgentDraws, run_fused
 from shortcut_gym.agents.learning.rules import BatchStep, RuleSet, batch_decide, batch_update, init_state, new_state
 from shortcut_gym.agents.rollout import UserSums
+from shortcut_gym.envs.errors import ConfigError, NotReadyError, UsageError
 from shortcut_gym.envs.simulator import BatchSimulator, seed_words
 
 
@@ -32,9 +33,9 @@ class BatchLearningPolicy:
     def __init__(self, name: str, context: AgentContext | None, rules: RuleSet, n_users: int,
                  seeds: Sequence[int]) -> None:
         if context is None:
-            raise ValueError(f"{name}: bind a context before batch_policy")
+            raise NotReadyError(f"{name}: bind a context before batch_policy")
         if len(seeds) != n_users:
-            raise ValueError(f"batch_policy: {len(seeds)} seeds for {n_users} users")
+            raise ConfigError(f"batch_policy: {len(seeds)} seeds for {n_users} users")
         self.name = name
         self.context = context
         self.n_users = n_users
@@ -100,17 +101,17 @@ class BatchLearningPolicy:
         The generators are not advanced by a fused run (the policy has reached the horizon; make a
         new policy for new users)."""
         if sim.n_users == 0 or sim.trial != 0:
-            raise RuntimeError("a fused run needs a simulator just reset (trial 0)")
+            raise UsageError("a fused run needs a simulator just reset (trial 0)")
         if self.trial != 0:
-            raise RuntimeError("a fused run needs a fresh batch policy (trial 0)")
+            raise UsageError("a fused run needs a fresh batch policy (trial 0)")
         if self.n_users != sim.n_users:
-            raise ValueError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
+            raise ConfigError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
         if self.rules.flags[mech.M_FORGETTING] == 1:
             want = sim.world.observation_names().index(DT_FEATURE)
             got = dt_feature_index(self.context, sim.obs.shape[1])
             if got != want:
-                raise ValueError(f"the agent reads {DT_FEATURE!r} at observation index {got}, the simulator writes "
-                                 f"it at {want}; bind the agent to this world's context")
+                raise ConfigError(f"the agent reads {DT_FEATURE!r} at observation index {got}, the simulator writes "
+                                  f"it at {want}; bind the agent to this world's context")
         h = sim.horizon
         # each user's uniforms in generator order, as actions() draws them block by block; drawn
         # inside the compiled loop unless the generators are already in use

@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from shortcut_gym.agents.base import AgentContext
+from shortcut_gym.envs.errors import NotReadyError
 from shortcut_gym.envs.observation import feature_index
 
 #: Name of the observation entry the ``forgetting`` mechanism reads.
@@ -24,7 +25,7 @@ def dt_feature_index(context: AgentContext | None, obs_dim: int) -> int:
     (:func:`shortcut_gym.envs.observation.feature_index`, which raises when several fit).
     """
     if context is None:
-        raise ValueError("the forgetting mechanism needs a bound context (call agent.bind(context) first)")
+        raise NotReadyError("the forgetting mechanism needs a bound context (call agent.bind(context) first)")
     names = tuple(context.obs_names)
     if not names and context.world is not None:
         names = tuple(context.world.observation_names())

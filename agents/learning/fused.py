@@ -23,6 +23,7 @@ from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.rules import RULE_JIT, LearnerState, RuleSet, belief_now, decide, update
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import UsageError
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded
 
 
@@ -121,7 +122,7 @@ def run_fused(sim: BatchSimulator, rules: RuleSet, horizon: int, state: LearnerS
     """Run ``sim`` (just reset) to its horizon with a learning model (``state`` initialised, one row
     per sim user; ``horizon`` the model's planning horizon in trials); ``state`` is updated in place."""
     if sim.n_users == 0 or sim.trial != 0:
-        raise RuntimeError("a fused run needs a simulator just reset (trial 0)")
+        raise UsageError("a fused run needs a simulator just reset (trial 0)")
     sums = SumArrays(**vars(UserSums.zeros(sim.n_users, int(sim.sched_session.max()) + 1,
                                           sim.world.commands.n_commands)))
     _run_users(sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,

@@ -42,6 +42,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from shortcut_gym.agents.base import ParamSpec
+from shortcut_gym.envs.errors import ConfigError
 
 #: Mechanism flag positions in the compiled kernel's flag vector.
 (M_VALUE, M_CHOICE_KERNEL, M_MEMORY_AWARE, M_PLANNING, M_INCIDENTAL, M_FORGETTING, M_PERSEVERATION,
@@ -121,20 +122,20 @@ def resolve_mechanisms(owner: str, defaults: Sequence[str], mechanisms: Iterable
     """
     chosen = list(defaults if mechanisms is None else mechanisms)
     if isinstance(mechanisms, str) or isinstance(without, str):
-        raise ValueError(f"{owner}: 'mechanisms' and 'without' take lists of names, not a single string")
+        raise ConfigError(f"{owner}: 'mechanisms' and 'without' take lists of names, not a single string")
     for name in chosen + list(without or ()):
         if name not in MECHANISMS:
-            raise ValueError(f"{owner}: unknown mechanism {name!r}; known: {list(MECHANISMS)}")
+            raise ConfigError(f"{owner}: unknown mechanism {name!r}; known: {list(MECHANISMS)}")
     for name in without or ():
         if name not in chosen:
-            raise ValueError(f"{owner}: cannot switch off {name!r}: it is not on (on: {chosen})")
+            raise ConfigError(f"{owner}: cannot switch off {name!r}: it is not on (on: {chosen})")
     kept = [m for m in MECHANISMS if m in chosen and m not in set(without or ())]
     for name in kept:
         for need in MECHANISMS[name].requires:
             if need not in kept:
-                raise ValueError(f"{owner}: mechanism {name!r} needs {need!r}, which is switched off")
+                raise ConfigError(f"{owner}: mechanism {name!r} needs {need!r}, which is switched off")
     if "value" not in kept and "choice_kernel" not in kept:
-        raise ValueError(f"{owner}: needs 'value' or 'choice_kernel' to choose at all (on: {kept})")
+        raise ConfigError(f"{owner}: needs 'value' or 'choice_kernel' to choose at all (on: {kept})")
     return tuple(kept)
 
 

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.learning.rules import LoggedTrials
+from shortcut_gym.envs.errors import DataError
 from shortcut_gym.envs.kernel import ACTION_NAMES, OUTCOME_NAMES
 
 
@@ -41,9 +42,9 @@ class TrialArrays:
         need = ["trial", "session", "onset_s", "command", "action", "outcome", "duration_s"]
         missing = [c for c in need if c not in df.columns]
         if missing:
-            raise ValueError(f"trial table lacks column(s) {missing}; has {list(df.columns)}")
+            raise DataError(f"trial table lacks column(s) {missing}; has {list(df.columns)}")
         if len(df) == 0:
-            raise ValueError("trial table has no rows")
+            raise DataError("trial table has no rows")
         d = df.sort_values("trial", kind="stable")
         codes = {}
         for col, names in (("action", ACTION_NAMES), ("outcome", OUTCOME_NAMES)):
@@ -57,22 +58,22 @@ class TrialArrays:
                 bad = arr < 0
             if bad.any():
                 i = int(np.argmax(bad))
-                raise ValueError(f"trial table row {d.index[i]}: column {col!r} value {values[i]!r} is not one of "
-                                 f"{list(names)}")
+                raise DataError(f"trial table row {d.index[i]}: column {col!r} value {values[i]!r} is not one of "
+                                f"{list(names)}")
             codes[col] = arr
         command = d["command"].to_numpy()
         if command.dtype.kind not in "iu":
-            raise ValueError(f"column 'command' must hold integer command indices, got dtype {command.dtype}")
+            raise DataError(f"column 'command' must hold integer command indices, got dtype {command.dtype}")
         command = command.astype(np.int64)
         n_cmd = int(command.max()) + 1 if n_commands is None else int(n_commands)
         if command.min() < 0 or command.max() >= n_cmd:
             i = int(np.argmax((command < 0) | (command >= n_cmd)))
-            raise ValueError(f"trial table row {d.index[i]}: command {command[i]} is outside 0..{n_cmd - 1}")
+            raise DataError(f"trial table row {d.index[i]}: command {command[i]} is outside 0..{n_cmd - 1}")
         onset = d["onset_s"].to_numpy(dtype=np.float64)
         dur = d["duration_s"].to_numpy(dtype=np.float64)
         if not np.all(np.isfinite(dur)) or np.any(dur < 0):
             i = int(np.argmax(~np.isfinite(dur) | (dur < 0)))
-            raise ValueError(f"trial table row {d.index[i]}: duration_s {dur[i]!r} must be a finite number >= 0")
+            raise DataError(f"trial table row {d.index[i]}: duration_s {dur[i]!r} must be a finite number >= 0")
         dt = np.zeros(len(d))
         last: dict[int, float] = {}
         for i, (c, t) in enumerate(zip(command.tolist(), onset.tolist())):

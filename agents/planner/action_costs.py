@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
 
@@ -54,7 +55,7 @@ def action_times(world: World, command: int, keyboard_share: float = 0.5,
     q = keyboard_share if next_hotkey_share is None else next_hotkey_share
     for label, v in (("keyboard_share", keyboard_share), ("next_hotkey_share", q), ("own_share", own_share)):
         if not 0.0 <= v <= 1.0:
-            raise ValueError(f"{label} must be in [0, 1], got {v}")
+            raise ConfigError(f"{label} must be in [0, 1], got {v}")
     ks_menu, q_menu = (1.0 - own_share) * keyboard_share, (1.0 - own_share) * q
     ks_hot, q_hot = own_share + ks_menu, own_share + q_menu
     c = world.costs

@@ -26,6 +26,7 @@ from shortcut_gym.agents.planner.next_uses import next_use_points
 from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, command_times
 from shortcut_gym.agents.planner.selection import rule_action
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.memory import (
     HybridBaseLevel,
     actr_activation,
@@ -58,16 +59,16 @@ class BoundedOptimalPlanner(Agent):
         if isinstance(world, (dict, str, Path)):
             world = make_world(**world) if isinstance(world, dict) else make_world(world)
         if world is not None and not isinstance(world, World):
-            raise ValueError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
-                             f"{type(world).__name__}")
+            raise ConfigError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
+                              f"{type(world).__name__}")
         if keyboard_share is not None and not 0.0 <= float(keyboard_share) <= 1.0:
-            raise ValueError(f"{self.name}: keyboard_share={keyboard_share} must be in [0, 1] (or None)")
+            raise ConfigError(f"{self.name}: keyboard_share={keyboard_share} must be in [0, 1] (or None)")
         if int(n_bins) != n_bins or n_bins < 2:
-            raise ValueError(f"{self.name}: n_bins={n_bins} must be a whole number >= 2")
+            raise ConfigError(f"{self.name}: n_bins={n_bins} must be a whole number >= 2")
         if int(n_weight_bins) != n_weight_bins or n_weight_bins < 1:
-            raise ValueError(f"{self.name}: n_weight_bins={n_weight_bins} must be a whole number >= 1")
+            raise ConfigError(f"{self.name}: n_weight_bins={n_weight_bins} must be a whole number >= 1")
         if int(select_users) != select_users or select_users < 0:
-            raise ValueError(f"{self.name}: select_users={select_users} must be a whole number >= 0")
+            raise ConfigError(f"{self.name}: select_users={select_users} must be a whole number >= 0")
         self.select_users = int(select_users)
         self.world = world
         self.keyboard_share = None if keyboard_share is None else float(keyboard_share)
@@ -95,8 +96,8 @@ class BoundedOptimalPlanner(Agent):
     def _world(self) -> World:
         w = self.world or getattr(self.context, "world", None)
         if w is None:
-            raise ValueError(f"{self.name}: needs the world it plans for: make_agent('{self.name}', world=...) "
-                             "or a context with .world")
+            raise ConfigError(f"{self.name}: needs the world it plans for: make_agent('{self.name}', world=...) "
+                              "or a context with .world")
         return w
 
     def reset(self, seed: int | None = None) -> None:

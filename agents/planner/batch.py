@@ -23,6 +23,7 @@ import numpy as np
 
 from shortcut_gym.agents.base import Transition
 from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy, constant_rule, first_uses_rule, frozen_policy
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import HOTKEY, MENU, OUTCOME_NAMES
 
 if TYPE_CHECKING:
@@ -42,9 +43,9 @@ def rule_policy(agent: BoundedOptimalPlanner, choice: PolicyChoice, n_users: int
     elif choice.kind == "learn_first_k":
         rule = first_uses_rule(int(choice.k), menu_only)
     else:
-        raise ValueError(f"{agent.name}: {choice.label} is not a fixed rule")
+        raise ValueError(f"{agent.name}: {choice.label} is not a fixed rule")  # invariant: fixed rules only
     if menu_only and len(menu_only) != n_cmd:
-        raise ValueError(f"{agent.name}: the plan's choice covers {len(menu_only)} commands, the world has {n_cmd}")
+        raise ConfigError(f"{agent.name}: the plan's choice covers {len(menu_only)} commands, the world has {n_cmd}")
     return frozen_policy(agent, n_users, seeds, lambda uses, sessions: rule)
 
 
@@ -54,7 +55,7 @@ class PlanLookupBatch:
 
     def __init__(self, agent: BoundedOptimalPlanner, n_users: int, seeds: Sequence[int]) -> None:
         if len(seeds) != n_users:
-            raise ValueError(f"{agent.name}: {len(seeds)} seeds for {n_users} users")
+            raise ConfigError(f"{agent.name}: {len(seeds)} seeds for {n_users} users")
         agent.reset(int(seeds[0]) if len(seeds) else None)
         self.users = [copy.deepcopy(agent) for _ in seeds]
         for user, seed in zip(self.users, seeds, strict=True):

@@ -23,6 +23,7 @@ from shortcut_gym.agents.planner.action_costs import action_times
 from shortcut_gym.agents.planner.search import expected_uses
 from shortcut_gym.agents.planner.selection import SELECTION_SEED, PolicyChoice, _RuleAgent
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
 #: Simulated users the recall along the learn-then-hotkey path is averaged over by default.
@@ -38,7 +39,7 @@ def learn_once_recall(world: World, n_users: int = PATH_USERS) -> list[np.ndarra
     from shortcut_gym.envs.simulator import BatchSimulator
 
     if int(n_users) != n_users or n_users < 1:
-        raise ValueError(f"n_users must be a whole number >= 1, got {n_users}")
+        raise ConfigError(f"n_users must be a whole number >= 1, got {n_users}")
     seeds = [SELECTION_SEED + i for i in range(int(n_users))]
     agent = _RuleAgent(PolicyChoice("learn_first_k", 1))
     agent.bind(context_of_world(world))

@@ -28,6 +28,7 @@ from scipy import sparse
 
 from shortcut_gym.agents.base import Agent, Transition
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.task import session_onsets
 from shortcut_gym.envs.world import World
 
@@ -46,7 +47,7 @@ class _Kernel:
         self.n_cmd = world.commands.n_commands
         self.horizon = world.horizon
         if int(self.ipar[k.I_WARMUP]) != 0:
-            raise ValueError("exact solver: the warm-up aid is not supported (it lays traces inside a trial's step)")
+            raise ConfigError("exact solver: the warm-up aid is not supported (it lays traces inside a trial's step)")
         onset, session, gap_total = session_onsets(world.schedule)
         self.onset = onset[None, :].copy()
         self.session = session[None, :].astype(np.int64)
@@ -160,7 +161,7 @@ def exact_mdp(world: World, max_states: int = MAX_STATES) -> ExactMDP:
         key = (t, c, kern.key(st))
         if key not in ids:
             if len(states) >= max_states:
-                raise ValueError(f"exact solver: more than {max_states:,} states; use fewer commands or trials")
+                raise ConfigError(f"exact solver: more than {max_states:,} states; use fewer commands or trials")
             ids[key] = len(states)
             states.append((t, c, st))
         return ids[key]
@@ -252,7 +253,7 @@ def evaluate_exactly(world: World, agent: Agent, max_states: int = MAX_STATES) -
         if key in memo:
             return memo[key]
         if len(memo) >= max_states:
-            raise ValueError(f"exact evaluation: more than {max_states:,} states")
+            raise ConfigError(f"exact evaluation: more than {max_states:,} states")
         total = 0.0
         for c in range(kern.n_cmd):
             pc = float(kern.p_use[c])
@@ -284,7 +285,7 @@ def small_world(n_commands: int = 1, sessions: int = 2, trials_per_session: int 
     names = ["Save log", "Open log", "Mark pool", "Tag find"]
     hotkeys = ["Ctrl+S", "Ctrl+O", "Ctrl+M", "Ctrl+Shift+T"]
     if not 1 <= n_commands <= len(names):
-        raise ValueError(f"small_world: n_commands must be 1..{len(names)}, got {n_commands}")
+        raise ConfigError(f"small_world: n_commands must be 1..{len(names)}, got {n_commands}")
     scenario = {"name": "small_tool", "description": "an invented one-menu tool", "zipf_exponent": 1.0,
                 "menus": [{"title": "Log", "items": [{"name": n, "hotkey": h}
                                                      for n, h in zip(names[:n_commands], hotkeys[:n_commands])]}],

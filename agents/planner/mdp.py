@@ -22,6 +22,7 @@ from shortcut_gym.agents.planner.interpolation import (
 )
 from shortcut_gym.agents.planner.memory_model import aged_strength, check_memory_kind, gap_distribution, weight_grid
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
 GRID_HALF_WIDTH = 8.0  # in units of the retrieval noise s
@@ -146,9 +147,9 @@ def build_command_mdp(world: World, command: int, n_bins: int = 40, keyboard_sha
     next trial (``next_hotkey_share``, default ``keyboard_share``, see :func:`action_times`).
     """
     if n_bins < 2:
-        raise ValueError(f"n_bins must be >= 2, got {n_bins}")
+        raise ConfigError(f"n_bins must be >= 2, got {n_bins}")
     if n_weight_bins < 1:
-        raise ValueError(f"n_weight_bins must be >= 1, got {n_weight_bins}")
+        raise ConfigError(f"n_weight_bins must be >= 1, got {n_weight_bins}")
     check_memory_kind(world)
     m = world.memory
     ag = np.linspace(m.threshold - GRID_HALF_WIDTH * m.noise_s, m.threshold + GRID_HALF_WIDTH * m.noise_s, n_bins)

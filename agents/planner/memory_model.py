@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
 N_GAP_QUANTILES = 8
@@ -24,8 +25,8 @@ SUPPORTED_KINDS = ("actr", "actr_exact", "exponential", "power")
 def check_memory_kind(world: World) -> None:
     """Refuse a memory kind the planner does not model (spacing-sensitive decay)."""
     if world.memory.kind not in SUPPORTED_KINDS:
-        raise ValueError(f"the planner supports memory kinds actr, actr_exact, exponential, power; "
-                         f"got {world.memory.kind!r}")
+        raise ConfigError(f"the planner supports memory kinds actr, actr_exact, exponential, power; "
+                          f"got {world.memory.kind!r}")
 
 
 def gap_distribution(world: World, command: int) -> tuple[np.ndarray, np.ndarray]:

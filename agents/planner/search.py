@@ -14,6 +14,7 @@ from shortcut_gym.agents.planner.mdp import CommandMDP, build_command_mdp
 from shortcut_gym.agents.planner.selection import PolicyChoice, select_policy
 from shortcut_gym.agents.planner.solver import backward_induction_staged, hotkey_shares, stacked_csr, state_occupancy
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
 #: Simulated users the candidate policies are compared on by default (:func:`.selection.select_policy`).
@@ -164,11 +165,11 @@ def plan_world(world: World, max_uses: int | None = None, n_bins: int = 40,
     """
     n = world.horizon if max_uses is None else int(max_uses)
     if n < 1:
-        raise ValueError(f"max_uses must be >= 1, got {max_uses}")
+        raise ConfigError(f"max_uses must be >= 1, got {max_uses}")
     if keyboard_share is not None and not 0.0 <= float(keyboard_share) <= 1.0:
-        raise ValueError(f"keyboard_share must be in [0, 1] or None, got {keyboard_share}")
+        raise ConfigError(f"keyboard_share must be in [0, 1] or None, got {keyboard_share}")
     if int(select_users) != select_users or select_users < 0:
-        raise ValueError(f"select_users must be a whole number >= 0, got {select_users}")
+        raise ConfigError(f"select_users must be a whole number >= 0, got {select_users}")
     mdps = [build_command_mdp(world, c, n_bins, 0.0, 0.0, n_weight_bins) for c in range(world.commands.n_commands)]
     candidates = []
     for start in ((float(keyboard_share),) if keyboard_share is not None else (0.0, 1.0)):

@@ -25,7 +25,7 @@ from shortcut_gym.agents.rollout import context_of, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
 from shortcut_gym.agents.sb3.training import train_model
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, NotReadyError
 
 
 class SB3Agent(Agent):
@@ -40,7 +40,7 @@ class SB3Agent(Agent):
         super().__init__(context, **params)
         for key, flag in (("deterministic", deterministic), ("normalize", normalize)):
             if not isinstance(flag, bool):
-                raise ValueError(f"{self.name}: {key} must be true or false, got {flag!r}")
+                raise ConfigError(f"{self.name}: {key} must be true or false, got {flag!r}")
         self.deterministic = deterministic
         self.normalize = normalize
         self.hyperparameters = {**DEFAULT_HYPERPARAMETERS[self.algorithm], **(hyperparameters or {})}
@@ -89,7 +89,7 @@ class SB3Agent(Agent):
     def save(self, path: str | Path) -> Path:
         """Write the model zip; returns its path."""
         if self.model is None:
-            raise ValueError(f"{self.name}: nothing to save, train or load a model first")
+            raise NotReadyError(f"{self.name}: nothing to save, train or load a model first")
         p = save_model(self.model, self.obs_norm, path)
         self.model_path = str(p)
         return p
@@ -104,7 +104,7 @@ class SB3Agent(Agent):
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         if self.model is None:
-            raise ValueError(f"{self.name}: train or load a model before use")
+            raise NotReadyError(f"{self.name}: train or load a model before use")
         import torch
 
         policy = self.model.policy
@@ -122,7 +122,7 @@ class SB3Agent(Agent):
     def probability_rows(self, obs: np.ndarray) -> np.ndarray:
         """(B, 3) :meth:`action_probabilities` of B observations in one forward pass of the policy."""
         if self.model is None:
-            raise ValueError(f"{self.name}: train or load a model before use")
+            raise NotReadyError(f"{self.name}: train or load a model before use")
         import torch
 
         policy = self.model.policy
@@ -158,9 +158,9 @@ class SB3BatchPolicy:
 
     def __init__(self, agent: SB3Agent, n_users: int, seeds: Sequence[int]) -> None:
         if len(seeds) != n_users:
-            raise ValueError(f"{agent.name}: {len(seeds)} seeds for {n_users} users")
+            raise ConfigError(f"{agent.name}: {len(seeds)} seeds for {n_users} users")
         if agent.model is None:
-            raise ValueError(f"{agent.name}: train or load a model before use")
+            raise NotReadyError(f"{agent.name}: train or load a model before use")
         self.agent = agent
         self.draws = None if agent.deterministic else UserDraws(agent.name, seeds)
 

@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 
 from shortcut_gym.agents.sb3.algorithms import algorithm_classes
+from shortcut_gym.envs.errors import ConfigError
 
 
 def norm_path(model_zip: Path) -> Path:
@@ -30,12 +31,12 @@ def load_model(owner: str, algorithm: str, path: str | Path, normalize: bool) ->
     errors name ``owner`` and the missing file."""
     p = Path(path)
     if not p.is_file() and not p.with_suffix(".zip").is_file():
-        raise ValueError(f"{owner}: no model file at {p}")
+        raise ConfigError(f"{owner}: no model file at {p}")
     model = algorithm_classes()[algorithm].load(str(p), device="cpu")
     if not normalize:
         return model, None
     norm = norm_path(p if p.suffix == ".zip" else p.with_suffix(".zip"))
     if not norm.is_file():
-        raise ValueError(f"{owner}: normalize is on but {norm} (observation statistics) is missing")
+        raise ConfigError(f"{owner}: normalize is on but {norm} (observation statistics) is missing")
     with np.load(norm) as d:
         return model, {"mean": d["mean"], "var": d["var"], "clip": float(d["clip"]), "epsilon": float(d["epsilon"])}

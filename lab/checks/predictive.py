@@ -23,6 +23,7 @@ import pandas as pd
 from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.rollout import context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import Schedule
 from shortcut_gym.envs.world import World
@@ -41,7 +42,7 @@ def _drive(world: World, make: Any, n: int, rng: np.random.Generator,
     rollout = drive_batch(sim, make(context_of_world(world, sim.horizon)), agent_seeds, keep_trials=True)
     kept = rollout.trials
     if kept is None:
-        raise RuntimeError("drive_batch kept no trials although asked to")
+        raise RuntimeError("drive_batch kept no trials although asked to")  # invariant
     return sim, kept.action, kept.outcome, kept.duration_s
 
 
@@ -89,7 +90,7 @@ def block_of(trials: pd.DataFrame, block: str | int) -> np.ndarray:
         return trials["session"].to_numpy(dtype=np.int64)
     size = int(block)
     if size < 1:
-        raise ValueError(f"block size must be >= 1 trial, got {size}")
+        raise ConfigError(f"block size must be >= 1 trial, got {size}")
     return np.arange(len(trials)) // size
 
 
@@ -132,7 +133,7 @@ def posterior_predictive(
         for label, spec in by_label.items():
             row = fits[(fits["participant"] == pid) & (fits["model"] == label)]
             if row.empty:
-                raise ValueError(f"no fit of model {label!r} for participant {pid!r}")
+                raise DataError(f"no fit of model {label!r} for participant {pid!r}")
             fit = row.iloc[0]
             _, actions, _, _ = _drive(world, lambda ctx, fit=fit, spec=spec: fitted_agent(spec, fit, ctx),
                                 n_sims, rng, schedule)

@@ -33,13 +33,13 @@ def draw_parameters(spec: ModelSpec, rng: np.random.Generator,
     ranges = dict(ranges or {})
     unknown = set(ranges) - set(specs)
     if unknown:
-        raise ValueError(f"model {spec.label!r}: ranges for unknown parameter(s) {sorted(unknown)}")
+        raise ConfigError(f"model {spec.label!r}: ranges for unknown parameter(s) {sorted(unknown)}")
     out = {}
     for n in spec.free_parameters():
         if n in ranges:
             lo, hi = ranges[n]
             if not (specs[n].lower <= lo <= hi <= specs[n].upper):
-                raise ValueError(f"range {n}=({lo}, {hi}) is outside the bounds [{specs[n].lower}, {specs[n].upper}]")
+                raise ConfigError(f"range {n}=({lo}, {hi}) is outside the bounds [{specs[n].lower}, {specs[n].upper}]")
             out[n] = float(rng.uniform(lo, hi))
         else:
             s = specs[n]

@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 from scipy.special import digamma, expit, gammaln, softmax
 
+from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.lab.compare.exceedance import dirichlet_exceedance, exact_bor_feasible, exact_omnibus_risk
 
 
@@ -81,16 +82,16 @@ def random_effects_bms(
     """
     lme = np.asarray(log_evidence, dtype=float)
     if lme.ndim != 2 or lme.shape[1] < 2 or lme.shape[0] < 1:
-        raise ValueError(f"log evidence must be participants x models with >= 2 models, got shape {lme.shape}")
+        raise DataError(f"log evidence must be participants x models with >= 2 models, got shape {lme.shape}")
     if not np.isfinite(lme).all():
-        raise ValueError("log evidence holds non-finite values")
+        raise DataError("log evidence holds non-finite values")
     n, kk = lme.shape
     models = models or [f"model{j}" for j in range(kk)]
     if len(models) != kk:
-        raise ValueError(f"{len(models)} model names for {kk} columns")
+        raise DataError(f"{len(models)} model names for {kk} columns")
     a0 = np.full(kk, alpha0, dtype=float) if np.isscalar(alpha0) else np.asarray(alpha0, dtype=float)
     if a0.shape != (kk,) or (a0 <= 0).any():
-        raise ValueError(f"alpha0 must be {kk} positive numbers, got {alpha0!r}")
+        raise ConfigError(f"alpha0 must be {kk} positive numbers, got {alpha0!r}")
     alpha = a0.copy()
     f_old = -np.inf
     z = np.full((n, kk), 1.0 / kk)

@@ -29,6 +29,8 @@ import numpy as np
 from scipy import integrate
 from scipy.special import betainc, gammainc, gammainccinv, gammaincinv, gammaln, logsumexp
 
+from shortcut_gym.envs.errors import ConfigError
+
 #: Tail mass of Gamma(alpha_k) left outside the integration interval on each side.
 TAIL = 1e-17
 #: Most table updates (participants x models x table entries) the exact omnibus risk may cost.
@@ -38,9 +40,9 @@ EXACT_BOR_MAX_WORK = 20_000_000
 def _check_alpha(alpha: np.ndarray) -> np.ndarray:
     a = np.asarray(alpha, dtype=float)
     if a.ndim != 1 or len(a) < 2:
-        raise ValueError(f"Dirichlet parameters must be a vector of >= 2 values, got shape {a.shape}")
+        raise ConfigError(f"Dirichlet parameters must be a vector of >= 2 values, got shape {a.shape}")
     if not np.isfinite(a).all() or (a <= 0).any():
-        raise ValueError(f"Dirichlet parameters must be finite and > 0, got {a.tolist()}")
+        raise ConfigError(f"Dirichlet parameters must be finite and > 0, got {a.tolist()}")
     return a
 
 
@@ -48,7 +50,7 @@ def exceedance_two_models(alpha: np.ndarray) -> np.ndarray:
     """Exact exceedance probabilities of Dirichlet(alpha_1, alpha_2) from the Beta distribution."""
     a = _check_alpha(alpha)
     if len(a) != 2:
-        raise ValueError(f"the Beta form needs exactly 2 models, got {len(a)}")
+        raise ConfigError(f"the Beta form needs exactly 2 models, got {len(a)}")
     p1 = float(betainc(a[1], a[0], 0.5))
     return np.array([p1, 1.0 - p1])
 
@@ -97,7 +99,7 @@ def exceedance_monte_carlo(alpha: np.ndarray, draws: int, rng: np.random.Generat
     """(exceedance probabilities, their standard errors sqrt(p (1 - p) / draws)) from Dirichlet draws."""
     a = _check_alpha(alpha)
     if draws < 1:
-        raise ValueError(f"draws must be >= 1, got {draws}")
+        raise ConfigError(f"draws must be >= 1, got {draws}")
     wins = np.zeros(len(a))
     chunk = 200_000
     done = 0
@@ -126,8 +128,8 @@ def exact_log_evidence_h1(log_evidence: np.ndarray, alpha0: np.ndarray) -> float
     lme = np.asarray(log_evidence, dtype=float)
     n, kk = lme.shape
     if not exact_bor_feasible(n, kk):
-        raise ValueError(f"exact evidence for {n} participants x {kk} models costs {_work(n, kk)} table updates "
-                         f"(at most {EXACT_BOR_MAX_WORK}); use the variational BOR")
+        raise ConfigError(f"exact evidence for {n} participants x {kk} models costs {_work(n, kk)} table updates "
+                          f"(at most {EXACT_BOR_MAX_WORK}); use the variational BOR")
     a0 = np.asarray(alpha0, dtype=float)
     table = np.zeros((n + 1,) * kk)
     table[(0,) * kk] = 1.0

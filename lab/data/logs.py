@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.envs.errors import ConfigError, InputFileError, ShortcutGymError
+from shortcut_gym.envs.errors import ConfigError, DataError, InputFileError, ShortcutGymError
 from shortcut_gym.envs.kernel import ACTION_NAMES, OUTCOME_NAMES
 from shortcut_gym.envs.task import CommandSet, Schedule
 
@@ -122,7 +122,7 @@ def write_log(log: pd.DataFrame, path: str | Path) -> Path:
     p = Path(path)
     missing = [c for c in LOG_COLUMNS if c not in log.columns]
     if missing:
-        raise ValueError(f"cannot write a trial log without column(s) {missing}")
+        raise DataError(f"cannot write a trial log without column(s) {missing}")
     table = log[list(LOG_COLUMNS)]
     fmt = log_format(p)
     p.parent.mkdir(parents=True, exist_ok=True)
@@ -292,7 +292,7 @@ def log_from_simulation(trials: pd.DataFrame, commands: CommandSet, participant_
                         prefix: str = "P") -> pd.DataFrame:
     """Turn simulated trial tables (``run_episode`` rows plus a user column) into the log schema."""
     if participant_column not in trials.columns:
-        raise ValueError(f"simulated trials have no {participant_column!r} column")
+        raise DataError(f"simulated trials have no {participant_column!r} column")
     out = pd.DataFrame({
         "participant": [f"{prefix}{u}" if prefix else str(u) for u in trials[participant_column]],
         "session": trials["session"].to_numpy(dtype=np.int64),

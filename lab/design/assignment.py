@@ -60,7 +60,7 @@ from shortcut_gym.agents.planner import (
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs import CommandSelectionEnv, World
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.envs.kernel import MENU
 from shortcut_gym.envs.task import hotkey_keystrokes
 
@@ -124,7 +124,7 @@ class SavingTable:
         """Saving matrix (commands x combinations) for a pool."""
         missing = sorted({c.keystrokes for c in combos} - set(self.keystrokes))
         if missing:
-            raise ValueError(f"the saving table has no column for {missing} keystrokes; it has {list(self.keystrokes)}")
+            raise DataError(f"the saving table has no column for {missing} keystrokes; it has {list(self.keystrokes)}")
         col = {k: i for i, k in enumerate(self.keystrokes)}
         return self.saving_s[:, [col[c.keystrokes] for c in combos]]
 
@@ -142,7 +142,7 @@ def with_keystrokes(world: World, keystrokes: int | Sequence[int]) -> World:
     n = world.commands.n_commands
     ks = np.broadcast_to(np.asarray(keystrokes, dtype=world.commands.keystrokes.dtype), (n,)).copy()
     if np.any(ks < 1):
-        raise ValueError(f"keystroke counts must be >= 1, got {sorted(set(ks.tolist()))}")
+        raise ConfigError(f"keystroke counts must be >= 1, got {sorted(set(ks.tolist()))}")
     return world.with_changes(commands=replace(world.commands, keystrokes=ks))
 
 
@@ -164,7 +164,7 @@ def planner_savings(world: World, keystrokes: Iterable[int] = (1, 2, 3), keyboar
     ks = _check_share(keyboard_share)
     counts = tuple(sorted({int(k) for k in keystrokes}))
     if not counts or counts[0] < 1:
-        raise ValueError(f"keystroke counts must be >= 1, got {counts}")
+        raise ConfigError(f"keystroke counts must be >= 1, got {counts}")
     worlds = [with_keystrokes(world, k) for k in counts]
     n = world.commands.n_commands
     uses = np.array([expected_uses(world, c) for c in range(n)])
@@ -199,7 +199,7 @@ def population_savings(world: World, agents: Sequence[dict[str, Any]], keystroke
     users, seeds ``seeds``). Approximate separation (see module); negative savings are kept.
     """
     if not agents:
-        raise ValueError("population_savings needs at least one agent spec")
+        raise ConfigError("population_savings needs at least one agent spec")
     counts = tuple(sorted({int(k) for k in keystrokes}))
     n = world.commands.n_commands
     labelled = [(f"a{i}", agent_from_spec(s)) for i, s in enumerate(agents)]
@@ -236,11 +236,11 @@ class Assignment:
 def _check(saving: np.ndarray, budget: int) -> np.ndarray:
     S = np.asarray(saving, dtype=float)
     if S.ndim != 2 or S.size == 0:
-        raise ValueError(f"saving must be a non-empty (commands x combinations) matrix, got shape {S.shape}")
+        raise DataError(f"saving must be a non-empty (commands x combinations) matrix, got shape {S.shape}")
     if not np.all(np.isfinite(S)):
-        raise ValueError("saving matrix holds non-finite values")
+        raise DataError("saving matrix holds non-finite values")
     if int(budget) != budget or budget < 0:
-        raise ValueError(f"budget must be a whole number >= 0, got {budget}")
+        raise ConfigError(f"budget must be a whole number >= 0, got {budget}")
     return S
 
 
@@ -265,7 +265,7 @@ def solve_exact(saving: np.ndarray, budget: int) -> Assignment:
     res = milp(-S[cand[:, 0], cand[:, 1]], constraints=LinearConstraint(A, -np.inf, ub),
                integrality=np.ones(v), bounds=Bounds(0, 1))
     if not res.success:
-        raise RuntimeError(f"milp failed on the assignment problem: {res.message}")
+        raise RuntimeError(f"milp failed on the assignment problem: {res.message}")  # invariant
     chosen = cand[np.round(res.x) > 0.5]
     return _result(S, chosen, "exact")
 
@@ -275,7 +275,7 @@ def solve_brute_force(saving: np.ndarray, budget: int) -> Assignment:
     S = _check(saving, budget)
     n, m = S.shape
     if n > 10 or m > 10:
-        raise ValueError(f"brute force is for small sets (<= 10 commands and combinations), got {n} x {m}")
+        raise ConfigError(f"brute force is for small sets (<= 10 commands and combinations), got {n} x {m}")
     best, best_pairs = 0.0, ()
     for b in range(1, min(budget, n, m) + 1):
         for cmds in itertools.combinations(range(n), b):
@@ -380,11 +380,11 @@ def synthetic_scenario(n_commands: int, items_per_menu: int = 10, zipf_exponent:
     ``items_per_menu`` items, Zipf usage in listed order, distinct placeholder hotkeys (the
     assignment replaces them)."""
     if n_commands < 1 or items_per_menu < 1:
-        raise ValueError(f"need n_commands >= 1 and items_per_menu >= 1, got {n_commands}, {items_per_menu}")
+        raise ConfigError(f"need n_commands >= 1 and items_per_menu >= 1, got {n_commands}, {items_per_menu}")
     chords = [f"{m}+{k}" for m in ("Ctrl", "Alt", "Ctrl+Shift", "Ctrl+Alt", "Alt+Shift", "Ctrl+Alt+Shift")
               for k in (*POOL_KEYS, *"0123456789", *(f"F{i}" for i in range(1, 13)))]
     if n_commands > len(chords):
-        raise ValueError(f"synthetic_scenario makes at most {len(chords)} commands, got {n_commands}")
+        raise ConfigError(f"synthetic_scenario makes at most {len(chords)} commands, got {n_commands}")
     items = [{"name": f"Logbook action {i + 1:03d}", "hotkey": chords[i]} for i in range(n_commands)]
     menus = [{"title": f"Panel {m + 1}", "items": items[i:i + items_per_menu]}
              for m, i in enumerate(range(0, n_commands, items_per_menu))]

@@ -9,6 +9,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
+from shortcut_gym.envs.errors import DataError
+
 
 def save_figure(fig: Figure, path: Path) -> Path:
     """Write ``fig`` as PNG atomically (a temporary file renamed into place)."""
@@ -25,7 +27,7 @@ def budget_figure(curve: pd.DataFrame, title: str = "Hotkey assignment") -> Figu
     """Expected seconds saved per user against the hotkey budget: exact optimum and heuristic."""
     for col in ("budget", "exact_saving_s", "heuristic_saving_s"):
         if col not in curve.columns:
-            raise ValueError(f"budget curve lacks column {col!r}; has {list(curve.columns)}")
+            raise DataError(f"budget curve lacks column {col!r}; has {list(curve.columns)}")
     fig = Figure(figsize=(5.2, 3.4), constrained_layout=True)
     ax = fig.add_subplot()
     ax.plot(curve["budget"], curve["exact_saving_s"], marker="o", ms=4, label="exact (milp)")
@@ -43,7 +45,7 @@ def aid_figure(table: pd.DataFrame, population: str, title: str = "Interface aid
     """Seconds saved per user by each aid (bars, +- 1 SE) at each population value, one panel per agent."""
     for col in (population, "agent", "aid", "saved_s", "saved_se_s"):
         if col not in table.columns:
-            raise ValueError(f"aid table lacks column {col!r}; has {list(table.columns)}")
+            raise DataError(f"aid table lacks column {col!r}; has {list(table.columns)}")
     agents = list(dict.fromkeys(table["agent"]))
     aids = list(dict.fromkeys(table["aid"]))
     values = list(dict.fromkeys(table[population]))

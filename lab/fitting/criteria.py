@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import math
 
+from shortcut_gym.envs.errors import ConfigError
+
 
 def aic(loglik: float, k: int) -> float:
     """Akaike information criterion 2k - 2 ln L (Akaike 1974)."""
@@ -18,5 +20,5 @@ def aic(loglik: float, k: int) -> float:
 def bic(loglik: float, k: int, n: int) -> float:
     """Bayesian information criterion k ln n - 2 ln L (Schwarz 1978)."""
     if n < 1:
-        raise ValueError(f"BIC needs at least one observation, got n={n}")
+        raise ConfigError(f"BIC needs at least one observation, got n={n}")
     return k * math.log(n) - 2.0 * loglik

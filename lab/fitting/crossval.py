@@ -25,7 +25,7 @@ from scipy import optimize
 from threadpoolctl import threadpool_limits
 
 from shortcut_gym.agents.base import AgentContext
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.lab.data.logs import participant_trials, participants
 from shortcut_gym.lab.fitting.hierarchical import free_box
@@ -44,7 +44,7 @@ def session_loglik_function(spec: ModelSpec, trials: pd.DataFrame, context: Agen
     """
     session = trials["session"].to_numpy()
     if np.any(np.diff(session) < 0):
-        raise ValueError("sessions must not decrease along a participant's trials")
+        raise DataError("sessions must not decrease along a participant's trials")
     ends = np.flatnonzero(np.r_[session[1:] != session[:-1], True]) + 1  # end (exclusive) of each session
     full, fast = loglik_function(spec, trials, context)
     if fast:
@@ -113,7 +113,7 @@ def cross_validate(log: pd.DataFrame, specs: Sequence[ModelSpec], context: Agent
     A participant with a single session cannot be cross-validated: ConfigError naming them.
     """
     if n_starts < 1:
-        raise ValueError(f"n_starts must be >= 1, got {n_starts}")
+        raise ConfigError(f"n_starts must be >= 1, got {n_starts}")
     rows = []
     with threadpool_limits(limits=1, user_api="blas"):
         for i, pid in enumerate(participants(log)):
@@ -121,7 +121,7 @@ def cross_validate(log: pd.DataFrame, specs: Sequence[ModelSpec], context: Agent
             sessions = pd.unique(trials["session"])
             if len(sessions) < 2:
                 raise ConfigError(f"participant {pid!r} has one session ({sessions[0]}); leave-one-session-out "
-                                 "cross-validation needs at least 2")
+                                  "cross-validation needs at least 2")
             sizes = trials.groupby("session", sort=False).size().to_numpy()
             own = AgentContext(context.n_commands, len(trials), context.command_names)
             for j, spec in enumerate(specs):

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from shortcut_gym.envs.errors import DataError
 from shortcut_gym.lab.fitting.criteria import aic, bic
 
 
@@ -25,12 +26,12 @@ def joint_table(choice_fits: pd.DataFrame, duration_fits: pd.DataFrame) -> pd.Da
     for name, table in (("choice_fits", choice_fits), ("duration_fits", duration_fits)):
         missing = need - set(table.columns)
         if missing:
-            raise ValueError(f"{name} lacks column(s) {sorted(missing)}")
+            raise DataError(f"{name} lacks column(s) {sorted(missing)}")
     durations = duration_fits.set_index(duration_fits["participant"].astype(str))
     pids = choice_fits["participant"].astype(str)
     absent = sorted(set(pids) - set(durations.index))
     if absent:
-        raise ValueError(f"no duration fit for participant(s) {absent}")
+        raise DataError(f"no duration fit for participant(s) {absent}")
     out = choice_fits.copy()
     out["duration_loglik"] = pids.map(durations["loglik"]).to_numpy()
     out["joint_loglik"] = out["loglik"] + out["duration_loglik"]

@@ -27,6 +27,8 @@ import numpy as np
 from scipy import optimize
 from threadpoolctl import threadpool_limits
 
+from shortcut_gym.envs.errors import ConfigError
+
 FreeLogLik = Callable[[np.ndarray], float]
 
 #: Smallest group variance (unbounded coordinates) kept by the M step; below it the prior would be
@@ -190,18 +192,18 @@ def em_laplace(
     between iterations, or after ``max_iterations`` (then ``converged`` is False).
     """
     if covariance not in ("diagonal", "full"):
-        raise ValueError(f"covariance must be 'diagonal' or 'full', got {covariance!r}")
+        raise ConfigError(f"covariance must be 'diagonal' or 'full', got {covariance!r}")
     if len(logliks) < 2 or len(logliks) != len(n_obs):
-        raise ValueError(f"need >= 2 participants with one observation count each, got {len(logliks)} "
-                         f"functions and {len(n_obs)} counts")
+        raise ConfigError(f"need >= 2 participants with one observation count each, got {len(logliks)} "
+                          f"functions and {len(n_obs)} counts")
     if n_starts < 1 or max_iterations < 1 or not tolerance > 0:
-        raise ValueError(f"n_starts and max_iterations must be >= 1 and tolerance > 0, got {n_starts}, "
-                         f"{max_iterations}, {tolerance}")
+        raise ConfigError(f"n_starts and max_iterations must be >= 1 and tolerance > 0, got {n_starts}, "
+                          f"{max_iterations}, {tolerance}")
     mean = np.asarray(init_mean, dtype=float).copy()
     k = len(mean)
     cov = np.diag(np.broadcast_to(np.asarray(init_var, dtype=float), (k,)).copy())
     if not (np.isfinite(mean).all() and (np.diag(cov) > 0).all()):
-        raise ValueError(f"starting mean must be finite and variances > 0, got {mean.tolist()}, {np.diag(cov)}")
+        raise ConfigError(f"starting mean must be finite and variances > 0, got {mean.tolist()}, {np.diag(cov)}")
     rng = rng if rng is not None else np.random.default_rng(0)
     with threadpool_limits(limits=1, user_api="blas"):  # BLAS threads cost more than these tiny problems
         return _iterate(logliks, n_obs, mean, cov, bounds, covariance, tolerance, max_iterations, n_starts, rng)

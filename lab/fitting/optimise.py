@@ -19,6 +19,7 @@ from scipy import optimize
 from threadpoolctl import threadpool_limits
 
 from shortcut_gym.agents.base import AgentContext, ParamSpec
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.fitting.criteria import aic, bic
 from shortcut_gym.lab.fitting.replay import loglik_function
 from shortcut_gym.lab.fitting.specs import ModelSpec
@@ -120,14 +121,14 @@ def fit_participant(
     are then evaluated at the MAP point.
     """
     if n_starts < 1:
-        raise ValueError(f"n_starts must be >= 1, got {n_starts}")
+        raise ConfigError(f"n_starts must be >= 1, got {n_starts}")
     f, fast = loglik_function(spec, trials, context)
     specs = spec.build(context).param_specs()
     free = [n for n in specs if n not in spec.fixed]
     priors = dict(priors or {})
     unknown = set(priors) - set(free)
     if unknown:
-        raise ValueError(f"model {spec.label!r}: prior for unknown or fixed parameter(s) {sorted(unknown)}")
+        raise ConfigError(f"model {spec.label!r}: prior for unknown or fixed parameter(s) {sorted(unknown)}")
     base = np.array([spec.fixed.get(n, specs[n].default) for n in specs], dtype=float)
     where = [list(specs).index(n) for n in free]
     n_trials = len(trials)

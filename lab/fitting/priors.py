@@ -7,6 +7,8 @@ from typing import Any
 
 from scipy import stats
 
+from shortcut_gym.envs.errors import ConfigError
+
 #: family -> meaning of its two numbers (a, b)
 PRIOR_FAMILIES: dict[str, str] = {
     "normal": "mean, sd",
@@ -22,11 +24,11 @@ def make_prior(family: str, a: float, b: float) -> Any:
     Raises ValueError naming the family or the value at fault.
     """
     if family not in PRIOR_FAMILIES:
-        raise ValueError(f"unknown prior family {family!r}; known: {sorted(PRIOR_FAMILIES)}")
+        raise ConfigError(f"unknown prior family {family!r}; known: {sorted(PRIOR_FAMILIES)}")
     if not (math.isfinite(a) and math.isfinite(b)):
-        raise ValueError(f"prior {family}: numbers must be finite, got {a!r}, {b!r}")
+        raise ConfigError(f"prior {family}: numbers must be finite, got {a!r}, {b!r}")
     if b <= 0 or (family in ("beta", "gamma") and a <= 0):
-        raise ValueError(f"prior {family}:{a:g}:{b:g}: scale/shape values must be > 0")
+        raise ConfigError(f"prior {family}:{a:g}:{b:g}: scale/shape values must be > 0")
     if family == "normal":
         return stats.norm(a, b)
     if family == "beta":

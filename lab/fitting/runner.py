@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.data.logs import participant_trials, participants
 from shortcut_gym.lab.fitting.optimise import fit_participant
 from shortcut_gym.lab.fitting.specs import ModelSpec
@@ -39,7 +40,7 @@ def fit_log(
     """
     labels = [s.label for s in specs]
     if len(set(labels)) != len(labels):
-        raise ValueError(f"model labels must be unique, got {labels}")
+        raise ConfigError(f"model labels must be unique, got {labels}")
     priors = priors or {}
     jobs = []
     for i, pid in enumerate(participants(log)):

@@ -8,6 +8,7 @@ from typing import Any
 
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.registry import AGENTS, make_agent
+from shortcut_gym.envs.errors import ConfigError
 
 
 @dataclass(frozen=True)
@@ -21,13 +22,14 @@ class ModelSpec:
 
     def __post_init__(self) -> None:
         if self.name not in AGENTS:
-            raise ValueError(f"unknown model {self.name!r}; registered agents: {sorted(AGENTS)}")
+            raise ConfigError(f"unknown model {self.name!r}; registered agents: {sorted(AGENTS)}")
         if not self.label:
             object.__setattr__(self, "label", self.name)
         specs = self.build().param_specs()
         unknown = set(self.fixed) - set(specs)
         if unknown:
-            raise ValueError(f"model {self.label!r}: fixed parameter(s) {sorted(unknown)} unknown; known {list(specs)}")
+            raise ConfigError(f"model {self.label!r}: fixed parameter(s) {sorted(unknown)} unknown; "
+                              f"known {list(specs)}")
 
     def build(self, context: AgentContext | None = None, **params: float) -> Agent:
         """The agent with these options, fixed values and ``params``."""

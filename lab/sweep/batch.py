@@ -24,6 +24,7 @@ from shortcut_gym.agents.base import Agent, PreparedAgent
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import BatchRollout, UserSums, context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World
 
@@ -108,12 +109,12 @@ def simulate_users(
     pays where the work is compiled code that releases the GIL, as the fused loop and the
     simulator's reset do); users are independent, so the numbers do not change."""
     if record not in ("blocks", "trials"):
-        raise ValueError(f"record must be 'blocks' or 'trials', got {record!r}")
+        raise ConfigError(f"record must be 'blocks' or 'trials', got {record!r}")
     if not (isinstance(threads, int) and threads >= 1):
-        raise ValueError(f"threads must be an integer >= 1, got {threads!r}")
+        raise ConfigError(f"threads must be an integer >= 1, got {threads!r}")
     seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)  # type: ignore[assignment]
     if len(seeds) == 0:
-        raise ValueError("need at least one seed")
+        raise ConfigError("need at least one seed")
     if record == "trials":
         return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)  # type: ignore[arg-type]
     size = min(chunk_users, -(-len(seeds) // threads))
@@ -145,7 +146,7 @@ def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarra
 def trial_table(world: World, sums: BlockSums, label: str) -> pd.DataFrame:
     """The per-trial table of a ``record="trials"`` simulation, as ``run_episode`` lays it out."""
     if sums.rollout is None or sums.rollout.trials is None or sums.sim is None:
-        raise ValueError("this simulation kept no trial rows; rerun with record='trials'")
+        raise NotReadyError("this simulation kept no trial rows; rerun with record='trials'")
     sim, kept = sums.sim, sums.rollout.trials
     n, h = sim.n_users, sim.horizon
     acts, outc, ops = kept.action, kept.outcome, kept.operator_s  # (B, T), (B, T), (B, T, operators)

@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.sweep.plan import world_from_settings
 from shortcut_gym.lab.sweep.spec import SweepSpec
 from shortcut_gym.lab.sweep.store import SweepStore, atomic_write_text, unique_suffix
@@ -102,7 +103,7 @@ def break_even_grid(spec: SweepSpec, runs: list[dict[str, Any]], commands: pd.Da
     cmd = be.command if be else 0
     c = world0.commands.index(cmd) if isinstance(cmd, str) else int(cmd)
     if not 0 <= c < world0.commands.n_commands:
-        raise ValueError(f"outputs.break_even.command: index {c} is outside 0..{world0.commands.n_commands - 1}")
+        raise ConfigError(f"outputs.break_even.command: index {c} is outside 0..{world0.commands.n_commands - 1}")
     point_of = {r["point_index"]: r["point"] for r in runs}
     sel = commands[commands["command"] == c].copy()
     sel["x"] = sel["point_index"].map(lambda i: point_of[i][xp])
