@@ -78,6 +78,12 @@ costs the current trial exactly (see :mod:`.agent`). The break-even rule (:func:
 compares the all-menu world with the learn-at-first-use world with the recall the simulator's own
 memory gives along that path (:func:`learn_once_recall`). :mod:`.exact` solves small worlds exactly
 over the simulator's full state (the reference the planner's optimality gap is measured against).
+
+Measured effect of the approximations (docs/planner.md): on the 14 small worlds of
+:data:`.exact.SMALL_WORLDS` the plan alone is at most 0.944% above the exact optimum and the
+executed policy at most 0.382% (equal on 11); on a grid of hard memories (thresholds -4.5 to -1.5,
+gaps 1 h to 30 days, fast and slow typists, cheap and dear learning) the executed policy is never
+above a fixed rule or zoo agent by more than 2 paired standard errors over 32 users.
 """
 
 from shortcut_gym.agents.planner.action_costs import ActionTimes, action_rewards, action_times
