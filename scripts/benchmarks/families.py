@@ -120,10 +120,12 @@ def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print, only:
         t0 = time.perf_counter()
         extra["sb3: ppo"] = _trained_ppo(world, 1_024 if quick else 4_096)
         out(f"   (trained a small PPO model in {time.perf_counter() - t0:.1f} s)")
-        families.append(("sb3: ppo", {}, True))
+        # simulate_users builds its agents from a spec, so the model goes through a file
+        model = extra["sb3: ppo"].save(Path(tempfile.mkdtemp()) / "ppo_model")
+        families.append(("sb3: ppo", {"name": "ppo", "model_path": str(model)}, True))
     for family, spec, compiled in families:
         agent = extra.get(family)
-        spec_or_agent: Any = agent if agent is not None else spec
+        spec_or_agent: Any = spec if spec else agent
         if agent is None:
             prepared = build_agent(spec, world)
             if isinstance(prepared, PreparedAgent):
