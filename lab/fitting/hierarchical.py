@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import AgentContext, ParamSpec
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.lab.data.logs import participant_trials, participants
 from shortcut_gym.lab.fitting.laplace_em import EMResult, FreeLogLik, em_laplace, sampled_log_evidence
 from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT
@@ -67,7 +67,7 @@ class HierarchicalFit:
         """Per participant: ln p(D_i | group prior) by sampling the fitted prior (Huys et al. 2011's
         estimate), and its standard error; a check of the Laplace evidence the iBIC uses."""
         if len(self.functions) != len(self.participants):
-            raise ValueError("this fit kept no log-likelihood functions to sample")
+            raise NotReadyError("this fit kept no log-likelihood functions to sample")
         rng = np.random.default_rng(seed)
         out = [sampled_log_evidence(f, self.em.mean, self.em.cov, draws, rng) for f in self.functions]
         return np.array([v for v, _ in out]), np.array([se for _, se in out])

@@ -163,7 +163,7 @@ def sampled_log_evidence(loglik: FreeLogLik, mean: np.ndarray, cov: np.ndarray, 
     """ln p(D_i | mu, Sigma) estimated by sampling the prior, ln (1/K sum_k L_i(x_k)) with x_k ~ N(mu, Sigma)
     (the estimate of Huys et al. 2011 for the iBIC), and its standard error by the delta method."""
     if draws < 2:
-        raise ValueError(f"draws must be >= 2, got {draws}")
+        raise ConfigError(f"draws must be >= 2, got {draws}")
     x = rng.multivariate_normal(mean, cov, size=draws)
     values = np.array([loglik(row) for row in x])
     top = float(values.max())
