@@ -10,13 +10,15 @@ decided; a policy reads only the ``next_*`` keys and ``target``.
 Every producer builds its dicts through :func:`upcoming_info` and :func:`step_info`: the env, the
 vector env (arrays, one entry per user), the rollout driver on the batched simulator and the lab's
 replay of a trial log. :func:`simulator_upcoming_info` and :func:`simulator_step_info` read one
-user of a :class:`~shortcut_gym.envs.simulator.BatchSimulator`.
+user of a :class:`~shortcut_gym.envs.simulator.BatchSimulator`, their plural forms every user (the SB3 VecEnv).
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any, NotRequired, TypedDict, cast
+
+import numpy as np
 
 from shortcut_gym.envs.kernel import OPERATOR_NAMES, OUTCOME_NAMES
 
@@ -108,3 +110,24 @@ def simulator_step_info(sim: BatchSimulator, user: int, trial: int, action: int,
         -float(sim.reward[user]), float(sim.p_recall[user]),
         dict(zip(OPERATOR_NAMES, sim.operator_time_s[user].tolist(), strict=True)),
     )
+
+
+def simulator_upcoming_infos(sim: BatchSimulator, command_names: Sequence[str]) -> list[UpcomingInfo]:
+    """:func:`simulator_upcoming_info` of every user, read from whole columns at once."""
+    t = sim.trial
+    last = min(t, sim.horizon - 1)
+    return [upcoming_info(c, command_names[c], t, onset, session) for c, onset, session in zip(
+        sim.sched_command[:, last].tolist(), sim.sched_onset[:, last].tolist(),
+        sim.sched_session[:, last].tolist(), strict=True)]
+
+
+def simulator_step_infos(sim: BatchSimulator, trial: int, actions: np.ndarray,
+                         command_names: Sequence[str]) -> list[StepInfo]:
+    """:func:`simulator_step_info` of every user (the same dicts), read from whole columns at once."""
+    finished = zip(sim.sched_command[:, trial].tolist(), sim.sched_session[:, trial].tolist(),
+                   sim.sched_onset[:, trial].tolist(), np.asarray(actions).tolist(), sim.outcome.tolist(),
+                   (-sim.reward).tolist(), sim.p_recall.tolist(), sim.operator_time_s.tolist(), strict=True)
+    return [step_info(upcoming, trial, session, onset, c, command_names[c], action, OUTCOME_NAMES[outcome],
+                      duration, p_recall, dict(zip(OPERATOR_NAMES, times, strict=True)))
+            for upcoming, (c, session, onset, action, outcome, duration, p_recall, times)
+            in zip(simulator_upcoming_infos(sim, command_names), finished, strict=True)]

@@ -15,7 +15,7 @@ on its own vector interface, not on Gymnasium's).
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 from gymnasium.vector import AutoresetMode, VectorEnv
@@ -24,7 +24,13 @@ from gymnasium.vector.utils import batch_space
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError, require_extra
-from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
+from shortcut_gym.envs.info import (
+    UpcomingInfo,
+    simulator_step_infos,
+    simulator_upcoming_infos,
+    step_info,
+    upcoming_info,
+)
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World, make_world
 
@@ -189,6 +195,7 @@ def _sb3_class() -> type:
             self.sim = BatchSimulator(world)
             self._rngs: list[np.random.Generator] | None = None
             self._actions: np.ndarray | None = None
+            self._names = world.commands.names
 
         def reset(self) -> np.ndarray:
             if self._rngs is None or any(s is not None for s in self._seeds):
@@ -196,7 +203,7 @@ def _sb3_class() -> type:
             self._reset_seeds()
             self._reset_options()
             obs = self.sim.reset(rngs=self._rngs).copy()
-            self.reset_infos = [{"target": int(c)} for c in self.sim.targets()]
+            self.reset_infos = [dict(i) for i in simulator_upcoming_infos(self.sim, self._names)]
             return obs
 
         def step_async(self, actions: np.ndarray) -> None:
@@ -209,13 +216,15 @@ def _sb3_class() -> type:
             rewards = self.sim.step(self._actions).astype(np.float32)
             done = t + 1 >= self.sim.horizon
             obs = self.sim.obs.copy()
-            infos: list[dict[str, Any]] = [
-                {"outcome": k.OUTCOME_NAMES[o], "TimeLimit.truncated": False} for o in self.sim.outcome
-            ]
+            # the contract's info of each user, plus SB3's flag (False: the schedule's end is a true end)
+            infos = cast(list[dict[str, Any]], simulator_step_infos(self.sim, t, self._actions, self._names))
+            for info in infos:
+                info["TimeLimit.truncated"] = False
             if done:
                 for i in range(self.num_envs):
                     infos[i]["terminal_observation"] = obs[i]
                 obs = self.sim.reset(rngs=self._rngs).copy()
+                self.reset_infos = [dict(i) for i in simulator_upcoming_infos(self.sim, self._names)]
             self._actions = None
             return obs, rewards, np.full(self.num_envs, done), infos
 

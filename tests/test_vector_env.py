@@ -8,6 +8,7 @@ import pytest
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
 from shortcut_gym.envs import ENV_ID, ActionError, make_world
+from shortcut_gym.envs.info import StepInfo, UpcomingInfo
 from shortcut_gym.envs.vector import CommandSelectionVectorEnv, make_sb3_vec_env
 
 SHORT = {"sessions": 2, "trials_per_session": 6}
@@ -81,6 +82,9 @@ def test_sb3_vec_env_equals_dummy_vec_env_and_trains() -> None:
     ref = DummyVecEnv([lambda: gym.make(ENV_ID, schedule=SHORT) for _ in range(N)])
     ref.seed(5)
     np.testing.assert_array_equal(mine.reset(), ref.reset())
+    assert mine.reset_infos == ref.reset_infos
+    assert all(set(i) == set(UpcomingInfo.__annotations__) for i in mine.reset_infos)
+    sb3_keys = {"TimeLimit.truncated", "terminal_observation"}
     rng = np.random.default_rng(1)
     dones = 0
     for _ in range(30):
@@ -89,9 +93,13 @@ def test_sb3_vec_env_equals_dummy_vec_env_and_trains() -> None:
         for x, y in zip(a[:3], b[:3], strict=True):
             np.testing.assert_array_equal(x, y)
         for ia, ib in zip(a[3], b[3], strict=True):
-            assert ia["TimeLimit.truncated"] == ib["TimeLimit.truncated"]
+            assert set(ia) - sb3_keys == set(StepInfo.__annotations__)  # the whole contract, optional keys too
+            assert set(ia) == set(ib)
             if "terminal_observation" in ib:
                 np.testing.assert_array_equal(ia["terminal_observation"], ib["terminal_observation"])
+            assert {k: v for k, v in ia.items() if k != "terminal_observation"} == \
+                {k: v for k, v in ib.items() if k != "terminal_observation"}
+        assert mine.reset_infos == ref.reset_infos
         dones += int(b[2].all())
     assert dones == 2
     model = PPO("MlpPolicy", make_sb3_vec_env(4, world=world, seed=0), n_steps=16, batch_size=32, n_epochs=1,
