@@ -226,6 +226,14 @@ class BatchAgent(Protocol):
 
 
 @runtime_checkable
+class ComposedAgent(Protocol):
+    """An agent assembled from switchable mechanisms: ``mechanisms`` names the ones switched on (its
+    constructor's ``mechanisms`` and ``without`` choose them), so a knock-out study can drop each."""
+
+    mechanisms: tuple[str, ...]
+
+
+@runtime_checkable
 class PreparedAgent(Protocol):
     """An agent with costly set-up done once per world before it acts (a planner's plan, shared by
     every user of the world); drivers call ``prepare()`` first, which returns the seconds the set-up

@@ -347,7 +347,7 @@ def frozen_policy(agent, n_users: int, seeds: Sequence[int], rule_for,
     context = agent.context
     if context is None or not context.n_commands:
         raise NotReadyError(f"{agent.name}: bind a context before batch_policy")
-    world = getattr(context, "world", None)
+    world = context.world
     n_sessions = world.schedule.sessions if world is not None else 1
     return FrozenBatchPolicy(agent.name, n_users, seeds, context.n_commands, context.horizon, n_sessions, rule_for,
                              cell_columns)

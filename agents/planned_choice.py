@@ -161,7 +161,7 @@ class PlannedChoice(Agent):
 
     def planner_world(self) -> World:
         """The world the planner plans for (``world=`` or the bound context's)."""
-        w = self.world or getattr(self.context, "world", None)
+        w = self.world or (self.context.world if self.context is not None else None)
         if w is None:
             raise ConfigError(f"{self.name}: needs the chooser's world: make_agent('{self.name}', world=...) or a "
                               "context with .world")

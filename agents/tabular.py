@@ -92,7 +92,7 @@ class TabularAgent(Agent):
     def state(self, obs: np.ndarray, info: dict[str, Any]) -> tuple[int, ...]:
         """Discrete state of the upcoming trial."""
         if self._index is None:
-            names = list(getattr(self.context, "obs_names", ()) or ())
+            names = list(self.context.obs_names) if self.context is not None else []
             if not names:
                 raise NotReadyError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
             self._index = [names.index(f) for f in _FEATURES]
@@ -205,7 +205,7 @@ class TabularAgent(Agent):
                               "(it is on only inside train)")
         if self.q is None:
             self.clear()
-        names = list(getattr(self.context, "obs_names", ()) or ())
+        names = list(self.context.obs_names) if self.context is not None else []
         if not names:
             raise NotReadyError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
         q = self.q.reshape(-1, 3)  # type: ignore[union-attr]

@@ -96,6 +96,17 @@ def test_knockout_variants_drop_one_mechanism_each():
         assert m not in v.options["mechanisms"]
 
 
+def test_only_agents_built_from_mechanisms_are_composed_and_knocked_out():
+    from shortcut_gym.agents.base import ComposedAgent
+    from shortcut_gym.agents.registry import make_agent
+    from shortcut_gym.envs.errors import ConfigError
+
+    assert isinstance(make_agent("rw_choice_kernel"), ComposedAgent)
+    assert not any(isinstance(make_agent(n), ComposedAgent) for n in ("always_menu", "static_softmax", "q_learning"))
+    with pytest.raises(ConfigError, match="no switchable mechanisms"):
+        knockout_variants(ModelSpec("static_softmax"))
+
+
 def test_parse_model_errors_and_options():
     spec = parse_model("two=static_softmax:covariates=log_exposure+session,b_learn=-3")
     assert spec.label == "two" and spec.fixed == {"b_learn": -3.0}

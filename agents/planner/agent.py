@@ -75,6 +75,7 @@ class BoundedOptimalPlanner(Agent):
         self.n_bins = int(n_bins)
         self.n_weight_bins = int(n_weight_bins)
         self.plan: Plan | None = None
+        self._times_for: Plan | None = None  # the plan self._times were priced for
 
     def __deepcopy__(self, memo: dict) -> BoundedOptimalPlanner:
         """A copy for another simulated user: its own memory tracking, the same read-only world,
@@ -94,7 +95,7 @@ class BoundedOptimalPlanner(Agent):
                 "n_weight_bins": self.n_weight_bins, "select_users": self.select_users, "params": {}}
 
     def _world(self) -> World:
-        w = self.world or getattr(self.context, "world", None)
+        w = self.world or (self.context.world if self.context is not None else None)
         if w is None:
             raise ConfigError(f"{self.name}: needs the world it plans for: make_agent('{self.name}', world=...) "
                               "or a context with .world")
@@ -108,7 +109,7 @@ class BoundedOptimalPlanner(Agent):
         self._cmdc = world.command_constants()
         onset, self._session, gap_total = session_onsets(world.schedule)
         self._clock = onset - (1.0 - world.memory.gap_time_scale) * gap_total
-        if getattr(self, "_times_for", None) is not self.plan:
+        if self._times_for is not self.plan:
             self._times = [command_times(world, c, self.plan.keyboard_share, self.plan.next_hotkey_share,
                                          self.plan.own_device)
                            for c in range(world.commands.n_commands)]

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.agents.base import ComposedAgent
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 from shortcut_gym.lab.checks.predictive import simulate_log
@@ -120,7 +121,7 @@ def model_recovery(world: World, specs: Sequence[ModelSpec], n_participants: int
 def knockout_variants(spec: ModelSpec) -> list[tuple[str, ModelSpec]]:
     """(mechanism, spec without it) for every mechanism of ``spec`` that can be switched off alone."""
     agent = spec.build()
-    mechanisms = list(getattr(agent, "mechanisms", ()))
+    mechanisms = list(agent.mechanisms) if isinstance(agent, ComposedAgent) else []
     if not mechanisms:
         raise ConfigError(f"model {spec.label!r} ({spec.name}) has no switchable mechanisms to knock out")
     out = []
