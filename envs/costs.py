@@ -67,7 +67,8 @@ class _Strict(StrictModel):
 class KLMOperators(_Strict):
     """KLM operator times (s). Defaults: Card, Moran & Newell (1980), average skilled typist."""
 
-    typist: TypistClass = "average_skilled_typist"
+    typist: TypistClass = Field(default="average_skilled_typist",
+                                description="KLM typist class that sets K (0.08 best ... 1.20 worst s per keystroke)")
     keystroke_s: float | None = Field(
         default=None, gt=0, le=MAX_OPERATOR_S, description="K; overrides the typist class when given"
     )

@@ -74,9 +74,11 @@ class CommandSpec(StrictModel):
     a single key "K" or a punctuation key "?" (see :func:`hotkey_parts`).
     """
 
-    name: str = Field(min_length=1)
-    hotkey: str
-    weight: float | None = Field(default=None, gt=0, le=1e12)
+    name: str = Field(min_length=1, description="unique within the scenario")
+    hotkey: str = Field(description="modifiers and a key joined by '+', unique within the scenario")
+    weight: float | None = Field(default=None, gt=0, le=1e12,
+                                 description="relative usage frequency; give it to every command or to none "
+                                             "(none: Zipf by menu order, see zipf_exponent)")
 
     @field_validator("name")
     @classmethod
@@ -94,8 +96,8 @@ class CommandSpec(StrictModel):
 class MenuSpec(StrictModel):
     """A menu: its title and its items, top to bottom."""
 
-    title: str = Field(min_length=1)
-    items: list[CommandSpec] = Field(min_length=1)
+    title: str = Field(min_length=1, description="the menu's name in the menu bar")
+    items: list[CommandSpec] = Field(min_length=1, description="the menu's commands, top to bottom")
 
 
 #: Sane ranges (a project choice, no source): trial onsets at least 0.1 s and at most a week
@@ -111,10 +113,12 @@ class ScheduleSettings(StrictModel):
     At most :data:`MAX_HORIZON` trials in all.
     """
 
-    sessions: int = Field(default=10, ge=1)
-    trials_per_session: int = Field(default=40, ge=1)
-    trial_interval_s: float = Field(default=60.0, ge=MIN_TRIAL_INTERVAL_S, le=MAX_TRIAL_INTERVAL_S)
-    gap_h: float | list[float] = 24.0
+    sessions: int = Field(default=10, ge=1, description="sessions per simulated user")
+    trials_per_session: int = Field(default=40, ge=1, description="trials (command selections) per session")
+    trial_interval_s: float = Field(default=60.0, ge=MIN_TRIAL_INTERVAL_S, le=MAX_TRIAL_INTERVAL_S,
+                                    description="time between trial onsets within a session")
+    gap_h: float | list[float] = Field(default=24.0, description="gap between sessions: one value for every gap, "
+                                                                 "or a list of sessions - 1 gaps (each > 0)")
 
     @field_validator("gap_h")
     @classmethod
@@ -147,11 +151,13 @@ class ScheduleSettings(StrictModel):
 class ScenarioSettings(StrictModel):
     """A scenario: the command set and the default schedule (one YAML in configs/scenarios)."""
 
-    name: str = Field(min_length=1)
+    name: str = Field(min_length=1, description="the scenario's name (shown in outputs)")
     description: str = ""
-    menus: list[MenuSpec] = Field(min_length=1)
-    zipf_exponent: float = Field(default=1.0, ge=0, le=20)
-    schedule: ScheduleSettings = ScheduleSettings()
+    menus: list[MenuSpec] = Field(min_length=1, description="the menu bar, left to right")
+    zipf_exponent: float = Field(default=1.0, ge=0, le=20,
+                                 description="usage frequency of the k-th command in menu order ~ k^-exponent when "
+                                             "no weights are given (common practice, no source)")
+    schedule: ScheduleSettings = Field(default=ScheduleSettings(), description="the default schedule")
 
     @model_validator(mode="after")
     def _unique(self) -> ScenarioSettings:
