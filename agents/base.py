@@ -60,6 +60,9 @@ class ParamSpec:
     upper: float = math.inf
     transform: str = "none"
     doc: str = ""
+    #: (low, high) natural values a participant plausibly has: where optimisers draw starts and
+    #: recovery studies draw truths by default; None = derived by the lab (``lab.fitting.starts``).
+    plausible: tuple[float, float] | None = None
 
     def check(self, value: float, owner: str = "agent") -> float:
         """Return ``value`` as float or raise :class:`ConfigError` naming the parameter and its bounds.
@@ -228,7 +231,7 @@ class BatchAgent(Protocol):
 @runtime_checkable
 class ComposedAgent(Protocol):
     """An agent assembled from switchable mechanisms: ``mechanisms`` names the ones switched on (its
-    constructor's ``mechanisms`` and ``without`` choose them), so a knock-out study can drop each."""
+    constructor's ``mechanisms`` list chooses them), so a knock-out study can drop each."""
 
     mechanisms: tuple[str, ...]
 

@@ -9,7 +9,7 @@ from pydantic import ConfigDict, Field, field_validator
 
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
-from shortcut_gym.agents.learning import ChoiceKernelAgent, RescorlaWagnerAgent, RWChoiceKernelAgent
+from shortcut_gym.agents.learning import ChoiceKernelAgent, ComposedLearner, RescorlaWagnerAgent, RWChoiceKernelAgent
 from shortcut_gym.agents.planned_choice import PlannedChoice
 from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.agents.sb3 import A2CAgent, DQNAgent, PPOAgent
@@ -31,9 +31,8 @@ def register_agent(cls: type[Agent]) -> type[Agent]:
 
 
 for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax, RescorlaWagnerAgent,
-             ChoiceKernelAgent, RWChoiceKernelAgent, BoundedOptimalPlanner, PlannedChoice, QLearningAgent, SarsaAgent,
-             PPOAgent,
-             A2CAgent, DQNAgent):
+             ChoiceKernelAgent, RWChoiceKernelAgent, ComposedLearner, BoundedOptimalPlanner, PlannedChoice,
+             QLearningAgent, SarsaAgent, PPOAgent, A2CAgent, DQNAgent):
     register_agent(_cls)
 
 

@@ -26,6 +26,10 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 
 COVARIATES: tuple[str, ...] = ("log_exposure", "session")
+#: Plausible intercepts and covariate weights (logit units; assumptions of this project, no source):
+#: where fits draw random starts and recovery studies their true values.
+PLAUSIBLE_INTERCEPT = (-2.5, 1.0)
+PLAUSIBLE_WEIGHT = (-1.0, 1.0)
 _CHOICES = ("hotkey", "learn")
 
 
@@ -70,7 +74,10 @@ class StaticSoftmax(Agent):
     def __init__(self, context: AgentContext | None = None, covariates: Sequence[str] = ("log_exposure",),
                  **params: float) -> None:
         if isinstance(covariates, str):
-            covariates = [c for c in covariates.split("+") if c]
+            if "+" in covariates or "," in covariates:
+                raise ValueError(f"{self.name}: covariates take a list of names (on the command line "
+                                 f"covariates=[log_exposure,session]), got {covariates!r}")
+            covariates = [covariates]
         unknown = [c for c in covariates if c not in COVARIATES]
         if unknown:
             raise ConfigError(f"{self.name}: unknown covariate(s) {unknown}; known: {list(COVARIATES)}")
@@ -82,11 +89,13 @@ class StaticSoftmax(Agent):
     def param_specs(self) -> dict[str, ParamSpec]:
         specs = {}
         for a in _CHOICES:
-            specs[f"b_{a}"] = ParamSpec(f"b_{a}", 0.0, doc=f"utility of {a} relative to menu (logit units)")
+            specs[f"b_{a}"] = ParamSpec(f"b_{a}", 0.0, doc=f"utility of {a} relative to menu (logit units)",
+                                        plausible=PLAUSIBLE_INTERCEPT)
         for c in self.covariates:
             for a in _CHOICES:
                 n = f"w_{a}_{c}"
-                specs[n] = ParamSpec(n, 0.0, doc=f"effect of {c} on the utility of {a} (logit units per unit)")
+                specs[n] = ParamSpec(n, 0.0, doc=f"effect of {c} on the utility of {a} (logit units per unit)",
+                                     plausible=PLAUSIBLE_WEIGHT)
         return specs
 
     def coefficient_matrix(self, theta: np.ndarray | None = None) -> np.ndarray:

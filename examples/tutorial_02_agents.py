@@ -17,12 +17,16 @@ def main(users: int = 4) -> pd.DataFrame:
     # A shorter version of the demo scenario: 4 daily sessions of 40 trials.
     world = make_world(schedule={"sessions": 4, "trials_per_session": 40})
 
-    # Agents are built by registry name; learning models are composed of switchable mechanisms.
+    # Agents are built by registry name. rescorla_wagner is the published delta-rule model (alpha, beta);
+    # composed_learner has exactly the mechanisms listed (here with and without the look-ahead).
+    planner = ["value", "memory_aware", "planning", "incidental", "forgetting", "perseveration", "lapse"]
     agents = {
         "always_menu": make_agent("always_menu"),
         "learn_first_k(k=1)": make_agent("learn_first_k", k=1),
         "rescorla_wagner": make_agent("rescorla_wagner"),
-        "rescorla_wagner without planning": make_agent("rescorla_wagner", without=["planning"]),
+        "composed_learner": make_agent("composed_learner", mechanisms=planner),
+        "composed_learner without planning": make_agent("composed_learner",
+                                                        mechanisms=[m for m in planner if m != "planning"]),
     }
     # The planner (exact dynamic programming over a discretised memory state) is the yardstick.
     scores = time_lost_vs_planner(world, agents, seeds=range(users))

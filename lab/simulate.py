@@ -15,14 +15,18 @@ from shortcut_gym.envs.world import World
 
 
 def label_of(spec: dict[str, Any]) -> str:
-    """The spec's ``label``, else a short one from its parameters, e.g. 'learn_first_k(k=2)'."""
+    """The spec's ``label``, else a short one from its parameters, e.g. 'learn_first_k(k=2)',
+    'composed_learner[value,lapse](alpha=0.5)'."""
     if spec.get("label"):
         return str(spec["label"])
     params = spec.get("params") or {}
+    name = spec["name"]
+    if spec.get("mechanisms") is not None:
+        name += "[" + ",".join(spec["mechanisms"]) + "]"
     if not params:
-        return spec["name"]
+        return name
     inner = ",".join(f"{k}={v:g}" if isinstance(v, float) else f"{k}={v}" for k, v in params.items())
-    return f"{spec['name']}({inner})"
+    return f"{name}({inner})"
 
 
 def simulate_agents(world: World, specs: Sequence[dict[str, Any] | Agent], seeds: Sequence[int]) -> pd.DataFrame:

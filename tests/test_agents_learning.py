@@ -5,12 +5,25 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from shortcut_gym.agents import make_agent, run_episode
-from shortcut_gym.agents.learning import TrialArrays, sample_action
+from shortcut_gym.agents import make_agent as _make_agent
+from shortcut_gym.agents import run_episode
+from shortcut_gym.agents.learning import MECHANISMS, TrialArrays, sample_action
 from shortcut_gym.agents.rollout import context_of
 from shortcut_gym.envs import BatchSimulator, CommandSelectionEnv, make_world
 
-MODELS = ["rescorla_wagner", "choice_kernel", "rw_choice_kernel"]
+#: The published models and two composed learners (every mechanism; the planner without a choice kernel).
+MODELS = ["rescorla_wagner", "choice_kernel", "rw_choice_kernel", "composed_all", "composed_planner"]
+COMPOSED = {"composed_all": list(MECHANISMS),
+            "composed_planner": ["value", "memory_aware", "planning", "incidental", "forgetting", "perseveration",
+                                 "lapse"]}
+MYOPIC = [m for m in COMPOSED["composed_planner"] if m != "planning"]
+
+
+def make_agent(name, context=None, **kwargs):
+    """The agents of MODELS by their test names (composed ones as composed_learner with their mechanisms)."""
+    if name in COMPOSED:
+        return _make_agent("composed_learner", context, mechanisms=COMPOSED[name], **kwargs)
+    return _make_agent(name, context, **kwargs)
 WORLD = make_world(schedule={"sessions": 3, "trials_per_session": 40})
 
 
@@ -78,9 +91,11 @@ def test_single_agent_batch_policy_and_likelihood_agree(env, name):
 
 
 DISTANT = {
-    "rescorla_wagner": {"alpha": 0.9, "beta": 0.2, "recall_rate": 0.05, "horizon_uses": 300.0, "lapse": 0.5},
-    "choice_kernel": {"alpha_ck": 0.9, "beta_ck": 20.0, "stickiness": -5.0, "lapse": 0.5},
-    "rw_choice_kernel": {"alpha": 0.9, "beta": 0.2, "beta_ck": 15.0, "stickiness": -4.0, "lapse": 0.5},
+    "rescorla_wagner": {"alpha": 0.9, "beta": 0.2},
+    "choice_kernel": {"alpha_ck": 0.9, "beta_ck": 20.0},
+    "rw_choice_kernel": {"alpha": 0.9, "beta": 0.2, "beta_ck": 15.0},
+    "composed_planner": {"alpha": 0.9, "beta": 0.2, "recall_rate": 0.05, "horizon_uses": 300.0, "lapse": 0.5},
+    "composed_all": {"alpha": 0.9, "beta": 0.2, "beta_ck": 15.0, "stickiness": -4.0, "lapse": 0.5},
 }
 
 
@@ -97,38 +112,51 @@ def test_true_parameters_beat_distant_ones(env, name):
     assert f(true) > f(far) + 5.0
 
 
-def test_switching_a_mechanism_off_removes_its_parameters():
-    full = make_agent("rescorla_wagner")
+def test_published_models_have_the_published_parameters():
+    """Wilson & Collins (2019), eLife, "Ten simple rules...", models 3, 4, 5: 2, 2 and 4 parameters."""
+    assert list(_make_agent("rescorla_wagner").param_specs()) == ["alpha", "beta"]
+    assert list(_make_agent("choice_kernel").param_specs()) == ["alpha_ck", "beta_ck"]
+    assert list(_make_agent("rw_choice_kernel").param_specs()) == ["alpha", "beta", "alpha_ck", "beta_ck"]
+    with pytest.raises(ValueError, match="published model"):
+        _make_agent("rescorla_wagner", mechanisms=["value", "lapse"])
+
+
+def test_composed_learner_has_exactly_the_listed_mechanisms():
+    full = make_agent("composed_planner")
     assert {"horizon_uses", "forget_rate_per_h"} <= set(full.param_specs())
-    knocked = make_agent("rescorla_wagner", without=["planning", "forgetting"])
+    listed = ["value", "memory_aware", "incidental", "perseveration", "lapse"]
+    knocked = _make_agent("composed_learner", mechanisms=listed)
+    assert list(knocked.mechanisms) == listed
     assert "horizon_uses" not in knocked.param_specs() and "forget_rate_per_h" not in knocked.param_specs()
-    assert "planning" not in knocked.spec()["mechanisms"]
-    rebuilt = make_agent(knocked.spec()["name"], mechanisms=knocked.spec()["mechanisms"])
+    rebuilt = _make_agent(knocked.spec()["name"], mechanisms=knocked.spec()["mechanisms"])
     assert list(rebuilt.param_specs()) == list(knocked.param_specs())
+    assert list(_make_agent("composed_learner", mechanisms=["value"]).param_specs()) == ["alpha", "beta"]
+    with pytest.raises(ValueError, match="list its mechanisms"):
+        _make_agent("composed_learner")
 
 
 def test_myopic_learner_learns_less_than_planning_learner(env):
     def learn_share(agent):
         return np.mean([(run_episode(env, agent, seed=s)["action"] == "learn").mean() for s in range(4)])
 
-    assert learn_share(make_agent("rescorla_wagner")) > 1.5 * learn_share(make_agent("rescorla_wagner",
-                                                                                    without=["planning"]))
+    assert learn_share(make_agent("composed_planner")) > 1.5 * learn_share(
+        _make_agent("composed_learner", mechanisms=MYOPIC))
 
 
 @pytest.mark.parametrize("kwargs, message", [
     ({"mechanisms": ["value", "telepathy"]}, "unknown mechanism 'telepathy'"),
-    ({"without": ["choice_kernel"]}, "cannot switch off 'choice_kernel'"),
+    ({"mechanisms": ["value", "value"]}, "listed more than once"),
     ({"mechanisms": ["planning", "value"]}, "'planning' needs 'memory_aware'"),
     ({"mechanisms": ["lapse"]}, "needs 'value' or 'choice_kernel'"),
-    ({"without": ["lapse"], "lapse": 0.1}, "belongs to mechanism 'lapse'"),
-    ({"alpha": 1.5}, "alpha=1.5 is outside [0.0, 1.0]"),
-    ({"gamma": 0.3}, "unknown parameter(s) ['gamma']"),
-    ({"options": {"prior_time_s": -1.0}}, "prior_time_s=-1.0"),
-    ({"without": "planning"}, "lists of names"),
+    ({"mechanisms": ["value"], "lapse": 0.1}, "belongs to mechanism 'lapse'"),
+    ({"mechanisms": ["value"], "alpha": 1.5}, "alpha=1.5 is outside [0.0, 1.0]"),
+    ({"mechanisms": ["value"], "gamma": 0.3}, "unknown parameter(s) ['gamma']"),
+    ({"mechanisms": ["value"], "options": {"prior_time_s": -1.0}}, "prior_time_s=-1.0"),
+    ({"mechanisms": "value"}, "list of names"),
 ])
 def test_bad_configuration_errors(kwargs, message):
     with pytest.raises(ValueError) as err:
-        make_agent("rescorla_wagner", **kwargs)
+        _make_agent("composed_learner", **kwargs)
     assert message in str(err.value)
 
 
@@ -140,7 +168,7 @@ def test_bad_trial_table_errors(env):
         TrialArrays.from_frame(bad)
     with pytest.raises(ValueError, match=r"lacks column\(s\) \['duration_s'\]"):
         TrialArrays.from_frame(df.drop(columns=["duration_s"]))
-    agent = make_agent("rescorla_wagner")
+    agent = make_agent("composed_planner")
     agent.bind(context_of(env))
     f = agent.likelihood_function(TrialArrays.from_frame(df))
     with pytest.raises(ValueError, match="theta must have 8 entries"):

@@ -16,7 +16,7 @@ import pandas as pd
 import pytest
 
 from shortcut_gym.agents.base import Agent, BatchAgent, LikelihoodAgent
-from shortcut_gym.agents.learning import TrialArrays
+from shortcut_gym.agents.learning import MECHANISMS, TrialArrays
 from shortcut_gym.agents.registry import AGENTS, make_agent
 from shortcut_gym.agents.rollout import context_of, drive_batch, run_episode
 from shortcut_gym.envs import BatchSimulator, CommandSelectionEnv
@@ -43,9 +43,11 @@ def _cases() -> list[tuple[str, dict[str, Any]]]:
     ctx = context_of(_env())
     # the planner acts through decide() without asking action_probabilities, which this test
     # records; its batch path is checked against the looped env in tests/test_batch_frozen.py
+    needs_options = {"composed_learner"}  # no default mechanism list: a case below
     cases = [(name, {}) for name in sorted(AGENTS)
-             if name != "bounded_optimal" and _has_several_paths(make_agent(name, ctx))]
+             if name not in ("bounded_optimal", *needs_options) and _has_several_paths(make_agent(name, ctx))]
     cases.append(("static_softmax", SESSION_SOFTMAX))
+    cases.append(("composed_learner", {"mechanisms": list(MECHANISMS)}))
     return cases
 
 
@@ -54,8 +56,8 @@ CASES = _cases()
 
 def test_the_cases_cover_the_agents_with_several_paths() -> None:
     names = {name for name, _ in CASES}
-    assert {"static_softmax", "rescorla_wagner", "choice_kernel", "rw_choice_kernel", "always_menu", "always_hotkey",
-            "learn_first_k", "random", "q_learning", "sarsa"} <= names
+    assert {"static_softmax", "rescorla_wagner", "choice_kernel", "rw_choice_kernel", "composed_learner", "always_menu",
+            "always_hotkey", "learn_first_k", "random", "q_learning", "sarsa"} <= names
 
 
 def _acting(name: str, options: dict[str, Any], seed: int) -> tuple[pd.DataFrame, np.ndarray]:
@@ -75,7 +77,7 @@ def _acting(name: str, options: dict[str, Any], seed: int) -> tuple[pd.DataFrame
     return trials, np.stack(seen)
 
 
-@pytest.mark.parametrize(("name", "options"), CASES, ids=[f"{n}{'-session' if o else ''}" for n, o in CASES])
+@pytest.mark.parametrize(("name", "options"), CASES, ids=[f"{n}{'-options' if o else ''}" for n, o in CASES])
 def test_acting_replay_vectorised_and_batch_paths_agree(name: str, options: dict[str, Any]) -> None:
     env = _env()
     ctx = context_of(env)

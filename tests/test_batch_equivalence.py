@@ -11,6 +11,7 @@ import pytest
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
 from shortcut_gym.agents.base import Agent, ParamSpec
+from shortcut_gym.agents.learning import MECHANISMS
 from shortcut_gym.agents.registry import AGENTS, agent_from_spec, register_agent
 from shortcut_gym.agents.rollout import run_episode
 from shortcut_gym.envs import ENV_ID, make_world
@@ -27,6 +28,7 @@ SPECS = [
     {"name": "random", "params": {"p_hotkey": 0.4, "p_learn": 0.2}},
     {"name": "rescorla_wagner"},
     {"name": "rw_choice_kernel"},
+    {"name": "composed_learner", "mechanisms": list(MECHANISMS)},
     {"name": "bounded_optimal", "n_bins": 12},
 ]
 
@@ -115,7 +117,7 @@ def test_batch_policy_path_equals_per_user_path() -> None:
 def test_chunked_batches_equal_one_batch() -> None:
     world = make_world(schedule=SCHEDULE)
     seeds = list(range(9))
-    for spec in ({"name": "rescorla_wagner"}, {"name": "random"}):
+    for spec in ({"name": "composed_learner", "mechanisms": list(MECHANISMS)}, {"name": "random"}):
         whole = simulate_users(world, spec, seeds)
         chunked = simulate_users(world, spec, seeds, chunk_users=4)
         for f in ("trials", "time_s", "outcomes", "actions", "command_time_s", "command_uses"):

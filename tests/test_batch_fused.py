@@ -10,6 +10,7 @@ import pandas as pd
 import pytest
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
+from shortcut_gym.agents.learning import MECHANISMS
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import run_episode
 from shortcut_gym.envs import ENV_ID, BatchSimulator, make_world
@@ -19,7 +20,11 @@ from shortcut_gym.lab.sweep.batch import build_agent, simulate_users
 SCHEDULE = {"sessions": 3, "trials_per_session": 30, "gap_h": [20.0, 3.0]}
 SEEDS = [3, 7, 11, 2024, 31337]
 FIELDS = ("trials", "time_s", "outcomes", "actions", "command_time_s", "command_uses")
-CASES = [(name, memory) for name in ("rescorla_wagner", "rw_choice_kernel") for memory in (None, "spacing")]
+PLANNER = {"name": "composed_learner", "mechanisms": ["value", "memory_aware", "planning", "incidental", "forgetting",
+                                                   "perseveration", "lapse"]}
+EVERY = {"name": "composed_learner", "mechanisms": list(MECHANISMS)}
+LEARNERS = {"rescorla_wagner": {"name": "rescorla_wagner"}, "composed_planner": PLANNER, "composed_all": EVERY}
+CASES = [(name, memory) for name in LEARNERS for memory in (None, "spacing")]
 IDS = [f"{n}-{m}" for n, m in CASES]
 
 
@@ -44,7 +49,7 @@ def _looped_sums(spec: dict[str, Any], memory: str | None, n_sess: int, n_cmd: i
 @pytest.mark.parametrize(("name", "memory"), CASES, ids=IDS)
 def test_fused_sums_equal_per_trial_batch_and_looped_env(name: str, memory: str | None) -> None:
     world = make_world(schedule=SCHEDULE, memory=memory)
-    spec = {"name": name}
+    spec = LEARNERS[name]
     fused = simulate_users(world, spec, SEEDS)
     threaded = simulate_users(world, spec, SEEDS, threads=2, chunk_users=2)
     stepped = simulate_users(world, spec, SEEDS, fused=False)
@@ -62,7 +67,7 @@ def test_fused_sums_equal_per_trial_batch_and_looped_env(name: str, memory: str 
 @pytest.mark.parametrize(("name", "memory"), CASES, ids=IDS)
 def test_fused_run_leaves_simulator_and_policy_as_stepping(name: str, memory: str | None) -> None:
     world = make_world(schedule=SCHEDULE, memory=memory, observe_recall=True)
-    agent = build_agent({"name": name}, world)
+    agent = build_agent(LEARNERS[name], world)
     sims, policies = [], []
     for _ in range(2):
         sim = BatchSimulator(world)
@@ -93,7 +98,7 @@ def test_fused_run_leaves_simulator_and_policy_as_stepping(name: str, memory: st
 
 def test_fused_run_needs_fresh_simulator_and_policy() -> None:
     world = make_world(schedule=SCHEDULE)
-    agent = build_agent({"name": "rescorla_wagner"}, world)
+    agent = build_agent(PLANNER, world)
     sim = BatchSimulator(world)
     sim.reset(seeds=SEEDS)
     with pytest.raises(ValueError, match="users"):

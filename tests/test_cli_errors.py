@@ -52,7 +52,7 @@ def _one_line_exit_2(argv: list[str], capsys, expected: str) -> str:
     (["fit", "no_such_log.csv", "--model", "static_softmax", "--out", "x"], "no_such_log.csv: no such file"),
     (["report", __file__, "--model", "static_softmax", "--out", "x", "--block", "0"], "--block: must be 'session'"),
     (["recover", "--model", "static_softmax", "--out", "x", "--participants", "-3"], "--participants"),
-    (["recover", "--model", "static_softmax", "--out", "x", "--study", "models"], "at least two --model options"),
+    (["recover", "--model", "static_softmax", "--out", "x", "--study", "models"], "needs at least two models"),
     (["bench", "--suite", "warp"], "unknown suite 'warp'"),
     (["allot", "--budget", "1000"], "--budget 1000 is more than can be handed out"),
     (["allot", "--budget", "-1"], "--budget: must be a whole number >= 0, got -1"),

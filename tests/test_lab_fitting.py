@@ -20,13 +20,14 @@ STATIC = ModelSpec("static_softmax")
 
 
 def test_parameter_recovery_static_softmax():
-    # 30 simulated participants x 400 trials, true values within +-1 logit unit of 0 (the
-    # default draw of recovery.draw_parameters). Threshold r > 0.7 for every parameter: a common
-    # bar for acceptable recovery (common practice, no source); the intercepts are the weakest
-    # (they are pinned by the few trials at exposure 0). Bias must be small against the spread of
-    # the true values (|bias| < 0.25 sd). Wider ranges (b_learn near -3) make learning so rare
-    # that some simulated people never learn and the MLE runs to the box edge: recovery then fails.
-    _, summary = parameter_recovery(WORLD, STATIC, n_participants=30, seed=11, n_starts=2)
+    # 30 simulated participants x 400 trials, true values within +-1 logit unit of 0. Threshold
+    # r > 0.7 for every parameter: a common bar for acceptable recovery (common practice, no
+    # source); the intercepts are the weakest (they are pinned by the few trials at exposure 0).
+    # Bias must be small against the spread of the true values (|bias| < 0.25 sd). Wider ranges
+    # (b_learn near -3) make learning so rare that some simulated people never learn and the MLE
+    # runs to the box edge: recovery then fails.
+    ranges = {n: (-1.0, 1.0) for n in STATIC.free_parameters()}
+    _, summary = parameter_recovery(WORLD, STATIC, n_participants=30, seed=11, n_starts=2, ranges=ranges)
     assert set(summary["parameter"]) == set(STATIC.free_parameters())
     for _, row in summary.iterrows():
         assert row["correlation"] > 0.7, row.to_dict()
@@ -89,11 +90,17 @@ def test_summed_criteria_sum_per_participant_rows():
 
 
 def test_knockout_variants_drop_one_mechanism_each():
-    variants = knockout_variants(ModelSpec("choice_kernel"))
+    spec = ModelSpec("composed_learner", options={"mechanisms": ["choice_kernel", "perseveration", "lapse"]})
+    variants = knockout_variants(spec)
     names = [m for m, _ in variants]
     assert names == ["perseveration", "lapse"]  # choice_kernel itself cannot go: nothing would choose
     for m, v in variants:
         assert m not in v.options["mechanisms"]
+    # a published model knocks out into the published models nested in it
+    nested = {m: v.build().param_specs().keys() for m, v in knockout_variants(ModelSpec("rw_choice_kernel"))}
+    assert list(nested["choice_kernel"]) == ["alpha", "beta"] and list(nested["value"]) == ["alpha_ck", "beta_ck"]
+    with pytest.raises(ValueError, match="no mechanism that can be knocked out"):
+        knockout_variants(ModelSpec("rescorla_wagner"))
 
 
 def test_only_agents_built_from_mechanisms_are_composed_and_knocked_out():
@@ -108,9 +115,17 @@ def test_only_agents_built_from_mechanisms_are_composed_and_knocked_out():
 
 
 def test_parse_model_errors_and_options():
-    spec = parse_model("two=static_softmax:covariates=log_exposure+session,b_learn=-3")
+    spec = parse_model("two=static_softmax:covariates=[log_exposure,session],b_learn=-3")
     assert spec.label == "two" and spec.fixed == {"b_learn": -3.0}
     assert spec.options == {"covariates": ["log_exposure", "session"]}
+    one = parse_model("v=composed_learner:mechanisms=[value],alpha=0.2")
+    assert one.options == {"mechanisms": ["value"]} and one.fixed == {"alpha": 0.2}
+    for bad, message in [("composed_learner:mechanisms=[value,lapse", "'\\[' without '\\]'"),
+                         ("composed_learner:mechanisms=value]", "without"),
+                         ("composed_learner:mechanisms=[value,,lapse]", "no empty"),
+                         ("rescorla_wagner:alpha=0.2,alpha=0.3", "given twice")]:
+        with pytest.raises(ValueError, match=message):
+            parse_model(bad)
     with pytest.raises(ValueError, match="unknown agent 'nope'"):
         parse_model("nope")
     with pytest.raises(ValueError, match="must look like key=value"):

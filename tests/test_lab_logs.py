@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 
 from shortcut_gym.agents.base import AgentContext
+from shortcut_gym.agents.learning import MECHANISMS
 from shortcut_gym.agents.registry import make_agent
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.predictive import simulate_log
@@ -146,10 +147,12 @@ def test_replay_probabilities_match_the_fast_likelihood(good_log):
     trials = participant_trials(validate_log(good_log, WORLD.commands), "P-1")
     ctx = AgentContext(WORLD.commands.n_commands, len(trials), WORLD.commands.names,
                        tuple(WORLD.observation_names()))
-    for name, params in [("rescorla_wagner", {"alpha": 0.4, "forget_rate_per_h": 0.05}),
-                         ("static_softmax", {"b_hotkey": 0.3, "w_learn_log_exposure": -0.7})]:
-        spec = ModelSpec(name, fixed=params)
-        agent = make_agent(name, ctx, **params)
+    every = {"mechanisms": list(MECHANISMS)}
+    for name, options, params in [("composed_learner", every, {"alpha": 0.4, "forget_rate_per_h": 0.05}),
+                                  ("rw_choice_kernel", {}, {"alpha": 0.4, "beta_ck": 2.0}),
+                                  ("static_softmax", {}, {"b_hotkey": 0.3, "w_learn_log_exposure": -0.7})]:
+        spec = ModelSpec(name, options=options, fixed=params)
+        agent = make_agent(name, ctx, **options, **params)
         p = replay_probabilities(agent, trials, ctx)
         codes = trials["action"].map({"menu": 0, "hotkey": 1, "learn": 2}).to_numpy()
         replay_ll = float(np.log(p[np.arange(len(codes)), codes]).sum())

@@ -25,7 +25,8 @@ SPEC: dict[str, Any] = {
         "costs.learn.encoding_s": {"low": 0.5, "high": 20.0, "scale": "log"},
     }},
     "agents": [{"name": "always_menu"}, {"name": "learn_first_k", "params": {"k": 1}},
-               {"name": "random", "params": {"p_hotkey": 0.3, "p_learn": 0.1}}, {"name": "rescorla_wagner"}],
+               {"name": "random", "params": {"p_hotkey": 0.3, "p_learn": 0.1}}, {"name": "rescorla_wagner"},
+               {"name": "composed_learner", "mechanisms": ["value", "memory_aware", "planning", "lapse"]}],
     "seeds": {"first": 10, "count": 5},
     "outputs": {"plots": False},
 }

@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from shortcut_gym.agents.planner import break_even_table
 from shortcut_gym.envs import make_world
@@ -60,3 +61,13 @@ def test_break_even_map_boundary_matches_the_analytic_rule(tmp_path: Path) -> No
     row = summary[(summary["agent"] == "learn_first_k(k=1)") & (summary["costs.klm.keystroke_s"] == 0.08)
                   & (summary["costs.learn.encoding_s"] == 0.5)]
     assert f"| 0.08 | 0.5 | 0.0 | {row['time_saved_vs_menu_s'].iloc[0]:.1f} |" in index
+    # standard errors per cell from the kept per-user totals: sd / sqrt(users), paired against always-menu
+    users = pd.read_parquet(tmp_path / "s" / "users.parquet")
+    mine = users[users["run_index"] == row["run_index"].iloc[0]].set_index("seed")["total_time_s"]
+    menu = users[(users["agent"] == "always_menu") & (users["point_index"] == row["point_index"].iloc[0])]
+    menu = menu.set_index("seed")["total_time_s"]
+    assert len(mine) == 8 and mine.mean() == pytest.approx(row["total_time_s"].iloc[0], rel=1e-9)
+    assert row["total_time_se_s"].iloc[0] == pytest.approx(mine.std(ddof=1) / np.sqrt(8), rel=1e-9)
+    assert (menu - mine).mean() == pytest.approx(row["time_saved_vs_menu_s"].iloc[0], rel=1e-9)
+    assert row["time_saved_vs_menu_se_s"].iloc[0] == pytest.approx((menu - mine).std(ddof=1) / np.sqrt(8),
+                                                                   rel=1e-9)

@@ -43,12 +43,12 @@ class LearningAgent(Agent):
     """A learning model built from named mechanisms (see :mod:`.mechanisms`)."""
 
     name = "learning"
-    default_mechanisms: ClassVar[tuple[str, ...]] = tuple(mech.MECHANISMS)
+    default_mechanisms: ClassVar[tuple[str, ...]] = ()
 
     def __init__(self, context: AgentContext | None = None, mechanisms: Iterable[str] | None = None,
-                 without: Iterable[str] | None = None, options: dict[str, float] | None = None,
-                 **params: float) -> None:
-        self.mechanisms = mech.resolve_mechanisms(self.name, self.default_mechanisms, mechanisms, without)
+                 options: dict[str, float] | None = None, **params: float) -> None:
+        self.mechanisms = mech.resolve_mechanisms(self.name, mechanisms if mechanisms is not None
+                                                  else self.default_mechanisms)
         for p in params:
             owner = mech.owner_of(p)
             if owner is not None and owner not in self.mechanisms:

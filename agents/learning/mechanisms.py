@@ -33,12 +33,21 @@ Mechanisms (rules written per command c, action a in {menu, hotkey, learn}, rewa
 * ``lapse``: with probability ``lapse`` the action is drawn uniformly.
 
 Default values of the parameters are assumptions of this project (no source), chosen to give
-sensible behaviour in the demo scenario.
+sensible behaviour in the demo scenario. So are the plausible ranges (``ParamSpec.plausible``)
+where fits draw their random starts and recovery studies their true values: learning rates
+0.02-0.95, inverse temperatures and choice-kernel weights 0.1-10 (1/s and logit units; the low
+end is a noisy participant, whose choices move less than 1 logit per 10 s of expected time),
+recall_rate 0.05-0.95, horizon_uses 0.5-50, incidental_rate 0.005-0.3, forget_rate_per_h
+0.001-0.5, stickiness -2 to 3, lapse 0.005-0.2.
+
+Every mechanism except ``memory_aware`` has parameter values that switch it off (``off``:
+beta = 0, beta_ck = 0, horizon_uses = 0, incidental_rate = 0, forget_rate_per_h = 0,
+stickiness = 0, lapse = 0), so a model with it nests the model without it.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 from shortcut_gym.agents.base import ParamSpec
@@ -64,44 +73,51 @@ class Mechanism:
     params: tuple[tuple[int, ParamSpec], ...]
     requires: tuple[str, ...] = ()
     doc: str = ""
+    #: parameter values at which the mechanism has no effect on any choice (None: there are none);
+    #: a model with the mechanism then equals the model without it, so it nests that model
+    off: tuple[tuple[str, float], ...] | None = None
 
 
 MECHANISMS: dict[str, Mechanism] = {
     m.name: m
     for m in (
         Mechanism("value", M_VALUE, (
-            (P_ALPHA, ParamSpec("alpha", 0.3, 0.0, 1.0, "logit", "delta-rule learning rate")),
-            (P_BETA, ParamSpec("beta", 3.0, 0.0, 50.0, "logit", "softmax inverse temperature (1/s)")),
-        ), doc="delta rule on action values per command, softmax"),
+            (P_ALPHA, ParamSpec("alpha", 0.3, 0.0, 1.0, "logit", "delta-rule learning rate", (0.02, 0.95))),
+            (P_BETA, ParamSpec("beta", 3.0, 0.0, 50.0, "logit", "softmax inverse temperature (1/s)", (0.1, 10.0))),
+        ), doc="delta rule on action values per command, softmax", off=(("beta", 0.0),)),
         Mechanism("choice_kernel", M_CHOICE_KERNEL, (
-            (P_ALPHA_CK, ParamSpec("alpha_ck", 0.1, 0.0, 1.0, "logit", "choice-kernel learning rate")),
-            (P_BETA_CK, ParamSpec("beta_ck", 1.0, 0.0, 50.0, "logit", "choice-kernel weight (logit units)")),
-        ), doc="habit trace over actions shared by all commands"),
+            (P_ALPHA_CK, ParamSpec("alpha_ck", 0.1, 0.0, 1.0, "logit", "choice-kernel learning rate", (0.02, 0.95))),
+            (P_BETA_CK, ParamSpec("beta_ck", 1.0, 0.0, 50.0, "logit", "choice-kernel weight (logit units)",
+                                             (0.1, 10.0))),
+        ), doc="habit trace over actions shared by all commands", off=(("beta_ck", 0.0),)),
         Mechanism("memory_aware", M_MEMORY_AWARE, (
-            (P_RECALL_RATE, ParamSpec("recall_rate", 0.8, 0.0, 1.0, "logit", "recall-belief learning rate")),
+            (P_RECALL_RATE, ParamSpec("recall_rate", 0.8, 0.0, 1.0, "logit", "recall-belief learning rate",
+                                                 (0.05, 0.95))),
         ), requires=("value",), doc="hotkey valued by expected time from the agent's own recall belief"),
         Mechanism("planning", M_PLANNING, (
             (P_HORIZON_USES, ParamSpec("horizon_uses", 5.0, 0.0, 1000.0, "logit",
-                                       "most future uses the agent plans over")),
-        ), requires=("memory_aware",), doc="value of learning now for expected future uses"),
+                                       "most future uses the agent plans over", (0.5, 50.0))),
+        ), requires=("memory_aware",), doc="value of learning now for expected future uses",
+           off=(("horizon_uses", 0.0),)),
         Mechanism("incidental", M_INCIDENTAL, (
             (P_INCIDENTAL, ParamSpec("incidental_rate", 0.05, 0.0, 1.0, "logit",
-                                     "recall-belief gain from a menu use")),
-        ), requires=("memory_aware",), doc="menu use teaches the hotkey a little"),
+                                     "recall-belief gain from a menu use", (0.005, 0.3))),
+        ), requires=("memory_aware",), doc="menu use teaches the hotkey a little", off=(("incidental_rate", 0.0),)),
         Mechanism("forgetting", M_FORGETTING, (
             (P_FORGET, ParamSpec("forget_rate_per_h", 0.02, 0.0, 10.0, "logit",
-                                 "recall-belief decay rate (1/h)")),
-        ), requires=("memory_aware",), doc="recall belief decays with time since last use"),
+                                 "recall-belief decay rate (1/h)", (0.001, 0.5))),
+        ), requires=("memory_aware",), doc="recall belief decays with time since last use",
+           off=(("forget_rate_per_h", 0.0),)),
         Mechanism("perseveration", M_PERSEVERATION, (
             (P_STICK, ParamSpec("stickiness", 0.5, -10.0, 10.0, "logit",
-                                "logit bonus for repeating the command's last action")),
-        ), doc="repeat the last action chosen for the same command"),
+                                "logit bonus for repeating the command's last action", (-2.0, 3.0))),
+        ), doc="repeat the last action chosen for the same command", off=(("stickiness", 0.0),)),
         Mechanism("lapse", M_LAPSE, (
             (P_LAPSE, ParamSpec("lapse", 0.02, 0.0, 0.5, "logit",
                                 "probability of a uniform random action; at most 0.5, since beyond it the "
                                 "choices carry little information and fits stall on a flat likelihood "
-                                "(an assumption of this project)")),
-        ), doc="uniform random action with a small probability"),
+                                "(an assumption of this project)", (0.005, 0.2))),
+        ), doc="uniform random action with a small probability", off=(("lapse", 0.0),)),
     )
 }
 
@@ -113,29 +129,28 @@ OPTION_SLOTS: dict[str, int] = {"prior_time_s": P_PRIOR_TIME, "prior_hotkey_s": 
                                 "prior_failure_s": P_PRIOR_FAILURE}
 
 
-def resolve_mechanisms(owner: str, defaults: Sequence[str], mechanisms: Iterable[str] | None,
-                       without: Iterable[str] | None) -> tuple[str, ...]:
-    """The mechanism list: ``mechanisms`` (or ``defaults``) minus ``without``, validated.
+def resolve_mechanisms(owner: str, mechanisms: Iterable[str]) -> tuple[str, ...]:
+    """The mechanism list in catalogue order, validated.
 
-    Raises ValueError naming an unknown mechanism, a removal of a mechanism that is not on, or a
-    mechanism whose requirement is switched off.
+    Raises ValueError naming an unknown or repeated mechanism, a mechanism whose requirement is
+    not listed, or a list with neither 'value' nor 'choice_kernel'.
     """
-    chosen = list(defaults if mechanisms is None else mechanisms)
-    if isinstance(mechanisms, str) or isinstance(without, str):
-        raise ConfigError(f"{owner}: 'mechanisms' and 'without' take lists of names, not a single string")
-    for name in chosen + list(without or ()):
-        if name not in MECHANISMS:
+    if isinstance(mechanisms, str):
+        raise ConfigError(f"{owner}: 'mechanisms' takes a list of names, not a single string ({mechanisms!r})")
+    chosen = list(mechanisms)
+    for name in chosen:
+        if not isinstance(name, str) or name not in MECHANISMS:
             raise ConfigError(f"{owner}: unknown mechanism {name!r}; known: {list(MECHANISMS)}")
-    for name in without or ():
-        if name not in chosen:
-            raise ConfigError(f"{owner}: cannot switch off {name!r}: it is not on (on: {chosen})")
-    kept = [m for m in MECHANISMS if m in chosen and m not in set(without or ())]
+    repeated = sorted({n for n in chosen if chosen.count(n) > 1})
+    if repeated:
+        raise ConfigError(f"{owner}: mechanism(s) {repeated} listed more than once")
+    kept = [m for m in MECHANISMS if m in chosen]
     for name in kept:
         for need in MECHANISMS[name].requires:
             if need not in kept:
-                raise ConfigError(f"{owner}: mechanism {name!r} needs {need!r}, which is switched off")
+                raise ConfigError(f"{owner}: mechanism {name!r} needs {need!r}, which is not listed")
     if "value" not in kept and "choice_kernel" not in kept:
-        raise ConfigError(f"{owner}: needs 'value' or 'choice_kernel' to choose at all (on: {kept})")
+        raise ConfigError(f"{owner}: needs 'value' or 'choice_kernel' to choose at all (listed: {kept})")
     return tuple(kept)
 
 

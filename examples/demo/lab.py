@@ -26,8 +26,9 @@ from shortcut_gym.lab.report import (
 
 DEMO_MODELS = (
     ModelSpec("static_softmax", "static_softmax"),
-    ModelSpec("choice_kernel", "choice_kernel"),
     ModelSpec("rescorla_wagner", "rescorla_wagner"),
+    ModelSpec("choice_kernel", "choice_kernel"),
+    ModelSpec("rw_choice_kernel", "rw_choice_kernel"),
 )
 
 
@@ -47,7 +48,7 @@ def synthetic_log(world, users: int, seed: int = 7) -> tuple[pd.DataFrame, pd.Da
 
 
 def lab_section(out: Path, users: int) -> Path:
-    """Fit the three demo models to a synthetic log, compare them, run a small recovery study.
+    """Fit the four demo models to a synthetic log, compare them, run a small recovery study.
 
     Prints the comparison and returns the report folder (``out/lab_report``).
     """
@@ -74,12 +75,12 @@ def lab_section(out: Path, users: int) -> Path:
     ]
     sections = [parameter_recovery_section(specs[0].label, summary), model_recovery_section(confusion)]
     index, tables = analyse_log(log, specs, world, folder, n_starts=3, seed=0, n_jobs=2, n_sims=20,
-                                knockout="rescorla_wagner", extra_sections=sections, extra_entries=entries)
+                                knockout="rw_choice_kernel", extra_sections=sections, extra_entries=entries)
     fmt = {"float_format": lambda v: f"{v:.2f}"}
     print(f"\n== Lab: {log['participant'].nunique()} invented participants, models fitted by maximum likelihood")
     print(tables["summed"].to_string(index=False, **fmt))
     print(tables["bms"].to_string(index=False, **fmt))
-    print("knock-out of rescorla_wagner's mechanisms (summed BIC change):")
+    print("knock-out of rw_choice_kernel's mechanisms (summed BIC change):")
     print(tables["knockout"][["mechanism", "delta_bic", "participants_worse"]].to_string(index=False, **fmt))
     print("parameter recovery (static_softmax):")
     print(summary[["parameter", "correlation", "bias"]].to_string(index=False, **fmt))

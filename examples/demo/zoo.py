@@ -7,15 +7,16 @@ from pathlib import Path
 
 import pandas as pd
 
-from shortcut_gym.agents.registry import make_agent
+from shortcut_gym.agents.registry import agent_from_spec, make_agent
 from shortcut_gym.agents.scoring import score_trials, simulate_trials
+from shortcut_gym.envs.config import bundled_config_dir
 from shortcut_gym.envs.world import make_world
 
 PPO_STEPS = 40_000
 
 
 def zoo_section(out: Path, users: int) -> pd.DataFrame:
-    """Baselines, two learning models, the planner and a short-trained PPO on Tidepool Logbook.
+    """Baselines, learning models (two published, one composed), the planner and a short PPO on Tidepool Logbook.
 
     Prints time per trial, hotkey adoption trial and time lost versus the planner; writes
     ``zoo_comparison.csv`` in ``out``. Returns the comparison table.
@@ -32,6 +33,7 @@ def zoo_section(out: Path, users: int) -> pd.DataFrame:
         "random": make_agent("random"),
         "rescorla_wagner": make_agent("rescorla_wagner"),
         "rw_choice_kernel": make_agent("rw_choice_kernel"),
+        "composed_planner": agent_from_spec(bundled_config_dir() / "agents" / "composed_planner.yaml"),
         f"ppo({PPO_STEPS // 1000}k steps)": ppo,
         "bounded_optimal": make_agent("bounded_optimal", world=world),
     }

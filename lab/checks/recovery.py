@@ -15,49 +15,38 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import ComposedAgent
+from shortcut_gym.agents.learning import COMPOSED
+from shortcut_gym.agents.registry import make_agent
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
+from shortcut_gym.lab.checks.population import ModelPopulation
 from shortcut_gym.lab.checks.predictive import simulate_log
 from shortcut_gym.lab.data.logs import validate_log
 from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_log
+from shortcut_gym.lab.fitting.starts import check_ranges, draw_in_range
 
 
 def draw_parameters(spec: ModelSpec, rng: np.random.Generator,
                     ranges: Mapping[str, tuple[float, float]] | None = None) -> dict[str, float]:
-    """Known generating parameters: uniform in ``ranges[name]`` if given, else near the default.
-
-    Near the default means uniform within +-1 of the default in the optimiser's coordinate
-    (logit or log transform; natural units for untransformed parameters): the plausible region a
-    recovery study should cover, not the whole bounded range (common practice, no source).
-    """
+    """Known generating parameters: each drawn over its plausible range (``ranges[name]`` if given,
+    else the parameter's documented ``ParamSpec.plausible``; :func:`~shortcut_gym.lab.fitting.plausible_range`),
+    uniformly in the optimiser's coordinate (log-uniform for a log-transformed rate)."""
     specs = spec.build().param_specs()
-    ranges = dict(ranges or {})
-    unknown = set(ranges) - set(specs)
-    if unknown:
-        raise ConfigError(f"model {spec.label!r}: ranges for unknown parameter(s) {sorted(unknown)}")
-    out = {}
-    for n in spec.free_parameters():
-        if n in ranges:
-            lo, hi = ranges[n]
-            if not (specs[n].lower <= lo <= hi <= specs[n].upper):
-                raise ConfigError(f"range {n}=({lo}, {hi}) is outside the bounds [{specs[n].lower}, {specs[n].upper}]")
-            out[n] = float(rng.uniform(lo, hi))
-        else:
-            s = specs[n]
-            out[n] = float(s.from_free(s.to_free(s.default) + rng.uniform(-1.0, 1.0)))
-    return out
+    check_ranges(specs, ranges, f"model {spec.label!r}")
+    return {n: draw_in_range(specs[n], rng, ranges) for n in spec.free_parameters()}
 
 
 def simulate_known(world: World, spec: ModelSpec, n_participants: int, rng: np.random.Generator,
                    ranges: Mapping[str, tuple[float, float]] | None = None,
-                   prefix: str = "sim") -> tuple[pd.DataFrame, pd.DataFrame]:
-    """A log of ``n_participants`` simulated users, each with its own drawn parameters.
+                   prefix: str = "sim", population: ModelPopulation | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """A log of ``n_participants`` simulated users, each with its own drawn parameters (from
+    ``population``'s laws if given, else :func:`draw_parameters` over ``ranges``).
 
     Returns (log, truth) with truth one row per participant of the generating parameters.
     """
     frames, truth = [], []
     for i in range(n_participants):
-        params = draw_parameters(spec, rng, ranges)
+        params = population.draw(rng) if population is not None else draw_parameters(spec, rng, ranges)
         agent_spec = ModelSpec(spec.name, spec.label, spec.options, {**dict(spec.fixed), **params})
         log = simulate_log(world, agent_spec, 1, rng, prefix=f"{prefix}{i}")
         frames.append(log)
@@ -68,23 +57,38 @@ def simulate_known(world: World, spec: ModelSpec, n_participants: int, rng: np.r
 def parameter_recovery(world: World, spec: ModelSpec, n_participants: int = 20, seed: int = 0,
                        n_starts: int = 5, n_jobs: int = 1,
                        ranges: Mapping[str, tuple[float, float]] | None = None,
-                       progress: bool = False) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Simulate with known parameters, refit; returns (per-participant true vs fitted, summary).
+                       progress: bool = False, population: ModelPopulation | None = None,
+                       ) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Simulate with known parameters (``population`` or ``ranges``), refit; returns
+    (per-participant true vs fitted, summary).
 
-    Summary per parameter: Pearson correlation, mean bias (fitted - true), RMSE, true-value spread.
+    Summary per parameter: Pearson correlation, Spearman rank correlation (robust to the few fits
+    that run far along a flat direction), mean bias (fitted - true), RMSE, true-value spread,
+    the share of 95% intervals holding the true value, and how the true values were drawn.
     """
     rng = np.random.default_rng(seed)
-    log, truth = simulate_known(world, spec, n_participants, rng, ranges)
+    log, truth = simulate_known(world, spec, n_participants, rng, ranges, population=population)
     log = validate_log(log, world.commands, source=f"simulated {spec.label}")
     fits = fit_log(log, [spec], context_for(log, world.commands.names), n_starts, seed, n_jobs, progress=progress)
     merged = truth.merge(fits, on="participant")
+    drawn = (population or ModelPopulation(spec, n_participants, {}, "plausible ranges")).describe()
+    if population is None and ranges:
+        drawn.update({n: f"uniform over [{lo:g}, {hi:g}] in the optimiser's coordinate"
+                      for n, (lo, hi) in ranges.items()})
     rows = []
     for n in spec.free_parameters():
         t, f = merged[n].to_numpy(float), merged[f"param_{n}"].to_numpy(float)
         r = float(np.corrcoef(t, f)[0, 1]) if t.std() > 0 and f.std() > 0 else float("nan")
-        rows.append({"model": spec.label, "parameter": n, "correlation": r, "bias": float(np.mean(f - t)),
+        rt, rf = pd.Series(t).rank().to_numpy(), pd.Series(f).rank().to_numpy()
+        rank_r = float(np.corrcoef(rt, rf)[0, 1]) if rt.std() > 0 and rf.std() > 0 else float("nan")
+        lo = merged.get(f"lower_{n}", pd.Series(np.nan, index=merged.index)).to_numpy(float)
+        hi = merged.get(f"upper_{n}", pd.Series(np.nan, index=merged.index)).to_numpy(float)
+        has = np.isfinite(lo) & np.isfinite(hi)
+        covered = float(np.mean((lo[has] <= t[has]) & (t[has] <= hi[has]))) if has.any() else float("nan")
+        rows.append({"model": spec.label, "parameter": n, "correlation": r, "rank_correlation": rank_r,
+                     "bias": float(np.mean(f - t)),
                      "rmse": float(np.sqrt(np.mean((f - t) ** 2))), "true_sd": float(t.std(ddof=1)),
-                     "n": len(t)})
+                     "interval_coverage": covered, "n": len(t), "drawn": drawn[n]})
     pairs = pd.DataFrame([{"model": spec.label, "participant": row["participant"], "parameter": n,
                            "true": row[n], "fitted": row[f"param_{n}"]}
                           for _, row in merged.iterrows() for n in spec.free_parameters()])
@@ -94,7 +98,8 @@ def parameter_recovery(world: World, spec: ModelSpec, n_participants: int = 20, 
 def model_recovery(world: World, specs: Sequence[ModelSpec], n_participants: int = 10, seed: int = 0,
                    n_starts: int = 3, n_jobs: int = 1,
                    ranges: Mapping[str, Mapping[str, tuple[float, float]]] | None = None,
-                   progress: bool = False) -> tuple[pd.DataFrame, pd.DataFrame]:
+                   progress: bool = False, populations: Mapping[str, ModelPopulation] | None = None,
+                   ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Confusion matrix: rows = generating model, columns = model with the lowest BIC (fractions).
 
     Returns (confusion matrix, all fits with a ``generator`` column).
@@ -103,7 +108,9 @@ def model_recovery(world: World, specs: Sequence[ModelSpec], n_participants: int
     ranges = ranges or {}
     all_fits = []
     for g, gen in enumerate(specs):
-        log, _ = simulate_known(world, gen, n_participants, rng, ranges.get(gen.label), prefix=f"g{g}s")
+        pop = (populations or {}).get(gen.label)
+        log, _ = simulate_known(world, gen, pop.participants if pop else n_participants, rng, ranges.get(gen.label),
+                                prefix=f"g{g}s", population=pop)
         log = validate_log(log, world.commands, source=f"simulated {gen.label}")
         fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed + 1000 * (g + 1), n_jobs,
                        progress=progress)
@@ -119,21 +126,29 @@ def model_recovery(world: World, specs: Sequence[ModelSpec], n_participants: int
 
 
 def knockout_variants(spec: ModelSpec) -> list[tuple[str, ModelSpec]]:
-    """(mechanism, spec without it) for every mechanism of ``spec`` that can be switched off alone."""
+    """(mechanism, spec without it) for every mechanism of ``spec`` that can be switched off alone.
+
+    Each variant is a ``composed_learner`` with the remaining mechanisms (for a published model
+    that is again a published form, e.g. ``rw_choice_kernel`` without ``choice_kernel`` is the
+    delta rule of ``rescorla_wagner``).
+    """
     agent = spec.build()
     mechanisms = list(agent.mechanisms) if isinstance(agent, ComposedAgent) else []
     if not mechanisms:
         raise ConfigError(f"model {spec.label!r} ({spec.name}) has no switchable mechanisms to knock out")
     out = []
     for m in mechanisms:
-        options: dict[str, Any] = {k: v for k, v in spec.options.items() if k not in ("mechanisms", "without")}
+        options: dict[str, Any] = {k: v for k, v in spec.options.items() if k != "mechanisms"}
         options["mechanisms"] = [x for x in mechanisms if x != m]
         try:
-            kept = set(spec.build().__class__(None, **options).param_specs())
-            fixed = {k: v for k, v in spec.fixed.items() if k in kept}
-            out.append((m, ModelSpec(spec.name, f"{spec.label}-no_{m}", options, fixed)))
-        except ValueError:
+            kept = set(make_agent(COMPOSED, None, **options).param_specs())
+        except ConfigError:
             continue  # another mechanism needs this one, or nothing would choose
+        fixed = {k: v for k, v in spec.fixed.items() if k in kept}
+        out.append((m, ModelSpec(COMPOSED, f"{spec.label}-no_{m}", options, fixed)))
+    if not out:
+        raise ConfigError(f"model {spec.label!r} ({spec.name}) has no mechanism that can be knocked out alone "
+                          f"(mechanisms {mechanisms})")
     return out
 
 

@@ -8,9 +8,10 @@ import pandas as pd
 
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.cli import CLIError, one_line
+from shortcut_gym.lab.cli.options import add_overwrite, add_world_options, claim_output, world_of, world_words
 from shortcut_gym.lab.cli.ranges import input_file, output_folder, positive_number
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
-from shortcut_gym.lab.report import comparison_sections, plot_comparison, write_index, write_table
+from shortcut_gym.lab.report import comparison_sections, fit_quality_section, plot_comparison, write_index, write_table
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -20,11 +21,15 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--prior-count", type=positive_number, default=1.0,
                    help="Dirichlet prior count per model for the BMS (default 1)")
     p.add_argument("--out", type=output_folder, required=True, help="output folder (created)")
+    add_world_options(p)
+    add_overwrite(p)
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     """Write comparison.csv, summed_criteria.csv, bms.csv and comparison.png."""
+    claim_output(args.out, args)
+    world = world_of(args)  # checked, and named in index.md beside the fits it compares
     try:
         fits = pd.read_csv(args.fits)
         if "participant" in fits.columns:  # ids as written ("NA" and "None" are ids, not missing values)
@@ -43,7 +48,9 @@ def run(args: argparse.Namespace) -> int:
         (write_table(bms.table(), args.out, "bms"), "random-effects BMS"),
         (plot_comparison(summed, bms, args.out / "comparison.png"), "summed BIC and BMS plot"),
     ]
-    index = write_index(args.out, entries, "Model comparison", comparison_sections(summed, bms))
+    sections = comparison_sections(summed, bms) + [fit_quality_section(fits),
+                                                   ("Study world", world_words(world, args))]
+    index = write_index(args.out, entries, "Model comparison", sections)
     print(summed.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(bms.table().to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     print(f"wrote {index.parent}")

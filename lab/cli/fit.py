@@ -7,8 +7,16 @@ from pathlib import Path
 
 import pandas as pd
 
-from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.cli.options import add_common, add_skip_bad, models_of, priors_of, report_skipped
+from shortcut_gym.lab.cli.options import (
+    add_common,
+    add_skip_bad,
+    claim_output,
+    models_of,
+    priors_of,
+    report_skipped,
+    start_ranges_of,
+    world_of,
+)
 from shortcut_gym.lab.cli.ranges import input_file
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.fitting import (
@@ -19,6 +27,7 @@ from shortcut_gym.lab.fitting import (
     cv_table,
     fit_hierarchical_models,
     fit_log,
+    long_table,
 )
 
 
@@ -41,20 +50,28 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    """Fit and write ``fits.csv``."""
-    world = make_world(args.scenario)
+    """Fit and write ``fits.csv`` (one row per participant x model) and ``parameters.csv`` (long)."""
+    claim_output(args.out, args)
+    world = world_of(args)
     specs = models_of(args)
     priors = priors_of(args.prior, specs)
+    ranges = start_ranges_of(args.start_range, specs)
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
-    fits = fit_log(log, specs, context_for(log, world.commands.names), args.starts, args.seed, args.jobs, priors,
-                   progress=not args.quiet)
+    fits = fit_log(log, specs, context_for(log, world.commands.names, world), args.starts, args.seed, args.jobs, priors,
+                   progress=not args.quiet, start_ranges=ranges, intervals=args.intervals)
     args.out.mkdir(parents=True, exist_ok=True)
     path = args.out / "fits.csv"
     fits.to_csv(path, index=False)
-    show = fits[["participant", "model", "loglik", "n_params", "aic", "bic", "converged"]]
+    long_table(fits).to_csv(args.out / "parameters.csv", index=False)
+    show = fits[["participant", "model", "loglik", "n_params", "aic", "bic", "fit_ok"]]
     print(show.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
-    print(f"wrote {path}")
+    doubtful = fits[~fits["fit_ok"]]
+    if len(doubtful):
+        print(f"{len(doubtful)} doubtful fit(s):")
+        for _, r in doubtful.iterrows():
+            print(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
+    print(f"wrote {path} and {args.out / 'parameters.csv'}")
     if args.hierarchical:
         summary, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names),
                                                     args.starts, args.seed, args.covariance)

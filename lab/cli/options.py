@@ -4,7 +4,7 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 
 * ``--model`` and ``--agent``: the one spec syntax of :mod:`.specs`, ``[label=]name[:key=value,...]``
   with YAML scalar values; for ``--model`` keys that are parameters are held fixed, others are
-  constructor options (``mechanisms=value+memory_aware+lapse``). ``--agent-file``: an agent spec YAML.
+  constructor options (a list in square brackets: ``mechanisms=[value, memory_aware, lapse]``). ``--agent-file``: an agent spec YAML.
 * ``--prior label:param=family:a:b``: a MAP prior (families in :data:`PRIOR_FAMILIES`).
 """
 
@@ -18,22 +18,24 @@ from typing import Any
 import pandas as pd
 
 from shortcut_gym.agents.registry import AGENTS, make_agent, read_agent_spec
+from shortcut_gym.envs.config import read_yaml
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World, make_world
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
+from shortcut_gym.lab.cli.ranges import input_file, output_folder, seed, whole_number
 from shortcut_gym.lab.cli.specs import SYNTAX, agent_spec_dict, is_number, parse_spec
-from shortcut_gym.lab.fitting import PRIOR_FAMILIES, ModelSpec, make_prior
+from shortcut_gym.lab.fitting import INTERVAL_METHODS, PRIOR_FAMILIES, ModelSpec, make_prior
 
 MODEL_HELP = (f"model as {SYNTAX}; keys that are parameters are held fixed, others are options; values are "
-              "YAML scalars, '+' or [a, b] make a list (repeatable), e.g. ck=choice_kernel:lapse=0.02")
+              "YAML scalars, [a, b] makes a list (repeatable), e.g. "
+              "mine=composed_learner:mechanisms=[value, perseveration, lapse]")
 
 
 def parse_model(text: str) -> ModelSpec:
     """'[label=]name[:key=value,...]' -> ModelSpec (the syntax of :mod:`.specs`); keys that are
     parameters are held fixed, the others are options.
 
-    Example: ``logit2=static_softmax:covariates=log_exposure+session,b_learn=-3``.
+    Example: ``logit2=static_softmax:covariates=[log_exposure,session],b_learn=-3``.
     """
     spec = parse_spec(text, "model")
     if spec.name not in AGENTS:
@@ -97,32 +99,76 @@ def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -
     return specs
 
 
-def add_world_options(p: argparse.ArgumentParser, sessions: bool = False) -> None:
-    """The world options (scenario, costs, memory; optionally sessions) of the simulating subcommands."""
+def add_world_options(p: argparse.ArgumentParser, sessions: bool = True) -> None:
+    """The study's world options (scenario, costs, memory, schedule), the same on every subcommand
+    that reads or simulates trials."""
     p.add_argument("--scenario", default=None, help="scenario preset name or YAML path (default: demo)")
     p.add_argument("--costs", default=None, help="cost preset name or YAML path")
     p.add_argument("--memory", default=None, help="memory settings YAML path or preset name")
+    p.add_argument("--schedule", type=input_file, default=None,
+                   help="YAML file of schedule settings (sessions, trials_per_session, trial_interval_s, gap_h)")
     if sessions:
         p.add_argument("--sessions", type=whole_number(1), default=None,
-                       help="sessions per user (default: the scenario's)")
+                       help="sessions per user (default: the scenario's or --schedule's)")
 
 
 def world_of(args: argparse.Namespace) -> World:
     """The :class:`~shortcut_gym.envs.world.World` the options of :func:`add_world_options` name."""
+    schedule: dict[str, Any] = {}
+    if getattr(args, "schedule", None) is not None:
+        data = read_yaml(args.schedule)
+        if not isinstance(data, dict):
+            raise CLIError(f"--schedule {args.schedule}: must hold a mapping of schedule settings, got {data!r}")
+        schedule.update(data)
     sessions = getattr(args, "sessions", None)
-    return make_world(args.scenario, args.costs, args.memory, None if sessions is None else {"sessions": sessions})
+    if sessions is not None:
+        schedule["sessions"] = sessions
+    return make_world(args.scenario, args.costs, args.memory, schedule or None)
+
+
+def world_words(world: World, args: argparse.Namespace) -> str:
+    """One line naming the world a subcommand ran on (for its index.md)."""
+    parts = [f"scenario {args.scenario or world.scenario.name}", f"costs {args.costs or 'default'}",
+             f"memory {args.memory or 'default'}", f"schedule {args.schedule or 'of the scenario'}"]
+    if getattr(args, "sessions", None) is not None:
+        parts.append(f"{args.sessions} sessions")
+    return "World: " + ", ".join(parts) + f" ({world.horizon} trials per simulated participant)."
+
+
+def add_overwrite(p: argparse.ArgumentParser) -> None:
+    """The ``--overwrite`` option of the subcommands that write an output folder or file."""
+    p.add_argument("--overwrite", action="store_true",
+                   help="write into an output folder (or over an output file) that already holds files")
+
+
+def claim_output(path: Path | None, args: argparse.Namespace, option: str = "--out") -> None:
+    """Refuse an output folder that holds files, or an output file that exists, unless --overwrite."""
+    if path is None or getattr(args, "overwrite", False):
+        return
+    if path.is_dir() and any(path.iterdir()):
+        raise CLIError(f"{option} {path}: the folder already holds files; give --overwrite to write into it "
+                       "anyway, or choose a new folder")
+    if path.is_file():
+        raise CLIError(f"{option} {path}: the file exists; give --overwrite to replace it")
 
 
 def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
     """Options shared by the analysis subcommands."""
-    p.add_argument("--scenario", default=None, help="scenario preset or YAML whose commands the log names")
+    add_world_options(p)
     if models:
         p.add_argument("--model", action="append", required=True, help=MODEL_HELP)
     p.add_argument("--starts", type=whole_number(1), default=10, help="optimiser starts per participant x model")
     p.add_argument("--seed", type=seed, default=0, help="seed of the random starts (and simulations)")
     p.add_argument("--jobs", type=whole_number(1), default=1, help="worker processes")
     p.add_argument("--out", type=output_folder, required=True, help="output folder (created)")
+    add_overwrite(p)
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--intervals", choices=INTERVAL_METHODS, default="wald",
+                   help="95%% intervals: 'wald' (from the standard errors of the observed information), 'profile' "
+                        "(profile likelihood, slower) or 'none' (no standard errors)")
+    p.add_argument("--start-range", action="append", default=None, metavar="LABEL:PARAM=LOW:HIGH",
+                   help="plausible range where the random starts of a model's parameter are drawn (natural units; "
+                        "default: the parameter's documented range), repeatable")
 
 
 def add_skip_bad(p: argparse.ArgumentParser) -> None:
@@ -149,6 +195,31 @@ def models_of(args: argparse.Namespace) -> list[ModelSpec]:
     if dup:
         raise CLIError(f"--model labels repeat: {sorted(dup)}; name them label=agent:...")
     return specs
+
+
+def start_ranges_of(texts: list[str] | None, specs: list[ModelSpec]) -> dict[str, dict[str, tuple[float, float]]]:
+    """``--start-range label:param=low:high`` -> {label: {param: (low, high)}}, checked against the models."""
+    out: dict[str, dict[str, tuple[float, float]]] = {}
+    by_label = {s.label: s for s in specs}
+    for text in texts or []:
+        label, colon, rest = text.partition(":")
+        name, eq, pair = rest.partition("=")
+        bounds = pair.split(":")
+        if not colon or not eq or label not in by_label or len(bounds) != 2:
+            raise CLIError(f"--start-range {text!r} must look like label:param=low:high with a label from "
+                           f"{sorted(by_label)}")
+        if name not in by_label[label].free_parameters():
+            raise CLIError(f"--start-range {text!r}: {label} has no free parameter {name!r}; free: "
+                           f"{by_label[label].free_parameters()}")
+        try:
+            low, high = float(bounds[0]), float(bounds[1])
+        except ValueError:
+            raise CLIError(f"--start-range {text!r}: {bounds[0]!r} and {bounds[1]!r} must be numbers") from None
+        spec = by_label[label].build().param_specs()[name]
+        if not (low <= high and spec.lower <= low and high <= spec.upper):
+            raise CLIError(f"--start-range {text!r}: need low <= high within the bounds [{spec.lower}, {spec.upper}]")
+        out.setdefault(label, {})[name] = (low, high)
+    return out
 
 
 def priors_of(texts: list[str] | None, specs: list[ModelSpec]) -> dict[str, dict]:

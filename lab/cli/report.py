@@ -4,8 +4,17 @@ from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.envs.world import make_world
-from shortcut_gym.lab.cli.options import add_common, add_skip_bad, models_of, priors_of, report_skipped
+from shortcut_gym.lab.cli.options import (
+    add_common,
+    add_skip_bad,
+    claim_output,
+    models_of,
+    priors_of,
+    report_skipped,
+    start_ranges_of,
+    world_of,
+    world_words,
+)
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.cli.yardstick import add_planner_options
 from shortcut_gym.lab.data.logs import read_log
@@ -47,13 +56,17 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Write the report folder and print the summed criteria."""
-    world = make_world(args.scenario)
+    claim_output(args.out, args)
+    world = world_of(args)
     specs = models_of(args)
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
                                 args.block, priors_of(args.prior, specs), args.knockout, not args.quiet,
-                                args.hierarchical, args.cross_validate)
+                                args.hierarchical, args.cross_validate, intervals=args.intervals,
+                                start_ranges=start_ranges_of(args.start_range, specs),
+                                extra_sections=[("Study world", world_words(world, args)
+                                                 + " The posterior-predictive simulations run on it.")])
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(tables["bms"].to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     print(f"report in {index.parent}")

@@ -5,11 +5,23 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
+
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.lab.checks.population import read_population
+from shortcut_gym.lab.checks.recovery import simulate_known
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
-from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, output_folder, seed, whole_number
-from shortcut_gym.lab.data.logs import log_format, log_from_simulation, write_log
+from shortcut_gym.lab.cli.options import (
+    add_agent_options,
+    add_overwrite,
+    add_world_options,
+    agent_specs_of,
+    claim_output,
+    world_of,
+)
+from shortcut_gym.lab.cli.ranges import MAX_SEED, input_file, output_file, output_folder, seed, whole_number
+from shortcut_gym.lab.data.logs import log_format, log_from_simulation, validate_log, write_log
 from shortcut_gym.lab.simulate import session_summary, simulate_agents
 
 #: Most simulated users per agent one ``simulate`` call runs (the trial table is held in memory).
@@ -36,11 +48,56 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--log", type=_log_path, default=None,
                    help="also write the trials as a trial log (.csv or .parquet) that 'fit' reads; "
                         "participants are named <agent>-u<seed>")
+    p.add_argument("--population", type=input_file, default=None,
+                   help="population spec (YAML: per model, a distribution per parameter and a participant count): "
+                        "simulate each model's participants with drawn parameters into --log, and write their "
+                        "true parameters beside it (<log>_truth.csv); --agent and --users do not apply")
+    add_overwrite(p)
     p.set_defaults(func=run)
+
+
+def _truth_path(log: Path) -> Path:
+    return log.with_name(f"{log.stem}_truth.csv")
+
+
+def run_population(args: argparse.Namespace) -> int:
+    """Simulate a population spec into a log and its truth file."""
+    if args.log is None:
+        raise CLIError("--population needs --log (the trial log to write; the truth file goes beside it)")
+    if args.agent is not None:
+        raise CLIError("--population draws its own models: give no --agent")
+    claim_output(args.log, args, "--log")
+    claim_output(_truth_path(args.log), args, "--log (its truth file)")
+    try:
+        populations = read_population(args.population)
+    except ConfigError as err:
+        raise CLIError(str(err)) from None
+    world = world_of(args)
+    rng = np.random.default_rng(args.seed)
+    logs, truths = [], []
+    for pop in populations:
+        log, truth = simulate_known(world, pop.spec, pop.participants, rng, prefix=f"{pop.spec.label}-",
+                                    population=pop)
+        truth.insert(1, "model", pop.spec.label)
+        logs.append(log)
+        truths.append(truth)
+    log = validate_log(pd.concat(logs, ignore_index=True), world.commands, source="simulated population")
+    truth = pd.concat(truths, ignore_index=True)
+    print(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
+    truth.to_csv(_truth_path(args.log), index=False)
+    print(f"wrote true parameters {_truth_path(args.log)}")
+    for pop in populations:
+        for name, how in pop.describe().items():
+            print(f"  {pop.spec.label}.{name}: {how}")
+    return 0
 
 
 def run(args: argparse.Namespace) -> int:
     """Simulate, print the session table, optionally write the outputs."""
+    if args.population is not None:
+        return run_population(args)
+    claim_output(args.out, args)
+    claim_output(args.log, args, "--log")
     if args.seed + args.users - 1 > MAX_SEED:
         raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
     world = world_of(args)

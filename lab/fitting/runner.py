@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import multiprocessing
 from collections.abc import Mapping, Sequence
 from concurrent.futures import ProcessPoolExecutor
@@ -13,13 +14,30 @@ import pandas as pd
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.data.logs import participant_trials, participants
+from shortcut_gym.lab.fitting.nesting import nested_start, nesting_order
 from shortcut_gym.lab.fitting.optimise import fit_participant
 from shortcut_gym.lab.fitting.specs import ModelSpec
 
 
-def _job(args: tuple) -> dict[str, Any]:
-    spec, trials, context, n_starts, seed, priors, pid = args
-    return fit_participant(spec, trials, context, n_starts, seed, priors, pid).row()
+def _job(args: tuple) -> list[dict[str, Any]]:
+    """Every model on one participant; a model nesting an already fitted one starts from that fit
+    (with the extra parts switched off), so it never reports a worse ln L than the nested model."""
+    specs, trials, context, n_starts, seeds, priors, pid, ranges, intervals, warm = args
+    rows: dict[int, dict[str, Any]] = {}
+    fitted: list[tuple[ModelSpec, dict[str, float]]] = []
+    for j in nesting_order(list(specs)):
+        spec = specs[j]
+        starts = []
+        if warm and not priors.get(spec.label):
+            for inner, params in fitted:
+                start = nested_start(inner, params, spec)
+                if start is not None:
+                    starts.append(start)
+        res = fit_participant(spec, trials, context, n_starts, seeds[j], priors.get(spec.label), pid,
+                              ranges.get(spec.label), starts, intervals)
+        fitted.append((spec, res.params))
+        rows[j] = res.row()
+    return [rows[j] for j in range(len(specs))]
 
 
 def fit_log(
@@ -31,35 +49,44 @@ def fit_log(
     n_jobs: int = 1,
     priors: Mapping[str, Mapping[str, Any]] | None = None,
     progress: bool = False,
+    start_ranges: Mapping[str, Mapping[str, tuple[float, float]]] | None = None,
+    intervals: str = "wald",
+    warm_start_nested: bool = True,
 ) -> pd.DataFrame:
     """Fit every model to every participant of a validated log; one tidy row per participant x model.
 
-    Job (participant i, model j) is seeded with SeedSequence([seed, i, j]), so results do not
-    depend on ``n_jobs``. ``priors`` maps a model label to its priors (MAP for that model).
-    ``n_jobs`` > 1 uses that many worker processes.
+    Fit (participant i, model j) is seeded with SeedSequence([seed, i, j]), so results do not
+    depend on ``n_jobs``. ``priors`` maps a model label to its priors (MAP for that model),
+    ``start_ranges`` a label to plausible ranges for the random starts (see
+    :func:`~shortcut_gym.lab.fitting.optimise.fit_participant`, also for ``intervals``). With
+    ``warm_start_nested`` a model that nests another fitted model (:mod:`.nesting`) also starts
+    from that model's fit. ``n_jobs`` > 1 uses that many worker processes (one participant per job).
     """
     labels = [s.label for s in specs]
     if len(set(labels)) != len(labels):
         raise ConfigError(f"model labels must be unique, got {labels}")
-    priors = priors or {}
+    priors = {k: dict(v) for k, v in (priors or {}).items()}
+    ranges = {k: dict(v) for k, v in (start_ranges or {}).items()}
+    unknown = sorted((set(priors) | set(ranges)) - set(labels))
+    if unknown:
+        raise ConfigError(f"priors or start ranges for unknown model label(s) {unknown}; models: {labels}")
     jobs = []
     for i, pid in enumerate(participants(log)):
         trials = participant_trials(log, pid)
-        own = AgentContext(context.n_commands, len(trials), context.command_names)
-        for j, spec in enumerate(specs):
-            jobs.append((spec, trials, own, n_starts, np.random.SeedSequence([seed, i, j]),
-                         dict(priors.get(spec.label, {})), pid))
-    bar = _progress(len(jobs), "fitting", progress)
+        own = dataclasses.replace(context, horizon=len(trials))
+        seeds = [np.random.SeedSequence([seed, i, j]) for j in range(len(specs))]
+        jobs.append((list(specs), trials, own, n_starts, seeds, priors, pid, ranges, intervals, warm_start_nested))
+    bar = _progress(len(jobs) * len(specs), "fitting", progress)
     rows = []
     if n_jobs <= 1:
         for job in jobs:
-            rows.append(_job(job))
-            bar.update(1)
+            rows.extend(_job(job))
+            bar.update(len(specs))
     else:
         with ProcessPoolExecutor(max_workers=n_jobs, mp_context=multiprocessing.get_context("spawn")) as pool:
-            for row in pool.map(_job, jobs, chunksize=max(1, len(jobs) // (8 * n_jobs))):
-                rows.append(row)
-                bar.update(1)
+            for part in pool.map(_job, jobs, chunksize=max(1, len(jobs) // (8 * n_jobs))):
+                rows.extend(part)
+                bar.update(len(specs))
     bar.close()
     return pd.DataFrame(rows)
 
@@ -70,10 +97,11 @@ def _progress(total: int, desc: str, enabled: bool):
     return tqdm(total=total, desc=desc, disable=not enabled, leave=False)
 
 
-def context_for(log: pd.DataFrame, command_names: Sequence[str]) -> AgentContext:
-    """Agent context for fitting a log: its command set and the longest participant history."""
+def context_for(log: pd.DataFrame, command_names: Sequence[str], world: Any = None) -> AgentContext:
+    """Agent context for fitting a log: its command set, the longest participant history and
+    (optionally) the study's world, for agents that plan with it."""
     horizon = int(log.groupby("participant").size().max())
-    return AgentContext(len(command_names), horizon, tuple(command_names))
+    return AgentContext(len(command_names), horizon, tuple(command_names), world=world)
 
 
 def fitted_agent(spec: ModelSpec, fit_row: Mapping[str, Any], context: AgentContext) -> Agent:

@@ -11,8 +11,13 @@ Modules: :mod:`.markdown` (pipe tables, ``index.md``, CSV), :mod:`.plots`, :mod:
 from shortcut_gym.lab.report.analysis import analyse_log
 from shortcut_gym.lab.report.markdown import index_markdown, markdown_table, write_index, write_table
 from shortcut_gym.lab.report.plots import plot_comparison, plot_confusion, plot_parameter_recovery
-from shortcut_gym.lab.report.sections import comparison_sections, model_recovery_section, parameter_recovery_section
+from shortcut_gym.lab.report.sections import (
+    comparison_sections,
+    fit_quality_section,
+    model_recovery_section,
+    parameter_recovery_section,
+)
 
-__all__ = ["analyse_log", "comparison_sections", "index_markdown", "markdown_table", "model_recovery_section",
-           "parameter_recovery_section", "plot_comparison", "plot_confusion", "plot_parameter_recovery",
-           "write_index", "write_table"]
+__all__ = ["analyse_log", "comparison_sections", "fit_quality_section", "index_markdown", "markdown_table",
+           "model_recovery_section", "parameter_recovery_section", "plot_comparison", "plot_confusion",
+           "plot_parameter_recovery", "write_index", "write_table"]

@@ -11,7 +11,15 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.checks.predictive import plot_predictive, posterior_predictive
 from shortcut_gym.lab.checks.recovery import knockout_study, knockout_variants
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
-from shortcut_gym.lab.fitting import context_for, cross_validate, cv_summary, cv_table, fit_hierarchical_models, fit_log
+from shortcut_gym.lab.fitting import (
+    context_for,
+    cross_validate,
+    cv_summary,
+    cv_table,
+    fit_hierarchical_models,
+    fit_log,
+    long_table,
+)
 from shortcut_gym.lab.report.criteria_verdict import (
     agreement_words,
     criterion_winners,
@@ -20,7 +28,7 @@ from shortcut_gym.lab.report.criteria_verdict import (
 )
 from shortcut_gym.lab.report.markdown import markdown_table, write_index, write_table
 from shortcut_gym.lab.report.plots import plot_comparison
-from shortcut_gym.lab.report.sections import comparison_sections
+from shortcut_gym.lab.report.sections import comparison_sections, fit_quality_section
 
 
 def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int = 10, seed: int = 0,
@@ -28,6 +36,7 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
                 knockout: str | None = None, progress: bool = False, hierarchical: bool = False,
                 cross_validated: bool = False, extra_sections: Sequence[tuple[str, str]] = (),
                 extra_entries: Sequence[tuple[Path, str]] = (),
+                intervals: str = "wald", start_ranges: dict | None = None,
                 ) -> tuple[Path, dict[str, pd.DataFrame]]:
     """Fit, compare, posterior-predictive check (and optional knock-out) of a validated log into ``out``.
 
@@ -42,13 +51,18 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
             raise ConfigError(f"knock-out model {knockout!r} is not among the fitted models {list(by_label)}")
         knockout_variants(by_label[knockout])
     out.mkdir(parents=True, exist_ok=True)
-    fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed, n_jobs, priors, progress)
+    fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed, n_jobs, priors, progress,
+                   start_ranges, intervals)
+    parameters = long_table(fits)
     table = comparison_table(fits)
     summed = summed_criteria(fits)
     bms = bms_of_fits(fits)
     per, group = posterior_predictive(world, log, fits, specs, n_sims, seed, block)
     entries = [
-        (write_table(fits, out, "fits"), "best fit per participant x model: ln L, k, n, AIC, BIC, param_*"),
+        (write_table(fits, out, "fits"), "best fit per participant x model: ln L, k, n, AIC, BIC, diagnostics, "
+                                         "param_*, se_*, lower_*, upper_*"),
+        (write_table(parameters, out, "parameters"), "one row per participant x model x parameter: estimate, "
+                                                     "standard error, 95% interval"),
         (write_table(table, out, "comparison"), "per participant x model criteria, delta BIC, BIC rank"),
         (write_table(summed, out, "summed_criteria"), "per model: summed ln L, AIC, BIC, participants won"),
         (write_table(bms.table(), out, "bms"), "random-effects BMS: frequencies, exceedance, protected exceedance"),
@@ -57,8 +71,10 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
         (write_table(group, out, "predictive_group"), "hotkey share per block: data mean vs model mean and band"),
         (plot_predictive(group, out / "predictive.png"), "posterior-predictive check of hotkey use per block"),
     ]
-    tables = {"fits": fits, "comparison": table, "summed": summed, "bms": bms.table(), "predictive": group}
+    tables = {"fits": fits, "comparison": table, "summed": summed, "bms": bms.table(), "predictive": group,
+              "parameters": parameters}
     sections = comparison_sections(summed, bms)
+    sections.append(fit_quality_section(fits))
     ibic = cv = None
     if hierarchical:
         ibic, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names), n_starts, seed)

@@ -11,7 +11,9 @@ from shortcut_gym.lab.report.markdown import markdown_table
 
 def parameter_recovery_section(label: str, summary: pd.DataFrame) -> tuple[str, str]:
     """Report section of one model's parameter recovery (correlation, bias, RMSE per parameter)."""
-    cols = [c for c in ("parameter", "correlation", "bias", "rmse", "true_sd", "n") if c in summary.columns]
+    cols = [c for c in ("parameter", "correlation", "rank_correlation", "bias", "rmse", "true_sd", "interval_coverage",
+                        "n")
+            if c in summary.columns]
     worst = summary.sort_values("correlation").iloc[0]
     words = (f"Lowest true-fitted correlation: {worst['parameter']} ({worst['correlation']:.2f}). "
              f"![true vs fitted](parameter_recovery_{label}.png)")
@@ -56,3 +58,20 @@ def comparison_sections(summed: pd.DataFrame, bms: BMSResult) -> list[tuple[str,
         ("Random-effects Bayesian model selection", markdown_table(bms_table, digits=3)
          + "\n\n![summed BIC differences and BMS](comparison.png)"),
     ]
+
+
+def fit_quality_section(fits: pd.DataFrame) -> tuple[str, str]:
+    """Report section listing every doubtful fit (``fit_ok`` false) with its reasons, and the
+    agreement of the starts, from a fit table of :func:`~shortcut_gym.lab.fitting.fit_log`."""
+    if "fit_ok" not in fits.columns:
+        return ("Fit quality", "The fit table has no diagnostics (written by an older version).")
+    ok = fits["fit_ok"].astype(str).str.lower().isin(["true", "1"])
+    bad = fits.loc[~ok, ["participant", "model", "loglik", "starts_near_best", "n_starts", "fit_issues"]]
+    words = (f"{int(ok.sum())} of {len(fits)} fits passed every check (converged, no parameter at a bound, at least "
+             "two starts within 0.1 nats of the best, standard errors defined). ")
+    if bad.empty:
+        return ("Fit quality", words + "No doubtful fits.")
+    words += (f"{len(bad)} doubtful fit(s), listed below: treat their estimates (and the standard errors of "
+              "parameters at a bound) with care; a parameter at a bound often means the data cannot pin it "
+              "(see `parameters.csv` for every estimate with its standard error and interval).")
+    return ("Fit quality", words + "\n\n" + markdown_table(bad.reset_index(drop=True)))

@@ -2,9 +2,14 @@
 
 * ``results.parquet``: one row per run x session (means over the simulated users);
 * ``commands.parquet``: one row per run x command (mean uses and time per user);
+* ``users.parquet``: one row per run x simulated user (seed, total time, hotkey uses, learning
+  trials): every agent at a design point runs on the same seeds, so paired differences per user
+  can be formed;
 * ``trials.parquet``: every trial of every run (only when ``outputs.trial_tables``);
 * ``summary.csv``: one row per run: total time per user, final-session hotkey share, learning
-  trials, time saved against always-menu at the same point, and the gap to the reference agent;
+  trials, time saved against always-menu at the same point, and the gap to the reference agent,
+  each time with its standard error over the simulated users (``*_se_s``: sd / sqrt(users), of the
+  per-user totals, and of the paired per-user differences for the two comparisons);
 * ``failures.csv``: the failed runs and their errors;
 * ``plots/``: see :mod:`shortcut_gym.lab.sweep.plots`.
 """
@@ -48,8 +53,32 @@ def agent_roles(spec: SweepSpec, labels: list[str]) -> dict[str, str | None]:
     return {"menu": menu, "reference": reference, "learner": learner}
 
 
-def summary_table(spec: SweepSpec, runs: list[dict[str, Any]], blocks: pd.DataFrame) -> pd.DataFrame:
-    """One row per finished run (see the module docstring)."""
+def _standard_errors(out: pd.DataFrame, users: pd.DataFrame, roles: dict[str, str | None]) -> pd.DataFrame:
+    """Add the ``*_se_s`` columns from the per-user totals (NaN when a run has no users table)."""
+    def se(values: pd.Series) -> float:
+        return float(values.std(ddof=1) / np.sqrt(len(values))) if len(values) > 1 else float("nan")
+
+    if users.empty:
+        for col in ("total_time_se_s", "time_saved_vs_menu_se_s", "gap_to_reference_se_s"):
+            out[col] = np.nan
+        return out
+    per_run = users.groupby("run_index")["total_time_s"].apply(se)
+    out["total_time_se_s"] = out["run_index"].map(per_run)
+    for role, col in (("menu", "time_saved_vs_menu_se_s"), ("reference", "gap_to_reference_se_s")):
+        label = roles[role]
+        if not label:
+            out[col] = np.nan
+            continue
+        ref = users.loc[users["agent"] == label, ["point_index", "seed", "total_time_s"]]
+        paired = users.merge(ref, on=["point_index", "seed"], suffixes=("", "_ref"))
+        diff = paired["total_time_s"] - paired["total_time_s_ref"]
+        out[col] = out["run_index"].map(diff.groupby(paired["run_index"]).apply(se))
+    return out
+
+
+def summary_table(spec: SweepSpec, runs: list[dict[str, Any]], blocks: pd.DataFrame,
+                  users: pd.DataFrame | None = None) -> pd.DataFrame:
+    """One row per finished run (see the module docstring); ``users`` is the per-user table."""
     if blocks.empty:
         return pd.DataFrame()
     paths = list(spec.vary.parameters)
@@ -68,7 +97,7 @@ def summary_table(spec: SweepSpec, runs: list[dict[str, Any]], blocks: pd.DataFr
         ref = out[out["agent"] == label].set_index("point_index")["total_time_s"] if label else pd.Series(dtype=float)
         vals = out["point_index"].map(ref)
         out[col] = (vals - out["total_time_s"]) if role == "menu" else (out["total_time_s"] - vals)
-    return out
+    return _standard_errors(out, pd.DataFrame() if users is None else users, roles)
 
 
 def break_even_grid(spec: SweepSpec, runs: list[dict[str, Any]], commands: pd.DataFrame,
@@ -147,17 +176,21 @@ def write_outputs(spec: SweepSpec, runs: list[dict[str, Any]], store: SweepStore
     written: dict[str, Path] = {}
     blocks = store.read_table(runs, "blocks")
     commands = store.read_table(runs, "commands")
+    users = store.read_table(runs, "users")
     if not blocks.empty:
         _atomic_parquet(blocks, folder / "results.parquet")
         written["results"] = folder / "results.parquet"
         _atomic_parquet(commands, folder / "commands.parquet")
         written["commands"] = folder / "commands.parquet"
+    if not users.empty:
+        _atomic_parquet(users, folder / "users.parquet")
+        written["users"] = folder / "users.parquet"
     if spec.outputs.trial_tables:
         trials = store.read_table(runs, "trials")
         if not trials.empty:
             _atomic_parquet(trials, folder / "trials.parquet")
             written["trials"] = folder / "trials.parquet"
-    summary = summary_table(spec, runs, blocks)
+    summary = summary_table(spec, runs, blocks, users)
     if not summary.empty:
         atomic_write_text(folder / "summary.csv", summary.to_csv(index=False))
         written["summary"] = folder / "summary.csv"
@@ -186,6 +219,7 @@ def write_outputs(spec: SweepSpec, runs: list[dict[str, Any]], store: SweepStore
 _OUTPUT_NOTES = {
     "results": "per run x block: time, hotkey share, learn trials (tidy)",
     "commands": "per run x command: time and hotkey use",
+    "users": "per run x simulated user: total time, hotkey uses, learning trials (for paired differences)",
     "trials": "every simulated trial",
     "summary": "per run: total time, time saved over always-menu, gap to the reference agent",
     "failures": "runs that raised, with their error",

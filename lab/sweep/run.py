@@ -64,6 +64,18 @@ def command_table(run: dict[str, Any], sums: BlockSums, names: tuple[str, ...]) 
     })
 
 
+def user_table(run: dict[str, Any], sums: BlockSums) -> pd.DataFrame:
+    """Per-user rows of one run: seed, total time (s), successful hotkey uses and learning trials, so
+    that paired differences between agents on the same seeds (and their standard errors) can be computed."""
+    return pd.DataFrame({
+        "run_id": run["run_id"], "run_index": run["index"], "point_index": run["point_index"],
+        "agent": run["label"], "user": np.arange(sums.time_s.shape[0]), "seed": np.asarray(sums.seeds),
+        "total_time_s": sums.time_s.sum(axis=1),
+        "hotkey_uses": sums.outcomes[:, :, k.OUT_HOTKEY].sum(axis=1),
+        "learn_trials": sums.actions[:, :, k.LEARN].sum(axis=1),
+    })
+
+
 def compute_run(run: dict[str, Any]) -> dict[str, Any]:
     """Simulate one run; returns status, tables (or the error), the compute time ``compute_s`` and,
     within it, the time spent planning ``plan_s`` (a planner's plan for the run's world, made once per
@@ -79,6 +91,7 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
             "run_id": run["run_id"], "status": "done",
             "blocks": block_table(run, sums),
             "commands": command_table(run, sums, world.commands.names),
+            "users": user_table(run, sums),
         }
         if record == "trials":
             trials = trial_table(world, sums, run["label"])

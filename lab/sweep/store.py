@@ -7,7 +7,7 @@ Layout::
                                   ``finished``: run id -> file name -> SHA-256 of each finished run
     <folder>/spec.json            the validated spec (rewritten on a compatible resume)
     <folder>/.lock                the OS lock of the process working on the folder (pid, host)
-    <folder>/runs/<run_id>/       one finished run: blocks.parquet, commands.parquet, meta.json
+    <folder>/runs/<run_id>/       one finished run: blocks.parquet, commands.parquet, users.parquet, meta.json
     <folder>/runs/<run_id>.failed.json   one failed run: its error and traceback
     <folder>/damaged/             runs set aside by a resume because their files were damaged
     <folder>/log.jsonl            one line per event (start, resume, check, run done / failed, finish)
@@ -234,7 +234,7 @@ class SweepStore:
         tmp.mkdir()
         try:
             tables: dict[str, str] = {}
-            for table in ("blocks", "commands", "trials"):
+            for table in ("blocks", "commands", "users", "trials"):
                 if table in result:
                     path = tmp / f"{table}.parquet"
                     result[table].to_parquet(path, index=False)

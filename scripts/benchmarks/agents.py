@@ -77,8 +77,11 @@ def decision_costs(world: World, quick: bool = False, out: Out = print) -> None:
     out(f"reference: CommandSelection-v0 env step {step:.1f} us; CartPole-v1 step {cart:.1f} us")
     out(f"{'agent':<22}{'act+observe us':>16}{'x env step':>12}")
     records = record_episode(env, make_agent("rescorla_wagner"), seed=0)
+    every = {"mechanisms": ["value", "choice_kernel", "memory_aware", "planning", "incidental", "forgetting",
+                            "perseveration", "lapse"]}
     for label, name, kw in [("rescorla_wagner", "rescorla_wagner", {}), ("choice_kernel", "choice_kernel", {}),
                             ("rw_choice_kernel", "rw_choice_kernel", {}),
+                            ("composed_learner", "composed_learner", every),
                             ("bounded_optimal", "bounded_optimal", {"world": world}),
                             ("  plan argmax only", "bounded_optimal", {"world": world, "select_users": 0})]:
         agent = make_agent(name, **kw)
@@ -96,7 +99,7 @@ def decision_costs(world: World, quick: bool = False, out: Out = print) -> None:
         out(f"{label:<22}{cost:>16.1f}{cost / step:>12.2f}")
     # batched policy and compiled likelihood, per user-trial
     users = 64 if quick else 1024
-    agent = make_agent("rw_choice_kernel")
+    agent = make_agent("composed_learner", **every)
     agent.bind(context_of(env))
     seeds = list(range(users))
 
@@ -119,7 +122,7 @@ def decision_costs(world: World, quick: bool = False, out: Out = print) -> None:
 
     b = median_time(batched, 3) / (users * world.horizon) * 1e9
     s = median_time(sim_only, 3) / (users * world.horizon) * 1e9
-    out(f"batched rw_choice_kernel, {users} users: {b:.0f} ns per user-trial incl. simulator "
+    out(f"batched composed_learner (every mechanism), {users} users: {b:.0f} ns per user-trial incl. simulator "
         f"(simulator alone {s:.0f} ns; policy {max(b - s, 0):.0f} ns = {max(b - s, 0) / s:.2f}x simulator)")
     df = run_episode(env, agent, seed=0)
     f = agent.likelihood_function(TrialArrays.from_frame(df, world.commands.n_commands))

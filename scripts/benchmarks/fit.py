@@ -1,13 +1,14 @@
 """Benchmark of the lab's fitting (figures are ratios/wall times measured in this run).
 
-1. One log-likelihood evaluation of a learning model (rescorla_wagner, every default mechanism)
-   over 1,000 trials: the compiled likelihood versus (a) the same kernel code run as plain Python
+1. One log-likelihood evaluation of a composed learner (the 8-parameter mechanism list of
+   :data:`PLANNER`) over 1,000 trials: the compiled likelihood versus (a) the same kernel code run as plain Python
    (numba's ``py_func`` of every rule) and (b) the lab's generic replay loop through
    ``action_probabilities`` + ``observe``. Medians of repeated timings. Also the planned-choice
    model's likelihood per call against the compiled delta rule (target within 5x), and its one-off
    set-up (the plan and the log's action values).
-2. Fitting 3 models (static_softmax, choice_kernel, rescorla_wagner) x 50 participants x 1,000
-   trials x 10 starts with 2 worker processes: wall time (target < 120 s).
+2. Fitting 3 models (static_softmax, a 4-parameter choice-kernel learner and the 8-parameter
+   composed planner: the models this figure was first measured on, 10.6 s) x 50 participants x
+   1,000 trials x 10 starts with 2 worker processes: wall time (target < 120 s).
 
 3. The rationality analysis (lab/rationality: duration fit, own-world plan, choice scoring,
    planned_choice and rescorla_wagner fits, optimum simulation) on 50 participants x 400 trials
@@ -24,6 +25,7 @@ import time
 
 import numpy as np
 
+from benchmarks.former_fit import former_fit_log
 from benchmarks.timing import Out, median_seconds
 from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.agents.learning import TrialArrays, rules
@@ -31,6 +33,12 @@ from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.predictive import simulate_log
 from shortcut_gym.lab.data.logs import participant_trials, validate_log
 from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_log, loglik_function, replay_probabilities
+
+#: The composed learners the figures were first measured with (then named rescorla_wagner and
+#: choice_kernel, before those names became the published 2-parameter models).
+PLANNER = ModelSpec("composed_learner", "planner", {"mechanisms": [
+    "value", "memory_aware", "planning", "incidental", "forgetting", "perseveration", "lapse"]})
+HABIT = ModelSpec("composed_learner", "habit", {"mechanisms": ["choice_kernel", "perseveration", "lapse"]})
 
 
 def _load() -> str:
@@ -49,7 +57,7 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     sessions = 10 if quick else 25  # of 40 trials: 1,000 trials per person (400 quick)
     world = make_world(schedule={"sessions": sessions, "trials_per_session": 40})
     rng = np.random.default_rng(0)
-    rw = ModelSpec("rescorla_wagner")
+    rw = PLANNER
     log = validate_log(simulate_log(world, rw, participants, rng, prefix="B"), world.commands)
     trials = participant_trials(log, "B-0")
     ctx = AgentContext(world.commands.n_commands, len(trials), world.commands.names, tuple(world.observation_names()))
@@ -59,7 +67,7 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     # 1. likelihood: compiled vs plain Python vs replay loop
     f, fast = loglik_function(rw, trials, ctx)
     if not fast:
-        raise RuntimeError("rescorla_wagner has no compiled likelihood (loglik_function gave the replay loop)")
+        raise RuntimeError("the composed learner has no compiled likelihood (loglik_function gave the replay loop)")
     f(theta)  # compile
     compiled = median_seconds(lambda: f(theta), 50 if quick else 200)
     slow_repeats = 3 if quick else 5
@@ -85,7 +93,7 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
 
     replay_value = replay()
     replay_t = median_seconds(replay, slow_repeats)
-    out(f"== one log-likelihood evaluation, rescorla_wagner ({len(theta)} parameters), {len(trials)} trials")
+    out(f"== one log-likelihood evaluation, composed planner ({len(theta)} parameters), {len(trials)} trials")
     out(f"compiled (numba)           {compiled * 1e6:10.1f} us   ln L = {f(theta):.6f}")
     out(f"plain Python (same code)   {plain * 1e6:10.1f} us   ln L = {plain_value:.6f}   "
         f"ratio {plain / compiled:8.1f}x")
@@ -106,16 +114,31 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     out(f"planned_choice set-up      {setup:10.2f} s    (the plan and the log's action values, once per world "
         f"and log)")
 
-    # 2. the 3-model fit on worker processes
-    specs = [ModelSpec("static_softmax"), ModelSpec("choice_kernel"), rw]
+    # 2. the 3-model fit on worker processes: the former fitter, then the current one without and
+    # with standard errors (the same log, models, starts and processes)
+    specs = [ModelSpec("static_softmax"), HABIT, rw]
     context = context_for(log, world.commands.names)
+    t = time.perf_counter()
+    former = np.array(former_fit_log(log, specs, context, starts, 0, jobs))
+    former_wall = time.perf_counter() - t
+    t = time.perf_counter()
+    fit_log(log, specs, context, n_starts=starts, seed=0, n_jobs=jobs, intervals="none")
+    bare_wall = time.perf_counter() - t
     t = time.perf_counter()
     fits = fit_log(log, specs, context, n_starts=starts, seed=0, n_jobs=jobs, progress=not quick)
     wall = time.perf_counter() - t
     out(f"\n== fit {len(specs)} models x {participants} participants x {len(trials)} trials x "
-        f"{starts} starts on {jobs} processes")
-    out(f"wall time {wall:.1f} s (target < 120 s); converged {int(fits['converged'].sum())}/{len(fits)}; "
-        f"{wall / len(fits):.2f} s per participant x model")
+        f"{starts} starts on {jobs} processes (first measured: 10.6 s with the former fitter)")
+    out(f"former fitter (summed objective, no checks)        {former_wall:7.1f} s")
+    out(f"current, diagnostics, restarts, no standard errors {bare_wall:7.1f} s   "
+        f"x{bare_wall / former_wall:.2f} of former")
+    out(f"current, diagnostics and standard errors (default) {wall:7.1f} s   x{wall / former_wall:.2f} of former; "
+        f"standard errors add {wall - bare_wall:.1f} s (target: all under 120 s)")
+    out(f"{wall / len(fits):.2f} s per participant x model; fits ok {int(fits['fit_ok'].sum())}/{len(fits)}, "
+        f"polished {int(fits['polished'].sum())}")
+    gain = fits["loglik"].to_numpy() - former
+    out(f"ln L current - former per fit: min {gain.min():.3f}, median {np.median(gain):.3f}, max {gain.max():.2f}; "
+        f"fits where the former fitter was more than 0.5 nats worse: {int((gain > 0.5).sum())}/{len(gain)}")
     out(fits.groupby("model")[["loglik", "bic"]].sum().to_string(float_format=lambda v: f"{v:.1f}"))
     rationality(quick, out, rationality_participants, jobs)
     out(f"load average (1, 5, 15 min) at end: {_load()}")

@@ -1,6 +1,6 @@
 """Sweeps at scale, measured against references timed in the same run.
 
-1. Simulated trials per second of a learning model (``rescorla_wagner``) on the batched simulator
+1. Simulated trials per second of a learning model (a composed learner with look-ahead) on the batched simulator
    at 1, 1,000 and 100,000 simulated users, against looping ``gymnasium.make`` env + the same agent
    per step. Batched figures: the fused compiled loop (``simulate_users``' default for block sums)
    on one thread and on one thread per core (chunks of users at once, ``threads=``), and the
@@ -37,7 +37,8 @@ from shortcut_gym.lab.sweep.plan import plan_runs
 from shortcut_gym.lab.sweep.runner import run_sweep
 from shortcut_gym.lab.sweep.spec import parse_spec
 
-LEARNER = {"name": "rescorla_wagner"}
+LEARNER = {"name": "composed_learner", "mechanisms": ["value", "memory_aware", "planning", "incidental",
+                                                    "forgetting", "perseveration", "lapse"]}
 
 
 def _load() -> str:
@@ -114,7 +115,7 @@ def sweep_spec(points: int, users: int) -> dict:
             "costs.learn.encoding_s": {"low": 0.5, "high": 30.0, "scale": "log"},
             "memory.threshold": {"low": -4.5, "high": -2.5},
         }},
-        "agents": [{"name": "rescorla_wagner"}, {"name": "rw_choice_kernel"}],
+        "agents": [LEARNER, {"name": "rw_choice_kernel"}],
         "seeds": {"first": 0, "count": users},
         "outputs": {"plots": False},
     }

@@ -10,6 +10,11 @@
   alpha0 = 1/K; so the full comparison (including BOR and pxp) uses alpha0 = 1/K, and the
   comparison at alpha0 = 1 covers frequencies and exceedance probabilities.
 * BIC formula: k ln n - 2 ln L (Schwarz 1978, "Estimating the dimension of a model").
+* Standard errors: the static softmax is a multinomial logit with menu as the reference choice and
+  its parameters untransformed (b_a, w_a_c are MNLogit's params column a, rows constant and
+  covariates, exactly), so the observed-information standard errors must equal MNLogit's ``bse``
+  (the inverse of its analytic Hessian; Greene 2012, "Econometric Analysis", ch. 18) to 1e-3
+  relative.
 """
 
 from __future__ import annotations
@@ -56,6 +61,24 @@ def test_static_softmax_equals_statsmodels_mnlogit(one_participant):
     # coefficients: statsmodels params are (1 + covariates) x (hotkey, learn), as our coefficient matrix
     coef = np.array(list(ours.params.values())).reshape(3, 2)
     np.testing.assert_allclose(coef, np.asarray(ref.params), atol=2e-3)
+
+
+@pytest.mark.parametrize("covariates", [["log_exposure"], ["log_exposure", "session"]])
+def test_standard_errors_equal_mnlogit_bse(one_participant, covariates):
+    trials, ctx = one_participant
+    spec = ModelSpec("static_softmax", options={"covariates": covariates})
+    ours = fit_participant(spec, trials, ctx, n_starts=2, seed=1)
+    x = covariate_matrix(trials["command"].to_numpy(), trials["session"].to_numpy(), covariates)
+    y = trials["action"].map({"menu": 0, "hotkey": 1, "learn": 2}).to_numpy()
+    ref = sm.MNLogit(y, sm.add_constant(x)).fit(disp=0, maxiter=200)
+    names = list(ours.params)
+    se = np.array([ours.se[n] for n in names]).reshape(1 + len(covariates), 2)
+    np.testing.assert_allclose(se, np.asarray(ref.bse), rtol=1e-3)
+    # Wald intervals: estimate +- 1.96 se for an untransformed parameter
+    for n in names:
+        assert ours.lower[n] == pytest.approx(ours.params[n] - 1.959964 * ours.se[n], rel=1e-6)
+        assert ours.upper[n] == pytest.approx(ours.params[n] + 1.959964 * ours.se[n], rel=1e-6)
+    assert ours.fit_ok, ours.fit_issues
 
 
 def test_bic_formula_schwarz():
