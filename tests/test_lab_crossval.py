@@ -87,5 +87,6 @@ def test_cli_fit_cross_validate(tmp_path, capsys):
     assert "wins_cv" in capsys.readouterr().out
     one = make_world(schedule={"sessions": 1, "trials_per_session": 20})
     path1 = write_log(simulate_known(one, M4, 2, np.random.default_rng(0))[0], tmp_path / "one.csv")
-    assert main(["fit", str(path1), "--model", "static_softmax", "--out", str(out), "--cross-validate"]) == 2
+    assert main(["fit", str(path1), "--model", "static_softmax", "--out", str(out), "--overwrite",
+                 "--cross-validate"]) == 2
     assert "one session" in capsys.readouterr().err

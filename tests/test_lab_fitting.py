@@ -120,9 +120,9 @@ def test_parse_model_errors_and_options():
     assert spec.options == {"covariates": ["log_exposure", "session"]}
     one = parse_model("v=composed_learner:mechanisms=[value],alpha=0.2")
     assert one.options == {"mechanisms": ["value"]} and one.fixed == {"alpha": 0.2}
-    for bad, message in [("composed_learner:mechanisms=[value,lapse", "'\\[' without '\\]'"),
-                         ("composed_learner:mechanisms=value]", "without"),
-                         ("composed_learner:mechanisms=[value,,lapse]", "no empty"),
+    for bad, message in [("composed_learner:mechanisms=[value,lapse", "unclosed bracket"),
+                         ("composed_learner:mechanisms=value]", "unbalanced"),
+                         ("composed_learner:mechanisms=[value,,lapse]", "not valid YAML"),
                          ("rescorla_wagner:alpha=0.2,alpha=0.3", "given twice")]:
         with pytest.raises(ValueError, match=message):
             parse_model(bad)

@@ -4,7 +4,8 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 
 * ``--model`` and ``--agent``: the one spec syntax of :mod:`.specs`, ``[label=]name[:key=value,...]``
   with YAML scalar values; for ``--model`` keys that are parameters are held fixed, others are
-  constructor options (a list in square brackets: ``mechanisms=[value, memory_aware, lapse]``). ``--agent-file``: an agent spec YAML.
+  constructor options (a list in square brackets: ``mechanisms=[value, memory_aware, lapse]``).
+  ``--agent-file``: an agent spec YAML.
 * ``--prior label:param=family:a:b``: a MAP prior (families in :data:`PRIOR_FAMILIES`).
 """
 
