@@ -75,7 +75,7 @@ class StaticSoftmax(Agent):
                  **params: float) -> None:
         if isinstance(covariates, str):
             if "+" in covariates or "," in covariates:
-                raise ValueError(f"{self.name}: covariates take a list of names (on the command line "
+                raise ConfigError(f"{self.name}: covariates take a list of names (on the command line "
                                  f"covariates=[log_exposure,session]), got {covariates!r}")
             covariates = [covariates]
         unknown = [c for c in covariates if c not in COVARIATES]

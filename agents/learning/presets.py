@@ -28,6 +28,7 @@ from typing import Any
 from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.agent import LearningAgent
+from shortcut_gym.envs.errors import ConfigError
 
 #: Name of the composable learner (a name of this project, no published model).
 COMPOSED = "composed_learner"
@@ -39,7 +40,7 @@ class PublishedLearningModel(LearningAgent):
     def __init__(self, context: AgentContext | None = None, mechanisms: Iterable[str] | None = None,
                  options: dict[str, float] | None = None, **params: Any) -> None:
         if mechanisms is not None and tuple(mechanisms) != self.default_mechanisms:
-            raise ValueError(f"{self.name} is the published model with mechanisms {list(self.default_mechanisms)}; "
+            raise ConfigError(f"{self.name} is the published model with mechanisms {list(self.default_mechanisms)}; "
                              f"for other mechanisms use {COMPOSED} with mechanisms=[...]")
         super().__init__(context, self.default_mechanisms, options, **params)
 
@@ -82,6 +83,6 @@ class ComposedLearner(LearningAgent):
     def __init__(self, context: AgentContext | None = None, mechanisms: Iterable[str] | None = None,
                  options: dict[str, float] | None = None, **params: Any) -> None:
         if mechanisms is None:
-            raise ValueError(f"{COMPOSED}: list its mechanisms, e.g. mechanisms=[value,lapse]; known: "
+            raise ConfigError(f"{COMPOSED}: list its mechanisms, e.g. mechanisms=[value,lapse]; known: "
                              f"{list(mech.MECHANISMS)}")
         super().__init__(context, mechanisms, options, **params)
