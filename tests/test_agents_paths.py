@@ -44,8 +44,12 @@ def _cases() -> list[tuple[str, dict[str, Any]]]:
     # the planner acts through decide() without asking action_probabilities, which this test
     # records; its batch path is checked against the looped env in tests/test_batch_frozen.py
     needs_options = {"composed_learner"}  # no default mechanism list: a case below
+    # untrained SB3 agents cannot act; their batch path is checked against the per-user path
+    # on trained models in tests/test_batch_sb3.py
+    needs_model = {"ppo", "a2c", "dqn"}
     cases = [(name, {}) for name in sorted(AGENTS)
-             if name not in ("bounded_optimal", *needs_options) and _has_several_paths(make_agent(name, ctx))]
+             if name not in ("bounded_optimal", *needs_options, *needs_model)
+             and _has_several_paths(make_agent(name, ctx))]
     cases.append(("static_softmax", SESSION_SOFTMAX))
     cases.append(("composed_learner", {"mechanisms": list(MECHANISMS)}))
     return cases
