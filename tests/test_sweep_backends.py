@@ -41,9 +41,9 @@ def test_local_one_and_two_workers_and_ray_give_identical_tables(tmp_path: Path)
     one = run_sweep(SPEC, tmp_path / "one", workers=1, progress=False)
     two = run_sweep(SPEC, tmp_path / "two", workers=2, progress=False)
     ray_report = run_sweep(SPEC, tmp_path / "ray", backend="ray", workers=2, progress=False)
-    assert one.computed == two.computed == ray_report.computed == 12
+    assert one.computed == two.computed == ray_report.computed == 15  # 3 points x 5 agents
     ref = _tables(tmp_path / "one")
-    assert len(ref[0]) == 12 * 3 and ref[0]["run_id"].nunique() == 12
+    assert len(ref[0]) == 15 * 3 and ref[0]["run_id"].nunique() == 15
     for other in ("two", "ray"):
         for a, b in zip(ref, _tables(tmp_path / other), strict=True):
             pd.testing.assert_frame_equal(a, b, check_exact=True)
