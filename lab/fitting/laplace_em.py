@@ -28,14 +28,13 @@ from scipy import optimize
 from threadpoolctl import threadpool_limits
 
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.lab.fitting.uncertainty import numerical_hessian
 
 FreeLogLik = Callable[[np.ndarray], float]
 
 #: Smallest group variance (unbounded coordinates) kept by the M step; below it the prior would be
 #: a point mass and the Laplace evidence undefined (an assumption of this project, no source).
 MIN_VARIANCE = 1e-10
-#: Relative step of the central finite differences of the Hessian (common practice, no source).
-HESSIAN_STEP = 1e-4
 
 
 @dataclass
@@ -94,24 +93,6 @@ def gaussian_logpdf(x: np.ndarray, mean: np.ndarray, cov: np.ndarray) -> float:
     chol = np.linalg.cholesky(cov)
     z = np.linalg.solve(chol, x - mean)
     return float(-0.5 * z @ z - np.log(np.diag(chol)).sum() - 0.5 * len(x) * math.log(2.0 * math.pi))
-
-
-def numerical_hessian(fun: Callable[[np.ndarray], float], x: np.ndarray, step: float = HESSIAN_STEP) -> np.ndarray:
-    """Central finite-difference Hessian of ``fun`` at ``x`` (steps ``step`` x max(1, |x_j|))."""
-    k = len(x)
-    h = step * np.maximum(1.0, np.abs(x))
-    f0 = fun(x)
-    hess = np.empty((k, k))
-    for i in range(k):
-        e = np.zeros(k)
-        e[i] = h[i]
-        hess[i, i] = (fun(x + e) - 2.0 * f0 + fun(x - e)) / h[i] ** 2
-        for j in range(i):
-            d = np.zeros(k)
-            d[j] = h[j]
-            value = (fun(x + e + d) - fun(x + e - d) - fun(x - e + d) + fun(x - e - d)) / (4.0 * h[i] * h[j])
-            hess[i, j] = hess[j, i] = value
-    return hess
 
 
 def _repair(hess: np.ndarray, floor: float) -> tuple[np.ndarray, bool]:
