@@ -10,7 +10,9 @@ Wilson & Collins (2019), eLife 8, model 3's choice stage, here over planned rath
 
 The planner's state follows the logged outcomes only, so a log's Q values do not depend on beta
 or the lapse: they are computed once per (world, log) and the likelihood is a compiled loop over
-them. The plan itself is made once per world and planner options and cached (:func:`cached_plan`).
+them. The plan itself is made once per world and planner options by the package's one plan cache
+(:mod:`shortcut_gym.agents.planner.cache`, keyed by the world's full content digest
+:meth:`~shortcut_gym.envs.world.World.digest`, interface aids included).
 Planner options: ``keyboard_share``, ``n_bins`` (20), ``n_weight_bins`` (5) and ``select_users``
 (0: the action values are the dynamic program's whichever policy a selection among fixed rules
 would execute; a selection only changes which of the two hand-share plans supplies them).
@@ -20,7 +22,6 @@ the log (the planner reads the schedule's clock at the trial index).
 
 from __future__ import annotations
 
-import json
 import math
 from collections import OrderedDict
 from collections.abc import Callable
@@ -31,24 +32,16 @@ import pandas as pd
 from numba import njit
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
-from shortcut_gym.agents.planner import BoundedOptimalPlanner, Plan
+from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.envs.world import World, make_world
 
-_PLANS: OrderedDict[tuple, Plan] = OrderedDict()
 _VALUES: OrderedDict[tuple, np.ndarray] = OrderedDict()
 #: Largest inverse temperature fitted (1/s); choices are then deterministic for any gap of 0.1 s.
 BETA_MAX = 200.0
-#: Plans and logged action values kept (least recently used dropped first).
+#: Logged action values kept (least recently used dropped first).
 CACHE_SIZE = 128
-
-
-def world_key(world: World) -> str:
-    """A string identifying a world's settings (equal settings, equal key)."""
-    parts = [world.scenario.model_dump_json(), world.costs.model_dump_json(), world.memory.model_dump_json(),
-             world.schedule.model_dump_json(), str(world.observe_recall), world.target_encoding]
-    return json.dumps(parts)
 
 
 def _remember(cache: OrderedDict, key: tuple, value: Any) -> Any:
@@ -61,16 +54,11 @@ def _remember(cache: OrderedDict, key: tuple, value: Any) -> Any:
 
 def cached_plan(world: World, keyboard_share: float | None, n_bins: int, n_weight_bins: int,
                 select_users: int = 0) -> BoundedOptimalPlanner:
-    """A reset planner for ``world`` whose plan is made once per world and options."""
-    key = (world_key(world), keyboard_share, n_bins, n_weight_bins, select_users)
+    """A reset planner for ``world`` on the plan the package's plan cache holds for this world and
+    these options (made on the first call, :func:`shortcut_gym.agents.planner.cache.cached_plan`)."""
     planner = BoundedOptimalPlanner(world=world, keyboard_share=keyboard_share, n_bins=n_bins,
                                     n_weight_bins=n_weight_bins, select_users=select_users)
-    if key in _PLANS:
-        _PLANS.move_to_end(key)
-        planner.plan = _PLANS[key]
-    planner.reset(0)
-    if key not in _PLANS:
-        _remember(_PLANS, key, planner.plan)
+    planner.reset(0)  # prepare(): the package cache, keyed by world.digest() and the options
     return planner
 
 
@@ -168,14 +156,22 @@ class PlannedChoice(Agent):
         return w
 
     def plan_key(self) -> tuple:
-        """Cache key of this agent's plan."""
-        return (world_key(self.planner_world()), self.keyboard_share, self.n_bins, self.n_weight_bins,
+        """Cache key of this agent's plan and logged values: the world's content digest and the options."""
+        return (self.planner_world().digest(), self.keyboard_share, self.n_bins, self.n_weight_bins,
                 self.select_users)
 
     def planner(self) -> BoundedOptimalPlanner:
         """A fresh (reset) planner on the cached plan."""
         return cached_plan(self.planner_world(), self.keyboard_share, self.n_bins, self.n_weight_bins,
                            self.select_users)
+
+    def prepare(self) -> float:
+        """Make (or fetch) the plan before the first ``reset``; the seconds spent planning (0.0 when the
+        package's plan cache held it), so drivers report them apart from simulation time."""
+        planner = BoundedOptimalPlanner(world=self.planner_world(), keyboard_share=self.keyboard_share,
+                                        n_bins=self.n_bins, n_weight_bins=self.n_weight_bins,
+                                        select_users=self.select_users)
+        return planner.prepare()
 
     # ---- protocol -------------------------------------------------------------------------
     def reset(self, seed: int | None = None) -> None:
