@@ -27,11 +27,10 @@ import numpy as np
 from numba import njit
 
 from shortcut_gym.agents.base import AGENT_STREAM, N_ACTIONS
-from shortcut_gym.agents.learning.fused import SumArrays
-from shortcut_gym.agents.learning.rules import RULE_JIT
+from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, check_fresh_run, step_and_count
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
-from shortcut_gym.envs.errors import ConfigError, NotReadyError, UsageError
+from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded, seed_words
 
 #: rule kinds: one action; learn on the first k uses then hotkey; a cdf per (uses, session); a cdf per tabular cell
@@ -229,21 +228,9 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
                             np.float32(math.log1p(cs[k.S_HK_FAIL])),
                             k.seconds_since_last_use_feature(ist[b], fs[b], c, sched_onset[b, t]))
             a = _pick(rule.cdf, row, _draw(pcg, b))
-        last = t == h - 1
-        o = ops[b] if last else scratch
-        dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, sched_session, o, last, fail_lat, sched_noise)
+        step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
+                       sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums, scratch)
         uses[b, c] += 1
-        sums.trials[b, s] += 1
-        sums.time_s[b, s] += dur
-        sums.outcomes[b, s, res] += 1
-        sums.actions[b, s, a] += 1
-        sums.command_time_s[b, c] += dur
-        sums.command_uses[b, c] += 1
-        if last:
-            reward[b] = -dur
-            outcome[b] = res
-            p_recall[b] = pr
 
 
 @njit(cache=True, nogil=True)
@@ -324,12 +311,7 @@ class FrozenBatchPolicy:
     def run(self, sim: BatchSimulator) -> UserSums:
         """Run a just-reset simulator to its horizon in one compiled loop; per-user sums equal to
         stepping ``actions`` / ``sim.step`` / ``observe`` trial by trial."""
-        if sim.n_users == 0 or sim.trial != 0:
-            raise UsageError("a fused run needs a simulator just reset (trial 0)")
-        if self.trial != 0:
-            raise UsageError("a fused run needs a fresh batch policy (trial 0)")
-        if self.n_users != sim.n_users:
-            raise ConfigError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
+        check_fresh_run(sim, self.trial, self.n_users)
         n_sessions = int(sim.sched_session.max()) + 1
         self._cover(sim.horizon, n_sessions)
         sums = SumArrays(**vars(UserSums.zeros(sim.n_users, n_sessions, sim.world.commands.n_commands)))

@@ -12,12 +12,13 @@ from collections.abc import Sequence
 import numpy as np
 
 from shortcut_gym.agents.base import AGENT_STREAM, N_ACTIONS, AgentContext, agent_rng
+from shortcut_gym.agents.batch_loop import check_fresh_run
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.features import DT_FEATURE, decode_dt_s, dt_feature_index
 from shortcut_gym.agents.learning.fused import AgentDraws, run_fused
 from shortcut_gym.agents.learning.rules import BatchStep, RuleSet, batch_decide, batch_update, init_state, new_state
 from shortcut_gym.agents.rollout import UserSums
-from shortcut_gym.envs.errors import ConfigError, NotReadyError, UsageError
+from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.envs.simulator import BatchSimulator, seed_words
 
 
@@ -100,12 +101,7 @@ class BatchLearningPolicy:
 
         The generators are not advanced by a fused run (the policy has reached the horizon; make a
         new policy for new users)."""
-        if sim.n_users == 0 or sim.trial != 0:
-            raise UsageError("a fused run needs a simulator just reset (trial 0)")
-        if self.trial != 0:
-            raise UsageError("a fused run needs a fresh batch policy (trial 0)")
-        if self.n_users != sim.n_users:
-            raise ConfigError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
+        check_fresh_run(sim, self.trial, self.n_users)
         if self.rules.flags[mech.M_FORGETTING] == 1:
             want = sim.world.observation_names().index(DT_FEATURE)
             got = dt_feature_index(self.context, sim.obs.shape[1])

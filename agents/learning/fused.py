@@ -19,24 +19,13 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
+from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, step_and_count
 from shortcut_gym.agents.learning import mechanisms as mech
-from shortcut_gym.agents.learning.rules import RULE_JIT, LearnerState, RuleSet, belief_now, decide, update
+from shortcut_gym.agents.learning.rules import LearnerState, RuleSet, belief_now, decide, update
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import UsageError
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded
-
-
-class SumArrays(NamedTuple):
-    """The arrays of a :class:`~shortcut_gym.agents.rollout.UserSums` as the compiled loop adds into them
-    (same fields)."""
-
-    trials: np.ndarray
-    time_s: np.ndarray
-    outcomes: np.ndarray
-    actions: np.ndarray
-    command_time_s: np.ndarray
-    command_uses: np.ndarray
 
 
 class AgentDraws(NamedTuple):
@@ -80,22 +69,10 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
             a = 1
         else:
             a = 2
-        last = t == h - 1
-        o = ops[b] if last else scratch
-        dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                   sched_u, sched_session, o, last, fail_lat, sched_noise)
+        dur, res = step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
+                                  sched_u, sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums,
+                                  scratch)
         update(b, c, a, res, dur, p, rules, st)
-        s = sched_session[b, t]
-        sums.trials[b, s] += 1
-        sums.time_s[b, s] += dur
-        sums.outcomes[b, s, res] += 1
-        sums.actions[b, s, a] += 1
-        sums.command_time_s[b, c] += dur
-        sums.command_uses[b, c] += 1
-        if last:
-            reward[b] = -dur
-            outcome[b] = res
-            p_recall[b] = pr
 
 
 @njit(cache=True, nogil=True)

@@ -16,6 +16,7 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
+from shortcut_gym.agents.batch_loop import RULE_JIT  # the loops' options, without the refcount runtime
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.envs.kernel import HOTKEY, LEARN, OUT_HOTKEY
 
@@ -44,25 +45,6 @@ def new_state(n_users: int, n_commands: int) -> LearnerState:
     return LearnerState(np.zeros((n_users, n_commands, 3)), np.zeros((n_users, 3)),
                         np.full((n_users, n_commands), -1, dtype=np.int64), np.zeros((n_users, n_commands)),
                         np.zeros((n_users, n_commands)), np.zeros((n_users, 2)), np.zeros(n_users, dtype=np.int64))
-
-
-def _rule_jit_options() -> dict[str, bool]:
-    """Compilation options of the per-trial rules.
-
-    They allocate nothing and return no array, so they run without numba's reference-counting
-    runtime (``_nrt=False``): with it, every call increfs/decrefs each of its array arguments
-    (atomic operations the refcount pruning cannot remove across the mechanism branches, numba
-    issue #2350), more than half the cost of a trial. Same code and results. ``_nrt`` is a private
-    numba option: if a numba version no longer knows it, the rules compile with the runtime on.
-    """
-    try:
-        from numba.core.cpu import CPUTargetOptions
-    except ImportError:
-        return {"cache": True}
-    return {"cache": True, "_nrt": False} if hasattr(CPUTargetOptions, "_nrt") else {"cache": True}
-
-
-RULE_JIT = _rule_jit_options()
 
 
 @njit(**RULE_JIT)
