@@ -20,8 +20,8 @@ from shortcut_gym.lab.cli.specs import parse_spec, parse_value
     ("true", True), ("False", False), ("yes", True), ("off", False),
     ("out/ppo.zip", "out/ppo.zip"), ("/tmp/m.npz", "/tmp/m.npz"), ("../a b/c.zip", "../a b/c.zip"),
     ("hello", "hello"), ("'true'", "true"), ('"3"', "3"), ("'a+b'", "a+b"),
-    ("[a, b]", ["a", "b"]), ("[1, 2.5, true]", [1, 2.5, True]), ("[]", []),
-    ("value+lapse", ["value", "lapse"]), ("a+1", ["a", 1]),
+    ("[a, b]", ["a", "b"]), ("[1, 2.5, true]", [1, 2.5, True]), ("[]", []), ("[value]", ["value"]),
+    ("['a+b', c]", ["a+b", "c"]), ("'Ctrl+K'", "Ctrl+K"),
 ])
 def test_values_are_yaml_scalars_or_lists(text: str, value) -> None:
     got = parse_value(text)
@@ -35,6 +35,31 @@ def test_values_are_yaml_scalars_or_lists(text: str, value) -> None:
 def test_values_that_are_not_scalars_are_refused(text: str, expected: str) -> None:
     with pytest.raises(CLIError, match=expected):
         parse_value(text, "where")
+
+
+@pytest.mark.parametrize(("text", "form"), [
+    ("value+lapse", "[value, lapse]"), ("value+", "[value]"), ("a+1", "[a, 1]"),
+    ("value + memory_aware+lapse", "[value, memory_aware, lapse]"), ("Ctrl+K", "[Ctrl, K]"),
+])
+def test_plus_joined_lists_are_refused_naming_the_bracket_form(text: str, form: str) -> None:
+    with pytest.raises(CLIError) as err:
+        parse_value(text, "where")
+    message = str(err.value)
+    assert message.startswith("where: ") and repr(text) in message
+    assert f"square brackets, {form}" in message and f"'{text}', to keep it as text" in message
+
+
+def test_plus_lists_are_refused_on_every_spec_option(tmp_path: Path) -> None:
+    """--model and --agent name the option text and the bracket form; the bracket form works."""
+    with pytest.raises(CLIError, match=r"model 'c=composed_learner:mechanisms=value\+lapse'.*\[value, lapse\]"):
+        parse_model("c=composed_learner:mechanisms=value+lapse")
+    assert list(parse_model("c=composed_learner:mechanisms=[value, lapse]").options["mechanisms"]) == ["value", "lapse"]
+    with pytest.raises(CLIError, match=r"agent 'static_softmax:covariates=log_exposure\+session'.*"
+                                       r"\[log_exposure, session\]"):
+        parse_agent_arg("static_softmax:covariates=log_exposure+session")
+    assert main(["simulate", "--agent", "composed_learner:mechanisms=value+lapse", "--users", "1",
+                 "--out", str(tmp_path / "sim")]) == 2
+    assert not (tmp_path / "sim").exists()
 
 
 def test_spec_text_with_label_brackets_and_quotes() -> None:

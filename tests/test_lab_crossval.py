@@ -78,7 +78,7 @@ def test_cli_fit_cross_validate(tmp_path, capsys):
     log = simulate_known(world, M4, 2, np.random.default_rng(0), RANGES["m4_ck"])[0]
     path = write_log(log, tmp_path / "log.csv")
     out = tmp_path / "f"
-    assert main(["fit", str(path), "--model", "ck=choice_kernel:mechanisms=choice_kernel+", "--model", "static_softmax",
+    assert main(["fit", str(path), "--model", "ck=choice_kernel", "--model", "static_softmax",
                  "--starts", "1", "--out", str(out), "--quiet", "--cross-validate"]) == 0
     folds = pd.read_csv(out / "cv_folds.csv")
     assert len(folds) == 2 * 2 * 2 and np.isfinite(folds["heldout_loglik"]).all()

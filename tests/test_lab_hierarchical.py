@@ -100,7 +100,7 @@ def test_cli_fit_hierarchical_writes_its_tables(few_trials, tmp_path, capsys):
     _, log, _, _, fit = few_trials
     path = write_log(log.drop(columns=["command_index"]), tmp_path / "log.csv")
     out = tmp_path / "f"
-    assert main(["fit", str(path), "--model", "delta_rule=rescorla_wagner:mechanisms=value+", "--starts", "1",
+    assert main(["fit", str(path), "--model", "delta_rule=rescorla_wagner", "--starts", "1",
                  "--out", str(out), "--quiet", "--hierarchical"]) == 0
     summary = pd.read_csv(out / "hierarchical.csv")
     assert list(summary["model"]) == ["delta_rule"]

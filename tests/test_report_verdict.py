@@ -54,8 +54,8 @@ def test_report_cli_weighs_hierarchical_and_held_out_criteria(tmp_path, capsys):
     log, _ = simulate_known(world, ck, 3, np.random.default_rng(4), {"alpha_ck": (0.2, 0.4), "beta_ck": (3.0, 5.0)})
     path = write_log(log, tmp_path / "log.csv")
     out = tmp_path / "r"
-    assert main(["report", str(path), "--model", "ck=choice_kernel:mechanisms=choice_kernel+",
-                 "--model", "rw=rescorla_wagner:mechanisms=value+", "--starts", "2", "--sims", "2",
+    assert main(["report", str(path), "--model", "ck=choice_kernel",
+                 "--model", "rw=rescorla_wagner", "--starts", "2", "--sims", "2",
                  "--out", str(out), "--quiet", "--hierarchical", "--cross-validate"]) == 0
     index = (out / "index.md").read_text()
     for heading in ("## Verdict", "## Hierarchical fit", "## Cross-validated comparison"):

@@ -87,7 +87,7 @@ def add_agent_options(p: argparse.ArgumentParser, what: str = "agent (repeatable
     """``--agent TEXT`` and ``--agent-file YAML`` (both repeatable, used in the order given)."""
     p.add_argument("--agent", action="append", default=None,
                    help=f"{what} as {SYNTAX}; values are YAML scalars (numbers, true/false, text, paths, "
-                        "[a, b] or a+b lists), e.g. ppo:model_path=out/ppo.zip,deterministic=true")
+                        "lists as [a, b]), e.g. ppo:model_path=out/ppo.zip,deterministic=true")
     p.add_argument("--agent-file", action="append", default=None, type=Path,
                    help="agent spec YAML (name, label, params, options beside them; repeatable)")
 

@@ -3,10 +3,13 @@
 Used by every option that names an agent or a model (``--agent``, ``--model``). The parser is
 generic: it knows nothing of particular agents. Each value is read as a YAML scalar, so numbers
 (``0.5``, ``1e-3``, ``3``), booleans (``true``, ``no``), strings and paths (``out/ppo.zip``) all
-work, and so do lists: a YAML flow list ``[a, b]`` (commas inside brackets or quotes do not
-split items) or items joined by ``+`` (``value+lapse``; a value YAML reads as a number, such as
-``1e+3``, stays a number). Quote a value (``'a+b'``, ``'true'``) to keep it as text.
-``null``/``~`` and mappings are refused: give a value, or leave the key out for the default.
+work, and so do lists, written one way only: a YAML flow list ``[a, b]`` (one item: ``[a]``;
+commas inside brackets or quotes do not split items). Unquoted text joining items with ``+``
+(``value+lapse``) is refused with the bracket form to use: ``+`` is part of hotkey names and of
+numbers (``1e+3`` stays a number), so it is no list separator. Quote a value (``'a+b'``,
+``'true'``) to keep it as text. ``null``/``~`` and mappings are refused: give a value, or leave
+the key out for the default. In a shell, quote the whole spec (``--model 'm=x:k=[a, b]'``): the
+brackets are a glob pattern and the space would split the word.
 """
 
 from __future__ import annotations
@@ -66,13 +69,15 @@ def _scalar(text: str, where: str) -> Any:
 
 
 def parse_value(text: str, where: str = "value") -> Any:
-    """One value read as a YAML scalar or flow list; text with ``+`` is a list of its parts."""
+    """One value read as a YAML scalar or flow list ``[a, b]``; unquoted ``a+b`` text is refused."""
     text = text.strip()
     if not text:
         raise CLIError(f"{where}: empty value")
     value = _scalar(text, where)
     if isinstance(value, str) and "+" in value and text[0] not in "'\"":
-        return [_scalar(part, where) for part in value.split("+") if part.strip()]
+        items = ", ".join(part.strip() for part in value.split("+") if part.strip())
+        raise CLIError(f"{where}: {text!r} joins items with '+'; a list is written in square brackets, "
+                       f"[{items}] (quote the value, '{text}', to keep it as text)")
     return value
 
 
