@@ -13,6 +13,7 @@ import pytest
 import shortcut_gym.envs  # noqa: F401 - registers the env
 from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy, first_float32_decoding_to
+from shortcut_gym.agents.planner.compiled_lookup import CompiledPlanLookup
 from shortcut_gym.agents.planner.selection import PolicyChoice
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import UserSums, context_of_world, drive_batch, run_episode
@@ -221,8 +222,8 @@ def test_planner_batch_policy_equals_looped_env_for_every_kind_of_choice(choice:
     looped = _looped_sums({"schedule": schedule}, lambda: agent, runs[0].trials.shape[1], world.commands.n_commands)
     for other in runs[1:] + [looped]:
         _assert_sums_equal(runs[0], other)
-    compiled = not (choice.kind == "plan")
-    assert isinstance(agent.batch_policy(2, [0, 1]), FrozenBatchPolicy) == compiled  # type: ignore[attr-defined]
+    policy = agent.batch_policy(2, [0, 1])  # type: ignore[attr-defined]
+    assert isinstance(policy, CompiledPlanLookup if choice.kind == "plan" else FrozenBatchPolicy)
     if choice.commands is not None:  # the commands left out are always selected from the menu
         left_out = ~np.array(choice.commands)
         assert runs[0].command_uses[:, left_out].sum() > 0

@@ -22,6 +22,7 @@ from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy
 from shortcut_gym.agents.planner.batch import PlanLookupBatch, rule_policy
 from shortcut_gym.agents.planner.cache import timed_cached_plan
+from shortcut_gym.agents.planner.compiled_lookup import CompiledPlanLookup, lookup_tables
 from shortcut_gym.agents.planner.next_uses import next_use_points
 from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, command_times
 from shortcut_gym.agents.planner.selection import rule_action
@@ -82,7 +83,7 @@ class BoundedOptimalPlanner(Agent):
         context, plan and tables (copying the world per user cost more than the user's trials)."""
         twin = object.__new__(type(self))
         shared = ("world", "context", "plan", "_cmdc", "_clock", "_times", "_next_uses", "_times_for", "_memory",
-                  "_p_use", "_new_weights")
+                  "_p_use", "_new_weights", "_lookup", "_lookup_for")
         for key, value in self.__dict__.items():
             twin.__dict__[key] = value if key in shared else copy.deepcopy(value, memo)
         return twin
@@ -279,14 +280,23 @@ class BoundedOptimalPlanner(Agent):
             return rule_action(choice, c, int(self._uses[c]))
         return int(self.action_values(c, trial).argmax())
 
-    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy | PlanLookupBatch:
-        """Many simulated users at once (:mod:`.batch`): a fixed-rule choice as a compiled rule, a
-        plan looked up per user; either way each user's actions are this agent's for that user."""
+    def batch_policy(self, n_users: int,
+                     seeds: Sequence[int]) -> FrozenBatchPolicy | CompiledPlanLookup | PlanLookupBatch:
+        """Many simulated users at once: a fixed-rule choice as a compiled rule (:mod:`.batch`), a
+        plan looked up in the compiled fused loop (:mod:`.compiled_lookup`; per user in Python where
+        that does not apply); either way each user's actions are this agent's for that user."""
         self.prepare()
         assert self.plan is not None
         if self.plan.choice.kind != "plan":
             return rule_policy(self, self.plan.choice, n_users, seeds)
-        return PlanLookupBatch(self, n_users, seeds)
+        if len(seeds) != n_users:
+            raise ConfigError(f"{self.name}: {len(seeds)} seeds for {n_users} users")
+        self.reset(int(seeds[0]) if len(seeds) else None)
+        if getattr(self, "_lookup_for", None) is not self.plan:
+            self._lookup, self._lookup_for = lookup_tables(self), self.plan
+        if self._lookup is None:  # a plan the compiled rebuild does not cover (see .compiled_lookup)
+            return PlanLookupBatch(self, n_users, seeds)
+        return CompiledPlanLookup(self, self._lookup, n_users, seeds)
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
         p = np.zeros(3)

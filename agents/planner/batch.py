@@ -5,12 +5,14 @@ The plan's :class:`~shortcut_gym.agents.planner.selection.PolicyChoice` decides 
 * a fixed rule (always-menu, always-hotkey, learn-first-k, each possibly restricted to some
   commands, the menu elsewhere) runs as a compiled frozen rule
   (:mod:`shortcut_gym.agents.frozen_policy`), inside the fused loop or the per-trial batch loop;
-* a dynamic-programming plan is looked up per user by :meth:`BoundedOptimalPlanner.decide` on
-  its own copy of the planner (its tracked memory), fed the command, trial and outcome directly
-  (no info dicts or observation copies): not compiled.
+* a dynamic-programming plan is looked up inside the compiled fused loop
+  (:mod:`shortcut_gym.agents.planner.compiled_lookup`); stepped trial by trial, or for a plan that
+  module does not cover, it is looked up per user here (:class:`PlanLookupBatch`) by
+  :meth:`BoundedOptimalPlanner.decide` on its own copy of the planner (its tracked memory), fed the
+  command, trial and outcome directly (no info dicts or observation copies).
 
 Either way a user's actions are the single planner's for the same user, bit for bit (the same
-rule or the same decide/observe code).
+rule, the same decide/observe code or its compiled rebuild, tested trial by trial).
 """
 
 from __future__ import annotations

@@ -49,7 +49,7 @@ FAMILIES: list[tuple[str, dict[str, Any], bool]] = [
     ("static_softmax", {"name": "static_softmax", "params": {"b_hotkey": -1.0, "w_hotkey_log_exposure": 0.8}}, True),
     ("tabular: q_learning (frozen)", {"name": "q_learning"}, True),
     ("learning: rescorla_wagner", {"name": "rescorla_wagner"}, True),
-    ("planner: bounded_optimal", {"name": "bounded_optimal"}, False),
+    ("planner: bounded_optimal", {"name": "bounded_optimal"}, True),
 ]
 USERS = (1_024, 100_000)
 

@@ -1,0 +1,117 @@
+"""The planner's compiled plan lookup takes the single-env planner's action on every trial of every user.
+
+The reference is the planner agent itself on the gymnasium env (``run_episode``: ``act`` /
+``observe`` on the info dicts, its Python memory tracking and ``action_values``), one episode
+per seed; the compiled fused loop must give the same action sequence, bit for bit, and the same
+per-user sums as the Python batch path.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pytest
+
+from shortcut_gym.agents.planner.batch import PlanLookupBatch
+from shortcut_gym.agents.planner.compiled_lookup import CompiledPlanLookup, lookup_tables
+from shortcut_gym.agents.rollout import context_of_world, drive_batch, run_episode
+from shortcut_gym.envs import BatchSimulator, CommandSelectionEnv, make_world
+from shortcut_gym.envs import kernel as k
+from shortcut_gym.envs.errors import UsageError
+from shortcut_gym.lab.sweep.batch import build_agent
+
+SEEDS = [0, 5, 17, 2024]
+SCHEDULE = {"sessions": 3, "trials_per_session": 14, "gap_h": [20.0, 0.5]}
+CHEAP = {"learn": {"encoding_s": 1.5}}  # learning pays often enough that all three actions occur
+#: (memory settings, aids, costs): the four memory kinds the planner models, aids off and on
+WORLDS: list[tuple[Any, Any, Any]] = [
+    ({"kind": "actr"}, None, CHEAP),
+    ({"kind": "actr"}, "key_labels", CHEAP),
+    ({"kind": "actr", "recent_traces": 1}, "warmup", CHEAP),
+    ({"kind": "actr_exact"}, None, CHEAP),
+    ({"kind": "actr_exact"}, "menu_lockout", None),
+    ({"kind": "exponential", "exponential_rate_per_s": 1e-4}, None, CHEAP),
+    ({"kind": "exponential"}, "nudge", CHEAP),
+    ({"kind": "power", "decay": 0.4, "power_time_unit_s": 30.0}, None, CHEAP),
+    ({"kind": "power"}, "warmup", None),
+]
+IDS = [f"{m['kind']}-{a or 'no_aids'}-{'cheap' if c else 'default'}" for m, a, c in WORLDS]
+
+
+def _planner(world: Any, commands: tuple[bool, ...] | None = None) -> Any:
+    agent = build_agent({"name": "bounded_optimal", "n_bins": 8, "n_weight_bins": 3, "select_users": 0}, world)
+    agent.prepare()
+    if commands is not None:
+        from dataclasses import replace
+        agent.plan = replace(agent.plan, choice=replace(agent.plan.choice, commands=commands))
+    return agent
+
+
+def _compiled_actions(world: Any, agent: Any) -> tuple[np.ndarray, Any]:
+    sim = BatchSimulator(world)
+    sim.reset(seeds=SEEDS)
+    policy = agent.batch_policy(len(SEEDS), SEEDS)
+    assert isinstance(policy, CompiledPlanLookup)
+    sums = policy.run(sim, record=True)
+    return policy.recorded, sums
+
+
+def _single_env_actions(world: Any, agent: Any) -> np.ndarray:
+    env = CommandSelectionEnv(world=world)
+    return np.array([[k.ACTION_NAMES.index(a) for a in run_episode(env, agent, seed=s)["action"]] for s in SEEDS])
+
+
+@pytest.mark.parametrize(("memory", "aids", "costs"), WORLDS, ids=IDS)
+def test_compiled_lookup_takes_the_single_env_planners_action_on_every_trial(memory, aids, costs) -> None:
+    world = make_world(schedule=SCHEDULE, memory=memory, aids=aids, costs=costs)
+    agent = _planner(world)
+    assert agent.plan.choice.kind == "plan"
+    compiled, sums = _compiled_actions(world, agent)
+    single = _single_env_actions(world, agent)
+    np.testing.assert_array_equal(compiled, single)
+    # and the Python per-user batch path gives the same per-user sums (durations included)
+    sim = BatchSimulator(world)
+    sim.reset(seeds=SEEDS)
+    stepped = drive_batch(sim, agent, SEEDS, fused=False).sums
+    for field in ("time_s", "actions", "outcomes", "command_time_s"):
+        np.testing.assert_array_equal(getattr(sums, field), getattr(stepped, field), err_msg=field)
+
+
+def test_the_worlds_exercise_every_action_and_a_restricted_choice_keeps_the_menu_elsewhere() -> None:
+    seen: set[int] = set()
+    for memory, aids, costs in WORLDS[:3]:
+        compiled, _ = _compiled_actions(*(w := make_world(schedule=SCHEDULE, memory=memory, aids=aids, costs=costs),
+                                          _planner(w)))
+        seen |= set(np.unique(compiled).tolist())
+    assert seen == {k.MENU, k.HOTKEY, k.LEARN}  # the equality tests above are not all-menu runs
+    world = make_world(schedule=SCHEDULE, costs=CHEAP)
+    mask = (True, False) * 6
+    agent = _planner(world, mask)
+    compiled, _ = _compiled_actions(world, agent)
+    np.testing.assert_array_equal(compiled, _single_env_actions(world, agent))
+    sim = BatchSimulator(world)
+    sim.reset(seeds=SEEDS)
+    cmds = sim.sched_command
+    left_out = ~np.array(mask)[cmds]
+    assert left_out.any() and (compiled[left_out] == k.MENU).all()
+    assert (compiled[~left_out] != k.MENU).any()
+
+
+def test_fused_run_refuses_a_used_policy_and_the_python_path_stays_for_stepping() -> None:
+    world = make_world(schedule=SCHEDULE, costs=CHEAP)
+    agent = _planner(world)
+    agent.bind(context_of_world(world))
+    assert lookup_tables(agent) is not None
+    sim = BatchSimulator(world)
+    sim.reset(seeds=SEEDS)
+    policy = agent.batch_policy(len(SEEDS), SEEDS)
+    policy.run(sim)
+    with pytest.raises(UsageError, match="just reset"):
+        policy.run(sim)
+    fresh = agent.batch_policy(len(SEEDS), SEEDS)
+    sim.reset(seeds=SEEDS)
+    fresh.actions(sim.targets().copy(), sim.obs)
+    assert isinstance(fresh._stepped, PlanLookupBatch)
+    with pytest.raises(UsageError, match="fresh batch policy"):
+        fresh.run(sim)
