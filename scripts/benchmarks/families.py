@@ -33,10 +33,10 @@ import gymnasium as gym
 import numpy as np
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
-from benchmarks.timing import Out
-from shortcut_gym.agents.base import PreparedAgent, Transition
+from benchmarks import timing
+from benchmarks.timing import Out, load_average
+from shortcut_gym.agents.base import PreparedAgent
 from shortcut_gym.agents.registry import agent_from_spec
-from shortcut_gym.agents.rollout import context_of
 from shortcut_gym.envs import ENV_ID, make_world
 from shortcut_gym.lab.sweep.batch import build_agent, simulate_users
 from shortcut_gym.lab.sweep.runner import run_sweep
@@ -70,22 +70,7 @@ def cartpole_vector_steps_per_s(n_envs: int = 1_024, steps: int = 500) -> float:
 def looped_trials_per_s(spec: dict[str, Any], schedule: dict, users: int = 4, agent: Any = None) -> float:
     """Trials per second of gymnasium.make env + agent: act, step, observe (no trial table kept)."""
     env = gym.make(ENV_ID, schedule=schedule)
-    agent = agent if agent is not None else agent_from_spec(spec)
-    agent.bind(context_of(env))
-    n, t0 = 0, 0.0
-    for seed in range(-1, users):  # seed -1: warm-up (compiles, plans), not timed
-        if seed == 0:
-            t0 = time.perf_counter()
-        obs, info = env.reset(seed=abs(seed))
-        agent.reset(abs(seed))
-        done = False
-        while not done:
-            a = agent.act(obs, info)
-            nxt, r, term, trunc, info = env.step(a)
-            agent.observe(Transition(obs, a, r, nxt, info, term, trunc))
-            obs, done = nxt, term or trunc
-            n += seed >= 0
-    return n / (time.perf_counter() - t0)
+    return timing.looped_trials_per_s(env, agent if agent is not None else agent_from_spec(spec), users)
 
 
 def batched_trials_per_s(world: Any, spec: Any, users: int, threads: int, repeats: int = 3) -> float:
@@ -112,7 +97,7 @@ def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print, only:
     world = make_world(schedule=schedule)
     cores = os.cpu_count() or 1
     cart = cartpole_vector_steps_per_s()
-    out(f"\nA. Agent families on {sessions * 40} trials per user; load average {_load()}")
+    out(f"\nA. Agent families on {sessions * 40} trials per user; load average {load_average()}")
     out(f"   CartPole-v1 native vector env, 1,024 envs: {cart:>12,.0f} steps/s (reference)")
     families = [f for f in FAMILIES if not only or any(o in f[0] for o in only)]
     extra: dict[str, Any] = {}
@@ -144,7 +129,7 @@ def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print, only:
                     f"(targets 100x, 0.5x: {verdict})")
         if not compiled:
             out("      (no compiled decision: 100,000 users not timed)")
-    out(f"   load average at end {_load()}")
+    out(f"   load average at end {load_average()}")
 
 
 def heldout_spec(points: int = 48, users: int = 6) -> dict[str, Any]:
@@ -180,10 +165,6 @@ def part_heldout(quick: bool, out: Out = print) -> None:
     out(f"   wall {wall:.2f} s; in-worker compute {compute_s:.2f} s = planning {plan_s:.2f} s "
         f"+ simulation {compute_s - plan_s:.2f} s (target < 3 s after planning: {verdict}); "
         f"{len(report.failed)} failed")
-
-
-def _load() -> str:
-    return ", ".join(f"{x:.2f}" for x in os.getloadavg())
 
 
 def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True,

@@ -26,7 +26,7 @@ import time
 import numpy as np
 
 from benchmarks.former_fit import former_fit_log
-from benchmarks.timing import Out, median_seconds
+from benchmarks.timing import Out, load_average, median_seconds
 from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.agents.learning import TrialArrays, rules
 from shortcut_gym.envs.world import make_world
@@ -41,10 +41,6 @@ PLANNER = ModelSpec("composed_learner", "planner", {"mechanisms": [
 HABIT = ModelSpec("composed_learner", "habit", {"mechanisms": ["choice_kernel", "perseveration", "lapse"]})
 
 
-def _load() -> str:
-    return ", ".join(f"{v:.2f}" for v in os.getloadavg())
-
-
 def run(quick: bool = False, out: Out = print, participants: int | None = None, starts: int | None = None,
         jobs: int = 2, rationality_participants: int | None = None) -> None:
     """Print both parts; ``participants`` and ``starts`` default to 50 and 10 (4 and 2 when ``quick``)."""
@@ -53,7 +49,7 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     for name, value in (("participants", participants), ("starts", starts), ("jobs", jobs)):
         if value < 1:
             raise ValueError(f"{name} must be >= 1, got {value}")
-    out(f"load average (1, 5, 15 min) at start: {_load()} on {os.cpu_count()} cores")
+    out(f"load average (1, 5, 15 min) at start: {load_average()} on {os.cpu_count()} cores")
     sessions = 10 if quick else 25  # of 40 trials: 1,000 trials per person (400 quick)
     world = make_world(schedule={"sessions": sessions, "trials_per_session": 40})
     rng = np.random.default_rng(0)
@@ -141,7 +137,7 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
         f"fits where the former fitter was more than 0.5 nats worse: {int((gain > 0.5).sum())}/{len(gain)}")
     out(fits.groupby("model")[["loglik", "bic"]].sum().to_string(float_format=lambda v: f"{v:.1f}"))
     rationality(quick, out, rationality_participants, jobs)
-    out(f"load average (1, 5, 15 min) at end: {_load()}")
+    out(f"load average (1, 5, 15 min) at end: {load_average()}")
 
 
 def rationality(quick: bool, out: Out, participants: int | None, jobs: int) -> None:

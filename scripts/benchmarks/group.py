@@ -21,17 +21,13 @@ import time
 import numpy as np
 from scipy.special import softmax
 
-from benchmarks.timing import Out, median_seconds
+from benchmarks.timing import Out, load_average, median_seconds
 from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.recovery import simulate_known
 from shortcut_gym.lab.compare import exceedance_monte_carlo, random_effects_bms
 from shortcut_gym.lab.data.logs import participant_trials, validate_log
 from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_hierarchical, fit_log, loglik_function
-
-
-def _load() -> str:
-    return ", ".join(f"{v:.2f}" for v in os.getloadavg())
 
 
 def hierarchical(quick: bool, out: Out) -> None:
@@ -95,7 +91,7 @@ def model_selection(quick: bool, out: Out) -> None:
 
 def run(quick: bool = False, out: Out = print) -> None:
     """Print every part."""
-    out(f"load average (1, 5, 15 min) at start: {_load()} on {os.cpu_count()} cores")
+    out(f"load average (1, 5, 15 min) at start: {load_average()} on {os.cpu_count()} cores")
     hierarchical(quick, out)
     model_selection(quick, out)
-    out(f"load average (1, 5, 15 min) at end: {_load()}")
+    out(f"load average (1, 5, 15 min) at end: {load_average()}")

@@ -26,10 +26,10 @@ import numpy as np
 
 import shortcut_gym.envs  # noqa: F401 - registers the env
 from benchmarks import families as agent_families
-from benchmarks.timing import Out
-from shortcut_gym.agents.base import Transition
+from benchmarks import timing
+from benchmarks.timing import Out, load_average
 from shortcut_gym.agents.registry import agent_from_spec
-from shortcut_gym.agents.rollout import context_of, run_episode
+from shortcut_gym.agents.rollout import run_episode
 from shortcut_gym.envs import ENV_ID, make_world
 from shortcut_gym.lab.sweep.backends import RayBackend
 from shortcut_gym.lab.sweep.batch import simulate_users
@@ -39,10 +39,6 @@ from shortcut_gym.lab.sweep.spec import parse_spec
 
 LEARNER = {"name": "composed_learner", "mechanisms": ["value", "memory_aware", "planning", "incidental",
                                                     "forgetting", "perseveration", "lapse"]}
-
-
-def _load() -> str:
-    return ", ".join(f"{x:.2f}" for x in os.getloadavg())
 
 
 def cartpole_us_per_step(steps: int = 20_000) -> float:
@@ -72,24 +68,7 @@ def looped_trials_per_s(schedule: dict, users: int) -> float:
 
 def lean_loop_trials_per_s(schedule: dict, users: int) -> float:
     """Trials per second of env.step + agent.act + agent.observe alone (no trial table kept)."""
-    env = gym.make(ENV_ID, schedule=schedule)
-    agent = agent_from_spec(LEARNER)
-    agent.bind(context_of(env))
-    n = 0
-    t0 = 0.0
-    for seed in range(-1, users):  # seed -1: warm-up, not timed
-        if seed == 0:
-            t0 = time.perf_counter()
-        obs, info = env.reset(seed=abs(seed))
-        agent.reset(abs(seed))
-        done = False
-        while not done:
-            a = agent.act(obs, info)
-            nxt, r, term, trunc, info = env.step(a)
-            agent.observe(Transition(obs, a, r, nxt, info, term, trunc))
-            obs, done = nxt, term or trunc
-            n += seed >= 0
-    return n / (time.perf_counter() - t0)
+    return timing.looped_trials_per_s(gym.make(ENV_ID, schedule=schedule), agent_from_spec(LEARNER), users)
 
 
 def batched_trials_per_s(schedule: dict, users: int, fused: bool = True, threads: int = 1,
@@ -149,7 +128,7 @@ def part_one(schedule: dict, sessions: int, quick: bool = False, out: Out = prin
     """Batched simulator against the looped env + agent (``quick``: up to 1,000 users)."""
     looped = lean_loop_trials_per_s(schedule, users=5)
     recorded = looped_trials_per_s(schedule, users=5)
-    out(f"\n1. {LEARNER['name']} on {sessions * 40} trials per user; load average at start {_load()}")
+    out(f"\n1. {LEARNER['name']} on {sessions * 40} trials per user; load average at start {load_average()}")
     out(f"   looped gymnasium.make env + agent per step:  {looped:>14,.0f} trials/s  (1.0x, the reference)")
     out(f"   same via run_episode (keeps a trial table):  {recorded:>14,.0f} trials/s  ({recorded / looped:.2f}x)")
     cores = os.cpu_count() or 1
@@ -163,7 +142,7 @@ def part_one(schedule: dict, sessions: int, quick: bool = False, out: Out = prin
             flag = "meets" if rate / looped >= 100 else "below"
             out(f"   {label + ',':<35} {users:>7,} users: {rate:>12,.0f} trials/s  "
                 f"({rate / looped:,.1f}x; target 100x: {flag})")
-    out(f"   load average at end {_load()}")
+    out(f"   load average at end {load_average()}")
 
 
 def _timed_sweep(spec: dict, folder: Path, backend: str | RayBackend) -> tuple[float, float]:
