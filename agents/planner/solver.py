@@ -139,3 +139,24 @@ def hotkey_shares(mdp: CommandMDP, actions: np.ndarray) -> tuple[float, float]:
     hot = occupancy * (actions == k.HOTKEY)
     n = max(len(actions), 1)
     return float(hot.sum()) / n, float((hot * mdp.p_recall).sum()) / n
+
+
+@njit(cache=True)
+def policy_evaluation_staged(P: CsrRows, R: np.ndarray, extra: np.ndarray, per_stage: np.ndarray,
+                             policy: np.ndarray) -> np.ndarray:
+    """V (n_stages + 1, S) of a fixed ``policy`` (n_stages + 1, S; row 0 unused) under the staged
+    reward of :func:`backward_induction_staged` (the same sums, no maximisation; Puterman 1994, 4.2)."""
+    n_states = R.shape[0]
+    n_stages = policy.shape[0] - 1
+    V = np.zeros((n_stages + 1, n_states))
+    for n in range(1, n_stages + 1):
+        prev = V[n - 1]
+        w = per_stage[n]
+        for s in range(n_states):
+            a = policy[n, s]
+            row = a * n_states + s
+            acc = 0.0
+            for jj in range(P.indptr[row], P.indptr[row + 1]):
+                acc += P.data[jj] * prev[P.indices[jj]]
+            V[n, s] = R[s, a] + extra[s, a] * w + acc
+    return V

@@ -41,6 +41,7 @@ from scipy import optimize
 from shortcut_gym.agents.base import AgentContext, Transition
 from shortcut_gym.agents.planned_choice import BETA_MAX, cached_plan
 from shortcut_gym.agents.planner import break_even_table
+from shortcut_gym.agents.planner.valuation import executed_shares, executed_values
 from shortcut_gym.agents.rollout import drive_batch
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
@@ -93,29 +94,46 @@ def own_world(base: World, estimates: dict[str, float], n_trials: int) -> World:
     return implied_world(base, estimates)
 
 
+def participant_shares(trials: pd.DataFrame) -> tuple[float, float]:
+    """(share of trials that leave the hand on the keyboard, share that start with a hotkey attempt)."""
+    return float((trials["outcome"].astype(str) == "hotkey").mean()), float((trials["action"].astype(str) == "hotkey").mean())
+
+
 def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
-    """Per logged trial: the planner's action values, its optimal action and the time lost (s)."""
+    """Per logged trial: the planner's action values (``q_*``, what it decides by), its optimal
+    action and the time lost (s): Q(a) - Q(a*) in the executed policy's values with the homing
+    priced at the midpoint of the participant's and the optimum's hand shares
+    (:func:`~shortcut_gym.agents.planner.valuation.executed_values`; each switch charged once)."""
     planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
+    assert planner.plan is not None
     d = trials.sort_values("trial", kind="stable")
+    ks_opt, q_opt = executed_shares(world, planner.plan)
+    ks_own, q_own = participant_shares(d)
+    valuer = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
+    valuer.plan = executed_values(world, planner.plan, (ks_opt + ks_own) / 2, (q_opt + q_own) / 2)
+    valuer.reset(0)
     command = d["command"].to_numpy(dtype=np.int64)
     outcome = d["outcome"].astype(str).to_numpy()
     code = {n: i for i, n in enumerate(ACTION_NAMES)}
     action = np.array([code[str(a)] for a in d["action"]], dtype=np.int64)
     n = len(d)
     q = np.empty((n, 3))
+    v = np.empty((n, 3))
     best = np.empty(n, dtype=np.int64)
     empty = np.zeros(0, dtype=np.float32)
     for t in range(n):
         c = int(command[t])
         q[t] = planner.action_values(c, t)
+        v[t] = valuer.action_values(c, t)
         best[t] = planner.decide(c, t)
-        info = {"command": c, "trial": t, "outcome": outcome[t]}
-        planner.observe(Transition(empty, int(action[t]), 0.0, empty, info))
+        tr = Transition(empty, int(action[t]), 0.0, empty, {"command": c, "trial": t, "outcome": outcome[t]})
+        planner.observe(tr)
+        valuer.observe(tr)
     rows = np.arange(n)
     return pd.DataFrame({
         "trial": d["trial"].to_numpy(), "command": command, "action": d["action"].astype(str).to_numpy(),
         "optimal_action": np.array(ACTION_NAMES, dtype=object)[best], "q_menu": q[:, 0], "q_hotkey": q[:, 1],
-        "q_learn": q[:, 2], "time_lost_s": q[rows, best] - q[rows, action], "optimal": action == best,
+        "q_learn": q[:, 2], "time_lost_s": v[rows, best] - v[rows, action], "optimal": action == best,
     })
 
 
