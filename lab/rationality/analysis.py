@@ -10,9 +10,12 @@ plans for that world and tracks their memory from their logged outcomes. On ever
   estimate of the whole history's loss against the optimum (Kakade & Langford 2002, "Approximately
   optimal approximate reinforcement learning", ICML, lemma 6.1): E[sum of advantages along one's own
   trajectory] = V(own policy) - V(optimal). It is zero for the planner's own choices. It is in the
-  planner's own accounting, which charges each hand switch to both trials beside it (the planner's
-  approximation 2), so it overstates losses that come from homing (about twice the simulated loss
-  of an always-menu user on the demo scenario);
+  executed policy's values with the homing priced at the midpoint of the participant's and the
+  optimum's hand shares (agents.planner.valuation: the decision values linearise the bilinear
+  homing cost at the optimum's shares and so counted a switch between two changed neighbours
+  twice, about 2x the simulated loss of an always-menu user). With exponential memory it is within
+  3-7% of the simulated loss (tests/test_rationality_time_lost.py); with ACT-R memory the plan's
+  lumped memory (approximation 1) overstates it (104 vs 81 s on the default world);
 * the excess time is the logged time minus the planner's mean time over ``n_sims`` simulated users
   on the participant's own schedule in their world (with its standard error): the loss in seconds
   as the simulator counts it, including the participant's luck with recall and trial-time noise.
@@ -96,7 +99,8 @@ def own_world(base: World, estimates: dict[str, float], n_trials: int) -> World:
 
 def participant_shares(trials: pd.DataFrame) -> tuple[float, float]:
     """(share of trials that leave the hand on the keyboard, share that start with a hotkey attempt)."""
-    return float((trials["outcome"].astype(str) == "hotkey").mean()), float((trials["action"].astype(str) == "hotkey").mean())
+    on_keyboard = float((trials["outcome"].astype(str) == "hotkey").mean())
+    return on_keyboard, float((trials["action"].astype(str) == "hotkey").mean())
 
 
 def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
