@@ -75,6 +75,11 @@ def transformed_sd(neg_loglik: Callable[[np.ndarray], float], x: np.ndarray,
     return sd, ""
 
 
+#: Inner profile refits start no further out than this transformed coordinate (project choice:
+#: logistic 4 is within 2% of a range's end and still has a usable gradient).
+INNER_START_LIMIT = 4.0
+
+
 def profile_interval(neg_loglik: Callable[[np.ndarray], float], x: np.ndarray, j: int,
                      boxes: Sequence[tuple[float, float]], sd_j: float, scale: float = 1.0) -> tuple[float, float]:
     """(low, high) of transformed coordinate j where the profile -ln L rises 1.92 above its minimum.
@@ -97,8 +102,16 @@ def profile_interval(neg_loglik: Callable[[np.ndarray], float], x: np.ndarray, j
             z[j] = value
             return neg_loglik(z) / scale
 
-        res = optimize.minimize(g, start[side][others], method="L-BFGS-B", bounds=[boxes[i] for i in others],
-                                options={"gtol": 1e-8})
+        # Three inner starts: the last refit on this side (the profile path), the maximum's own
+        # coordinates pulled in from the box's flat edges, and the box's centre. A start on a flat
+        # edge (a logistic coordinate near +-30, gradient ~1e-12) never moves, and a path alone can
+        # stay in a poor valley: either would end the interval too early.
+        inner_starts = (start[side][others], np.clip(x[others], -INNER_START_LIMIT, INNER_START_LIMIT),
+                        np.array([0.5 * (boxes[i][0] + boxes[i][1]) for i in others]))
+        fits = [optimize.minimize(g, s0, method="L-BFGS-B", bounds=[boxes[i] for i in others],
+                                  options={"gtol": 1e-8})
+                for s0 in inner_starts]
+        res = min(fits, key=lambda r: float(r.fun))
         start[side][others] = res.x
         return float(res.fun) * scale - best - HALF_CHI2_95
 
