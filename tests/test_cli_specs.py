@@ -157,3 +157,15 @@ def test_cli_spec_faults_exit_2_naming_them(tmp_path: Path, capsys) -> None:
     assert "bad.yaml: params" in err and "'two'" in err and err.count("\n") == 1
     assert main(["simulate", "--agent", "learn_first_k:k=[1"]) == 2
     assert "unclosed bracket" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("quiet", [False, True])
+def test_status_lines_go_to_stderr_and_quiet_hides_them(tmp_path: Path, capsys, quiet: bool) -> None:
+    """Results on stdout, status ("wrote ...") on stderr through the package logger; -q hides status."""
+    log = tmp_path / "log.csv"
+    argv = ["simulate", "--agent", "always_menu", "--users", "2", "--sessions", "1", "--log", str(log)]
+    assert main((["-q"] if quiet else []) + argv) == 0
+    captured = capsys.readouterr()
+    assert log.is_file()
+    assert "wrote" not in captured.out
+    assert ("wrote trial log" in captured.err) is not quiet

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.lab.cli.options import parse_agent_arg
+from shortcut_gym.lab.cli.options import parse_agent_arg, status
 from shortcut_gym.lab.cli.ranges import output_folder, whole_number
 from shortcut_gym.lab.design.aid_study import StudyAgent, load_study, parse_study, run_study
 from shortcut_gym.lab.design.plots import aid_figure, save_figure
@@ -46,5 +46,5 @@ def run(args: argparse.Namespace) -> int:
         args.out.mkdir(parents=True, exist_ok=True)
         table.to_csv(args.out / "ranking.csv", index=False)
         save_figure(aid_figure(table, path, f"{spec.name}: time saved per user by each aid"), args.out / "aids.png")
-        print(f"wrote ranking.csv and aids.png to {args.out}")
+        status(f"wrote ranking.csv and aids.png to {args.out}")
     return 0

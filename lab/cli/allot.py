@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, status, world_of
 from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
 from shortcut_gym.lab.design.assignment import (
     budget_curve,
@@ -83,5 +83,5 @@ def run(args: argparse.Namespace) -> int:
         chosen.to_csv(args.out / "assignment.csv", index=False)
         curve.to_csv(args.out / "budget.csv", index=False)
         save_figure(budget_figure(curve, f"{world.scenario.name}: hotkey budget"), args.out / "budget.png")
-        print(f"wrote savings.csv, assignment.csv, budget.csv and budget.png to {args.out}")
+        status(f"wrote savings.csv, assignment.csv, budget.csv and budget.png to {args.out}")
     return 0

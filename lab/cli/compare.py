@@ -8,7 +8,7 @@ import pandas as pd
 
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.cli import CLIError, one_line
-from shortcut_gym.lab.cli.options import add_overwrite, add_world_options, claim_output, world_of, world_words
+from shortcut_gym.lab.cli.options import add_overwrite, add_world_options, claim_output, status, world_of, world_words
 from shortcut_gym.lab.cli.ranges import input_file, output_folder, positive_number
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
 from shortcut_gym.lab.report import comparison_sections, fit_quality_section, plot_comparison, write_index, write_table
@@ -53,5 +53,5 @@ def run(args: argparse.Namespace) -> int:
     index = write_index(args.out, entries, "Model comparison", sections)
     print(summed.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(bms.table().to_string(index=False, float_format=lambda v: f"{v:.3f}"))
-    print(f"wrote {index.parent}")
+    status(f"wrote {index.parent}")
     return 0

@@ -15,6 +15,7 @@ from shortcut_gym.lab.cli.options import (
     priors_of,
     report_skipped,
     start_ranges_of,
+    status,
     world_of,
 )
 from shortcut_gym.lab.cli.ranges import input_file
@@ -71,19 +72,19 @@ def run(args: argparse.Namespace) -> int:
         print(f"{len(doubtful)} doubtful fit(s):")
         for _, r in doubtful.iterrows():
             print(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
-    print(f"wrote {path} and {args.out / 'parameters.csv'}")
+    status(f"wrote {path} and {args.out / 'parameters.csv'}")
     if args.hierarchical:
         summary, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names),
                                                     args.starts, args.seed, args.covariance)
         written = write_hierarchical(summary, by_model, args.out)
         print(summary.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
-        print("wrote " + ", ".join(str(p) for p in written))
+        status("wrote " + ", ".join(str(p) for p in written))
     if args.cross_validate:
         folds = cross_validate(log, specs, context_for(log, world.commands.names), args.starts, args.seed)
         folds.to_csv(args.out / "cv_folds.csv", index=False)
         cv_table(folds).to_csv(args.out / "cv.csv", index=False)
         print(cv_summary(folds).to_string(index=False, float_format=lambda v: f"{v:.2f}"))
-        print(f"wrote {args.out / 'cv_folds.csv'}, {args.out / 'cv.csv'}")
+        status(f"wrote {args.out / 'cv_folds.csv'}, {args.out / 'cv.csv'}")
     return 0
 
 

@@ -12,6 +12,7 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 from __future__ import annotations
 
 import argparse
+import logging
 import sys
 from pathlib import Path
 from typing import Any
@@ -30,6 +31,16 @@ from shortcut_gym.lab.fitting import INTERVAL_METHODS, PRIOR_FAMILIES, ModelSpec
 MODEL_HELP = (f"model as {SYNTAX}; keys that are parameters are held fixed, others are options; values are "
               "YAML scalars, [a, b] makes a list (repeatable), e.g. "
               "mine=composed_learner:mechanisms=[value, perseveration, lapse]")
+
+
+#: Status lines of the CLI (which files were written): on stderr through the package logger, so
+#: stdout holds results only and ``-q`` hides them.
+_STATUS = logging.getLogger("shortcut_gym.cli")
+
+
+def status(message: str) -> None:
+    """Report a status line (stderr; hidden by ``-q``)."""
+    _STATUS.info(message)
 
 
 def parse_model(text: str) -> ModelSpec:

@@ -10,7 +10,7 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.checks.population import default_population, read_population
 from shortcut_gym.lab.checks.recovery import model_recovery, parameter_recovery
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import MODEL_HELP, add_common, claim_output, models_of, world_of, world_words
+from shortcut_gym.lab.cli.options import MODEL_HELP, add_common, claim_output, models_of, status, world_of, world_words
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.report import (
     markdown_table,
@@ -87,5 +87,5 @@ def run(args: argparse.Namespace) -> int:
         sections.append(model_recovery_section(confusion))
         print(confusion.to_string(float_format=lambda v: f"{v:.2f}"))
     index = write_index(args.out, entries, "Recovery studies", sections)
-    print(f"wrote {index.parent}")
+    status(f"wrote {index.parent}")
     return 0

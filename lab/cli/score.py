@@ -8,7 +8,7 @@ import argparse
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.scoring import time_lost_vs_planner
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, status, world_of
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_number
 from shortcut_gym.lab.simulate import label_of
 
@@ -43,5 +43,5 @@ def run(args: argparse.Namespace) -> int:
     if args.out is not None:
         args.out.parent.mkdir(parents=True, exist_ok=True)
         table.to_csv(args.out, index=False)
-        print(f"wrote {args.out}")
+        status(f"wrote {args.out}")
     return 0

@@ -18,6 +18,7 @@ from shortcut_gym.lab.cli.options import (
     add_world_options,
     agent_specs_of,
     claim_output,
+    status,
     world_of,
 )
 from shortcut_gym.lab.cli.ranges import MAX_SEED, input_file, output_file, output_folder, seed, whole_number
@@ -83,9 +84,9 @@ def run_population(args: argparse.Namespace) -> int:
         truths.append(truth)
     log = validate_log(pd.concat(logs, ignore_index=True), world.commands, source="simulated population")
     truth = pd.concat(truths, ignore_index=True)
-    print(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
+    status(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
     truth.to_csv(_truth_path(args.log), index=False)
-    print(f"wrote true parameters {_truth_path(args.log)}")
+    status(f"wrote true parameters {_truth_path(args.log)}")
     for pop in populations:
         for name, how in pop.describe().items():
             print(f"  {pop.spec.label}.{name}: {how}")
@@ -109,9 +110,9 @@ def run(args: argparse.Namespace) -> int:
         args.out.mkdir(parents=True, exist_ok=True)
         trials.to_parquet(args.out / "trials.parquet", index=False)
         summary.to_csv(args.out / "summary.csv", index=False)
-        print(f"wrote {args.out / 'trials.parquet'} and {args.out / 'summary.csv'}")
+        status(f"wrote {args.out / 'trials.parquet'} and {args.out / 'summary.csv'}")
     if args.log is not None:
         keyed = trials.assign(participant_key=[f"{a}-u{u}" for a, u in zip(trials["agent"], trials["user"])])
         log = log_from_simulation(keyed, world.commands, participant_column="participant_key", prefix="")
-        print(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
+        status(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
     return 0
