@@ -17,8 +17,6 @@ compiled), and a plan whose commands' grids differ or whose quantile count is be
 pairwise order rebuilt here needs 8 or more points); :func:`lookup_tables` returns None then.
 """
 
-from __future__ import annotations
-
 import math
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, NamedTuple
@@ -70,7 +68,7 @@ class LookupTables(NamedTuple):
     grid: GridConstants
 
 
-def lookup_tables(agent: BoundedOptimalPlanner) -> LookupTables | None:
+def lookup_tables(agent: "BoundedOptimalPlanner") -> LookupTables | None:
     """The tables of a planner whose choice follows its plan (reset here if it was not, to price
     its plan's times); None where the compiled rebuild does not apply (see the module docstring)."""
     if agent.plan is None or getattr(agent, "_times_for", None) is not agent.plan:
@@ -406,7 +404,7 @@ class CompiledPlanLookup:
     """Users of a planner following its plan: ``run(sim)`` in one compiled loop (module docstring);
     ``actions`` / ``observe`` per trial through :class:`~.batch.PlanLookupBatch` (the same actions)."""
 
-    def __init__(self, agent: BoundedOptimalPlanner, tables: LookupTables, n_users: int,
+    def __init__(self, agent: "BoundedOptimalPlanner", tables: LookupTables, n_users: int,
                  seeds: Sequence[int]) -> None:
         if len(seeds) != n_users:
             raise ConfigError(f"{agent.name}: {len(seeds)} seeds for {n_users} users")
