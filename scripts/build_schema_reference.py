@@ -1,6 +1,7 @@
 """Generate docs/configs.md: the reference of every config kind, from its validation model.
 
-Each kind (scenario, costs, memory, aids, agent spec, sweep spec) is documented from the pydantic
+Each kind (scenario, costs, memory, aids, agent spec, sweep spec; the population spec from its
+reader's own tables) is documented from the pydantic
 model that validates it: every field with its type, default, unit, allowed range and description,
 under the docstring of the model that holds it (where the defaults' sources are named), and one
 example that ``tests/test_schema_reference.py`` loads through the kind's own loader.
@@ -56,6 +57,14 @@ KINDS: list[tuple[str, str, str, str]] = [
      "  parameters:\n    costs.klm.keystroke_s: {values: [0.12, 0.28]}\nagents:\n  - {name: always_menu}\n"
      "  - {name: learn_first_k, params: {k: 1}}\nseeds: {first: 0, count: 2}\n"),
 ]
+
+#: How a population spec is given, and its example (the page's population section).
+POPULATION_GIVEN = ("`shortcut-gym simulate --population FILE.yaml` (truth file written beside the log), "
+                    "`shortcut-gym recover --population FILE.yaml`, `read_population(FILE)`")
+POPULATION_EXAMPLE = ("models:\n  delta:\n    agent: rescorla_wagner\n    participants: 3\n    parameters:\n"
+                      "      alpha: {dist: uniform, low: 0.1, high: 0.9}\n      beta: {dist: lognormal, mu: 0.0, "
+                      "sigma: 0.7}\n  sticky:\n    agent: composed_learner\n    options: {mechanisms: [value, "
+                      "perseveration]}\n    participants: 2\n    parameters:\n      alpha: 0.3\n")
 
 _UNIT_WORDS = {"s": "s", "h": "h", "ms": "ms", "px": "px", "min": "min"}
 
@@ -193,6 +202,7 @@ def render() -> str:
     for kind, path, given, _ in KINDS:
         model = _load(path)
         out.append(f"| {kind} | [{model.__name__}](#{model.__name__.lower()}) | {_cell(given)} |")
+    out.append(f"| population spec | [population spec](#population-spec) | {_cell(POPULATION_GIVEN)} |")
     out.append("")
     done: set[type[BaseModel]] = set()
     for kind, path, _, example in KINDS:
@@ -200,7 +210,28 @@ def render() -> str:
         out += [f"## {kind[0].upper()}{kind[1:]}", "", f"Example ({kind}):", "",
                 f"<!-- example: {kind} -->", "```yaml", example.rstrip("\n"), "```", ""]
         out += model_section(model, done)
+    out += population_section()
     return "\n".join(out).rstrip("\n") + "\n"
+
+
+def population_section() -> list[str]:
+    """The population spec (read by :func:`~shortcut_gym.lab.checks.population.read_population`, not a
+    pydantic model): its keys and distributions, from the reader's own tables."""
+    from shortcut_gym.lab.checks.population import DISTRIBUTION_MEANINGS, DISTRIBUTIONS, MAX_TRIES, MODEL_FIELDS
+
+    out = ["## Population spec", "",
+           "Per model, how many participants to simulate and a distribution for each parameter. The file holds "
+           "one key, `models`, mapping a label of your own to a model entry. Draws outside a parameter's bounds "
+           f"are drawn again (at most {MAX_TRIES:,} tries, else an error naming the parameter). Every fault names "
+           "the file and the dotted field.", "",
+           "Example (population spec):", "", "<!-- example: population spec -->", "```yaml",
+           POPULATION_EXAMPLE.rstrip("\n"), "```", "",
+           "### model entry (`models.<label>`)", "", "| field | type | default | meaning |", "|---|---|---|---|"]
+    out += [f"| `{k}` | {_cell(t)} | {_cell(d)} | {_cell(m)} |" for k, (t, d, m) in MODEL_FIELDS.items()]
+    out += ["", "### distributions (`parameters.<name>.dist`)", "", "| dist | numbers | meaning |", "|---|---|---|"]
+    out += [f"| `{d}` | {', '.join(f'`{n}`' for n in DISTRIBUTIONS[d])} | {_cell(DISTRIBUTION_MEANINGS[d])} |"
+            for d in DISTRIBUTIONS]
+    return out + [""]
 
 
 def examples(text: str) -> list[tuple[str, str]]:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 from build_schema_reference import KINDS, PAGE, _load, examples, render
 
@@ -12,6 +13,8 @@ from shortcut_gym.agents import agent_from_spec, make_agent, run_episode
 from shortcut_gym.agents.registry import read_agent_spec
 from shortcut_gym.envs import CommandSelectionEnv, make_world
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.lab.checks.population import read_population
+from shortcut_gym.lab.checks.recovery import simulate_known
 from shortcut_gym.lab.sweep.runner import run_sweep
 from shortcut_gym.lab.sweep.spec import load_spec
 
@@ -28,6 +31,7 @@ def test_the_readme_links_the_page() -> None:
 
 
 def _sections(text: str) -> dict[str, str]:
+    text = text.split("\n## Population spec", 1)[0]  # not a pydantic model: checked on its own below
     parts = re.split(r"^#{3,8} (\w+)\n", text, flags=re.M)
     return dict(zip(parts[1::2], parts[2::2], strict=True))
 
@@ -63,6 +67,13 @@ def _load_example(kind: str, path: Path, tmp_path: Path) -> object:
         world = make_world(**{kind: path}, **scenario)
         env = CommandSelectionEnv(world=world)
         return run_episode(env, make_agent("learn_first_k", k=1), seed=0, max_trials=30)
+    if kind == "population spec":
+        models = read_population(path)
+        world = make_world(schedule={"sessions": 1, "trials_per_session": 10})
+        logs = [simulate_known(world, m.spec, m.participants, np.random.default_rng(0), population=m)[0]
+                for m in models]
+        assert [log["participant"].nunique() for log in logs] == [m.participants for m in models]
+        return logs
     if kind == "agent spec":
         read_agent_spec(path)
         return run_episode(CommandSelectionEnv(world=make_world(schedule={"sessions": 1})), agent_from_spec(path), 0)
@@ -81,10 +92,40 @@ def test_each_example_loads_and_runs_and_a_wrong_key_in_it_is_named(kind: str, t
         with pytest.raises(ConfigError, match="no_such_key"):
             agent_from_spec(path)
         return
+    if kind == "population spec":  # a wrong key at the top and inside a model entry are both named
+        with pytest.raises(ConfigError, match=r"unknown key\(s\) \['no_such_key'\]") as err:
+            _load_example(kind, path, tmp_path)
+        assert path.name in str(err.value)
+        path.write_text(text.replace("    participants: 3\n", "    participants: 3\n    no_such_key: 1\n"))
+        with pytest.raises(ConfigError, match=r"models\.delta: unknown key\(s\) \['no_such_key'\]"):
+            _load_example(kind, path, tmp_path)
+        return
     with pytest.raises(ConfigError, match=r"no_such_key: unknown key") as err:
         _load_example(kind, path, tmp_path)
     assert path.name in str(err.value)
 
 
 def test_every_kind_has_one_example() -> None:
-    assert sorted(k for k, _ in examples(PAGE.read_text())) == sorted(k[0] for k in KINDS)
+    assert sorted(k for k, _ in examples(PAGE.read_text())) == sorted([k[0] for k in KINDS] + ["population spec"])
+
+
+def test_the_population_section_lists_every_key_and_distribution_the_reader_takes() -> None:
+    """Checked against what read_population accepts and refuses (not against the generator's tables)."""
+    section = PAGE.read_text().split("## Population spec", 1)[1]
+    rows = re.findall(r"^\| `(\w+)` \|", section, re.M)
+    base = {"agent": "rescorla_wagner", "participants": 1, "parameters": {}, "options": {}}
+    read_population({"models": {"m": base}})  # every listed key accepted together
+    for key in ("agent", "options", "participants", "parameters"):
+        assert key in rows
+    with pytest.raises(ConfigError, match="unknown key"):
+        read_population({"models": {"m": {**base, "weight": 1}}})
+    for dist in ("uniform", "loguniform", "normal", "lognormal", "logitnormal"):
+        assert dist in rows
+        numbers = re.search(rf"^\| `{dist}` \| (.*?) \|", section, re.M).group(1)
+        names = re.findall(r"`(\w+)`", numbers)
+        law = {"dist": dist, **dict(zip(names, (0.2, 0.6), strict=True))}
+        read_population({"models": {"m": {**base, "parameters": {"alpha": law}}}})
+        with pytest.raises(ConfigError, match=dist):
+            read_population({"models": {"m": {**base, "parameters": {"alpha": {"dist": dist}}}}})
+    with pytest.raises(ConfigError, match="is not one of"):
+        read_population({"models": {"m": {**base, "parameters": {"alpha": {"dist": "beta", "a": 1}}}}})

@@ -41,6 +41,23 @@ DISTRIBUTIONS: dict[str, tuple[str, ...]] = {
     "lognormal": ("mu", "sigma"), "logitnormal": ("mean", "sd"),
 }
 MAX_TRIES = 1000
+#: distribution -> what its numbers mean (the config reference page is generated from this)
+DISTRIBUTION_MEANINGS: dict[str, str] = {
+    "uniform": "uniform on [low, high], within the parameter's bounds",
+    "loguniform": "log-uniform on [low, high], 0 < low",
+    "normal": "normal with mean and sd (sd > 0), redrawn outside the bounds",
+    "lognormal": "exp of a normal: mu and sigma (> 0) of the log, redrawn outside the bounds",
+    "logitnormal": "the parameter's own logit coordinate is normal (mean, sd > 0); two-sided bounds only",
+}
+#: key of a model entry -> (type, default, meaning); the keys the reader accepts
+MODEL_FIELDS: dict[str, tuple[str, str, str]] = {
+    "agent": ("text", "the model's label", "registered agent name (`shortcut-gym simulate --help` lists them)"),
+    "options": ("mapping", "{}", "constructor options of the agent, e.g. `mechanisms: [value, lapse]` for "
+                "composed_learner"),
+    "participants": ("whole number 1..100000", "10", "simulated participants of this model"),
+    "parameters": ("mapping", "{}", "parameter -> a plain number (held fixed) or {dist: NAME, ...numbers}; "
+                   "a free parameter not listed is drawn over its plausible range"),
+}
 
 
 @dataclass(frozen=True)
@@ -147,6 +164,9 @@ def read_population(source: str | Path | Mapping[str, Any]) -> list[ModelPopulat
     """Validated population spec from a YAML path or a dict; faults name the file and the field."""
     where = str(source) if isinstance(source, (str, Path)) else "population spec"
     data = read_yaml(Path(source)) if isinstance(source, (str, Path)) else source
+    if isinstance(data, Mapping) and set(data) - {"models"}:
+        raise ConfigError(f"{where}: unknown key(s) {sorted(set(data) - {'models'})}; a population spec "
+                          "is a mapping with one key 'models'")
     if not isinstance(data, Mapping) or set(data) != {"models"} or not isinstance(data["models"], Mapping) \
             or not data["models"]:
         raise ConfigError(f"{where}: a population spec is a mapping with one key 'models' holding at least one "
@@ -157,9 +177,9 @@ def read_population(source: str | Path | Mapping[str, Any]) -> list[ModelPopulat
         body = body or {}
         if not isinstance(body, Mapping):
             raise ConfigError(f"{at}: must be a mapping, got {body!r}")
-        extra = sorted(set(body) - {"agent", "options", "participants", "parameters"})
+        extra = sorted(set(body) - set(MODEL_FIELDS))
         if extra:
-            raise ConfigError(f"{at}: unknown key(s) {extra}; known: agent, options, participants, parameters")
+            raise ConfigError(f"{at}: unknown key(s) {extra}; known: {', '.join(MODEL_FIELDS)}")
         options = body.get("options") or {}
         if not isinstance(options, Mapping):
             raise ConfigError(f"{at}.options: must be a mapping, got {options!r}")
