@@ -251,9 +251,15 @@ def fit_participant(
         issues = []
         if at_bound:
             issues.append(f"at a bound: {', '.join(at_bound)}")
-        converged = bool(getattr(best, "success", True)) or confirmed or _stationary(neg_total, best.x, free, at_bound)
+        message = str(best.message)
+        converged = bool(getattr(best, "success", True))
+        if not converged and confirmed:
+            converged, message = True, f"{message}; accepted: the derivative-free polish could not improve it"
+        elif not converged and _stationary(neg_total, best.x, free, at_bound):
+            converged, message = True, (f"{message}; accepted: |d ln L/dx| <= {STATIONARY_GRADIENT} off the "
+                                        "bounds")
         if not converged:
-            issues.append(f"optimiser did not converge ({best.message})")
+            issues.append(f"optimiser did not converge ({message})")
         near = int(np.sum(totals[:n_runs] <= best_total + NEAR_BEST_NATS))
         if n_runs >= 3 and near <= 1:
             issues.append(f"only {near} of {n_runs} starts (with restarts) within {NEAR_BEST_NATS} nats of the best")
@@ -262,7 +268,7 @@ def fit_participant(
     return FitResult(
         participant=participant, model=spec.label, params=dict(zip(specs, theta.tolist(), strict=True)),
         loglik=ll, n_params=len(free), n_trials=n_trials, converged=converged,
-        message=str(best.message), n_starts=n_runs,
+        message=message, n_starts=n_runs,
         starts_at_best=int(np.sum(totals[:n_runs] <= best_total + 1e-3)),
         log_posterior=(ll + log_prior(theta)) if priors else None, fast_path=fast,
         starts_near_best=near, at_bound=at_bound, fit_ok=not issues, fit_issues=tuple(issues),
