@@ -231,6 +231,9 @@ def population_section() -> list[str]:
     out += ["", "### distributions (`parameters.<name>.dist`)", "", "| dist | numbers | meaning |", "|---|---|---|"]
     out += [f"| `{d}` | {', '.join(f'`{n}`' for n in DISTRIBUTIONS[d])} | {_cell(DISTRIBUTION_MEANINGS[d])} |"
             for d in DISTRIBUTIONS]
+    out += ["", "`simulate --population FILE --log LOG` writes the true parameters beside the log as "
+            "`<log stem>_truth.csv`: one row per participant with `participant`, `model` (the label), `agent`, "
+            "`options` (the agent's options as JSON) and one column per parameter of the agent (free and fixed)."]
     return out + [""]
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import numpy as np
@@ -72,6 +73,12 @@ def test_simulate_population_writes_log_and_truth_and_keeps_files(tmp_path: Path
     assert log["participant"].nunique() == 5 and len(log) == 5 * 30  # the schedule file's 2 x 15 trials
     assert set(truth["participant"]) == set(log["participant"]) and set(truth["model"]) == {"rw", "sticky"}
     assert truth.loc[truth["model"] == "rw", "beta"].eq(2.0).all()
+    # the truth file names the generating agent and its options, so it can be refitted without the spec
+    sticky = truth[truth["model"] == "sticky"]
+    assert set(truth.loc[truth["model"] == "rw", "agent"]) == {"rescorla_wagner"}
+    assert set(sticky["agent"]) == {"composed_learner"}
+    mechanisms = SPEC["models"]["sticky"]["options"]["mechanisms"]
+    assert all(json.loads(o) == {"mechanisms": mechanisms} for o in sticky["options"])
     assert "rw.alpha: uniform(low=0.2, high=0.4)" in capsys.readouterr().out
     # never overwritten without --overwrite
     assert main(args) == 2

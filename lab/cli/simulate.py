@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import json
 from pathlib import Path
 
 import numpy as np
@@ -80,6 +81,8 @@ def run_population(args: argparse.Namespace) -> int:
         log, truth = simulate_known(world, pop.spec, pop.participants, rng, prefix=f"{pop.spec.label}-",
                                     population=pop)
         truth.insert(1, "model", pop.spec.label)
+        truth.insert(2, "agent", pop.spec.name)
+        truth.insert(3, "options", json.dumps(dict(pop.spec.options), sort_keys=True))
         logs.append(log)
         truths.append(truth)
     log = validate_log(pd.concat(logs, ignore_index=True), world.commands, source="simulated population")
