@@ -7,6 +7,12 @@ world's content digest (:meth:`~shortcut_gym.envs.world.World.digest`) with the 
 happens under a lock, so threads asking for the same world wait for one plan instead of each
 making their own. The seconds spent planning are counted (:func:`planning_seconds`), so drivers
 report them apart from simulation time.
+
+With a plan store in use (:mod:`.plan_store`: a folder on disk, set per process or by
+``SHORTCUT_GYM_PLAN_STORE``; a sweep sets its own) a plan missing in memory is read from the store
+when another process made it, and a plan made here is written there; one process plans a world
+at a time (a lock per entry), so every worker of a sweep shares one plan per world. Plans read
+from the store are counted apart (:func:`plans_loaded`, :func:`loading_seconds`).
 """
 
 from __future__ import annotations
@@ -15,6 +21,7 @@ import threading
 import time
 from collections import OrderedDict
 
+from shortcut_gym.agents.planner import plan_store
 from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, plan_world
 from shortcut_gym.envs.world import World
 
@@ -23,7 +30,7 @@ MAX_PLANS = 64
 
 _plans: OrderedDict[tuple, Plan] = OrderedDict()
 _lock = threading.Lock()
-_spent: dict[str, float] = {"seconds": 0.0, "plans": 0}
+_spent: dict[str, float] = {"seconds": 0.0, "plans": 0, "loaded": 0, "load_seconds": 0.0}
 
 
 def plan_key(world: World, max_uses: int, n_bins: int, keyboard_share: float | None, n_weight_bins: int,
@@ -41,7 +48,8 @@ def cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_share: f
 
 def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_share: float | None = None,
                       n_weight_bins: int = 10, select_users: int = SELECTION_USERS) -> tuple[Plan, float]:
-    """:func:`cached_plan` and the seconds this call spent planning (0.0 when the plan was cached)."""
+    """:func:`cached_plan` and the seconds this call spent on the plan (planning it, or reading it
+    from the plan store; 0.0 when it was in memory)."""
     key = plan_key(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
     with _lock:
         plan = _plans.get(key)
@@ -49,15 +57,32 @@ def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_sh
             _plans.move_to_end(key)
             return plan, 0.0
         start = time.perf_counter()
-        plan = plan_world(world, max_uses, n_bins, keyboard_share, n_weight_bins=n_weight_bins,
-                          select_users=select_users)
-        spent = time.perf_counter() - start
-        _spent["seconds"] += spent
-        _spent["plans"] += 1
+        store = plan_store.plan_store()
+        if store is None:
+            plan = _make(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
+        else:
+            with plan_store.key_lock(store, key):
+                plan = plan_store.load(store, key)
+                if plan is not None:
+                    _spent["loaded"] += 1
+                    _spent["load_seconds"] += time.perf_counter() - start
+                else:
+                    plan = _make(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
+                    plan_store.save(store, key, plan)
         _plans[key] = plan
         while len(_plans) > MAX_PLANS:
             _plans.popitem(last=False)
-        return plan, spent
+        return plan, time.perf_counter() - start
+
+
+def _make(world: World, max_uses: int, n_bins: int, keyboard_share: float | None, n_weight_bins: int,
+          select_users: int) -> Plan:
+    """:func:`plan_world`, counted."""
+    start = time.perf_counter()
+    plan = plan_world(world, max_uses, n_bins, keyboard_share, n_weight_bins=n_weight_bins, select_users=select_users)
+    _spent["seconds"] += time.perf_counter() - start
+    _spent["plans"] += 1
+    return plan
 
 
 def planning_seconds() -> float:
@@ -68,6 +93,16 @@ def planning_seconds() -> float:
 def plans_made() -> int:
     """Plans this process has made for :func:`cached_plan`."""
     return int(_spent["plans"])
+
+
+def plans_loaded() -> int:
+    """Plans this process has read from the plan store (made by another process or an earlier run)."""
+    return int(_spent["loaded"])
+
+
+def loading_seconds() -> float:
+    """Seconds this process has spent reading plans from the plan store."""
+    return _spent["load_seconds"]
 
 
 def clear_plans() -> None:

@@ -1,0 +1,202 @@
+"""Plans kept on disk, so that separate processes (a sweep's worker pool, Ray actors) share one plan
+per world and planning options instead of each planning it again.
+
+An entry is one file ``<store>/<key digest>.plan``: a header line (JSON: format, the entry's key,
+the payload's length and SHA-256) and the pickled :class:`~shortcut_gym.agents.planner.search.Plan`.
+The key digest covers the in-process cache key (the world's content digest and the options,
+:func:`shortcut_gym.agents.planner.cache.plan_key`), the planner's and the world's source code and
+the Python and numpy versions, so a plan made by other code is never read back as this code's.
+
+* Writes are atomic: the entry is written to a temporary file of a unique name in the store
+  (process id and a random suffix) and renamed over the entry's name.
+* Loads are verified: the header, the length, the SHA-256 of the payload, the key, and the
+  unpickled object's type. An entry that fails any check raises :class:`DamagedPlanEntry`; the
+  caller sets it aside (renamed ``*.damaged-<random>``) and plans again (never a wrong plan).
+* One process plans a key at a time: an exclusive ``fcntl.flock`` on ``<key digest>.lock`` is held
+  while an entry is looked up, made and written, so processes wanting the same plan wait for
+  one plan. (Advisory; where ``fcntl`` is missing two processes may both plan, still correctly.)
+
+The store is this user's own cache: entries are pickles, so load only stores you wrote.
+The store in use is set per process (:func:`set_plan_store`, :func:`using_plan_store`) or by the
+environment variable ``SHORTCUT_GYM_PLAN_STORE``; a sweep puts its own under ``<folder>/plans``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import json
+import logging
+import os
+import pickle
+import sys
+import uuid
+from collections.abc import Iterator
+from pathlib import Path
+
+import numpy as np
+
+from shortcut_gym.agents.planner.search import Plan
+from shortcut_gym.envs.errors import ConfigError, ShortcutGymError
+
+try:
+    import fcntl
+except ImportError:  # pragma: no cover - not POSIX
+    fcntl = None  # type: ignore[assignment]
+
+log = logging.getLogger(__name__)
+
+#: Environment variable naming a plan store folder for every process that does not set one.
+STORE_ENV = "SHORTCUT_GYM_PLAN_STORE"
+#: First bytes of an entry's header.
+FORMAT = "shortcut-gym plan entry 1"
+
+_store: dict[str, Path | None] = {"dir": None}
+_code: dict[str, str] = {}
+
+
+class DamagedPlanEntry(ShortcutGymError, ValueError):
+    """A plan store entry fails a check (header, length, checksum, key or type); the message says which."""
+
+
+def set_plan_store(folder: str | Path | None) -> Path | None:
+    """Use ``folder`` as this process's plan store (None: the environment's, else none); returns
+    the previous setting."""
+    previous = _store["dir"]
+    _store["dir"] = None if folder is None else Path(folder)
+    return previous
+
+
+def plan_store() -> Path | None:
+    """The plan store folder in use in this process (or None: plans are kept in memory only)."""
+    if _store["dir"] is not None:
+        return _store["dir"]
+    env = os.environ.get(STORE_ENV)
+    return Path(env) if env else None
+
+
+@contextlib.contextmanager
+def using_plan_store(folder: str | Path | None) -> Iterator[Path | None]:
+    """Use ``folder`` as the plan store inside the block (None: leave the setting as it is)."""
+    if folder is None:
+        yield plan_store()
+        return
+    previous = set_plan_store(folder)
+    try:
+        yield Path(folder)
+    finally:
+        set_plan_store(previous)
+
+
+def code_digest() -> str:
+    """SHA-256 (hex) of the planner's and the world's source files and the Python and numpy versions."""
+    if "digest" not in _code:
+        import shortcut_gym.envs
+
+        h = hashlib.sha256(f"{sys.version_info[:2]} numpy {np.__version__}".encode())
+        for folder in (Path(__file__).parent, Path(shortcut_gym.envs.__file__).parent):
+            for f in sorted(folder.glob("*.py")):
+                h.update(f.name.encode())
+                h.update(f.read_bytes())
+        _code["digest"] = h.hexdigest()
+    return _code["digest"]
+
+
+def entry_name(key: tuple) -> str:
+    """The file stem of a key's entry: SHA-256 of the key and the code digest."""
+    return hashlib.sha256(f"{key!r}|{code_digest()}".encode()).hexdigest()
+
+
+def _folder(store: Path) -> Path:
+    try:
+        store.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise ConfigError(f"plan store {store}: cannot create the folder: {err}") from None
+    if not os.access(store, os.W_OK):
+        raise ConfigError(f"plan store {store}: the folder is not writable")
+    return store
+
+
+@contextlib.contextmanager
+def key_lock(store: Path, key: tuple) -> Iterator[None]:
+    """Hold the exclusive lock of ``key``'s entry (other processes wanting it wait)."""
+    path = _folder(store) / f"{entry_name(key)}.lock"
+    with open(path, "a+b") as fh:
+        if fcntl is not None:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+        try:
+            yield
+        finally:
+            if fcntl is not None:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+
+
+def entry_path(store: Path, key: tuple) -> Path:
+    """Where ``key``'s entry lives in ``store``."""
+    return store / f"{entry_name(key)}.plan"
+
+
+def encode(key: tuple, plan: Plan) -> bytes:
+    """An entry's bytes: header line and pickled plan."""
+    payload = pickle.dumps(plan, protocol=pickle.HIGHEST_PROTOCOL)
+    header = {"format": FORMAT, "key": repr(key), "code": code_digest(), "bytes": len(payload),
+              "sha256": hashlib.sha256(payload).hexdigest()}
+    return json.dumps(header, sort_keys=True).encode() + b"\n" + payload
+
+
+def decode(data: bytes, key: tuple, where: str = "<entry>") -> Plan:
+    """The plan of an entry's bytes, after every check; :class:`DamagedPlanEntry` naming the failed one."""
+    line, sep, payload = data.partition(b"\n")
+    try:
+        header = json.loads(line) if sep else None
+    except ValueError:
+        header = None
+    if not isinstance(header, dict) or header.get("format") != FORMAT:
+        raise DamagedPlanEntry(f"{where}: no plan entry header")
+    if header.get("key") != repr(key) or header.get("code") != code_digest():
+        raise DamagedPlanEntry(f"{where}: the entry holds another key or code version")
+    if header.get("bytes") != len(payload):
+        raise DamagedPlanEntry(f"{where}: {len(payload)} payload bytes, the header says {header.get('bytes')}")
+    if hashlib.sha256(payload).hexdigest() != header.get("sha256"):
+        raise DamagedPlanEntry(f"{where}: the payload's SHA-256 differs from the header's")
+    try:
+        plan = pickle.loads(payload)
+    except Exception as err:  # noqa: BLE001 - any unpickling fault is a damaged entry
+        raise DamagedPlanEntry(f"{where}: the payload does not unpickle: {type(err).__name__}: {err}") from None
+    if not isinstance(plan, Plan):
+        raise DamagedPlanEntry(f"{where}: the payload is a {type(plan).__name__}, not a Plan")
+    return plan
+
+
+def load(store: Path, key: tuple) -> Plan | None:
+    """``key``'s plan from ``store`` (None when absent). A damaged entry is set aside (renamed
+    ``*.damaged-<random>``, a warning logged) and None returned, so the caller plans again."""
+    path = entry_path(store, key)
+    try:
+        data = path.read_bytes()
+    except FileNotFoundError:
+        return None
+    try:
+        return decode(data, key, str(path))
+    except DamagedPlanEntry as err:
+        aside = path.with_name(f"{path.name}.damaged-{uuid.uuid4().hex[:8]}")
+        with contextlib.suppress(OSError):
+            os.replace(path, aside)
+        log.warning("%s; set aside as %s, planning again", err, aside.name)
+        return None
+
+
+def save(store: Path, key: tuple, plan: Plan) -> Path:
+    """Write ``key``'s entry atomically (a uniquely named temporary file renamed over it)."""
+    path = entry_path(_folder(store), key)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}-{uuid.uuid4().hex}.tmp")
+    try:
+        with open(tmp, "wb") as fh:
+            fh.write(encode(key, plan))
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            tmp.unlink()
+    return path
