@@ -97,7 +97,8 @@ class _RunWorker:
 def _failed(runs: list[dict[str, Any]], err: BaseException) -> list[dict[str, Any]]:
     """Failure results for runs whose worker was lost (the runs themselves may be fine)."""
     return [{"run_id": r["run_id"], "status": "failed", "error": f"worker lost: {type(err).__name__}: {err}",
-             "traceback": "", "compute_s": 0.0, "plan_s": 0.0, "pid": None} for r in runs]
+             "traceback": "", "compute_s": 0.0, "plan_s": 0.0, "plans_made": 0, "plans_loaded": 0,
+             "pid": None} for r in runs]
 
 
 class RayBackend:
@@ -220,6 +221,7 @@ def warm_up_copy(run: dict[str, Any]) -> dict[str, Any]:
     """A tiny copy of a run (one user, one session of two trials) whose result is thrown away."""
     settings = {**run["settings"], "schedule": {**run["settings"]["schedule"], "sessions": 1,
                                                 "trials_per_session": 2, "gap_h": 1.0}}
+    run = {k: v for k, v in run.items() if k != "plan_store"}  # the tiny world's plan stays out of the store
     return {**run, "run_id": "warm-up", "seeds": run["seeds"][:1], "settings": settings, "trial_tables": False,
             "warm_up": True}
 

@@ -15,6 +15,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.agents.planner import cache as plan_cache
+from shortcut_gym.agents.planner.plan_store import using_plan_store
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.lab.sweep.batch import BlockSums, prepare_agent, simulate_users, trial_table
 from shortcut_gym.lab.sweep.plan import world_from_settings
@@ -78,13 +80,21 @@ def user_table(run: dict[str, Any], sums: BlockSums) -> pd.DataFrame:
 
 def compute_run(run: dict[str, Any]) -> dict[str, Any]:
     """Simulate one run; returns status, tables (or the error), the compute time ``compute_s`` and,
-    within it, the time spent planning ``plan_s`` (a planner's plan for the run's world, made once per
-    world in the worker process: 0 when an earlier run of the same world made it)."""
+    within it, the time spent on the plan ``plan_s`` (a planner's plan for the run's world: made, or
+    read from the plan store, once per world in the worker process; 0 when an earlier run of the
+    same world in this process had it), and the plans this run made and read (``plans_made``,
+    ``plans_loaded``).
+
+    ``run["plan_store"]`` (optional): the folder of the on-disk plan store
+    (:mod:`shortcut_gym.agents.planner.plan_store`) shared by every worker of the sweep, so each
+    distinct world is planned once in all."""
     start = time.perf_counter()
     plan_s = 0.0
+    made, loaded = plan_cache.plans_made(), plan_cache.plans_loaded()
     try:
         world = world_from_settings(run["settings"])
-        plan_s = prepare_agent(run["agent"], world)
+        with using_plan_store(run.get("plan_store")):
+            plan_s = prepare_agent(run["agent"], world)
         record = "trials" if run.get("trial_tables") else "blocks"
         sums = simulate_users(world, run["agent"], run["seeds"], record=record)
         result: dict[str, Any] = {
@@ -102,6 +112,8 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
                   "traceback": traceback.format_exc()}
     result["compute_s"] = time.perf_counter() - start
     result["plan_s"] = plan_s
+    result["plans_made"] = plan_cache.plans_made() - made
+    result["plans_loaded"] = plan_cache.plans_loaded() - loaded
     result["pid"] = os.getpid()
     log = os.environ.get(COMPUTE_LOG_ENV)
     if log and not run.get("warm_up"):

@@ -40,7 +40,9 @@ class SweepReport:
     recomputed: list[str] = field(default_factory=list)  # finished runs found missing or damaged, computed again
     notes: list[str] = field(default_factory=list)  # what the resume found (stale lock, damaged runs, code change)
     compute_s: float = 0.0  # summed in-worker seconds of the runs computed now, planning included
-    plan_s: float = 0.0  # of which planning (plans are made once per world in each worker process)
+    plan_s: float = 0.0  # of which planning or reading plans (the plan store: once per world in all)
+    plans_made: int = 0  # plans computed by the runs computed now (at most one per distinct world)
+    plans_loaded: int = 0  # plans those runs read from the plan store (made by another worker or sweep)
 
     def lines(self) -> list[str]:
         """Human-readable summary lines."""
@@ -51,7 +53,8 @@ class SweepReport:
                        f"(damaged files set aside under damaged/): {', '.join(self.recomputed)}")
         if self.computed:
             out.append(f"  in-worker compute {self.compute_s:.2f} s: simulation {self.compute_s - self.plan_s:.2f} s, "
-                       f"planning {self.plan_s:.2f} s")
+                       f"planning {self.plan_s:.2f} s ({self.plans_made} plan(s) made, "
+                       f"{self.plans_loaded} read from the plan store)")
         out += [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
         out += [f"  wrote {name}: {path}" for name, path in self.outputs.items()]
         return out
@@ -88,6 +91,15 @@ def _check_notes(check: FolderCheck) -> list[str]:
     return notes
 
 
+def _plan_store_of(store: SweepStore, engine: LocalBackend | RayBackend, plan_store: str | Path | None) -> str | None:
+    """The plan store folder the workers share (None: each worker keeps its plans in memory)."""
+    if plan_store is not None:
+        return str(Path(plan_store).resolve())
+    if isinstance(engine, RayBackend) and engine.address is not None:
+        return None  # the sweep folder may not be reachable from the cluster's nodes
+    return str(store.plans_dir.resolve())
+
+
 def _spec_and_source(spec: SweepSpec | dict | str | Path) -> tuple[SweepSpec, str]:
     if isinstance(spec, SweepSpec):
         return spec, "<sweep spec>"
@@ -105,8 +117,14 @@ def run_sweep(
     retry_failed: bool = False,
     progress: bool = True,
     write_outputs: bool = True,
+    plan_store: str | Path | None = None,
 ) -> SweepReport:
-    """Compute every run of ``spec`` not yet finished in ``folder``; write tables and plots."""
+    """Compute every run of ``spec`` not yet finished in ``folder``; write tables and plots.
+
+    Planner plans go through an on-disk plan store shared by every worker: ``plan_store`` (a
+    folder, which several sweeps may share), by default ``<folder>/plans``; for a Ray cluster at
+    ``address`` only when ``plan_store`` is given (a folder every node can reach). Each distinct
+    world and planning options is then planned once in all, whatever the worker count."""
     start = time.perf_counter()
     sweep, source = _spec_and_source(spec)
     runs = plan_runs(sweep, source)
@@ -125,8 +143,9 @@ def run_sweep(
         if started:
             engine.stop()
         raise
-    computed = 0
+    computed = plans_made = plans_loaded = 0
     compute_s = plan_s = 0.0
+    shared = _plan_store_of(store, engine, plan_store)
     try:
         previous = store.open(sweep.model_dump(mode="json"), runs, digest)
         check = store.check([r["run_id"] for r in runs]) if previous is not None else None
@@ -158,11 +177,15 @@ def run_sweep(
         if todo:
             bar = tqdm(total=kept + len(todo), initial=kept, desc=f"sweep {sweep.name}", unit="run",
                        disable=not progress, file=sys.stderr, dynamic_ncols=True)
+            if shared is not None:
+                todo = [{**r, "plan_store": shared} for r in todo]
             for result in engine.run(todo):
                 store.write_result(result)
                 computed += 1
                 compute_s += float(result.get("compute_s") or 0.0)
                 plan_s += float(result.get("plan_s") or 0.0)
+                plans_made += int(result.get("plans_made") or 0)
+                plans_loaded += int(result.get("plans_loaded") or 0)
                 bar.update(1)
             bar.close()
         if started:
@@ -170,8 +193,9 @@ def run_sweep(
             started = False
         status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
         report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0, recomputed=redo,
-                             notes=notes, compute_s=compute_s, plan_s=plan_s)
-        store.log({"event": "finish", **status})
+                             notes=notes, compute_s=compute_s, plan_s=plan_s,
+                             plans_made=plans_made, plans_loaded=plans_loaded)
+        store.log({"event": "finish", **status, "plans_made": plans_made, "plans_loaded": plans_loaded})
         if write_outputs:
             from shortcut_gym.lab.sweep.outputs import write_outputs as _write
 

@@ -9,6 +9,8 @@ Layout::
     <folder>/.lock                the OS lock of the process working on the folder (pid, host)
     <folder>/runs/<run_id>/       one finished run: blocks.parquet, commands.parquet, users.parquet, meta.json
     <folder>/runs/<run_id>.failed.json   one failed run: its error and traceback
+    <folder>/plans/               the plan store shared by the sweep's workers (one verified entry per
+                                  world and planning options, see agents.planner.plan_store)
     <folder>/damaged/             runs set aside by a resume because their files were damaged
     <folder>/log.jsonl            one line per event (start, resume, check, run done / failed, finish)
 
@@ -72,6 +74,7 @@ class SweepStore:
         self.folder = Path(folder)
         self.runs_dir = self.folder / "runs"
         self.manifest_path = self.folder / "manifest.json"
+        self.plans_dir = self.folder / "plans"
         #: run id -> file digests of the finished runs this store knows (loaded by ``open``/``check``).
         self.finished: dict[str, dict[str, str]] = {}
         self._dirty_since: float | None = None
@@ -225,7 +228,8 @@ class SweepStore:
         """Store one run's result atomically (a folder rename, or a failure file rename) and record its digests."""
         run_id = result["run_id"]
         if result["status"] == "failed":
-            keys = ("run_id", "status", "error", "traceback", "compute_s", "plan_s", "pid")
+            keys = ("run_id", "status", "error", "traceback", "compute_s", "plan_s", "plans_made", "plans_loaded",
+                    "pid")
             record = {k: result.get(k) for k in keys}
             atomic_write_text(self.runs_dir / f"{run_id}.failed.json", json.dumps(record, indent=1))
             self.log({"event": "run_failed", "run_id": run_id, "error": result.get("error")})
@@ -240,7 +244,8 @@ class SweepStore:
                     result[table].to_parquet(path, index=False)
                     tables[path.name] = file_digest(path)
             meta = {"run_id": run_id, "status": "done", "compute_s": result.get("compute_s"),
-                    "plan_s": result.get("plan_s"), "pid": result.get("pid"),
+                    "plan_s": result.get("plan_s"), "plans_made": result.get("plans_made"),
+                    "plans_loaded": result.get("plans_loaded"), "pid": result.get("pid"),
                     "written": time.time(), "files": tables}
             (tmp / "meta.json").write_text(json.dumps(meta, indent=1))
             for f in tmp.iterdir():
