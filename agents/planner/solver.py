@@ -48,27 +48,40 @@ def solve_finite_horizon(P: Any, R: np.ndarray, n_stages: int) -> tuple[np.ndarr
     return V, policy
 
 
+@njit(cache=True, inline="always")
+def expected_next_value(P: CsrRows, row: int, prev: np.ndarray) -> float:
+    """Sum over row ``row`` of the stacked P (a * S + s) of P[row, j] x prev[j], added in the
+    order of scipy's sparse product."""
+    acc = 0.0
+    for jj in range(P.indptr[row], P.indptr[row + 1]):
+        acc += P.data[jj] * prev[P.indices[jj]]
+    return acc
+
+
+@njit(cache=True, inline="always")
+def bellman_backup(P: CsrRows, reward: np.ndarray, prev: np.ndarray, value: np.ndarray, action: np.ndarray) -> None:
+    """One stage of backward induction: value[s] = max over a of reward[s, a] + the expected
+    ``prev`` after (s, a), action[s] the maximising action (ties to the lowest index)."""
+    n_states, n_actions = reward.shape
+    for s in range(n_states):
+        best = -np.inf
+        best_a = -1
+        for a in range(n_actions):
+            q = reward[s, a] + expected_next_value(P, a * n_states + s, prev)
+            if best_a < 0 or q > best:
+                best, best_a = q, a
+        action[s] = best_a
+        value[s] = best
+
+
 @njit(cache=True)
 def backward_induction_csr(P: CsrRows, R: np.ndarray, n_stages: int) -> tuple[np.ndarray, np.ndarray]:
     """Backward induction over the row-stacked CSR arrays of P; R is (S x actions)."""
-    n_states, n_actions = R.shape
+    n_states = R.shape[0]
     V = np.zeros((n_stages + 1, n_states))
     policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
     for n in range(1, n_stages + 1):
-        prev = V[n - 1]
-        for s in range(n_states):
-            best = -np.inf
-            best_a = -1
-            for a in range(n_actions):
-                row = a * n_states + s
-                acc = 0.0
-                for jj in range(P.indptr[row], P.indptr[row + 1]):
-                    acc += P.data[jj] * prev[P.indices[jj]]
-                q = R[s, a] + acc
-                if best_a < 0 or q > best:
-                    best, best_a = q, a
-            policy[n, s] = best_a
-            V[n, s] = best
+        bellman_backup(P, R, V[n - 1], V[n], policy[n])
     return V, policy
 
 
@@ -77,25 +90,14 @@ def backward_induction_staged(P: CsrRows, R: np.ndarray, extra: np.ndarray, per_
                               n_stages: int) -> tuple[np.ndarray, np.ndarray]:
     """:func:`backward_induction_csr` with a stage-dependent reward R[s, a] + extra[s, a] x
     per_stage[n] at n stages left (the menu-expertise term, see :func:`.search.solve_at_shares`)."""
-    n_states, n_actions = R.shape
+    n_states = R.shape[0]
     V = np.zeros((n_stages + 1, n_states))
     policy = np.full((n_stages + 1, n_states), -1, dtype=np.int64)
+    stage_reward = np.empty_like(R)
     for n in range(1, n_stages + 1):
-        prev = V[n - 1]
-        w = per_stage[n]
-        for s in range(n_states):
-            best = -np.inf
-            best_a = -1
-            for a in range(n_actions):
-                row = a * n_states + s
-                acc = 0.0
-                for jj in range(P.indptr[row], P.indptr[row + 1]):
-                    acc += P.data[jj] * prev[P.indices[jj]]
-                q = R[s, a] + extra[s, a] * w + acc
-                if best_a < 0 or q > best:
-                    best, best_a = q, a
-            policy[n, s] = best_a
-            V[n, s] = best
+        np.multiply(extra, per_stage[n], stage_reward)
+        np.add(R, stage_reward, stage_reward)  # R + extra x per_stage[n], as one sum in the same order
+        bellman_backup(P, stage_reward, V[n - 1], V[n], policy[n])
     return V, policy
 
 
@@ -154,9 +156,5 @@ def policy_evaluation_staged(P: CsrRows, R: np.ndarray, extra: np.ndarray, per_s
         w = per_stage[n]
         for s in range(n_states):
             a = policy[n, s]
-            row = a * n_states + s
-            acc = 0.0
-            for jj in range(P.indptr[row], P.indptr[row + 1]):
-                acc += P.data[jj] * prev[P.indices[jj]]
-            V[n, s] = R[s, a] + extra[s, a] * w + acc
+            V[n, s] = R[s, a] + extra[s, a] * w + expected_next_value(P, a * n_states + s, prev)
     return V
