@@ -103,21 +103,7 @@ class SB3Agent(Agent):
         return self
 
     def action_probabilities(self, obs: np.ndarray, info: dict[str, Any]) -> np.ndarray:
-        if self.model is None:
-            raise NotReadyError(f"{self.name}: train or load a model before use")
-        import torch
-
-        policy = self.model.policy
-        with torch.no_grad():
-            tensor = policy.obs_to_tensor(self._prepare(obs))[0]
-            if self.algorithm == "dqn":
-                q = policy.q_net(tensor)[0].numpy()
-                eps = float(self.model.exploration_rate)
-                p = np.full(3, eps / 3)
-                p[int(np.argmax(q))] += 1 - eps
-                return p
-            probs = policy.get_distribution(tensor).distribution.probs[0].numpy().astype(np.float64)
-        return probs / probs.sum()
+        return self.probability_rows(np.asarray(obs)[None])[0]
 
     def probability_rows(self, obs: np.ndarray) -> np.ndarray:
         """(B, 3) :meth:`action_probabilities` of B observations in one forward pass of the policy."""
