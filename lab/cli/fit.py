@@ -7,19 +7,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from shortcut_gym.lab.cli.options import (
-    add_common,
-    add_skip_bad,
-    claim_output,
-    models_of,
-    priors_of,
-    report_skipped,
-    start_ranges_of,
-    status,
-    world_of,
-)
-from shortcut_gym.lab.cli.ranges import input_file
-from shortcut_gym.lab.data.logs import read_log
+from shortcut_gym.lab.cli.options import add_log_fit_options, log_fit_inputs, status
 from shortcut_gym.lab.fitting import (
     HierarchicalFit,
     context_for,
@@ -35,30 +23,16 @@ from shortcut_gym.lab.fitting import (
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``fit`` subcommand."""
     p = sub.add_parser("fit", help="fit models to a trial log by maximum likelihood (or MAP with --prior)")
-    p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
-    add_common(p)
-    add_skip_bad(p)
-    p.add_argument("--prior", action="append", default=None,
-                   help="label:param=family:a:b (normal, beta, gamma, lognormal) for a MAP fit (repeatable)")
-    p.add_argument("--hierarchical", action="store_true",
-                   help="also fit each model hierarchically (EM, Gaussian group prior, Laplace per participant) "
-                        "and write its group parameters, MAPs with posterior SDs and integrated BIC")
+    add_log_fit_options(p, "write its group parameters, MAPs with posterior SDs and integrated BIC",
+                        "write cv_folds.csv, cv.csv")
     p.add_argument("--covariance", choices=("diagonal", "full"), default="diagonal",
                    help="group prior covariance of --hierarchical (default diagonal)")
-    p.add_argument("--cross-validate", action="store_true",
-                   help="also score each model on held-out sessions (leave one session out): cv_folds.csv, cv.csv")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     """Fit and write ``fits.csv`` (one row per participant x model) and ``parameters.csv`` (long)."""
-    claim_output(args.out, args)
-    world = world_of(args)
-    specs = models_of(args)
-    priors = priors_of(args.prior, specs)
-    ranges = start_ranges_of(args.start_range, specs)
-    log = read_log(args.log, world.commands, args.skip_bad_participants)
-    report_skipped(log)
+    world, specs, priors, ranges, log = log_fit_inputs(args)
     fits = fit_log(log, specs, context_for(log, world.commands.names, world), args.starts, args.seed, args.jobs, priors,
                    progress=not args.quiet, start_ranges=ranges, intervals=args.intervals)
     args.out.mkdir(parents=True, exist_ok=True)

@@ -15,7 +15,7 @@ import argparse
 import logging
 import sys
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple
 
 import pandas as pd
 
@@ -26,6 +26,7 @@ from shortcut_gym.envs.world import World, make_world
 from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.ranges import input_file, output_folder, seed, whole_number
 from shortcut_gym.lab.cli.specs import SYNTAX, agent_spec_dict, is_number, parse_spec
+from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.fitting import INTERVAL_METHODS, PRIOR_FAMILIES, ModelSpec, make_prior
 
 MODEL_HELP = (f"model as {SYNTAX}; keys that are parameters are held fixed, others are options; values are "
@@ -188,6 +189,47 @@ def add_skip_bad(p: argparse.ArgumentParser) -> None:
     p.add_argument("--skip-bad-participants", action="store_true",
                    help="leave out participants whose log rows have faults (each listed with its first fault) "
                         "and fit the rest, instead of stopping at the log's faults")
+
+
+def add_log_fit_options(p: argparse.ArgumentParser, hierarchical_use: str, cross_validation_use: str) -> None:
+    """The options of the subcommands that fit models to a trial log (``fit``, ``report``): the log,
+    :func:`add_common`'s, ``--skip-bad-participants``, ``--prior``, ``--hierarchical`` and
+    ``--cross-validate``, whose help ends with what the subcommand does with them."""
+    p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
+    add_common(p)
+    add_skip_bad(p)
+    p.add_argument("--prior", action="append", default=None,
+                   help="label:param=family:a:b (normal, beta, gamma, lognormal) for a MAP fit (repeatable)")
+    p.add_argument("--hierarchical", action="store_true",
+                   help="also fit each model hierarchically (EM, Gaussian group prior, Laplace per participant) "
+                        "and " + hierarchical_use)
+    p.add_argument("--cross-validate", action="store_true",
+                   help="also score each model on held-out sessions (leave one session out) and "
+                        + cross_validation_use)
+
+
+class LogFitInputs(NamedTuple):
+    """What :func:`add_log_fit_options` names, read and checked (:func:`log_fit_inputs`)."""
+
+    world: World
+    specs: list[ModelSpec]
+    priors: dict[str, dict]
+    start_ranges: dict[str, dict[str, tuple[float, float]]]
+    log: pd.DataFrame
+
+
+def log_fit_inputs(args: argparse.Namespace) -> LogFitInputs:
+    """Claim ``--out``, then read the world, the models, their priors and start ranges (so a
+    mistyped option fails before the log is read) and the log, reporting the participants
+    ``--skip-bad-participants`` left out."""
+    claim_output(args.out, args)
+    world = world_of(args)
+    specs = models_of(args)
+    priors = priors_of(args.prior, specs)
+    ranges = start_ranges_of(args.start_range, specs)
+    log = read_log(args.log, world.commands, args.skip_bad_participants)
+    report_skipped(log)
+    return LogFitInputs(world, specs, priors, ranges, log)
 
 
 def report_skipped(log: pd.DataFrame) -> None:
