@@ -22,6 +22,7 @@ from shortcut_gym.envs.observation import (
     X_LEARN_COUNT,
     X_RECALL,
     X_SINCE_LAST_USE,
+    write_target,
 )
 
 # ---- action and outcome codes -------------------------------------------------------------
@@ -223,12 +224,7 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
     tt = horizon - 1 if done else t
     c = sched_cmd[tt]
     obs[:] = 0.0
-    if ipar[I_ONEHOT] == 1:
-        obs[c] = 1.0
-        k = n_cmd
-    else:
-        obs[0] = c / max(n_cmd - 1, 1)
-        k = 1
+    k = write_target(obs, c, n_cmd, ipar[I_ONEHOT] == 1)
     obs[k + X_EXPOSURES] = math.log1p(ist[c, S_EXPOSURE])
     obs[k + X_SINCE_LAST_USE] = seconds_since_last_use_feature(ist, fs, c, sched_onset[tt])
     obs[k + X_HOTKEY_SUCCESSES] = math.log1p(ist[c, S_HK_OK])

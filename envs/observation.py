@@ -4,7 +4,8 @@ An observation is a flat float32 vector: the target block (a one-hot over the co
 entry ``target / (n_commands - 1)`` with the index encoding), then :data:`FEATURES` in order, then
 the true recall probability when the world exposes it. The compiled kernel writes it with the
 offsets below (:data:`X_EXPOSURES` ... :data:`X_RECALL`, counted from the end of the target
-block); :class:`ObservationLayout` gives the same layout to everyone else (the world's names and
+block) and :func:`write_target` (which also serves plain Python); :class:`ObservationLayout` gives
+the same layout to everyone else (the world's names and
 length, the env's ``observation_space``, agents locating a feature, the lab rebuilding
 observations from a trial log).
 """
@@ -16,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from gymnasium import spaces
+from numba.extending import register_jitable
 
 from shortcut_gym.envs.errors import ConfigError, DataError
 
@@ -40,6 +42,24 @@ LOG_FEATURE_HIGH = 25.0
 _UNIT_FEATURES = frozenset({"hand_on_keyboard", "horizon_left_fraction", RECALL_FEATURE})
 
 
+@register_jitable
+def target_block_size(n_commands: int, onehot: bool) -> int:
+    """Entries of the target block: ``n_commands`` one-hot, 1 as an index entry."""
+    return n_commands if onehot else 1
+
+
+@register_jitable
+def write_target(obs: np.ndarray, command: int, n_commands: int, onehot: bool) -> int:
+    """Write ``command``'s target block at the start of ``obs`` (zeros there before): a one-hot
+    entry, or ``command / (n_commands - 1)`` with the index encoding. Returns the block's size,
+    where :data:`FEATURES` start. Callable from compiled code (the kernel) and plain Python."""
+    if onehot:
+        obs[command] = 1.0
+    else:
+        obs[0] = command / max(n_commands - 1, 1)
+    return target_block_size(n_commands, onehot)
+
+
 @dataclass(frozen=True)
 class ObservationLayout:
     """The observation layout of a world with ``n_commands`` commands.
@@ -58,8 +78,8 @@ class ObservationLayout:
 
     @property
     def target_size(self) -> int:
-        """Entries of the target block (n_commands one-hot, 1 as an index)."""
-        return self.n_commands if self.onehot else 1
+        """Entries of the target block (:func:`target_block_size`)."""
+        return target_block_size(self.n_commands, self.onehot)
 
     @property
     def dim(self) -> int:

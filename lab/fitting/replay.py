@@ -21,7 +21,7 @@ from shortcut_gym.agents.base import Agent, AgentContext, LikelihoodAgent, Trans
 from shortcut_gym.agents.learning import TrialArrays
 from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
 from shortcut_gym.envs.kernel import ACTION_NAMES
-from shortcut_gym.envs.observation import ObservationLayout
+from shortcut_gym.envs.observation import ObservationLayout, write_target
 from shortcut_gym.lab.fitting.specs import ModelSpec
 
 LogLik = Callable[[np.ndarray], float]
@@ -46,7 +46,7 @@ def _observations(trials: pd.DataFrame, n_commands: int) -> np.ndarray:
     for t in range(n):
         c = int(cmd[t])
         o = obs[t]
-        o[c] = 1.0
+        write_target(o, c, n_commands, layout.onehot)
         o[at["log1p_exposures"]] = math.log1p(exposures[c])
         if exposures[c] > 0:
             o[at["log1p_seconds_since_last_use"]] = math.log1p(max(onset[t] - last[c], 0.0))
