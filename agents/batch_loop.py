@@ -1,11 +1,12 @@
 """What the compiled batch loops of every batch policy share.
 
-The learning models' fused loop (:mod:`shortcut_gym.agents.learning.fused`) and the frozen
-policies' loop (:mod:`shortcut_gym.agents.frozen_policy`) both run a just-reset
+The learning models' fused loop (:mod:`shortcut_gym.agents.learning.fused`), the frozen
+policies' loop (:mod:`shortcut_gym.agents.frozen_policy`) and the planner's compiled lookup
+(:mod:`shortcut_gym.agents.planner.compiled_lookup`) all run a just-reset
 :class:`~shortcut_gym.envs.simulator.BatchSimulator` to its horizon, user by user: they share the
 compilation options (:data:`RULE_JIT`), the sums they add into (:class:`SumArrays`), the step of one
 chosen trial with its counting (:func:`step_and_count`) and the checks before a run
-(:func:`check_fresh_run`). This module imports only ``envs``, so both can import it without a cycle.
+(:func:`check_fresh_run`). This module imports only ``envs``, so each can import it without a cycle.
 """
 
 from __future__ import annotations

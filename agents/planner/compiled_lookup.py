@@ -24,7 +24,7 @@ from typing import TYPE_CHECKING, NamedTuple
 import numpy as np
 from numba import njit
 
-from shortcut_gym.agents.learning.fused import SumArrays
+from shortcut_gym.agents.batch_loop import SumArrays, step_and_count
 from shortcut_gym.agents.learning.rules import RULE_JIT
 from shortcut_gym.agents.planner.batch import PlanLookupBatch
 from shortcut_gym.agents.planner.interpolation import GridConstants, bilinear_point
@@ -377,25 +377,13 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
         _clear(mem)
         for t in range(h):
             c = sched_cmd[b, t]
-            s = sched_session[b, t]
             a = decide_user(tab, mem, c, t, nw, pts)
             if record.shape[0] > 0:
                 record[b, t] = a
-            last = t == h - 1
-            o = ops[b] if last else scratch
-            dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                       sched_u, sched_session, o, last, fail_lat, sched_noise)
+            _, res = step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
+                                    sched_u, sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat,
+                                    sums, scratch)
             observe_user(tab, mem, c, t, res)
-            sums.trials[b, s] += 1
-            sums.time_s[b, s] += dur
-            sums.outcomes[b, s, res] += 1
-            sums.actions[b, s, a] += 1
-            sums.command_time_s[b, c] += dur
-            sums.command_uses[b, c] += 1
-            if last:
-                reward[b] = -dur
-                outcome[b] = res
-                p_recall[b] = pr
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
