@@ -16,6 +16,7 @@ from shortcut_gym.lab.fitting import (
     cv_table,
     fit_hierarchical_models,
     fit_log,
+    hierarchical_tables,
     long_table,
 )
 
@@ -67,6 +68,7 @@ def write_hierarchical(summary: pd.DataFrame, by_model: dict[str, HierarchicalFi
     per parameter) and ``hierarchical_participants.csv`` (MAPs with posterior SDs) in ``out``."""
     paths = [out / "hierarchical.csv", out / "hierarchical_group.csv", out / "hierarchical_participants.csv"]
     summary.to_csv(paths[0], index=False)
-    pd.concat([f.group_table() for f in by_model.values()], ignore_index=True).to_csv(paths[1], index=False)
-    pd.concat([f.participant_table() for f in by_model.values()], ignore_index=True).to_csv(paths[2], index=False)
+    groups, participants = hierarchical_tables(by_model)
+    groups.to_csv(paths[1], index=False)
+    participants.to_csv(paths[2], index=False)
     return paths

@@ -21,7 +21,12 @@ from shortcut_gym.lab.fitting.durations import (
     fit_log_durations,
     implied_world,
 )
-from shortcut_gym.lab.fitting.hierarchical import HierarchicalFit, fit_hierarchical, fit_hierarchical_models
+from shortcut_gym.lab.fitting.hierarchical import (
+    HierarchicalFit,
+    fit_hierarchical,
+    fit_hierarchical_models,
+    hierarchical_tables,
+)
 from shortcut_gym.lab.fitting.joint import joint_table
 from shortcut_gym.lab.fitting.laplace_em import EMResult, em_laplace
 from shortcut_gym.lab.fitting.nesting import nested_start
@@ -39,6 +44,7 @@ __all__ = [
     "FREE_LIMIT", "PRIOR_FAMILIES", "UNBOUNDED_LIMIT", "EMResult", "FitResult", "HierarchicalFit", "LogLik",
     "ModelSpec", "aic", "bic", "context_for", "cross_validate", "cv_summary", "cv_table", "draw_start",
     "em_laplace", "fit_hierarchical",
-    "fit_hierarchical_models", "fit_log", "fit_participant", "fitted_agent", "loglik_function", "make_prior",
+    "fit_hierarchical_models", "hierarchical_tables",
+    "fit_log", "fit_participant", "fitted_agent", "loglik_function", "make_prior",
     "replay_probabilities", "INTERVAL_METHODS", "draw_in_range", "long_table", "nested_start", "plausible_range",
 ]

@@ -13,7 +13,7 @@ summed Laplace evidence and the integrated BIC.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -169,3 +169,11 @@ def fit_hierarchical_models(log: pd.DataFrame, specs: Sequence[ModelSpec], conte
     table = pd.DataFrame([f.summary() for f in fits.values()]).sort_values("ibic").reset_index(drop=True)
     table["delta_ibic"] = table["ibic"] - table["ibic"].min()
     return table, fits
+
+
+def hierarchical_tables(fits: Mapping[str, HierarchicalFit]) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The tables of :func:`fit_hierarchical_models`' fits across models: (group mean and SD per
+    model x parameter, MAP and posterior SD per participant x model x parameter)."""
+    groups = pd.concat([f.group_table() for f in fits.values()], ignore_index=True)
+    participants = pd.concat([f.participant_table() for f in fits.values()], ignore_index=True)
+    return groups, participants

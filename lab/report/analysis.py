@@ -18,6 +18,7 @@ from shortcut_gym.lab.fitting import (
     cv_table,
     fit_hierarchical_models,
     fit_log,
+    hierarchical_tables,
     long_table,
 )
 from shortcut_gym.lab.report.criteria_verdict import (
@@ -78,11 +79,11 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     ibic = cv = None
     if hierarchical:
         ibic, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names), n_starts, seed)
-        groups = pd.concat([f.group_table() for f in by_model.values()], ignore_index=True)
+        groups, participants = hierarchical_tables(by_model)
         entries.append((write_table(ibic, out, "hierarchical"), "hierarchical fits: Laplace evidence, iBIC per model"))
         entries.append((write_table(groups, out, "hierarchical_group"), "group mean and SD per parameter"))
-        entries.append((write_table(pd.concat([f.participant_table() for f in by_model.values()], ignore_index=True),
-                                    out, "hierarchical_participants"), "MAP and posterior SD per participant"))
+        entries.append((write_table(participants, out, "hierarchical_participants"),
+                        "MAP and posterior SD per participant"))
         tables["hierarchical"] = ibic
         sections.append(hierarchical_section(ibic, groups))
     if cross_validated:
