@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+from collections import OrderedDict
 from typing import Any
 
 from shortcut_gym.agents.registry import agent_from_spec
@@ -27,6 +28,25 @@ def world_from_settings(settings: dict[str, Any]) -> World:
         schedule=settings["schedule"], observe_recall=settings["observe_recall"],
         target_encoding=settings["target_encoding"], aids=settings.get("aids"),
     )
+
+
+#: Worlds kept by :func:`run_world` (a sweep computes every agent of a point in a row).
+MAX_WORLDS = 8
+_worlds: OrderedDict[str, World] = OrderedDict()
+
+
+def run_world(settings: dict[str, Any]) -> World:
+    """:func:`world_from_settings`, built once for equal settings in this process (worlds are frozen;
+    the runs of one point share it, skipping the settings' validation for all but the first)."""
+    key = _canonical(settings)
+    world = _worlds.get(key)
+    if world is None:
+        world = _worlds[key] = world_from_settings(settings)
+        while len(_worlds) > MAX_WORLDS:
+            _worlds.popitem(last=False)
+    else:
+        _worlds.move_to_end(key)
+    return world
 
 
 def _canonical(data: Any) -> str:

@@ -19,7 +19,7 @@ from shortcut_gym.agents.planner import cache as plan_cache
 from shortcut_gym.agents.planner.plan_store import using_plan_store
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.lab.sweep.batch import BlockSums, prepare_agent, simulate_users, trial_table
-from shortcut_gym.lab.sweep.plan import world_from_settings
+from shortcut_gym.lab.sweep.plan import run_world
 
 #: Per-session metric columns of the result table (means over simulated users).
 BLOCK_METRICS = ("time_s", "time_sd_s", "hotkey_share", "hotkey_attempt_share", "learn_share", "failure_share",
@@ -29,18 +29,28 @@ BLOCK_METRICS = ("time_s", "time_sd_s", "hotkey_share", "hotkey_attempt_share", 
 COMPUTE_LOG_ENV = "SHORTCUT_GYM_SWEEP_COMPUTE_LOG"
 
 
+def _repeat(value: Any, n: int) -> np.ndarray:
+    """``value`` repeated n times as the column pandas would broadcast it to (strings as objects,
+    which the frame stores as its string dtype); building the arrays here skips pandas' slower
+    scalar broadcast, the largest cost of small tables."""
+    return np.full(n, value, dtype=object if isinstance(value, str) or value is None else None)
+
+
+def _run_columns(run: dict[str, Any], n: int) -> dict[str, Any]:
+    """The run's identifying columns (run id, index, point index, agent label) for n rows."""
+    return {"run_id": _repeat(run["run_id"], n), "run_index": _repeat(run["index"], n),
+            "point_index": _repeat(run["point_index"], n), "agent": _repeat(run["label"], n)}
+
+
 def block_table(run: dict[str, Any], sums: BlockSums) -> pd.DataFrame:
     """Per-session rows of one run: means over users of time and of action / outcome shares."""
     trials = sums.trials.astype(float)
     out = sums.outcomes.astype(float)
     act = sums.actions.astype(float)
     n_sess = trials.shape[1]
-    frame: dict[str, Any] = {
-        "run_id": run["run_id"], "run_index": run["index"], "point_index": run["point_index"],
-        "agent": run["label"],
-    }
+    frame = _run_columns(run, n_sess)
     for path, value in run["point"].items():
-        frame[path] = value
+        frame[path] = _repeat(value, n_sess)
     frame.update(
         session=np.arange(1, n_sess + 1),
         users=np.full(n_sess, trials.shape[0]),
@@ -60,8 +70,7 @@ def command_table(run: dict[str, Any], sums: BlockSums, names: tuple[str, ...]) 
     """Per-command rows of one run: mean uses and mean total time (s) per user."""
     n_cmd = sums.command_uses.shape[1]
     return pd.DataFrame({
-        "run_id": run["run_id"], "run_index": run["index"], "point_index": run["point_index"],
-        "agent": run["label"], "command": np.arange(n_cmd), "command_name": list(names),
+        **_run_columns(run, n_cmd), "command": np.arange(n_cmd), "command_name": np.array(names, dtype=object),
         "uses": sums.command_uses.mean(axis=0), "time_s": sums.command_time_s.mean(axis=0),
     })
 
@@ -69,9 +78,9 @@ def command_table(run: dict[str, Any], sums: BlockSums, names: tuple[str, ...]) 
 def user_table(run: dict[str, Any], sums: BlockSums) -> pd.DataFrame:
     """Per-user rows of one run: seed, total time (s), successful hotkey uses and learning trials, so
     that paired differences between agents on the same seeds (and their standard errors) can be computed."""
+    n_users = sums.time_s.shape[0]
     return pd.DataFrame({
-        "run_id": run["run_id"], "run_index": run["index"], "point_index": run["point_index"],
-        "agent": run["label"], "user": np.arange(sums.time_s.shape[0]), "seed": np.asarray(sums.seeds),
+        **_run_columns(run, n_users), "user": np.arange(n_users), "seed": np.asarray(sums.seeds),
         "total_time_s": sums.time_s.sum(axis=1),
         "hotkey_uses": sums.outcomes[:, :, k.OUT_HOTKEY].sum(axis=1),
         "learn_trials": sums.actions[:, :, k.LEARN].sum(axis=1),
@@ -82,19 +91,22 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
     """Simulate one run; returns status, tables (or the error), the compute time ``compute_s`` and,
     within it, the time spent on the plan ``plan_s`` (a planner's plan for the run's world: made, or
     read from the plan store, once per world in the worker process; 0 when an earlier run of the
-    same world in this process had it), and the plans this run made and read (``plans_made``,
-    ``plans_loaded``).
+    same world in this process had it), the same two as this process's CPU seconds (``compute_cpu_s``,
+    ``plan_cpu_s``: not inflated by other processes sharing the cores), and the plans this run
+    made and read (``plans_made``, ``plans_loaded``).
 
     ``run["plan_store"]`` (optional): the folder of the on-disk plan store
     (:mod:`shortcut_gym.agents.planner.plan_store`) shared by every worker of the sweep, so each
     distinct world is planned once in all."""
-    start = time.perf_counter()
-    plan_s = 0.0
+    start, cpu_start = time.perf_counter(), time.process_time()
+    plan_s = plan_cpu_s = 0.0
     made, loaded = plan_cache.plans_made(), plan_cache.plans_loaded()
     try:
-        world = world_from_settings(run["settings"])
+        world = run_world(run["settings"])
+        cpu_before = time.process_time()
         with using_plan_store(run.get("plan_store")):
             plan_s = prepare_agent(run["agent"], world)
+        plan_cpu_s = time.process_time() - cpu_before if plan_s > 0.0 else 0.0
         record = "trials" if run.get("trial_tables") else "blocks"
         sums = simulate_users(world, run["agent"], run["seeds"], record=record)
         result: dict[str, Any] = {
@@ -112,6 +124,8 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
                   "traceback": traceback.format_exc()}
     result["compute_s"] = time.perf_counter() - start
     result["plan_s"] = plan_s
+    result["compute_cpu_s"] = time.process_time() - cpu_start
+    result["plan_cpu_s"] = plan_cpu_s
     result["plans_made"] = plan_cache.plans_made() - made
     result["plans_loaded"] = plan_cache.plans_loaded() - loaded
     result["pid"] = os.getpid()

@@ -43,6 +43,7 @@ class SweepReport:
     plan_s: float = 0.0  # of which planning or reading plans (the plan store: once per world in all)
     plans_made: int = 0  # plans computed by the runs computed now (at most one per distinct world)
     plans_loaded: int = 0  # plans those runs read from the plan store (made by another worker or sweep)
+    warm_up_s: float = 0.0  # seconds the driver spent loading compiled code once before forking workers
 
     def lines(self) -> list[str]:
         """Human-readable summary lines."""
@@ -55,6 +56,8 @@ class SweepReport:
             out.append(f"  in-worker compute {self.compute_s:.2f} s: simulation {self.compute_s - self.plan_s:.2f} s, "
                        f"planning {self.plan_s:.2f} s ({self.plans_made} plan(s) made, "
                        f"{self.plans_loaded} read from the plan store)")
+        if self.warm_up_s:
+            out.append(f"  start-up {self.warm_up_s:.2f} s (compiled code loaded once, before the workers fork)")
         out += [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
         out += [f"  wrote {name}: {path}" for name, path in self.outputs.items()]
         return out
@@ -194,7 +197,8 @@ def run_sweep(
         status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
         report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0, recomputed=redo,
                              notes=notes, compute_s=compute_s, plan_s=plan_s,
-                             plans_made=plans_made, plans_loaded=plans_loaded)
+                             plans_made=plans_made, plans_loaded=plans_loaded,
+                             warm_up_s=float(getattr(engine, "warm_up_s", 0.0)))
         store.log({"event": "finish", **status, "plans_made": plans_made, "plans_loaded": plans_loaded})
         if write_outputs:
             from shortcut_gym.lab.sweep.outputs import write_outputs as _write

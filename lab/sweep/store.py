@@ -245,7 +245,8 @@ class SweepStore:
                     tables[path.name] = file_digest(path)
             meta = {"run_id": run_id, "status": "done", "compute_s": result.get("compute_s"),
                     "plan_s": result.get("plan_s"), "plans_made": result.get("plans_made"),
-                    "plans_loaded": result.get("plans_loaded"), "pid": result.get("pid"),
+                    "plans_loaded": result.get("plans_loaded"), "compute_cpu_s": result.get("compute_cpu_s"),
+                    "plan_cpu_s": result.get("plan_cpu_s"), "pid": result.get("pid"),
                     "written": time.time(), "files": tables}
             (tmp / "meta.json").write_text(json.dumps(meta, indent=1))
             for f in tmp.iterdir():

@@ -160,11 +160,17 @@ def part_heldout(quick: bool, out: Out = print) -> None:
         metas = [json.loads(p.read_text()) for p in (Path(tmp) / "s" / "runs").glob("*/meta.json")]
     plan_s = sum(m["plan_s"] for m in metas)
     compute_s = sum(m["compute_s"] for m in metas)
+    plan_cpu = sum(m["plan_cpu_s"] for m in metas)
+    compute_cpu = sum(m["compute_cpu_s"] for m in metas)
     verdict = "meets" if compute_s - plan_s < 3.0 else "above"
     out(f"\nB. Held-out style sweep: {points} points x 3 agents x 6 users x 120 trials ({runs} runs), 2 processes")
     out(f"   wall {wall:.2f} s; in-worker compute {compute_s:.2f} s = planning {plan_s:.2f} s "
         f"+ simulation {compute_s - plan_s:.2f} s (target < 3 s after planning: {verdict}); "
         f"{len(report.failed)} failed")
+    out(f"   in-worker CPU {compute_cpu:.2f} s = planning {plan_cpu:.2f} s "
+        f"+ simulation {compute_cpu - plan_cpu:.2f} s; "
+        f"{report.plans_made} plans made, {report.plans_loaded} read from the plan store; start-up before "
+        f"forking {report.warm_up_s:.2f} s; load average {load_average()}")
 
 
 def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True,
