@@ -29,6 +29,7 @@ from scipy import sparse
 from shortcut_gym.agents.base import Agent, Transition
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.info import upcoming_info
 from shortcut_gym.envs.task import session_onsets
 from shortcut_gym.envs.world import World
 
@@ -231,15 +232,18 @@ def evaluate_exactly(world: World, agent: Agent, max_states: int = MAX_STATES) -
     """Expected seconds per simulated user of ``agent``'s policy, exactly, over the same tree.
 
     For deterministic agents that decide from the target, the trial index and the outcomes they
-    observe (the planner, the fixed rules): ``act`` gets ``info`` {"target", "next_trial"} and a zero
-    observation, ``observe`` a transition whose info has "command", "trial" and "outcome" (a wrong
-    hotkey is reported as forgotten: both lead to the same state). Memoised by the simulator state,
-    so the agent's decision must be a function of it (true of both).
+    observe (the planner, the fixed rules): ``act`` gets the upcoming trial's info
+    (:func:`~shortcut_gym.envs.info.upcoming_info`) and a zero observation, ``observe`` a transition
+    whose info has "command", "trial" and "outcome" only: the next target is not drawn yet in the
+    tree, so there is no full step info to give (a wrong hotkey is reported as forgotten: both lead
+    to the same state). Memoised by the simulator state, so the agent's decision must be a function
+    of it (true of both).
     """
     from shortcut_gym.agents.rollout import context_of_world
     from shortcut_gym.envs.kernel import OUTCOME_NAMES
 
     kern = _Kernel(world)
+    names = world.commands.names
     if agent.context is None:
         agent.bind(context_of_world(world))
     agent.reset(0)
@@ -259,8 +263,8 @@ def evaluate_exactly(world: World, agent: Agent, max_states: int = MAX_STATES) -
             pc = float(kern.p_use[c])
             if pc <= 0:
                 continue
-            info: dict[str, Any] = {"target": c, "next_trial": t}
-            a = int(ag.act(obs, info))
+            info = upcoming_info(c, names[c], t, float(kern.onset[0, t]), int(kern.session[0, t]))
+            a = int(ag.act(obs, info))  # type: ignore[arg-type]
             for prob, mean_s, code, nxt in kern.outcomes(st, c, t, a):
                 child = copy.deepcopy(ag)
                 child.observe(Transition(obs, a, -mean_s, obs, {"command": c, "trial": t,  # type: ignore[arg-type]
