@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import logging
+import pickle
 from pathlib import Path
 from typing import Any
 
@@ -134,3 +135,17 @@ def test_save_is_atomic_and_leaves_no_temporary_file(tmp_path: Path) -> None:
     path = plan_store.save(tmp_path, key, plan)
     assert path.read_bytes() == data
     assert [p.name for p in tmp_path.iterdir()] == [path.name]
+
+
+def test_an_entry_stores_transitions_by_their_nonzeros_and_loads_every_array_bit_for_bit() -> None:
+    key, data, plan = _entry_bytes()
+    loaded = plan_store.decode(data, key)
+    assert len(data) < 0.75 * len(pickle.dumps(plan, protocol=pickle.HIGHEST_PROTOCOL))  # 8 bins: dense-ish
+    for ours, theirs in zip(loaded.mdps, plan.mdps, strict=True):
+        for name in ("P", "R", "activation", "p_recall", "weight", "activation_grid", "weight_grid"):
+            a, b = getattr(ours, name), getattr(theirs, name)
+            assert a.dtype == b.dtype and a.shape == b.shape and a.tobytes() == b.tobytes(), name
+        assert ours.command == theirs.command and ours.grid().n_act == theirs.grid().n_act  # cache rebuilt
+    for a, b in zip(loaded.values + loaded.policy, plan.values + plan.policy, strict=True):
+        assert a.tobytes() == b.tobytes()
+    assert loaded.choice == plan.choice and loaded.keyboard_share == plan.keyboard_share

@@ -2,7 +2,8 @@
 per world and planning options instead of each planning it again.
 
 An entry is one file ``<store>/<key digest>.plan``: a header line (JSON: format, the entry's key,
-the payload's length and SHA-256) and the pickled :class:`~shortcut_gym.agents.planner.search.Plan`.
+the payload's length and SHA-256) and the pickled :class:`~shortcut_gym.agents.planner.search.Plan`
+(each MDP's transition array by its nonzero entries, about a tenth of its dense size).
 The key digest covers the in-process cache key (the world's content digest and the options,
 :func:`shortcut_gym.agents.planner.cache.plan_key`), the planner's and the world's source code and
 the Python and numpy versions, so a plan made by other code is never read back as this code's.
@@ -25,6 +26,7 @@ from __future__ import annotations
 
 import contextlib
 import hashlib
+import io
 import json
 import logging
 import os
@@ -36,6 +38,7 @@ from pathlib import Path
 
 import numpy as np
 
+from shortcut_gym.agents.planner.mdp import CommandMDP
 from shortcut_gym.agents.planner.search import Plan
 from shortcut_gym.envs.errors import ConfigError, ShortcutGymError
 
@@ -49,7 +52,7 @@ log = logging.getLogger(__name__)
 #: Environment variable naming a plan store folder for every process that does not set one.
 STORE_ENV = "SHORTCUT_GYM_PLAN_STORE"
 #: First bytes of an entry's header.
-FORMAT = "shortcut-gym plan entry 1"
+FORMAT = "shortcut-gym plan entry 2"
 
 _store: dict[str, Path | None] = {"dir": None}
 _code: dict[str, str] = {}
@@ -136,9 +139,44 @@ def entry_path(store: Path, key: tuple) -> Path:
     return store / f"{entry_name(key)}.plan"
 
 
+def _dense_P(shape: tuple[int, int, int], rows: np.ndarray, cols: np.ndarray, data: np.ndarray) -> np.ndarray:
+    """The dense transition array (actions x S x S) of its nonzero entries (row = action * S + state)."""
+    P = np.zeros(shape, dtype=np.float64)
+    P.reshape(shape[0] * shape[1], shape[2])[rows, cols] = data
+    return P
+
+
+def _command_mdp(fields: dict, shape: tuple[int, int, int], rows: np.ndarray, cols: np.ndarray,
+                 data: np.ndarray) -> CommandMDP:
+    """A :class:`CommandMDP` from its stored fields and the nonzeros of P (see :class:`_EntryPickler`)."""
+    mdp = CommandMDP.__new__(CommandMDP)
+    mdp.__dict__.update(fields)
+    mdp.P = _dense_P(shape, rows, cols, data)
+    return mdp
+
+
+class _EntryPickler(pickle.Pickler):
+    """Pickles each MDP's transition array P by its nonzero entries (about a tenth of the dense
+    array; rebuilt exactly on load: every zero of P is +0.0, checked here) and leaves out the caches
+    derived from P (``_csr``, ``_constants``), which are rebuilt when first needed."""
+
+    def reducer_override(self, obj: object) -> object:
+        if type(obj) is not CommandMDP:
+            return NotImplemented
+        P = np.asarray(obj.P, dtype=np.float64)
+        if P.ndim != 3 or np.signbit(P[P == 0.0]).any():
+            return NotImplemented  # -0.0 would come back as +0.0: keep the dense array
+        flat = P.reshape(P.shape[0] * P.shape[1], P.shape[2])
+        rows, cols = np.nonzero(flat)
+        fields = {k: v for k, v in vars(obj).items() if k not in ("P", "_csr", "_constants")}
+        return _command_mdp, (fields, P.shape, rows.astype(np.int32), cols.astype(np.int32), flat[rows, cols])
+
+
 def encode(key: tuple, plan: Plan) -> bytes:
-    """An entry's bytes: header line and pickled plan."""
-    payload = pickle.dumps(plan, protocol=pickle.HIGHEST_PROTOCOL)
+    """An entry's bytes: header line and pickled plan (MDP transitions stored by their nonzeros)."""
+    buffer = io.BytesIO()
+    _EntryPickler(buffer, protocol=pickle.HIGHEST_PROTOCOL).dump(plan)
+    payload = buffer.getvalue()
     header = {"format": FORMAT, "key": repr(key), "code": code_digest(), "bytes": len(payload),
               "sha256": hashlib.sha256(payload).hexdigest()}
     return json.dumps(header, sort_keys=True).encode() + b"\n" + payload
