@@ -35,6 +35,7 @@ import sys
 import uuid
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -160,7 +161,7 @@ class _EntryPickler(pickle.Pickler):
     array; rebuilt exactly on load: every zero of P is +0.0, checked here) and leaves out the caches
     derived from P (``_csr``, ``_constants``), which are rebuilt when first needed."""
 
-    def reducer_override(self, obj: object) -> object:
+    def reducer_override(self, obj: object) -> Any:  # noqa: ANN401 - NotImplemented or a reduce tuple
         if type(obj) is not CommandMDP:
             return NotImplemented
         P = np.asarray(obj.P, dtype=np.float64)
