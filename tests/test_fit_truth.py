@@ -136,6 +136,34 @@ def test_every_profile_end_is_where_the_refitted_profile_drops_by_the_chi_square
     assert checked >= 6
 
 
+def test_a_parameter_at_its_bound_gets_a_one_sided_profile_interval() -> None:
+    """No Wald interval exists at a bound, but the profile one does (Venzon & Moolgavkar 1988): from
+    the bound to where ln L, that parameter held fixed and the others refitted, is 1.92 below the
+    maximum. Participants without lapses fitted with a lapse: the lapse runs to 0."""
+    world = make_world(schedule={"sessions": 3, "trials_per_session": 40, "gap_h": 20.0})
+    spec = ModelSpec("composed_learner", "vl", {"mechanisms": ["value", "lapse"]})
+    log, _ = simulate_known(world, spec, 4, np.random.default_rng(7), ranges={"lapse": (0.0, 0.001)})
+    log = validate_log(log, world.commands)
+    context = context_for(log, world.commands.names)
+    from shortcut_gym.lab.fitting import fit_participant
+
+    one_sided = 0
+    for pid in log["participant"].unique():
+        trials = participant_trials(log, pid)
+        best = fit_participant(spec, trials, context, n_starts=3, seed=0, intervals="profile")
+        for n in best.at_bound:
+            ps = spec.build().param_specs()[n]
+            lo, hi = best.lower[n], best.upper[n]
+            assert np.isfinite(lo) and np.isfinite(hi) and lo <= best.params[n] <= hi, (pid, n, lo, hi)
+            ends_off_bounds = [e for e in (lo, hi) if min(abs(e - ps.lower), abs(e - ps.upper)) >= 1e-6]
+            for end in ends_off_bounds:
+                held = fit_participant(ModelSpec(spec.name, "held", spec.options, fixed={n: end}), trials, context,
+                                       n_starts=3, seed=0, intervals="none")
+                assert best.loglik - held.loglik == pytest.approx(1.9207, abs=0.01), (pid, n, end)
+                one_sided += 1
+    assert one_sided >= 2
+
+
 def test_an_abnormal_line_search_is_accepted_only_with_its_reason(monkeypatch: pytest.MonkeyPatch) -> None:
     """L-BFGS-B ends 'ABNORMAL' at points it cannot improve (often a parameter at its bound): such a
     fit counts as converged only where the derivative-free polish or the gradient confirms it, and

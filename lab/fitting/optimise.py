@@ -310,7 +310,7 @@ def _uncertainty(neg_total, x: np.ndarray, free: list[str], specs: Mapping[str, 
         h = 1e-6
         slope = abs(s.from_free(float(x[j]) + h) - s.from_free(float(x[j]) - h)) / (2 * h)
         se[n] = float(slope * sd[j]) if np.isfinite(sd[j]) else float("nan")
-        if intervals == "profile" and n not in at_bound:
+        if intervals == "profile":  # at a bound: one-sided, the bound to where the profile drops 1.92
             lo_x, hi_x = profile_interval(neg_total, np.asarray(x, float), j, boxes, float(sd[j]), n_trials)
         elif np.isfinite(sd[j]):
             lo_x, hi_x = float(x[j]) - Z95 * sd[j], float(x[j]) + Z95 * sd[j]

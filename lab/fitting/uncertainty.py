@@ -10,7 +10,9 @@
 * Profile-likelihood intervals (option): the values where 2 (ln L_max - ln L_profile) = 3.84 (the
   chi-square(1) 95% point), the other parameters re-optimised at each point (Venzon & Moolgavkar
   1988, "A method for computing profile-likelihood-based confidence intervals", Applied
-  Statistics 37(1)). Bounds stand in where the profile never drops that far.
+  Statistics 37(1)). Bounds stand in where the profile never drops that far; a parameter fitted
+  at a bound gets a one-sided interval (the bound to where the profile drops), its Wald interval
+  stays undefined.
 """
 
 from __future__ import annotations
