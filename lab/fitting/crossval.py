@@ -28,8 +28,7 @@ from shortcut_gym.agents.base import AgentContext
 from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.lab.data.logs import participant_trials, participants
-from shortcut_gym.lab.fitting.hierarchical import free_box
-from shortcut_gym.lab.fitting.optimise import draw_start
+from shortcut_gym.lab.fitting.optimise import draw_start, free_box
 from shortcut_gym.lab.fitting.replay import loglik_function, replay_probabilities
 from shortcut_gym.lab.fitting.specs import ModelSpec
 

@@ -24,22 +24,13 @@ from shortcut_gym.agents.base import AgentContext, ParamSpec
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.lab.data.logs import participant_trials, participants
 from shortcut_gym.lab.fitting.laplace_em import EMResult, FreeLogLik, em_laplace, sampled_log_evidence
-from shortcut_gym.lab.fitting.optimise import FREE_LIMIT, UNBOUNDED_LIMIT
+from shortcut_gym.lab.fitting.optimise import free_box
 from shortcut_gym.lab.fitting.replay import loglik_function
 from shortcut_gym.lab.fitting.specs import ModelSpec
 
 #: Tolerance of the EM loop on the summed Laplace evidence (nats): far below the differences of a few
 #: nats that decide a comparison (an assumption of this project, no source).
 EVIDENCE_TOLERANCE = 0.01
-
-
-def free_box(s: ParamSpec) -> tuple[float, float]:
-    """Bounds of a parameter's unbounded coordinate kept by the optimiser (as the per-participant fit)."""
-    if s.transform in ("logit", "log"):
-        return -FREE_LIMIT, FREE_LIMIT
-    lo = s.lower if math.isfinite(s.lower) else -UNBOUNDED_LIMIT
-    hi = s.upper if math.isfinite(s.upper) else UNBOUNDED_LIMIT
-    return lo, hi
 
 
 def natural_slope(s: ParamSpec, x: float, step: float = 1e-6) -> float:

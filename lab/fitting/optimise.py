@@ -110,7 +110,9 @@ class FitResult:
         return out
 
 
-def _free_box(s: ParamSpec) -> tuple[float, float]:
+def free_box(s: ParamSpec) -> tuple[float, float]:
+    """Bounds the optimiser keeps on a parameter's unbounded coordinate: +-FREE_LIMIT for a
+    logit or log transform, else the natural bounds with an infinite side at +-UNBOUNDED_LIMIT."""
     if s.transform in ("logit", "log"):
         return -FREE_LIMIT, FREE_LIMIT
     lo = s.lower if math.isfinite(s.lower) else -UNBOUNDED_LIMIT
@@ -131,7 +133,7 @@ def draw_start(s: ParamSpec, rng: np.random.Generator) -> float:
     if s.transform == "log":
         scale = max(s.default - s.lower, 1e-3)
         return s.lower + scale * math.exp(rng.normal())
-    lo, hi = _free_box(s)
+    lo, hi = free_box(s)
     return float(np.clip(s.default + rng.normal(), lo, hi))
 
 
@@ -202,7 +204,7 @@ def fit_participant(
                          True, "no free parameters", 0, 0, ll + log_prior(base) if priors else None, fast,
                          interval_method=intervals)
     rng = np.random.default_rng(seed)
-    boxes = [_free_box(specs[n]) for n in free]
+    boxes = [free_box(specs[n]) for n in free]
 
     def to_x(values: Mapping[str, float] | Sequence[float]) -> np.ndarray:
         seq = [values[n] for n in free] if isinstance(values, Mapping) else list(values)
