@@ -79,11 +79,13 @@ def write_rationality(result: RationalityResult, out: Path) -> tuple[list[tuple[
     better = (per["better_model"] == PLANNED).sum() if "better_model" in per else 0
     sections = [
         ("Rationality against each participant's own optimum",
-         "Each participant's operator times are fitted to their own trial durations; the yardstick planner plans "
-         "for the world they imply. *Time lost* is the planner's expected seconds given up by the logged choices "
-         "(zero for optimal choices); *excess* is the logged time minus the planner's simulated mean time on the "
-         "participant's own schedule. *beta* is the fitted inverse temperature of `planned_choice` with its 95% "
-         f"profile interval (the rationality index). {better} of {len(per)} participants are better explained by "
+         "Each participant's operator times are fitted to their own trial durations; the yardstick planner "
+         "plans for the world they imply. *Time lost* is the seconds given up by the logged choices, valued by"
+         " the planner with the homing priced at the midpoint of the participant's and the optimum's hand "
+         "shares (zero for optimal choices; an upper estimate with ACT-R memory, see docs/rationality.md); "
+         "*excess* is the logged time minus the planner's simulated mean time on the participant's own "
+         "schedule. *beta* is the fitted inverse temperature of `planned_choice` with its 95% profile interval"
+         f" (the rationality index). {better} of {len(per)} participants are better explained by "
          "`planned_choice` than by the learning models (BIC).\n\n"
          + markdown_table(per[cols]) + "\n\n" + markdown_table(result.group) + "\n\n"
          "Commands (participant x command): does learning the hotkey pay for them, did they learn it.\n\n"
