@@ -9,7 +9,6 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 * ``--prior label:param=family:a:b``: a MAP prior (families in :data:`PRIOR_FAMILIES`).
 """
 
-from __future__ import annotations
 
 import argparse
 import logging
