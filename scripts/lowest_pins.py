@@ -1,8 +1,8 @@
 """Print pip pins (``name==floor``) of the direct dependencies' lower bounds in pyproject.toml.
 
 ``make test-lowest`` installs the project with these as constraints into a fresh venv, so the
-declared floors are the versions actually tested. torch is left out (the Makefile installs the
-machine's CPU wheel first: older CPU builds are not on PyPI, only CUDA builds).
+declared floors are the versions actually tested. torch's floor (2.13) is the CPU wheel the Makefile
+installs first (any other version would pull a CUDA build), so ``torch==2.13`` accepts ``2.13.0+cpu``.
 
 Usage: ``python scripts/lowest_pins.py [--extra NAME ...]``; ``--check`` instead verifies that the
 running interpreter has exactly those versions installed (exit 1 naming each one that differs).
@@ -17,8 +17,8 @@ import tomllib
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
-#: Dependencies not pinned to their floor (see the module docstring).
-NOT_PINNED = {"torch"}
+#: Dependencies not pinned to their floor (none: every floor is installed and checked).
+NOT_PINNED: set[str] = set()
 
 _REQ = re.compile(r"^\s*([A-Za-z0-9_.\-]+)(\[[^\]]*\])?\s*(.*)$")
 
