@@ -79,6 +79,20 @@ def output_folder(text: str) -> Path:
     return check_output_folder(Path(text))
 
 
+#: The word that turns an optional output folder off (``--plan-folder none``).
+NO_FOLDER = "none"
+
+
+def optional_output_folder(text: str) -> Path | None:
+    """Argparse type: an output folder as :func:`output_folder`, or ``none`` (any case): None.
+    A folder really named ``none`` is given as ``./none``."""
+    if text.strip().lower() == NO_FOLDER:
+        return None
+    if not text.strip():
+        raise argparse.ArgumentTypeError(f"an empty path; give a folder or {NO_FOLDER!r}")
+    return check_output_folder(Path(text))
+
+
 def output_file(text: str) -> Path:
     """Argparse type: an output file path: not a folder, its parent a folder we can create or fill."""
     path = Path(text)

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import add_agent_options, agent_specs_of
-from shortcut_gym.lab.cli.ranges import output_folder, whole_number
+from shortcut_gym.lab.cli.ranges import optional_output_folder, output_folder, whole_number
 from shortcut_gym.lab.sweep.backends import BackendError
 
 
@@ -26,6 +26,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--address", default=None, help="Ray cluster to attach to (host:port, ray://host:port, auto)")
     p.add_argument("--retry-failed", action="store_true", help="recompute runs recorded as failed")
     p.add_argument("--plan-only", action="store_true", help="validate the spec and list its runs; write nothing")
+    p.add_argument("--plan-folder", type=optional_output_folder, default=argparse.SUPPRESS, metavar="FOLDER|none",
+                   help="folder of the on-disk plans the workers share (planner agents); several sweeps may "
+                        "share one to plan each world once in all. Default: <out>/plans (with --backend ray "
+                        "--address: none). 'none': no plans on disk, each worker plans in memory "
+                        "(a folder named none: ./none)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     add_agent_options(p, "agent replacing the spec's agent list (repeatable)")
     p.set_defaults(func=run)
@@ -48,9 +53,12 @@ def run(args: argparse.Namespace) -> int:
         print(f"{len(runs)} runs, {len(spec.seed_list())} simulated users each")
         return 0
     out = args.out or Path("out/sweeps") / spec.name
+    plans: Path | bool | None = None  # None: run_sweep's default place
+    if "plan_folder" in args:
+        plans = False if args.plan_folder is None else args.plan_folder
     try:
         report = run_sweep(spec, out, backend=args.backend, workers=args.workers, address=args.address,
-                           retry_failed=args.retry_failed, progress=not args.quiet)
+                           retry_failed=args.retry_failed, progress=not args.quiet, plan_store=plans)
     except BackendError as err:
         raise SweepArgumentError(str(err)) from None
     print("\n".join(report.lines()))

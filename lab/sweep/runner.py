@@ -20,7 +20,7 @@ from shortcut_gym.lab.sweep.backends import LocalBackend, RayBackend, make_backe
 from shortcut_gym.lab.sweep.integrity import ADOPTED, FolderCheck
 from shortcut_gym.lab.sweep.lock import FolderLock, describe_holder
 from shortcut_gym.lab.sweep.plan import plan_digest, plan_runs
-from shortcut_gym.lab.sweep.spec import SweepSpec, load_spec, parse_spec
+from shortcut_gym.lab.sweep.spec import SweepSpec, SweepSpecError, load_spec, parse_spec
 from shortcut_gym.lab.sweep.store import SweepStore
 
 log = logging.getLogger(__name__)
@@ -94,10 +94,22 @@ def _check_notes(check: FolderCheck) -> list[str]:
     return notes
 
 
-def _plan_store_of(store: SweepStore, engine: LocalBackend | RayBackend, plan_store: str | Path | None) -> str | None:
-    """The plan store folder the workers share (None: each worker keeps its plans in memory)."""
-    if plan_store is not None:
-        return str(Path(plan_store).resolve())
+def _plan_store_of(store: SweepStore, engine: LocalBackend | RayBackend,
+                   plan_store: str | Path | bool | None) -> str | None:
+    """The plan store folder the workers share (None: each worker keeps its plans in memory).
+
+    ``plan_store``: a folder; False for none; None (or True) for the default place."""
+    if plan_store is False:
+        return None
+    if plan_store is not None and plan_store is not True:
+        folder = Path(plan_store).resolve()
+        sweep = store.folder.resolve()
+        if folder == sweep or folder.is_relative_to(sweep / "runs"):
+            raise SweepSpecError(f"plan store {plan_store}: it is the sweep folder {store.folder} or lies under its "
+                                 "runs/; use <folder>/plans (the default) or a folder outside it")
+        if folder.exists() and not folder.is_dir():
+            raise SweepSpecError(f"plan store {plan_store}: is a file, not a folder")
+        return str(folder)
     if isinstance(engine, RayBackend) and engine.address is not None:
         return None  # the sweep folder may not be reachable from the cluster's nodes
     return str(store.plans_dir.resolve())
@@ -120,20 +132,22 @@ def run_sweep(
     retry_failed: bool = False,
     progress: bool = True,
     write_outputs: bool = True,
-    plan_store: str | Path | None = None,
+    plan_store: str | Path | bool | None = None,
 ) -> SweepReport:
     """Compute every run of ``spec`` not yet finished in ``folder``; write tables and plots.
 
     Planner plans go through an on-disk plan store shared by every worker: ``plan_store`` (a
-    folder, which several sweeps may share), by default ``<folder>/plans``; for a Ray cluster at
-    ``address`` only when ``plan_store`` is given (a folder every node can reach). Each distinct
-    world and planning options is then planned once in all, whatever the worker count."""
+    folder, which several sweeps may share), by default (None) ``<folder>/plans``; for a Ray
+    cluster at ``address`` only when ``plan_store`` is given (a folder every node can reach). Each
+    distinct world and planning options is then planned once in all, whatever the worker count.
+    ``plan_store=False``: no plans on disk (each worker plans every world it meets, in memory)."""
     start = time.perf_counter()
     sweep, source = _spec_and_source(spec)
     runs = plan_runs(sweep, source)
     digest = plan_digest(runs)
     engine = make_backend(backend, workers, address)  # checks workers and the address first
     store = SweepStore(Path(folder))
+    shared = _plan_store_of(store, engine, plan_store)  # checked before the folder is touched
     store.check_usable()
     started = False
     if not store.manifest_path.is_file():
@@ -148,7 +162,6 @@ def run_sweep(
         raise
     computed = plans_made = plans_loaded = 0
     compute_s = plan_s = 0.0
-    shared = _plan_store_of(store, engine, plan_store)
     try:
         previous = store.open(sweep.model_dump(mode="json"), runs, digest)
         check = store.check([r["run_id"] for r in runs]) if previous is not None else None
