@@ -115,3 +115,37 @@ def test_fused_run_refuses_a_used_policy_and_the_python_path_stays_for_stepping(
     assert isinstance(fresh._stepped, PlanLookupBatch)
     with pytest.raises(UsageError, match="fresh batch policy"):
         fresh.run(sim)
+
+
+@pytest.mark.parametrize(("memory", "aids", "costs"), [WORLDS[0], WORLDS[2], WORLDS[3], WORLDS[5], WORLDS[8]],
+                         ids=[IDS[0], IDS[2], IDS[3], IDS[5], IDS[8]])
+def test_without_the_age_table_the_compiled_lookup_still_takes_the_single_env_action(memory, aids, costs,
+                                                                                     monkeypatch) -> None:
+    from shortcut_gym.agents.planner import compiled_lookup
+    world = make_world(schedule=SCHEDULE, memory=memory, aids=aids, costs=costs)
+    agent = _planner(world)
+    monkeypatch.setattr(compiled_lookup, "AGE_TABLE_MAX_TRIALS", world.horizon - 1)
+    agent.bind(context_of_world(world))
+    tables = lookup_tables(agent)
+    assert tables is not None and tables.ages.shape == (0, 0)  # every decay factor computed in place
+    compiled, _ = _compiled_actions(world, agent)
+    np.testing.assert_array_equal(compiled, _single_env_actions(world, agent))
+
+
+def test_the_age_table_holds_each_memory_kinds_decay_factor_of_every_trial_pair() -> None:
+    for memory, aids, costs in WORLDS:
+        world = make_world(schedule=SCHEDULE, memory=memory, aids=aids, costs=costs)
+        agent = _planner(world)
+        agent.bind(context_of_world(world))
+        tables = lookup_tables(agent)
+        assert tables is not None and tables.ages.shape == (world.horizon, world.horizon)
+        clock, m = tables.clock, world.memory
+        i, j = np.tril_indices(world.horizon, -1)
+        later = clock[i] > clock[j]
+        age = clock[i][later] - clock[j][later]
+        want = {"actr": age ** -m.decay, "actr_exact": age ** -m.decay,
+                "exponential": np.exp(-m.exponential_rate_per_s * age),
+                "power": (1 + age / m.power_time_unit_s) ** -m.decay}[m.kind]
+        np.testing.assert_allclose(tables.ages[i[later], j[later]], want, rtol=1e-13, err_msg=m.kind)
+        # every next use sits on the trial it names
+        np.testing.assert_array_equal(clock[tables.next_trial], tables.next_clock)

@@ -27,7 +27,7 @@ from numba import njit
 from shortcut_gym.agents.batch_loop import SumArrays, step_and_count
 from shortcut_gym.agents.learning.rules import RULE_JIT
 from shortcut_gym.agents.planner.batch import PlanLookupBatch
-from shortcut_gym.agents.planner.interpolation import GridConstants, bilinear_point
+from shortcut_gym.agents.planner.interpolation import GridConstants, bilinear_at, weight_coordinate
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, UsageError
@@ -47,6 +47,9 @@ _TIME_FIELDS = ("menu_s", "menu_keyboard_share", "hotkey_keyboard_share", "hotke
 F_THRESHOLD, F_NOISE, F_LATENCY, F_HOME, F_KEY, F_DECAY, F_EXP_RATE, F_POW_UNIT, F_WARMUP_BLOCK = range(9)
 #: entries of LookupTables.ints
 I_KIND, I_RECENT, I_AIDS, I_WARMUP, I_CAP = range(5)
+#: Longest horizon (trials) whose age table (horizon x horizon doubles, 8 MB at this size) is made;
+#: beyond it every decay factor is computed where it is read (the same values, slower).
+AGE_TABLE_MAX_TRIALS = 1024
 
 
 class LookupTables(NamedTuple):
@@ -66,6 +69,8 @@ class LookupTables(NamedTuple):
     new_weights: np.ndarray  # (4,) trace weights of menu, learn, hotkey success, hotkey failure
     warmup_cmds: np.ndarray  # (m,) commands the warm-up block practises
     grid: GridConstants
+    ages: np.ndarray  # (horizon, horizon): decay factor at trial i's clock of a trace laid at trial j's; or (0, 0)
+    next_trial: np.ndarray  # (commands, horizon - 1, G) int64: a trial whose clock is next_clock; or (0, 0, 0)
 
 
 def lookup_tables(agent: "BoundedOptimalPlanner") -> LookupTables | None:
@@ -109,20 +114,32 @@ def lookup_tables(agent: "BoundedOptimalPlanner") -> LookupTables | None:
     ints = np.array([_KIND_CODES[m.kind], m.recent_traces, 1 if agent._aids else 0, warmup, cap], dtype=np.int64)
     allowed = np.array([1 if plan.choice.allows(c) else 0 for c in range(n_cmd)], dtype=np.int64)
     nu = agent._next_uses
+    next_clock = np.ascontiguousarray(nu.clock_s, dtype=np.float64)
+    ages, next_trial = np.zeros((0, 0)), np.zeros((0, 0, 0), dtype=np.int64)
+    if 0 < horizon <= AGE_TABLE_MAX_TRIALS and bool(np.all(np.diff(clock) >= 0)):
+        idx = np.minimum(np.searchsorted(clock, next_clock), horizon - 1).astype(np.int64)
+        if np.array_equal(clock[idx], next_clock):  # every next use sits on a trial's clock
+            ages = np.empty((horizon, horizon))
+            _fill_ages(clock, ints[I_KIND], floats, ages)
+            next_trial = idx
     return LookupTables(ints, floats, allowed, clock, np.ascontiguousarray(agent._session, dtype=np.int64),
-                        value_row, values, np.ascontiguousarray(nu.clock_s, dtype=np.float64),
+                        value_row, values, next_clock,
                         np.ascontiguousarray(nu.fresh, dtype=np.float64), times, cmdc,
                         np.ascontiguousarray(agent._new_weights, dtype=np.float64),
-                        np.flatnonzero(agent._cmdc[:, k.C_WARMUP_S] > 0).astype(np.int64), g0)
+                        np.flatnonzero(agent._cmdc[:, k.C_WARMUP_S] > 0).astype(np.int64), g0, ages, next_trial)
 
 
 # ---- compiled memory of one user ------------------------------------------------------------------------
 class UserMemory(NamedTuple):
     """One user's tracked memory (scratch, reset per user). Hybrid: the recent traces in
-    ``times``/``weights`` (``n_traces`` of them), the older lump in ``lump`` (weight, first, last)."""
+    ``times``/``weights`` (``n_traces`` of them), the older lump in ``lump`` (weight, first, last).
+    ``trial_of`` / ``lump_trial``: the trial whose clock a trace (the lump's first, last) was laid
+    at, -1 off the trials' clocks (the warm-up block's), for reading the age table."""
 
     times: np.ndarray  # (commands, cap)
     weights: np.ndarray  # (commands, cap)
+    trial_of: np.ndarray  # (commands, cap) int64
+    lump_trial: np.ndarray  # (commands, 2) int64
     n_traces: np.ndarray  # (commands,) int64
     lump: np.ndarray  # (commands, 3)
     total_weight: np.ndarray  # (commands,) planner's _weight
@@ -133,7 +150,8 @@ class UserMemory(NamedTuple):
 
 def user_memory(n_cmd: int, cap: int) -> UserMemory:
     """Empty scratch memory for ``n_cmd`` commands of up to ``cap`` traces each."""
-    return UserMemory(np.zeros((n_cmd, cap)), np.zeros((n_cmd, cap)), np.zeros(n_cmd, dtype=np.int64),
+    return UserMemory(np.zeros((n_cmd, cap)), np.zeros((n_cmd, cap)), np.full((n_cmd, cap), -1, dtype=np.int64),
+                      np.full((n_cmd, 2), -1, dtype=np.int64), np.zeros(n_cmd, dtype=np.int64),
                       np.zeros((n_cmd, 3)), np.zeros(n_cmd), np.zeros(n_cmd, dtype=np.int64),
                       np.zeros(n_cmd, dtype=np.int64), np.zeros(2, dtype=np.int64))
 
@@ -142,6 +160,7 @@ def user_memory(n_cmd: int, cap: int) -> UserMemory:
 def _clear(mem):
     mem.n_traces[:] = 0
     mem.lump[:, :] = 0.0
+    mem.lump_trial[:, :] = -1
     mem.total_weight[:] = 0.0
     mem.menu_count[:] = 0
     mem.uses[:] = 0
@@ -150,60 +169,84 @@ def _clear(mem):
 
 
 @njit(**RULE_JIT)
-def _old_lump(now, d, weight, first, last):
-    """envs.memory._old_lump, operation for operation."""
-    a_n = now - last
-    r = (last - first) / a_n
-    if r <= 1e-12:
-        return weight * a_n ** (-d)
-    return weight * a_n ** (-d) * math.expm1((1 - d) * math.log1p(r)) / ((1 - d) * r)
+def _decay_factor(kind, f, age):
+    """The share of its weight a trace keeps after ``age`` (s), as the planner's activation
+    formulas compute it: age^-d (ACT-R kinds), e^{-lambda age}, (1 + age/u)^-b."""
+    if kind == MEM_HYBRID or kind == MEM_EXACT_ACTR:
+        return age ** (-f[F_DECAY])
+    if kind == MEM_EXPONENTIAL:
+        return math.exp(-f[F_EXP_RATE] * age)
+    return (1.0 + age / f[F_POW_UNIT]) ** (-f[F_DECAY])
 
 
 @njit(**RULE_JIT)
-def _activation(tab, mem, c, now):
-    """The planner's ``_activation`` of command ``c`` at clock ``now`` (s)."""
+def _fill_ages(clock, kind, f, out):
+    """``out[i, j]``: the decay factor at trial i's clock of a trace laid at trial j's (every pair,
+    the same expression :func:`_activation` evaluates, so reading it gives the same doubles)."""
+    for i in range(clock.shape[0]):
+        for j in range(clock.shape[0]):
+            out[i, j] = _decay_factor(kind, f, clock[i] - clock[j])
+
+
+@njit(**RULE_JIT)
+def _old_lump(now, d, weight, first, last, last_factor):
+    """envs.memory._old_lump, operation for operation, with ``last_factor`` = (now - last)^-d given."""
+    a_n = now - last
+    r = (last - first) / a_n
+    if r <= 1e-12:
+        return weight * last_factor
+    return weight * last_factor * math.expm1((1 - d) * math.log1p(r)) / ((1 - d) * r)
+
+
+@njit(**RULE_JIT)
+def _activation(tab, mem, c, now, now_trial):
+    """The planner's ``_activation`` of command ``c`` at clock ``now`` (s); ``now_trial``: a trial
+    whose clock is ``now`` (the decay factors then come from the age table), or -1."""
     n = mem.n_traces[c]
     if n == 0:
         return -np.inf
     kind = tab.ints[I_KIND]
     f = tab.floats
+    tabled = now_trial >= 0 and tab.ages.shape[0] > 0
     total = 0.0
-    if kind == MEM_HYBRID or kind == MEM_EXACT_ACTR:
+    for j in range(n):
+        tj = mem.trial_of[c, j]
+        if tabled and tj >= 0:
+            total += mem.weights[c, j] * tab.ages[now_trial, tj]
+        else:
+            total += mem.weights[c, j] * _decay_factor(kind, f, now - mem.times[c, j])
+    if kind == MEM_HYBRID and mem.lump[c, 0] != 0.0:
+        last = mem.lump_trial[c, 1]
         d = f[F_DECAY]
-        for j in range(n):
-            total += mem.weights[c, j] * (now - mem.times[c, j]) ** (-d)
-        if kind == MEM_HYBRID and mem.lump[c, 0] != 0.0:
-            total += _old_lump(now, d, mem.lump[c, 0], mem.lump[c, 1], mem.lump[c, 2])
-    elif kind == MEM_EXPONENTIAL:
-        rate = f[F_EXP_RATE]
-        for j in range(n):
-            total += mem.weights[c, j] * math.exp(-rate * (now - mem.times[c, j]))
-    else:
-        u, b = f[F_POW_UNIT], f[F_DECAY]
-        for j in range(n):
-            total += mem.weights[c, j] * (1.0 + (now - mem.times[c, j]) / u) ** (-b)
+        factor = tab.ages[now_trial, last] if tabled and last >= 0 else (now - mem.lump[c, 2]) ** (-d)
+        total += _old_lump(now, d, mem.lump[c, 0], mem.lump[c, 1], mem.lump[c, 2], factor)
     return math.log(total) if total > 0 else -np.inf
 
 
 @njit(**RULE_JIT)
-def _lay(tab, mem, c, now, weight):
-    """The planner's ``_lay``: a trace of ``weight`` at ``now`` (the hybrid keeps the recent ones)."""
+def _lay(tab, mem, c, now, weight, trial):
+    """The planner's ``_lay``: a trace of ``weight`` at ``now`` (the clock of ``trial``, or -1 off
+    the trials' clocks; the hybrid keeps the recent ones)."""
     if weight <= 0:
         return
     mem.total_weight[c] += weight
     n = mem.n_traces[c]
     mem.times[c, n] = now
     mem.weights[c, n] = weight
+    mem.trial_of[c, n] = trial
     n += 1
     if tab.ints[I_KIND] == MEM_HYBRID and n > tab.ints[I_RECENT]:
-        t0, w0 = mem.times[c, 0], mem.weights[c, 0]
+        t0, w0, i0 = mem.times[c, 0], mem.weights[c, 0], mem.trial_of[c, 0]
         for j in range(n - 1):
             mem.times[c, j] = mem.times[c, j + 1]
             mem.weights[c, j] = mem.weights[c, j + 1]
+            mem.trial_of[c, j] = mem.trial_of[c, j + 1]
         n -= 1
         if mem.lump[c, 0] == 0.0:
             mem.lump[c, 1] = t0
+            mem.lump_trial[c, 0] = i0
         mem.lump[c, 2] = t0
+        mem.lump_trial[c, 1] = i0
         mem.lump[c, 0] += w0
     mem.n_traces[c] = n
 
@@ -223,7 +266,7 @@ def _warmup(tab, mem, trial):
         block += tab.floats[F_HOME]
     for i in range(tab.warmup_cmds.shape[0]):
         j = tab.warmup_cmds[i]
-        _lay(tab, mem, j, tab.clock[trial] - block, tab.cmdc[j, k.C_WARMUP_W])
+        _lay(tab, mem, j, tab.clock[trial] - block, tab.cmdc[j, k.C_WARMUP_W], -1)
     mem.hand[0] = 1
 
 
@@ -265,15 +308,25 @@ def _pairwise_mean(pts, j):
 
 
 @njit(**RULE_JIT)
-def decide_user(tab, mem, c, trial, nw, pts):
-    """:meth:`BoundedOptimalPlanner.decide` for a plan choice (menu off the choice's commands)."""
+def decide_user(tab, mem, c, trial, nw, pts, cell, frac):
+    """:meth:`BoundedOptimalPlanner.decide` for a plan choice (menu off the choice's commands);
+    ``nw``, ``pts``, ``cell``, ``frac``: scratch (4,), (4, G), (4,) int64, (4,)."""
     if tab.allowed[c] == 0:
         return k.MENU
+    q_menu, q_hot, q_learn = action_values_user(tab, mem, c, trial, nw, pts, cell, frac)
+    return _argmax3(q_menu, q_hot, q_learn)
+
+
+@njit(**RULE_JIT)
+def action_values_user(tab, mem, c, trial, nw, pts, cell, frac):
+    """:meth:`BoundedOptimalPlanner.action_values` (menu, hotkey, learn) of command ``c`` at
+    ``trial``, operation for operation (scratch as :func:`decide_user`)."""
     _warmup(tab, mem, trial)
     f = tab.floats
     h = tab.clock.shape[0]
-    now = tab.clock[min(trial, h - 1)]
-    a_now = _activation(tab, mem, c, now)
+    now_trial = min(trial, h - 1)
+    now = tab.clock[now_trial]
+    a_now = _activation(tab, mem, c, now, now_trial)
     p = 0.0
     if a_now != -np.inf:
         z = -(a_now - f[F_THRESHOLD]) / f[F_NOISE]
@@ -308,17 +361,20 @@ def decide_user(tab, mem, c, trial, nw, pts):
     if row >= 0:
         V = tab.values[c, row]
         weight = mem.total_weight[c]
+        tabled = tab.next_trial.shape[0] > 0
+        for j in range(4):  # the weight after each trace is the same at every point: its log once
+            cell[j], frac[j] = weight_coordinate(weight + nw[j], tab.grid)
         for g in range(pts.shape[1]):
-            act = _activation(tab, mem, c, tab.next_clock[c, trial, g])
+            act = _activation(tab, mem, c, tab.next_clock[c, trial, g], tab.next_trial[c, trial, g] if tabled else -1)
             old = math.exp(act) if act > -np.inf else 0.0
             fr = tab.fresh[c, trial, g]
             for j in range(4):
                 s = old + nw[j] * fr
-                pts[j, g] = bilinear_point(V, math.log(s) if s > 0 else -np.inf, weight + nw[j], tab.grid)
+                pts[j, g] = bilinear_at(V, math.log(s) if s > 0 else -np.inf, cell[j], frac[j], tab.grid)
         q_menu += _pairwise_mean(pts, 0)
         q_learn += _pairwise_mean(pts, 1)
         q_hot += p * _pairwise_mean(pts, 2) + (1.0 - p) * _pairwise_mean(pts, 3)
-    return _argmax3(q_menu, q_hot, q_learn)
+    return q_menu, q_hot, q_learn
 
 
 @njit(**RULE_JIT)
@@ -359,7 +415,7 @@ def observe_user(tab, mem, c, trial, outcome):
     if outcome != k.OUT_HOTKEY:
         mem.menu_count[c] += 1
     mem.uses[c] += 1
-    _lay(tab, mem, c, tab.clock[trial], weight)
+    _lay(tab, mem, c, tab.clock[trial], weight, trial)
 
 
 @njit(cache=True, nogil=True)
@@ -372,12 +428,14 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
     scratch = np.empty(k.N_OPS)
     nw = np.empty(4)
     pts = np.empty((4, tab.next_clock.shape[2]))
+    cell = np.empty(4, dtype=np.int64)
+    frac = np.empty(4)
     fail_lat = k.failed_retrieval_s(par)
     for b in range(n_users):
         _clear(mem)
         for t in range(h):
             c = sched_cmd[b, t]
-            a = decide_user(tab, mem, c, t, nw, pts)
+            a = decide_user(tab, mem, c, t, nw, pts, cell, frac)
             if record.shape[0] > 0:
                 record[b, t] = a
             _, res = step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,

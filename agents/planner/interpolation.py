@@ -78,3 +78,33 @@ def interpolate_after_traces(values: np.ndarray, act: np.ndarray, fresh: np.ndar
             s = old + new_weights[j] * fresh[p]
             out[j, p] = bilinear_point(values, math.log(s) if s > 0 else -np.inf, weight + new_weights[j], g)
     return out
+
+
+@njit(cache=True)
+def weight_coordinate(weight: float, g: GridConstants) -> tuple[int, float]:
+    """The weight half of :func:`bilinear_point`: (cell j, fraction fy) of ``weight`` on the
+    log-weight grid, the same operations (so a caller valuing many activations at one weight
+    takes the logarithm once); (0, 0.0) on a one-point weight grid, where it is not read."""
+    if g.n_weight == 1:
+        return 0, 0.0
+    y = (min(max(math.log(max(weight, 1e-300)), g.log_weight_lo), g.log_weight_hi) - g.log_weight_lo) \
+        / g.log_weight_step
+    j = min(int(math.floor(y)), g.n_weight - 2)
+    return j, y - j
+
+
+@njit(cache=True)
+def bilinear_at(values: np.ndarray, a: float, j: int, fy: float, g: GridConstants) -> float:
+    """:func:`bilinear_point` at activation ``a`` and the weight of :func:`weight_coordinate`
+    (``j``, ``fy``): the same value, bit for bit."""
+    if a == -np.inf:
+        return values[0]
+    x = (min(max(a, g.act_lo), g.act_hi) - g.act_lo) / g.act_step
+    i = min(int(math.floor(x)), g.n_act - 2)
+    fx = x - i
+    n_w = g.n_weight
+    if n_w == 1:
+        return (1 - fx) * values[1 + i] + fx * values[2 + i]
+    base = 1 + i * n_w + j
+    return ((1 - fx) * ((1 - fy) * values[base] + fy * values[base + 1])
+            + fx * ((1 - fy) * values[base + n_w] + fy * values[base + n_w + 1]))
