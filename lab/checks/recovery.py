@@ -69,7 +69,8 @@ def parameter_recovery(world: World, spec: ModelSpec, n_participants: int = 20, 
     rng = np.random.default_rng(seed)
     log, truth = simulate_known(world, spec, n_participants, rng, ranges, population=population)
     log = validate_log(log, world.commands, source=f"simulated {spec.label}")
-    fits = fit_log(log, [spec], context_for(log, world.commands.names), n_starts, seed, n_jobs, progress=progress)
+    fits = fit_log(log, [spec], context_for(log, world.commands.names, world), n_starts, seed, n_jobs,
+                   progress=progress)
     merged = truth.merge(fits, on="participant")
     drawn = (population or ModelPopulation(spec, n_participants, {}, "plausible ranges")).describe()
     if population is None and ranges:
@@ -112,8 +113,8 @@ def model_recovery(world: World, specs: Sequence[ModelSpec], n_participants: int
         log, _ = simulate_known(world, gen, pop.participants if pop else n_participants, rng, ranges.get(gen.label),
                                 prefix=f"g{g}s", population=pop)
         log = validate_log(log, world.commands, source=f"simulated {gen.label}")
-        fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed + 1000 * (g + 1), n_jobs,
-                       progress=progress)
+        fits = fit_log(log, specs, context_for(log, world.commands.names, world), n_starts, seed + 1000 * (g + 1),
+                       n_jobs, progress=progress)
         fits.insert(0, "generator", gen.label)
         all_fits.append(fits)
     fits = pd.concat(all_fits, ignore_index=True)
@@ -161,7 +162,7 @@ def knockout_study(log: pd.DataFrame, spec: ModelSpec, world: World, n_starts: i
     """
     variants = knockout_variants(spec)
     specs = [spec] + [v for _, v in variants]
-    fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed, n_jobs, progress=progress)
+    fits = fit_log(log, specs, context_for(log, world.commands.names, world), n_starts, seed, n_jobs, progress=progress)
     full = fits[fits["model"] == spec.label].set_index("participant")["bic"]
     rows = []
     for mech, v in variants:

@@ -34,7 +34,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Fit and write ``fits.csv`` (one row per participant x model) and ``parameters.csv`` (long)."""
     world, specs, priors, ranges, log = log_fit_inputs(args)
-    fits = fit_log(log, specs, context_for(log, world.commands.names, world), args.starts, args.seed, args.jobs, priors,
+    context = context_for(log, world.commands.names, world)  # agents may plan with the world
+    fits = fit_log(log, specs, context, args.starts, args.seed, args.jobs, priors,
                    progress=not args.quiet, start_ranges=ranges, intervals=args.intervals)
     args.out.mkdir(parents=True, exist_ok=True)
     path = args.out / "fits.csv"
@@ -49,13 +50,13 @@ def run(args: argparse.Namespace) -> int:
             print(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
     status(f"wrote {path} and {args.out / 'parameters.csv'}")
     if args.hierarchical:
-        summary, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names),
+        summary, by_model = fit_hierarchical_models(log, specs, context,
                                                     args.starts, args.seed, args.covariance)
         written = write_hierarchical(summary, by_model, args.out)
         print(summary.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
         status("wrote " + ", ".join(str(p) for p in written))
     if args.cross_validate:
-        folds = cross_validate(log, specs, context_for(log, world.commands.names), args.starts, args.seed)
+        folds = cross_validate(log, specs, context, args.starts, args.seed)
         folds.to_csv(args.out / "cv_folds.csv", index=False)
         cv_table(folds).to_csv(args.out / "cv.csv", index=False)
         print(cv_summary(folds).to_string(index=False, float_format=lambda v: f"{v:.2f}"))

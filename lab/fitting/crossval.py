@@ -17,6 +17,7 @@ per-trial probabilities from the protocol replay (:func:`~.replay.replay_probabi
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable, Sequence
 
 import numpy as np
@@ -122,7 +123,7 @@ def cross_validate(log: pd.DataFrame, specs: Sequence[ModelSpec], context: Agent
                 raise ConfigError(f"participant {pid!r} has one session ({sessions[0]}); leave-one-session-out "
                                   "cross-validation needs at least 2")
             sizes = trials.groupby("session", sort=False).size().to_numpy()
-            own = AgentContext(context.n_commands, len(trials), context.command_names)
+            own = dataclasses.replace(context, horizon=len(trials))  # keeps the world, as fit_log does
             for j, spec in enumerate(specs):
                 by_session = session_loglik_function(spec, trials, own)
                 for s, session in enumerate(sessions):

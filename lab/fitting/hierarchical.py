@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -133,7 +133,7 @@ def fit_hierarchical(log: pd.DataFrame, spec: ModelSpec, context: AgentContext, 
     specs: dict[str, ParamSpec] = {}
     for pid in ids:
         trials = participant_trials(log, pid)
-        own = AgentContext(context.n_commands, len(trials), context.command_names)
+        own = replace(context, horizon=len(trials))  # keeps the world, as fit_log does
         f, specs = _free_loglik(spec, trials, own)
         functions.append(f)
         counts.append(len(trials))

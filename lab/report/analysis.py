@@ -52,7 +52,8 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
             raise ConfigError(f"knock-out model {knockout!r} is not among the fitted models {list(by_label)}")
         knockout_variants(by_label[knockout])
     out.mkdir(parents=True, exist_ok=True)
-    fits = fit_log(log, specs, context_for(log, world.commands.names), n_starts, seed, n_jobs, priors, progress,
+    context = context_for(log, world.commands.names, world)  # as ``fit`` builds it: agents may plan with the world
+    fits = fit_log(log, specs, context, n_starts, seed, n_jobs, priors, progress,
                    start_ranges, intervals)
     parameters = long_table(fits)
     table = comparison_table(fits)
@@ -78,7 +79,7 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     sections.append(fit_quality_section(fits))
     ibic = cv = None
     if hierarchical:
-        ibic, by_model = fit_hierarchical_models(log, specs, context_for(log, world.commands.names), n_starts, seed)
+        ibic, by_model = fit_hierarchical_models(log, specs, context, n_starts, seed)
         groups, participants = hierarchical_tables(by_model)
         entries.append((write_table(ibic, out, "hierarchical"), "hierarchical fits: Laplace evidence, iBIC per model"))
         entries.append((write_table(groups, out, "hierarchical_group"), "group mean and SD per parameter"))
@@ -87,7 +88,7 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
         tables["hierarchical"] = ibic
         sections.append(hierarchical_section(ibic, groups))
     if cross_validated:
-        folds = cross_validate(log, specs, context_for(log, world.commands.names), n_starts, seed)
+        folds = cross_validate(log, specs, context, n_starts, seed)
         cv = cv_summary(folds)
         entries.append((write_table(folds, out, "cv_folds"), "held-out ln L per participant x model x session"))
         entries.append((write_table(cv_table(folds), out, "cv"), "held-out ln L per participant x model, rank"))
