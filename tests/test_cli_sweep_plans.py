@@ -35,8 +35,11 @@ def _results(folder: Path) -> pd.DataFrame:
 
 def test_the_plans_go_to_the_default_place_a_named_folder_or_nowhere_and_results_do_not_change(tmp_path: Path,
                                                                                                 capsys) -> None:
-    assert _sweep(tmp_path, "default") == 0
+    assert _sweep(tmp_path, "default", "--keep-plans") == 0
     assert len(list((tmp_path / "default" / "plans").glob("*.plan"))) == 2  # one per world
+    assert _sweep(tmp_path, "removed") == 0
+    assert "removed the sweep's plans" in capsys.readouterr().out
+    assert not (tmp_path / "removed" / "plans").exists()
     shared = tmp_path / "shared" / "deeper"
     assert _sweep(tmp_path, "named", "--plan-folder", str(shared)) == 0
     assert len(list(shared.glob("*.plan"))) == 2 and not (tmp_path / "named" / "plans").exists()
@@ -48,7 +51,7 @@ def test_the_plans_go_to_the_default_place_a_named_folder_or_nowhere_and_results
     assert _sweep(tmp_path, "named_again", "--plan-folder", str(shared)) == 0
     assert "0 plan(s) made, 2 read from the plan store" in capsys.readouterr().out
     base = _results(tmp_path / "default")
-    for other in ("named", "off_none", "off_NONE", "named_again"):
+    for other in ("removed", "named", "off_none", "off_NONE", "named_again"):
         pd.testing.assert_frame_equal(base, _results(tmp_path / other), check_exact=True)
 
 
@@ -79,8 +82,26 @@ def test_a_bad_plan_folder_exits_2_naming_it_before_anything_is_written(tmp_path
     assert not out.exists()
 
 
+@pytest.mark.parametrize(("extra", "expected"), [
+    (["--keep-plans", "--plan-folder", "elsewhere"], "--keep-plans applies to the default <out>/plans only"),
+    (["--keep-plans", "--plan-folder", "none"], "--keep-plans applies to the default <out>/plans only"),
+    (["--plan-cap", "5", "--plan-folder", "none"], "--plan-cap caps plans on disk"),
+    (["--plan-cap", "0"], "--plan-cap: must be a finite number > 0, got 0"),
+    (["--plan-cap", "inf"], "--plan-cap: must be a finite number > 0"),
+])
+def test_plan_options_that_contradict_or_are_out_of_range_exit_2(tmp_path: Path, capsys, monkeypatch, extra,
+                                                                  expected) -> None:
+    monkeypatch.chdir(tmp_path)
+    out = tmp_path / "out"
+    assert main(["sweep", str(_spec_file(tmp_path)), "--out", str(out), "--quiet", *extra]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and expected in err, err
+    assert not out.exists() and not (tmp_path / "elsewhere").exists()
+
+
 def test_help_names_the_option_and_its_off_word(capsys) -> None:
     with pytest.raises(SystemExit):
         main(["sweep", "--help"])
     text = " ".join(capsys.readouterr().out.split())
     assert "--plan-folder FOLDER|none" in text and "'none': no plans on disk" in text
+    assert "--keep-plans" in text and "--plan-cap MB" in text and "least recently used" in text

@@ -45,7 +45,7 @@ def _metas(folder: Path) -> list[dict[str, Any]]:
 def test_two_workers_plan_each_distinct_world_once_and_match_one_process(tmp_path: Path) -> None:
     spec = _spec([-3.0, -2.4], planners=4)  # 2 worlds, 8 planner runs, 2 menu runs
     cache.clear_plans()  # forked workers start with no plan in memory
-    two = run_sweep(spec, tmp_path / "two", workers=2, progress=False)
+    two = run_sweep(spec, tmp_path / "two", workers=2, progress=False, keep_plans=True)
     assert two.computed == 10 and not two.failed
     metas = _metas(tmp_path / "two")
     assert len({m["pid"] for m in metas}) == 2  # both workers computed runs

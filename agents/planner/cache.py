@@ -68,7 +68,10 @@ def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_sh
                     _spent["load_seconds"] += time.perf_counter() - start
                 else:
                     plan = _make(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
-                    plan_store.save(store, key, plan)
+                    path = plan_store.save(store, key, plan)
+                    cap = plan_store.store_cap()
+                    if cap is not None:
+                        plan_store.prune(store, cap, keep=path)
         _plans[key] = plan
         while len(_plans) > MAX_PLANS:
             _plans.popitem(last=False)

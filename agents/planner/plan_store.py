@@ -17,9 +17,16 @@ the Python and numpy versions, so a plan made by other code is never read back a
   while an entry is looked up, made and written, so processes wanting the same plan wait for
   one plan. (Advisory; where ``fcntl`` is missing two processes may both plan, still correctly.)
 
+* Size cap (optional, per process: :func:`set_plan_store`'s ``max_bytes``): after writing an entry
+  the process removes the least recently used entries (oldest modification time first; a load
+  marks its entry used) until the entries total at most the cap, never the entry just written
+  and never one whose lock another process holds (:func:`prune`). A removed entry is planned again
+  when next wanted, with the same result.
+
 The store is this user's own cache: entries are pickles, so load only stores you wrote.
 The store in use is set per process (:func:`set_plan_store`, :func:`using_plan_store`) or by the
-environment variable ``SHORTCUT_GYM_PLAN_STORE``; a sweep puts its own under ``<folder>/plans``.
+environment variable ``SHORTCUT_GYM_PLAN_STORE``; a sweep puts its own under ``<folder>/plans``
+and removes it when it finishes (unless asked to keep it).
 """
 
 from __future__ import annotations
@@ -55,7 +62,7 @@ STORE_ENV = "SHORTCUT_GYM_PLAN_STORE"
 #: First bytes of an entry's header.
 FORMAT = "shortcut-gym plan entry 2"
 
-_store: dict[str, Path | None] = {"dir": None}
+_store: dict[str, Any] = {"dir": None, "max_bytes": None}
 _code: dict[str, str] = {}
 
 
@@ -63,12 +70,20 @@ class DamagedPlanEntry(ShortcutGymError, ValueError):
     """A plan store entry fails a check (header, length, checksum, key or type); the message says which."""
 
 
-def set_plan_store(folder: str | Path | None) -> Path | None:
-    """Use ``folder`` as this process's plan store (None: the environment's, else none); returns
-    the previous setting."""
+def set_plan_store(folder: str | Path | None, max_bytes: int | None = None) -> Path | None:
+    """Use ``folder`` as this process's plan store (None: the environment's, else none), its
+    entries capped at ``max_bytes`` bytes (None: no cap; see :func:`prune`); returns the previous folder."""
+    if max_bytes is not None and (isinstance(max_bytes, bool) or not isinstance(max_bytes, int) or max_bytes < 1):
+        raise ConfigError(f"plan store cap max_bytes must be a whole number of bytes >= 1, got {max_bytes!r}")
     previous = _store["dir"]
     _store["dir"] = None if folder is None else Path(folder)
+    _store["max_bytes"] = max_bytes
     return previous
+
+
+def store_cap() -> int | None:
+    """The byte cap on this process's plan store entries (None: none)."""
+    return _store["max_bytes"]
 
 
 def plan_store() -> Path | None:
@@ -80,16 +95,18 @@ def plan_store() -> Path | None:
 
 
 @contextlib.contextmanager
-def using_plan_store(folder: str | Path | None) -> Iterator[Path | None]:
-    """Use ``folder`` as the plan store inside the block (None: leave the setting as it is)."""
+def using_plan_store(folder: str | Path | None, max_bytes: int | None = None) -> Iterator[Path | None]:
+    """Use ``folder`` as the plan store inside the block, capped at ``max_bytes`` (None: leave the
+    setting as it is)."""
     if folder is None:
         yield plan_store()
         return
-    previous = set_plan_store(folder)
+    previous, previous_cap = _store["dir"], _store["max_bytes"]
+    set_plan_store(folder, max_bytes)
     try:
         yield Path(folder)
     finally:
-        set_plan_store(previous)
+        set_plan_store(previous, previous_cap)
 
 
 def code_digest() -> str:
@@ -216,13 +233,16 @@ def load(store: Path, key: tuple) -> Plan | None:
     except FileNotFoundError:
         return None
     try:
-        return decode(data, key, str(path))
+        plan = decode(data, key, str(path))
     except DamagedPlanEntry as err:
         aside = path.with_name(f"{path.name}.damaged-{uuid.uuid4().hex[:8]}")
         with contextlib.suppress(OSError):
             os.replace(path, aside)
         log.warning("%s; set aside as %s, planning again", err, aside.name)
         return None
+    with contextlib.suppress(OSError):
+        os.utime(path)  # marks the entry used, for the size cap's least-recently-used order
+    return plan
 
 
 def save(store: Path, key: tuple, plan: Plan) -> Path:
@@ -239,3 +259,51 @@ def save(store: Path, key: tuple, plan: Plan) -> Path:
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
     return path
+
+
+def entries(store: Path) -> list[Path]:
+    """The store's entry files (none when the folder is missing)."""
+    return sorted(Path(store).glob("*.plan")) if Path(store).is_dir() else []
+
+
+def store_bytes(store: Path) -> int:
+    """Bytes of the store's entries (temporary and set-aside files not counted)."""
+    total = 0
+    for path in entries(store):
+        with contextlib.suppress(FileNotFoundError):
+            total += path.stat().st_size
+    return total
+
+
+def prune(store: Path, max_bytes: int, keep: Path | None = None) -> list[Path]:
+    """Remove least recently used entries (oldest modification time first) until the entries total
+    at most ``max_bytes``; ``keep`` and entries whose lock another process holds (being made or read)
+    are left. Returns the removed entries. The cap may stay exceeded by what is left."""
+    sized = []
+    for path in entries(store):
+        with contextlib.suppress(FileNotFoundError):
+            st = path.stat()
+            sized.append((st.st_mtime_ns, path.name, path, st.st_size))
+    total = sum(size for *_, size in sized)
+    removed = []
+    for _, _, path, size in sorted(sized):
+        if total <= max_bytes:
+            break
+        if keep is not None and path == keep:
+            continue
+        with open(path.with_suffix(".lock"), "a+b") as fh:
+            if fcntl is not None:
+                try:
+                    fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+                except OSError:
+                    continue  # in use by another process
+            try:
+                path.unlink()
+            except FileNotFoundError:
+                pass
+            else:
+                removed.append(path)
+            total -= size
+            if fcntl is not None:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+    return removed

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import add_agent_options, agent_specs_of
-from shortcut_gym.lab.cli.ranges import optional_output_folder, output_folder, whole_number
+from shortcut_gym.lab.cli.ranges import optional_output_folder, output_folder, positive_number, whole_number
 from shortcut_gym.lab.sweep.backends import BackendError
 
 
@@ -31,6 +31,12 @@ def register(sub: argparse._SubParsersAction) -> None:
                         "share one to plan each world once in all. Default: <out>/plans (with --backend ray "
                         "--address: none). 'none': no plans on disk, each worker plans in memory "
                         "(a folder named none: ./none)")
+    p.add_argument("--keep-plans", action="store_true",
+                   help="keep <out>/plans when the sweep finishes (by default it is removed; a resumed sweep "
+                        "plans again what it needs, with the same results). A --plan-folder is always kept")
+    p.add_argument("--plan-cap", type=positive_number, default=None, metavar="MB",
+                   help="most megabytes (10^6 bytes) of plans kept on disk: after writing a plan a worker removes "
+                        "the least recently used ones (default: no cap)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     add_agent_options(p, "agent replacing the spec's agent list (repeatable)")
     p.set_defaults(func=run)
@@ -56,9 +62,16 @@ def run(args: argparse.Namespace) -> int:
     plans: Path | bool | None = None  # None: run_sweep's default place
     if "plan_folder" in args:
         plans = False if args.plan_folder is None else args.plan_folder
+    if args.keep_plans and plans is not None:
+        raise SweepArgumentError("--keep-plans applies to the default <out>/plans only; a --plan-folder is always "
+                                 "kept, and with --plan-folder none there are no plans on disk")
+    if args.plan_cap is not None and plans is False:
+        raise SweepArgumentError("--plan-cap caps plans on disk; --plan-folder none keeps none there")
+    cap = None if args.plan_cap is None else max(1, round(args.plan_cap * 1e6))
     try:
         report = run_sweep(spec, out, backend=args.backend, workers=args.workers, address=args.address,
-                           retry_failed=args.retry_failed, progress=not args.quiet, plan_store=plans)
+                           retry_failed=args.retry_failed, progress=not args.quiet, plan_store=plans,
+                           keep_plans=args.keep_plans, plan_store_bytes=cap)
     except BackendError as err:
         raise SweepArgumentError(str(err)) from None
     print("\n".join(report.lines()))

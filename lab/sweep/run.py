@@ -97,14 +97,15 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
 
     ``run["plan_store"]`` (optional): the folder of the on-disk plan store
     (:mod:`shortcut_gym.agents.planner.plan_store`) shared by every worker of the sweep, so each
-    distinct world is planned once in all."""
+    distinct world is planned once in all; ``run["plan_store_bytes"]`` (optional): the store's
+    byte cap (least recently used entries removed after each write)."""
     start, cpu_start = time.perf_counter(), time.process_time()
     plan_s = plan_cpu_s = 0.0
     made, loaded = plan_cache.plans_made(), plan_cache.plans_loaded()
     try:
         world = run_world(run["settings"])
         cpu_before = time.process_time()
-        with using_plan_store(run.get("plan_store")):
+        with using_plan_store(run.get("plan_store"), run.get("plan_store_bytes")):
             plan_s = prepare_agent(run["agent"], world)
         plan_cpu_s = time.process_time() - cpu_before if plan_s > 0.0 else 0.0
         record = "trials" if run.get("trial_tables") else "blocks"

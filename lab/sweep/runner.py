@@ -8,6 +8,8 @@ runs on disk, keeps them, and computes only the rest.
 from __future__ import annotations
 
 import logging
+import os
+import shutil
 import sys
 import time
 from dataclasses import dataclass, field
@@ -21,7 +23,7 @@ from shortcut_gym.lab.sweep.integrity import ADOPTED, FolderCheck
 from shortcut_gym.lab.sweep.lock import FolderLock, describe_holder
 from shortcut_gym.lab.sweep.plan import plan_digest, plan_runs
 from shortcut_gym.lab.sweep.spec import SweepSpec, SweepSpecError, load_spec, parse_spec
-from shortcut_gym.lab.sweep.store import SweepStore
+from shortcut_gym.lab.sweep.store import SweepStore, unique_suffix
 
 log = logging.getLogger(__name__)
 
@@ -44,6 +46,7 @@ class SweepReport:
     plans_made: int = 0  # plans computed by the runs computed now (at most one per distinct world)
     plans_loaded: int = 0  # plans those runs read from the plan store (made by another worker or sweep)
     warm_up_s: float = 0.0  # seconds the driver spent loading compiled code once before forking workers
+    plans_removed_bytes: int | None = None  # bytes of <folder>/plans removed at the end (None: kept or none)
 
     def lines(self) -> list[str]:
         """Human-readable summary lines."""
@@ -56,6 +59,9 @@ class SweepReport:
             out.append(f"  in-worker compute {self.compute_s:.2f} s: simulation {self.compute_s - self.plan_s:.2f} s, "
                        f"planning {self.plan_s:.2f} s ({self.plans_made} plan(s) made, "
                        f"{self.plans_loaded} read from the plan store)")
+        if self.plans_removed_bytes is not None:
+            out.append(f"  removed the sweep's plans ({self.plans_removed_bytes / 1e6:.1f} MB under plans/; "
+                       "keep_plans / --keep-plans keeps them)")
         if self.warm_up_s:
             out.append(f"  start-up {self.warm_up_s:.2f} s (compiled code loaded once, before the workers fork)")
         out += [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
@@ -115,6 +121,31 @@ def _plan_store_of(store: SweepStore, engine: LocalBackend | RayBackend,
     return str(store.plans_dir.resolve())
 
 
+def _set_aside_plans_file(store: SweepStore) -> list[str]:
+    """A file where ``<folder>/plans`` should be is moved under ``damaged/`` (the store is rebuilt)."""
+    path = store.plans_dir
+    if not path.exists() or path.is_dir():
+        return []
+    aside = store.folder / "damaged" / f"plans.{unique_suffix()}"
+    aside.parent.mkdir(exist_ok=True)
+    os.rename(path, aside)
+    line = f"note: {path} was a file, not the plan folder; set aside as {aside.name} under damaged/, planning again"
+    log.warning(line)
+    return [line]
+
+
+def _remove_plans(store: SweepStore) -> int | None:
+    """Remove ``<folder>/plans`` (the sweep's own plan store); its entries' bytes, None when absent."""
+    from shortcut_gym.agents.planner.plan_store import store_bytes
+
+    if not store.plans_dir.is_dir():
+        return None
+    size = store_bytes(store.plans_dir)
+    shutil.rmtree(store.plans_dir, ignore_errors=True)
+    store.log({"event": "plans_removed", "bytes": size})
+    return size
+
+
 def _spec_and_source(spec: SweepSpec | dict | str | Path) -> tuple[SweepSpec, str]:
     if isinstance(spec, SweepSpec):
         return spec, "<sweep spec>"
@@ -133,6 +164,8 @@ def run_sweep(
     progress: bool = True,
     write_outputs: bool = True,
     plan_store: str | Path | bool | None = None,
+    keep_plans: bool = False,
+    plan_store_bytes: int | None = None,
 ) -> SweepReport:
     """Compute every run of ``spec`` not yet finished in ``folder``; write tables and plots.
 
@@ -140,7 +173,13 @@ def run_sweep(
     folder, which several sweeps may share), by default (None) ``<folder>/plans``; for a Ray
     cluster at ``address`` only when ``plan_store`` is given (a folder every node can reach). Each
     distinct world and planning options is then planned once in all, whatever the worker count.
-    ``plan_store=False``: no plans on disk (each worker plans every world it meets, in memory)."""
+    ``plan_store=False``: no plans on disk (each worker plans every world it meets, in memory).
+
+    When the sweep finishes, its own ``<folder>/plans`` is removed unless ``keep_plans`` (a
+    resumed or retried sweep plans again what it needs; results are the same). A ``plan_store``
+    folder given here is the user's and is never removed; ``plan_store_bytes`` caps its entries
+    (or the default store's while the sweep runs): each worker removes the least recently used
+    entries after writing one (:func:`shortcut_gym.agents.planner.plan_store.prune`)."""
     start = time.perf_counter()
     sweep, source = _spec_and_source(spec)
     runs = plan_runs(sweep, source)
@@ -148,6 +187,10 @@ def run_sweep(
     engine = make_backend(backend, workers, address)  # checks workers and the address first
     store = SweepStore(Path(folder))
     shared = _plan_store_of(store, engine, plan_store)  # checked before the folder is touched
+    if plan_store_bytes is not None and (isinstance(plan_store_bytes, bool) or not isinstance(plan_store_bytes, int)
+                                         or plan_store_bytes < 1):
+        raise SweepSpecError(f"plan_store_bytes must be a whole number of bytes >= 1, got {plan_store_bytes!r}")
+    own_plans = shared is not None and Path(shared) == store.plans_dir.resolve()
     store.check_usable()
     started = False
     if not store.manifest_path.is_file():
@@ -194,7 +237,9 @@ def run_sweep(
             bar = tqdm(total=kept + len(todo), initial=kept, desc=f"sweep {sweep.name}", unit="run",
                        disable=not progress, file=sys.stderr, dynamic_ncols=True)
             if shared is not None:
-                todo = [{**r, "plan_store": shared} for r in todo]
+                if own_plans:
+                    notes += _set_aside_plans_file(store)
+                todo = [{**r, "plan_store": shared, "plan_store_bytes": plan_store_bytes} for r in todo]
             for result in engine.run(todo):
                 store.write_result(result)
                 computed += 1
@@ -208,10 +253,11 @@ def run_sweep(
             engine.stop()
             started = False
         status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
+        removed = _remove_plans(store) if own_plans and not keep_plans else None
         report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0, recomputed=redo,
                              notes=notes, compute_s=compute_s, plan_s=plan_s,
                              plans_made=plans_made, plans_loaded=plans_loaded,
-                             warm_up_s=float(getattr(engine, "warm_up_s", 0.0)))
+                             warm_up_s=float(getattr(engine, "warm_up_s", 0.0)), plans_removed_bytes=removed)
         store.log({"event": "finish", **status, "plans_made": plans_made, "plans_loaded": plans_loaded})
         if write_outputs:
             from shortcut_gym.lab.sweep.outputs import write_outputs as _write

@@ -10,7 +10,8 @@ Layout::
     <folder>/runs/<run_id>/       one finished run: blocks.parquet, commands.parquet, users.parquet, meta.json
     <folder>/runs/<run_id>.failed.json   one failed run: its error and traceback
     <folder>/plans/               the plan store shared by the sweep's workers (one verified entry per
-                                  world and planning options, see agents.planner.plan_store)
+                                  world and planning options, see agents.planner.plan_store); removed
+                                  when the sweep finishes unless it is asked to keep it
     <folder>/damaged/             runs set aside by a resume because their files were damaged
     <folder>/log.jsonl            one line per event (start, resume, check, run done / failed, finish)
 
