@@ -13,6 +13,12 @@ With a plan store in use (:mod:`.plan_store`: a folder on disk, set per process 
 when another process made it, and a plan made here is written there; one process plans a world
 at a time (a lock per entry), so every worker of a sweep shares one plan per world. Plans read
 from the store are counted apart (:func:`plans_loaded`, :func:`loading_seconds`).
+
+Memory: the plans kept are bounded by count (``MAX_PLANS``) and by bytes (``MAX_PLAN_BYTES`` by
+default, :func:`set_max_bytes`; a plan's bytes are those of its numpy arrays, :func:`plan_nbytes`,
+measured again at every insertion since an MDP builds its sparse copy when first used). The least
+recently used plans are dropped first; the plan just made or read is always kept, even alone over
+the bound (its caller holds it anyway), and a dropped plan is made or read again when next wanted.
 """
 
 from __future__ import annotations
@@ -21,16 +27,91 @@ import threading
 import time
 from collections import OrderedDict
 
+import numpy as np
+
 from shortcut_gym.agents.planner import plan_store
 from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, plan_world
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
-#: Plans kept (least recently used dropped first); a plan of the demo world is a few MB.
+#: Most plans kept (least recently used dropped first).
 MAX_PLANS = 64
+#: Default bound on the bytes of the plans kept per process (256 MB; a plan of the demo world with
+#: the default 40 bins holds about 80 MB of arrays). Change it with :func:`set_max_bytes`.
+MAX_PLAN_BYTES = 256 * 10**6
 
 _plans: OrderedDict[tuple, Plan] = OrderedDict()
 _lock = threading.Lock()
 _spent: dict[str, float] = {"seconds": 0.0, "plans": 0, "loaded": 0, "load_seconds": 0.0}
+_bound: dict[str, int] = {"bytes": MAX_PLAN_BYTES}
+
+
+def set_max_bytes(max_bytes: int) -> int:
+    """Bound the bytes of the plans kept in this process (whole number >= 1); returns the previous bound.
+    Plans over it are dropped at once (least recently used first)."""
+    if isinstance(max_bytes, bool) or not isinstance(max_bytes, int) or max_bytes < 1:
+        raise ConfigError(f"the plan cache bound max_bytes must be a whole number of bytes >= 1, got {max_bytes!r}")
+    previous = _bound["bytes"]
+    _bound["bytes"] = max_bytes
+    with _lock:
+        _evict()
+    return previous
+
+
+def max_bytes() -> int:
+    """The bound on the bytes of the plans kept in this process."""
+    return _bound["bytes"]
+
+
+def plan_nbytes(plan: object) -> int:
+    """Bytes of the numpy arrays a plan holds (each array once, followed through its objects'
+    attributes, lists, tuples and dicts; views counted by their base): what keeping it costs."""
+    seen: set[int] = set()
+    total = 0
+    stack: list[object] = [plan]
+    while stack:
+        obj = stack.pop()
+        if id(obj) in seen:
+            continue
+        seen.add(id(obj))
+        if isinstance(obj, np.ndarray):
+            base = obj
+            while isinstance(base.base, np.ndarray):
+                base = base.base
+            if base is not obj:
+                stack.append(base)
+            else:
+                total += obj.nbytes
+        elif isinstance(obj, dict):
+            stack.extend(obj.values())
+        elif isinstance(obj, (list, tuple)):
+            stack.extend(obj)
+        elif hasattr(obj, "__dict__") and not isinstance(obj, type):
+            stack.extend(vars(obj).values())
+    return total
+
+
+def cached_bytes() -> int:
+    """Bytes of the plans kept now (:func:`plan_nbytes` summed)."""
+    with _lock:
+        return sum(plan_nbytes(p) for p in _plans.values())
+
+
+def cached_keys() -> list[tuple]:
+    """The keys of the plans kept now, least recently used first."""
+    with _lock:
+        return list(_plans)
+
+
+def _evict() -> None:
+    """Drop least recently used plans until both bounds hold (the newest always stays); under ``_lock``."""
+    while len(_plans) > MAX_PLANS:
+        _plans.popitem(last=False)
+    sizes = {k: plan_nbytes(p) for k, p in _plans.items()}
+    total = sum(sizes.values())
+    while len(_plans) > 1 and total > _bound["bytes"]:
+        key, _ = _plans.popitem(last=False)
+        total -= sizes[key]
 
 
 def plan_key(world: World, max_uses: int, n_bins: int, keyboard_share: float | None, n_weight_bins: int,
@@ -73,8 +154,7 @@ def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_sh
                     if cap is not None:
                         plan_store.prune(store, cap, keep=path)
         _plans[key] = plan
-        while len(_plans) > MAX_PLANS:
-            _plans.popitem(last=False)
+        _evict()
         return plan, time.perf_counter() - start
 
 
