@@ -28,8 +28,9 @@ def test_trained_model_is_loaded_by_simulate_sweep_and_score(tmp_path: Path, cap
     trials = "2048" if name == "ppo" else "600"
     assert main(["train", "--agent", name, *SESSIONS, "--trials", trials, "--out", str(model), "--quiet",
                  "--eval-users", "2"]) == 0
-    out = capsys.readouterr().out
-    assert model.is_file() and f"load it with --agent {name}:model_path={model}" in out
+    captured = capsys.readouterr()
+    assert "load it" not in captured.out  # status on stderr, results on stdout
+    assert model.is_file() and f"load it with --agent {name}:model_path={model}" in captured.err
     spec_text = f"mine={name}:model_path={model}{options}"
     # simulate: the loaded model acts exactly as the same file loaded in-process
     assert main(["simulate", "--agent", spec_text, *SESSIONS, "--users", "2", "--seed", "50",

@@ -30,6 +30,9 @@ COMMAND_MODULES: list[str] = [
     "shortcut_gym.lab.cli.yardstick",
 ]
 
+#: Logger of the lines saying what a subcommand is doing (world, agents, users, outputs): shown by -v only.
+DETAIL_LOGGER = "shortcut_gym.cli.detail"
+
 
 class CLIError(ShortcutGymError, ValueError):
     """A bad command-line value; the message names the option and the value."""
@@ -61,9 +64,11 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"shortcut-gym {__version__}")
     talk = parser.add_mutually_exclusive_group()
     talk.add_argument("-v", "--verbose", action="store_true", dest="log_verbose",
-                      help="also show debug messages (on stderr; give it before the subcommand)")
+                      help="also say what is being done (world, agents, users, outputs) and show debug "
+                           "messages, each line led by its level (on stderr; give it before the subcommand)")
     talk.add_argument("-q", "--quiet", action="store_true", dest="log_quiet",
-                      help="show only warnings and errors (on stderr; give it before the subcommand)")
+                      help="show only warnings and errors: no status lines, no progress bars (on stderr; give it "
+                           "before the subcommand; implies the subcommand's own --quiet)")
     sub = parser.add_subparsers(dest="command", metavar="SUBCOMMAND")
     sub.required = True
     for name in COMMAND_MODULES:
@@ -80,16 +85,27 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     command = "shortcut-gym"
     # the library logs status through the "shortcut_gym" logger; the CLI shows it on stderr
-    # (results go to stdout), for this call only
+    # (results go to stdout), for this call only. What a subcommand is doing (its "detail" logger)
+    # is shown with -v only; -q leaves warnings and errors.
     package_log = logging.getLogger("shortcut_gym")
+    detail_log = logging.getLogger(DETAIL_LOGGER)
     handler = logging.StreamHandler(sys.stderr)
     handler.setFormatter(logging.Formatter("%(message)s"))
-    old_level = package_log.level
+    old_levels = package_log.level, detail_log.level
     package_log.addHandler(handler)
     try:
         args = parser.parse_args(argv)
-        package_log.setLevel(logging.DEBUG if args.log_verbose else logging.WARNING if args.log_quiet else logging.INFO)
+        if args.log_verbose:
+            package_log.setLevel(logging.DEBUG)
+            detail_log.setLevel(logging.NOTSET)
+            handler.setFormatter(logging.Formatter("%(levelname)s: %(message)s"))
+        else:
+            package_log.setLevel(logging.WARNING if args.log_quiet else logging.INFO)
+            detail_log.setLevel(logging.WARNING)
+        if args.log_quiet and hasattr(args, "quiet"):
+            args.quiet = True  # the global -q silences the subcommand's progress bars too
         command = f"shortcut-gym {args.command}"
+        logging.getLogger(DETAIL_LOGGER).info("%s", command)
         return int(args.func(args) or 0)
     except CLIError as err:
         print(f"{getattr(err, 'prog', command)}: error: {one_line(err)}", file=sys.stderr)
@@ -99,7 +115,8 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     finally:
         package_log.removeHandler(handler)
-        package_log.setLevel(old_level)
+        package_log.setLevel(old_levels[0])
+        detail_log.setLevel(old_levels[1])
 
 
 if __name__ == "__main__":

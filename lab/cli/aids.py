@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.lab.cli.options import parse_agent_arg, status
+from shortcut_gym.lab.cli.options import detail, parse_agent_arg, status
 from shortcut_gym.lab.cli.ranges import output_folder, whole_number
 from shortcut_gym.lab.design.aid_study import StudyAgent, load_study, parse_study, run_study
 from shortcut_gym.lab.design.plots import aid_figure, save_figure
@@ -35,6 +35,8 @@ def run(args: argparse.Namespace) -> int:
                                  f"{args.study} with --agent")
     if args.users is not None:
         spec = spec.model_copy(update={"users": SeedBlock(first=spec.users.first, count=args.users)})
+    detail(f"study {spec.name}: {len(aids)} aids, {spec.users.count} users from seed {spec.users.first}, agents "
+           f"{[a.label or a.name for a in spec.agents]}; output folder {args.out or 'none (the table only)'}")
     table = run_study(spec, aids, threads=args.threads)
     path = spec.population.path
     print(f"{spec.name}: {len(aids)} aids x {len(spec.population.values)} values of {path} x "

@@ -10,6 +10,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.options import detail
 
 
 def _folder(text: str) -> Path:
@@ -34,6 +35,7 @@ def run(args: argparse.Namespace) -> int:
     store = SweepStore(args.folder)
     if not store.manifest_path.is_file():
         raise CLIError(f"{args.folder}: not a sweep folder (no manifest.json)")
+    detail(f"checking {args.folder} against {store.manifest_path}")
     check = store.check()
     lines = check.lines()
     holder = FolderLock(args.folder).read_holder()

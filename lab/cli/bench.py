@@ -10,6 +10,7 @@ import time
 from pathlib import Path
 
 from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli.options import status
 
 #: Suite name -> module with ``run(quick, out)``, in the order ``bench`` runs them by default.
 SUITES: dict[str, str] = {
@@ -62,5 +63,5 @@ def run(args: argparse.Namespace) -> int:
         print(f"{chr(10) if i else ''}=== bench {name} ({size})", flush=True)
         t0 = time.perf_counter()
         module.run(quick=args.quick, out=lambda line: print(line, flush=True))
-        print(f"=== bench {name} took {time.perf_counter() - t0:.1f} s", flush=True)
+        status(f"=== bench {name} took {time.perf_counter() - t0:.1f} s")
     return 0

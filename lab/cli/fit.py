@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from shortcut_gym.lab.cli.options import add_log_fit_options, log_fit_inputs, status
+from shortcut_gym.lab.cli.options import add_log_fit_options, detail, log_fit_inputs, status, warn
 from shortcut_gym.lab.fitting import (
     HierarchicalFit,
     context_for,
@@ -45,17 +45,19 @@ def run(args: argparse.Namespace) -> int:
     print(show.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     doubtful = fits[~fits["fit_ok"]]
     if len(doubtful):
-        print(f"{len(doubtful)} doubtful fit(s):")
+        warn(f"{len(doubtful)} doubtful fit(s):")
         for _, r in doubtful.iterrows():
-            print(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
+            warn(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
     status(f"wrote {path} and {args.out / 'parameters.csv'}")
     if args.hierarchical:
+        detail(f"fitting hierarchically ({args.covariance} group covariance)")
         summary, by_model = fit_hierarchical_models(log, specs, context,
                                                     args.starts, args.seed, args.covariance)
         written = write_hierarchical(summary, by_model, args.out)
         print(summary.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
         status("wrote " + ", ".join(str(p) for p in written))
     if args.cross_validate:
+        detail("cross-validating: leave one session out")
         folds = cross_validate(log, specs, context, args.starts, args.seed)
         folds.to_csv(args.out / "cv_folds.csv", index=False)
         cv_table(folds).to_csv(args.out / "cv.csv", index=False)

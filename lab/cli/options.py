@@ -12,7 +12,6 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 
 import argparse
 import logging
-import sys
 from pathlib import Path
 from typing import Any, NamedTuple
 
@@ -22,7 +21,7 @@ from shortcut_gym.agents.registry import AGENTS, make_agent, read_agent_spec
 from shortcut_gym.envs.config import read_yaml
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World, make_world
-from shortcut_gym.lab.cli import CLIError
+from shortcut_gym.lab.cli import DETAIL_LOGGER, CLIError
 from shortcut_gym.lab.cli.ranges import input_file, output_folder, seed, whole_number
 from shortcut_gym.lab.cli.specs import SYNTAX, agent_spec_dict, is_number, parse_spec
 from shortcut_gym.lab.data.logs import read_log
@@ -38,9 +37,23 @@ MODEL_HELP = (f"model as {SYNTAX}; keys that are parameters are held fixed, othe
 _STATUS = logging.getLogger("shortcut_gym.cli")
 
 
+#: What a subcommand is doing (world, agents, users, outputs): INFO lines that only ``-v`` shows.
+_DETAIL = logging.getLogger(DETAIL_LOGGER)
+
+
 def status(message: str) -> None:
     """Report a status line (stderr; hidden by ``-q``)."""
     _STATUS.info(message)
+
+
+def detail(message: str) -> None:
+    """Say what is being done (stderr, shown by ``-v`` only)."""
+    _DETAIL.info(message)
+
+
+def warn(message: str) -> None:
+    """Report something the user should look at (stderr; shown even with ``-q``)."""
+    _STATUS.warning(message)
 
 
 def parse_model(text: str) -> ModelSpec:
@@ -108,6 +121,8 @@ def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -
     texts = args.agent if args.agent or args.agent_file else default
     specs = [parse_agent_arg(t) for t in texts or []]
     specs += [read_agent_spec(path).as_dict() for path in args.agent_file or []]
+    for spec in specs:
+        detail("agent " + ", ".join(f"{k}={v}" for k, v in spec.items()))
     return specs
 
 
@@ -135,7 +150,9 @@ def world_of(args: argparse.Namespace) -> World:
     sessions = getattr(args, "sessions", None)
     if sessions is not None:
         schedule["sessions"] = sessions
-    return make_world(args.scenario, args.costs, args.memory, schedule or None)
+    world = make_world(args.scenario, args.costs, args.memory, schedule or None)
+    detail(world_words(world, args))
+    return world
 
 
 def world_words(world: World, args: argparse.Namespace) -> str:
@@ -228,21 +245,25 @@ def log_fit_inputs(args: argparse.Namespace) -> LogFitInputs:
     ranges = start_ranges_of(args.start_range, specs)
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
+    detail(f"log {args.log}: {len(log)} trials of {log['participant'].nunique()} participants")
+    detail(f"output folder {args.out}")
     return LogFitInputs(world, specs, priors, ranges, log)
 
 
 def report_skipped(log: pd.DataFrame) -> None:
-    """Print (stderr) the participants a ``--skip-bad-participants`` read left out, with their first fault."""
+    """Warn (stderr) of the participants a ``--skip-bad-participants`` read left out, with their first fault."""
     skipped = log.attrs.get("skipped_participants") or {}
     if skipped:
-        print(f"skipped {len(skipped)} participant(s) with faulty rows:", file=sys.stderr)
+        warn(f"skipped {len(skipped)} participant(s) with faulty rows:")
         for pid, fault in skipped.items():
-            print(f"  {pid!r}: {fault}", file=sys.stderr)
+            warn(f"  {pid!r}: {fault}")
 
 
 def models_of(args: argparse.Namespace) -> list[ModelSpec]:
     """The ``--model`` options parsed; labels must be unique."""
     specs = [parse_model(m) for m in args.model]
+    for spec in specs:
+        detail(f"model {spec.label or spec.name}: {spec.name}, options {dict(spec.options)}, fixed {dict(spec.fixed)}")
     labels = [s.label for s in specs]
     dup = {lab for lab in labels if labels.count(lab) > 1}
     if dup:

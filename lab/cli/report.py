@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.lab.cli.options import add_log_fit_options, log_fit_inputs, world_words
+from shortcut_gym.lab.cli.options import add_log_fit_options, log_fit_inputs, status, world_words
 from shortcut_gym.lab.cli.ranges import whole_number
 from shortcut_gym.lab.cli.yardstick import add_planner_options
 from shortcut_gym.lab.report import analyse_log
@@ -48,5 +48,5 @@ def run(args: argparse.Namespace) -> int:
                                                  + " The posterior-predictive simulations run on it.")])
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(tables["bms"].to_string(index=False, float_format=lambda v: f"{v:.3f}"))
-    print(f"report in {index.parent}")
+    status(f"report in {index.parent}")
     return 0

@@ -8,7 +8,7 @@ import argparse
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.scoring import time_lost_vs_planner
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, status, world_of
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, detail, status, world_of
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_number
 from shortcut_gym.lab.simulate import label_of
 
@@ -38,6 +38,8 @@ def run(args: argparse.Namespace) -> int:
         if label in agents or label == PLANNER:
             raise CLIError(f"agent label {label!r} repeats (or is the planner's); give it a label: name=agent:...")
         agents[label] = agent_from_spec(spec)
+    detail(f"{args.users} users per agent, seeds {args.seed}..{args.seed + args.users - 1}, against the planner; "
+           f"output {args.out or 'none (the table only)'}")
     table = time_lost_vs_planner(world, agents, range(args.seed, args.seed + args.users), planner_label=PLANNER)
     print(table.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     if args.out is not None:

@@ -19,6 +19,7 @@ from shortcut_gym.lab.cli.options import (
     add_world_options,
     agent_specs_of,
     claim_output,
+    detail,
     status,
     world_of,
 )
@@ -75,6 +76,8 @@ def run_population(args: argparse.Namespace) -> int:
     except ConfigError as err:
         raise CLIError(str(err)) from None
     world = world_of(args)
+    detail(f"population {args.population}: {sum(p.participants for p in populations)} participants from seed "
+           f"{args.seed}; trial log {args.log}")
     rng = np.random.default_rng(args.seed)
     logs, truths = [], []
     for pop in populations:
@@ -106,6 +109,9 @@ def run(args: argparse.Namespace) -> int:
         raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
     world = world_of(args)
     specs = agent_specs_of(args, default=["always_menu", "always_hotkey", "learn_first_k:k=1"])
+    detail(f"{args.users} users per agent, seeds {args.seed}..{args.seed + args.users - 1}; outputs: "
+           + (", ".join(f"{name} {path}" for name, path in (("folder", args.out), ("trial log", args.log))
+                        if path is not None) or "none (the table only)"))
     trials = simulate_agents(world, specs, range(args.seed, args.seed + args.users))
     summary = session_summary(trials)
     print(summary.to_string(index=False, float_format=lambda v: f"{v:.3f}"))

@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, agent_specs_of
+from shortcut_gym.lab.cli.options import add_agent_options, agent_specs_of, detail, status, warn
 from shortcut_gym.lab.cli.ranges import optional_output_folder, output_folder, positive_number, whole_number
 from shortcut_gym.lab.sweep.backends import BackendError
 
@@ -68,11 +68,14 @@ def run(args: argparse.Namespace) -> int:
     if args.plan_cap is not None and plans is False:
         raise SweepArgumentError("--plan-cap caps plans on disk; --plan-folder none keeps none there")
     cap = None if args.plan_cap is None else max(1, round(args.plan_cap * 1e6))
+    detail(f"sweep {spec.name} into {out} on backend {args.backend}")
     try:
         report = run_sweep(spec, out, backend=args.backend, workers=args.workers, address=args.address,
                            retry_failed=args.retry_failed, progress=not args.quiet, plan_store=plans,
                            keep_plans=args.keep_plans, plan_store_bytes=cap)
     except BackendError as err:
         raise SweepArgumentError(str(err)) from None
-    print("\n".join(report.lines()))
+    failures = set(report.failure_lines())
+    for line in report.lines():
+        (warn if line in failures else status)(line)
     return 1 if report.failed else 0

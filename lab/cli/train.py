@@ -14,7 +14,7 @@ from shortcut_gym.agents.sb3 import SB3Agent
 from shortcut_gym.agents.tabular import TabularAgent
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, world_of
+from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, detail, status, world_of
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_number
 
 #: Agents ``train`` knows how to train and save (registry names).
@@ -58,6 +58,7 @@ def run(args: argparse.Namespace) -> int:
     first_eval = args.seed + (episodes if isinstance(agent, TabularAgent) else 0) + 1
     if first_eval + args.eval_users > MAX_SEED:
         raise CLIError(f"--seed {args.seed}: the evaluation seeds would exceed {MAX_SEED}")
+    detail(f"training on {args.trials} trials of experience from seed {args.seed}; model file {args.out}")
     if isinstance(agent, SB3Agent):
         agent.train(world, total_timesteps=args.trials, seed=args.seed, progress_bar=not args.quiet, n_envs=args.envs)
         trained = f"{args.trials} timesteps on {args.envs} parallel users"
@@ -69,12 +70,13 @@ def run(args: argparse.Namespace) -> int:
         raise CLIError(f"train: no training for {spec['name']!r}")
     Path(args.out).parent.mkdir(parents=True, exist_ok=True)
     path = agent.save(Path(args.out))
-    print(f"trained {spec['name']} for {trained}; wrote {path}")
+    status(f"trained {spec['name']} for {trained}; wrote {path}")
     if args.eval_users:
         seeds = range(first_eval, first_eval + args.eval_users)
+        detail(f"evaluating on {args.eval_users} new users, seeds {seeds.start}..{seeds.stop - 1}")
         mine = evaluate_agent(env, agent, seeds)["total_time_s"].mean()
         menu = evaluate_agent(env, make_agent("always_menu"), seeds)["total_time_s"].mean()
         print(f"time per user over {args.eval_users} new users: {spec['name']} {mine:.1f} s, "
               f"always_menu {menu:.1f} s ({mine - menu:+.1f} s per user)")
-    print(f"load it with --agent {spec['name']}:model_path={path}")
+    status(f"load it with --agent {spec['name']}:model_path={path}")
     return 0

@@ -12,7 +12,15 @@ import time
 
 from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import MODEL_HELP, add_common, add_skip_bad, parse_model, report_skipped
+from shortcut_gym.lab.cli.options import (
+    MODEL_HELP,
+    add_common,
+    add_skip_bad,
+    detail,
+    parse_model,
+    report_skipped,
+    status,
+)
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.data.logs import read_log
 from shortcut_gym.lab.rationality import PLANNED, PlannerOptions, rationality_analysis
@@ -58,6 +66,8 @@ def run(args: argparse.Namespace) -> int:
                        "models only")
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
+    detail(f"scenario {world.scenario.name}; log {args.log}: {len(log)} trials of {log['participant'].nunique()} "
+           f"participants; learning models {[s.label for s in learning]}; output folder {args.out}")
     start = time.perf_counter()
     result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed, args.jobs,
                                   args.duration_noise, args.optimum_sims)
@@ -67,5 +77,5 @@ def run(args: argparse.Namespace) -> int:
                         "beta_high", "better_model") if c in result.participants.columns]
     print(result.participants[cols].to_string(index=False, float_format=lambda v: f"{v:.3g}"))
     print(result.group.to_string(index=False, float_format=lambda v: f"{v:.3g}"))
-    print(f"report in {index.parent} ({time.perf_counter() - start:.1f} s)")
+    status(f"report in {index.parent} ({time.perf_counter() - start:.1f} s)")
     return 0

@@ -48,6 +48,10 @@ class SweepReport:
     warm_up_s: float = 0.0  # seconds the driver spent loading compiled code once before forking workers
     plans_removed_bytes: int | None = None  # bytes of <folder>/plans removed at the end (None: kept or none)
 
+    def failure_lines(self) -> list[str]:
+        """One line per failed run (its id and error)."""
+        return [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
+
     def lines(self) -> list[str]:
         """Human-readable summary lines."""
         out = [f"sweep folder {self.folder}: {self.total} runs; {self.kept} kept from before, "
@@ -64,7 +68,7 @@ class SweepReport:
                        "keep_plans / --keep-plans keeps them)")
         if self.warm_up_s:
             out.append(f"  start-up {self.warm_up_s:.2f} s (compiled code loaded once, before the workers fork)")
-        out += [f"  failed {f['run_id']}: {f['error']}" for f in self.failed]
+        out += self.failure_lines()
         out += [f"  wrote {name}: {path}" for name, path in self.outputs.items()]
         return out
 
