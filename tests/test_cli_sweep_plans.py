@@ -38,7 +38,7 @@ def test_the_plans_go_to_the_default_place_a_named_folder_or_nowhere_and_results
     assert _sweep(tmp_path, "default", "--keep-plans") == 0
     assert len(list((tmp_path / "default" / "plans").glob("*.plan"))) == 2  # one per world
     assert _sweep(tmp_path, "removed") == 0
-    assert "removed the sweep's plans" in capsys.readouterr().out
+    assert "removed the sweep's plans" in capsys.readouterr().err
     assert not (tmp_path / "removed" / "plans").exists()
     shared = tmp_path / "shared" / "deeper"
     assert _sweep(tmp_path, "named", "--plan-folder", str(shared)) == 0
@@ -46,10 +46,10 @@ def test_the_plans_go_to_the_default_place_a_named_folder_or_nowhere_and_results
     for word in ("none", "NONE"):
         assert _sweep(tmp_path, f"off_{word}", "--plan-folder", word) == 0
         assert not (tmp_path / f"off_{word}" / "plans").exists() and not Path(word).exists()
-    assert "2 plan(s) made, 0 read from the plan store" in capsys.readouterr().out
+    assert "2 plan(s) made, 0 read from the plan store" in capsys.readouterr().err
     # a second sweep on the named folder reads both plans and makes none
     assert _sweep(tmp_path, "named_again", "--plan-folder", str(shared)) == 0
-    assert "0 plan(s) made, 2 read from the plan store" in capsys.readouterr().out
+    assert "0 plan(s) made, 2 read from the plan store" in capsys.readouterr().err
     base = _results(tmp_path / "default")
     for other in ("removed", "named", "off_none", "off_NONE", "named_again"):
         pd.testing.assert_frame_equal(base, _results(tmp_path / other), check_exact=True)
