@@ -42,7 +42,7 @@ MAX_PLAN_BYTES = 256 * 10**6
 
 _plans: OrderedDict[tuple, Plan] = OrderedDict()
 _lock = threading.Lock()
-_spent: dict[str, float] = {"seconds": 0.0, "plans": 0, "loaded": 0, "load_seconds": 0.0}
+_spent: dict[str, float] = {"seconds": 0.0, "plans": 0, "loaded": 0, "load_seconds": 0.0, "wait_seconds": 0.0}
 _bound: dict[str, int] = {"bytes": MAX_PLAN_BYTES}
 
 
@@ -130,7 +130,8 @@ def cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_share: f
 def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_share: float | None = None,
                       n_weight_bins: int = 10, select_users: int = SELECTION_USERS) -> tuple[Plan, float]:
     """:func:`cached_plan` and the seconds this call spent on the plan (planning it, or reading it
-    from the plan store; 0.0 when it was in memory)."""
+    from the plan store; 0.0 when it was in memory), not counting the seconds spent waiting for
+    another process holding the plan's store lock (counted apart, :func:`waiting_seconds`)."""
     key = plan_key(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
     with _lock:
         plan = _plans.get(key)
@@ -138,15 +139,18 @@ def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_sh
             _plans.move_to_end(key)
             return plan, 0.0
         start = time.perf_counter()
+        waited = 0.0
         store = plan_store.plan_store()
         if store is None:
             plan = _make(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
         else:
             with plan_store.key_lock(store, key):
+                waited = time.perf_counter() - start  # another process held the entry (making it)
+                _spent["wait_seconds"] += waited
                 plan = plan_store.load(store, key)
                 if plan is not None:
                     _spent["loaded"] += 1
-                    _spent["load_seconds"] += time.perf_counter() - start
+                    _spent["load_seconds"] += time.perf_counter() - start - waited
                 else:
                     plan = _make(world, max_uses, n_bins, keyboard_share, n_weight_bins, select_users)
                     path = plan_store.save(store, key, plan)
@@ -155,7 +159,7 @@ def timed_cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_sh
                         plan_store.prune(store, cap, keep=path)
         _plans[key] = plan
         _evict()
-        return plan, time.perf_counter() - start
+        return plan, time.perf_counter() - start - waited
 
 
 def _make(world: World, max_uses: int, n_bins: int, keyboard_share: float | None, n_weight_bins: int,
@@ -181,6 +185,13 @@ def plans_made() -> int:
 def plans_loaded() -> int:
     """Plans this process has read from the plan store (made by another process or an earlier run)."""
     return int(_spent["loaded"])
+
+
+def waiting_seconds() -> float:
+    """Seconds this process has spent waiting for a plan store entry's lock held by another
+    process (which was making or reading that plan); not in :func:`planning_seconds` or
+    :func:`loading_seconds`."""
+    return _spent["wait_seconds"]
 
 
 def loading_seconds() -> float:

@@ -110,7 +110,7 @@ class _RunWorker:
 def _failed(runs: list[dict[str, Any]], err: BaseException) -> list[dict[str, Any]]:
     """Failure results for runs whose worker was lost (the runs themselves may be fine)."""
     return [{"run_id": r["run_id"], "status": "failed", "error": f"worker lost: {type(err).__name__}: {err}",
-             "traceback": "", "compute_s": 0.0, "plan_s": 0.0, "plans_made": 0, "plans_loaded": 0,
+             "traceback": "", "compute_s": 0.0, "plan_s": 0.0, "plan_wait_s": 0.0, "plans_made": 0, "plans_loaded": 0,
              "pid": None} for r in runs]
 
 

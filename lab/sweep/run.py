@@ -91,9 +91,11 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
     """Simulate one run; returns status, tables (or the error), the compute time ``compute_s`` and,
     within it, the time spent on the plan ``plan_s`` (a planner's plan for the run's world: made, or
     read from the plan store, once per world in the worker process; 0 when an earlier run of the
-    same world in this process had it), the same two as this process's CPU seconds (``compute_cpu_s``,
-    ``plan_cpu_s``: not inflated by other processes sharing the cores), and the plans this run
-    made and read (``plans_made``, ``plans_loaded``).
+    same world in this process had it), the seconds within it spent waiting for another worker
+    that held the plan's store lock while making it (``plan_wait_s``, not in ``plan_s``; so
+    simulation is ``compute_s - plan_s - plan_wait_s``), the compute and plan times as this
+    process's CPU seconds (``compute_cpu_s``, ``plan_cpu_s``: not inflated by other processes
+    sharing the cores), and the plans this run made and read (``plans_made``, ``plans_loaded``).
 
     ``run["plan_store"]`` (optional): the folder of the on-disk plan store
     (:mod:`shortcut_gym.agents.planner.plan_store`) shared by every worker of the sweep, so each
@@ -101,7 +103,7 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
     byte cap (least recently used entries removed after each write)."""
     start, cpu_start = time.perf_counter(), time.process_time()
     plan_s = plan_cpu_s = 0.0
-    made, loaded = plan_cache.plans_made(), plan_cache.plans_loaded()
+    made, loaded, waited = plan_cache.plans_made(), plan_cache.plans_loaded(), plan_cache.waiting_seconds()
     try:
         world = run_world(run["settings"])
         cpu_before = time.process_time()
@@ -125,6 +127,7 @@ def compute_run(run: dict[str, Any]) -> dict[str, Any]:
                   "traceback": traceback.format_exc()}
     result["compute_s"] = time.perf_counter() - start
     result["plan_s"] = plan_s
+    result["plan_wait_s"] = plan_cache.waiting_seconds() - waited
     result["compute_cpu_s"] = time.process_time() - cpu_start
     result["plan_cpu_s"] = plan_cpu_s
     result["plans_made"] = plan_cache.plans_made() - made

@@ -43,6 +43,7 @@ class SweepReport:
     notes: list[str] = field(default_factory=list)  # what the resume found (stale lock, damaged runs, code change)
     compute_s: float = 0.0  # summed in-worker seconds of the runs computed now, planning included
     plan_s: float = 0.0  # of which planning or reading plans (the plan store: once per world in all)
+    plan_wait_s: float = 0.0  # of which waiting for another worker making the same plan (not in plan_s)
     plans_made: int = 0  # plans computed by the runs computed now (at most one per distinct world)
     plans_loaded: int = 0  # plans those runs read from the plan store (made by another worker or sweep)
     warm_up_s: float = 0.0  # seconds the driver spent loading compiled code once before forking workers
@@ -60,9 +61,11 @@ class SweepReport:
             out.append(f"  {len(self.recomputed)} finished run(s) were missing or damaged and were computed again "
                        f"(damaged files set aside under damaged/): {', '.join(self.recomputed)}")
         if self.computed:
-            out.append(f"  in-worker compute {self.compute_s:.2f} s: simulation {self.compute_s - self.plan_s:.2f} s, "
+            simulation = self.compute_s - self.plan_s - self.plan_wait_s
+            out.append(f"  in-worker compute {self.compute_s:.2f} s: simulation {simulation:.2f} s, "
                        f"planning {self.plan_s:.2f} s ({self.plans_made} plan(s) made, "
-                       f"{self.plans_loaded} read from the plan store)")
+                       f"{self.plans_loaded} read from the plan store), waiting for another worker's plan "
+                       f"{self.plan_wait_s:.2f} s")
         if self.plans_removed_bytes is not None:
             out.append(f"  removed the sweep's plans ({self.plans_removed_bytes / 1e6:.1f} MB under plans/; "
                        "keep_plans / --keep-plans keeps them)")
@@ -208,7 +211,7 @@ def run_sweep(
             engine.stop()
         raise
     computed = plans_made = plans_loaded = 0
-    compute_s = plan_s = 0.0
+    compute_s = plan_s = plan_wait_s = 0.0
     try:
         previous = store.open(sweep.model_dump(mode="json"), runs, digest)
         check = store.check([r["run_id"] for r in runs]) if previous is not None else None
@@ -249,6 +252,7 @@ def run_sweep(
                 computed += 1
                 compute_s += float(result.get("compute_s") or 0.0)
                 plan_s += float(result.get("plan_s") or 0.0)
+                plan_wait_s += float(result.get("plan_wait_s") or 0.0)
                 plans_made += int(result.get("plans_made") or 0)
                 plans_loaded += int(result.get("plans_loaded") or 0)
                 bar.update(1)
@@ -259,7 +263,7 @@ def run_sweep(
         status = store.update_status(runs, {"backend": engine.name, "code_digest": code})
         removed = _remove_plans(store) if own_plans and not keep_plans else None
         report = SweepReport(store.folder, len(runs), kept, computed, store.failures(), 0.0, recomputed=redo,
-                             notes=notes, compute_s=compute_s, plan_s=plan_s,
+                             notes=notes, compute_s=compute_s, plan_s=plan_s, plan_wait_s=plan_wait_s,
                              plans_made=plans_made, plans_loaded=plans_loaded,
                              warm_up_s=float(getattr(engine, "warm_up_s", 0.0)), plans_removed_bytes=removed)
         store.log({"event": "finish", **status, "plans_made": plans_made, "plans_loaded": plans_loaded})

@@ -229,8 +229,8 @@ class SweepStore:
         """Store one run's result atomically (a folder rename, or a failure file rename) and record its digests."""
         run_id = result["run_id"]
         if result["status"] == "failed":
-            keys = ("run_id", "status", "error", "traceback", "compute_s", "plan_s", "plans_made", "plans_loaded",
-                    "pid")
+            keys = ("run_id", "status", "error", "traceback", "compute_s", "plan_s", "plan_wait_s", "plans_made",
+                    "plans_loaded", "pid")
             record = {k: result.get(k) for k in keys}
             atomic_write_text(self.runs_dir / f"{run_id}.failed.json", json.dumps(record, indent=1))
             self.log({"event": "run_failed", "run_id": run_id, "error": result.get("error")})
@@ -245,7 +245,8 @@ class SweepStore:
                     result[table].to_parquet(path, index=False)
                     tables[path.name] = file_digest(path)
             meta = {"run_id": run_id, "status": "done", "compute_s": result.get("compute_s"),
-                    "plan_s": result.get("plan_s"), "plans_made": result.get("plans_made"),
+                    "plan_s": result.get("plan_s"), "plan_wait_s": result.get("plan_wait_s"),
+                    "plans_made": result.get("plans_made"),
                     "plans_loaded": result.get("plans_loaded"), "compute_cpu_s": result.get("compute_cpu_s"),
                     "plan_cpu_s": result.get("plan_cpu_s"), "pid": result.get("pid"),
                     "written": time.time(), "files": tables}
