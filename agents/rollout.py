@@ -30,6 +30,7 @@ from shortcut_gym.agents.base import (
     SessionBatchPolicy,
     Transition,
 )
+from shortcut_gym.agents.world_record import WorldRecorded
 from shortcut_gym.envs.errors import ConfigError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.kernel import N_OPS, OUTCOME_NAMES
@@ -58,6 +59,8 @@ def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials:
     """
     if agent.context is None:
         agent.bind(context_of(env))
+    elif isinstance(agent, WorldRecorded):  # a trained model bound before: it must meet its own world here too
+        agent.check_world(env.unwrapped.world)  # type: ignore[attr-defined]
     obs, info = env.reset(seed=seed)
     agent.reset(seed)
     rows = []
@@ -203,6 +206,8 @@ def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_bat
         raise UsageError("drive_batch needs a simulator just reset (trial 0)")
     if len(seeds) != sim.n_users:
         raise ConfigError(f"{len(seeds)} agent seeds for {sim.n_users} simulated users")
+    if isinstance(agent, WorldRecorded):
+        agent.check_world(sim.world)
     stepper: _PolicyStepper | _AgentStepper
     if use_batch_policy and isinstance(agent, BatchAgent):
         policy = agent.batch_policy(sim.n_users, seeds)

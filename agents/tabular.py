@@ -18,10 +18,15 @@ the command. The schedule's end is a true end (``terminated``: no bootstrap past
 use); an episode a wrapper truncates leaves its open uses unlearned (their next state is unknown).
 ``reset`` starts a new episode and keeps the learned table; :meth:`clear` forgets it; updates
 happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
+
+``save`` writes the table with the record of the world it was trained on (``world`` entry of the
+.npz, :mod:`shortcut_gym.agents.world_record`); a loaded table refuses another world (or a file
+without a record) unless ``allow_other_world=True``.
 """
 
 from __future__ import annotations
 
+import json
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -33,6 +38,7 @@ from tqdm.auto import tqdm
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
+from shortcut_gym.agents.world_record import WorldRecorded, atomic_path, check_flag, parse_record
 from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
 
 _FEATURES = CELL_FEATURES
@@ -45,7 +51,7 @@ _EDGES = {  # bucket upper edges (counts or seconds), in feature order
 _SIZES = tuple(len(_EDGES[f]) + 1 for f in _FEATURES)
 
 
-class TabularAgent(Agent):
+class TabularAgent(WorldRecorded, Agent):
     """Shared machinery of the tabular learners; subclasses set the bootstrap target."""
 
     name = "tabular"
@@ -59,8 +65,10 @@ class TabularAgent(Agent):
         }
 
     def __init__(self, context: AgentContext | None = None, model_path: str | Path | None = None,
-                 **params: float) -> None:
+                 allow_other_world: bool = False, **params: float) -> None:
         super().__init__(context, **params)
+        self.allow_other_world = check_flag(self.name, allow_other_world)
+        self._has_model = False  # a table trained or loaded (not one cleared to its initial values)
         self.learning = False
         self.q: np.ndarray | None = None
         self.model_path = None if model_path is None else str(model_path)
@@ -74,8 +82,13 @@ class TabularAgent(Agent):
         if self.q is not None and self.q.shape[0] != context.n_commands:
             raise ConfigError(f"{self.name}: the Q table {self.model_path or ''} has {self.q.shape[0]} commands, "
                               f"the world {context.n_commands} (train it on this scenario)")
+        self.check_world(context.world)
         super().bind(context)
         self._index = None
+
+    def has_model(self) -> bool:
+        """True once the table was trained or loaded."""
+        return self._has_model
 
     def clear(self) -> None:
         """Forget the learned table."""
@@ -141,6 +154,8 @@ class TabularAgent(Agent):
 
         if self.context is None:
             self.bind(context_of(env))
+        world = env.unwrapped.world
+        self.check_world(world)
         self.learning = True
         totals = []
         try:
@@ -149,14 +164,18 @@ class TabularAgent(Agent):
                 totals.append(df["duration_s"].sum())
         finally:
             self.learning = False
+        self._has_model = True
+        self.trained_on(world)
         return pd.DataFrame({"episode": np.arange(episodes), "total_time_s": totals})
 
     def save(self, path: str | Path) -> Path:
-        """Write the Q table and parameters to ``path`` (.npz)."""
+        """Write the Q table, the agent name and the world record (JSON) to ``path`` (.npz), atomically."""
         if self.q is None:
             raise NotReadyError(f"{self.name}: nothing to save, train first")
         p = Path(path).with_suffix(".npz")
-        np.savez(p, q=self.q, name=self.name)
+        record = self.record_to_save(self.context.world if self.context is not None else None)
+        with atomic_path(p) as tmp, open(tmp, "wb") as f:
+            np.savez(f, q=self.q, name=self.name, world=json.dumps(record, sort_keys=True))
         self.model_path = str(p)
         return p
 
@@ -168,6 +187,7 @@ class TabularAgent(Agent):
         try:
             with np.load(p) as d:
                 name, q = str(d["name"]), d["q"]
+                text = str(d["world"]) if "world" in d.files else None
         except (OSError, ValueError, KeyError) as err:
             raise DataError(f"{self.name}: {p} is not a Q table written by save ({err})") from None
         if name != self.name:
@@ -176,8 +196,11 @@ class TabularAgent(Agent):
             raise DataError(f"{self.name}: {p} holds a table of shape {q.shape}, not commands x {(*_SIZES, 3)}")
         if self.context is not None and q.shape[0] != self.context.n_commands:
             raise DataError(f"{self.name}: {p} has {q.shape[0]} commands, the context {self.context.n_commands}")
+        record = None if text is None else parse_record(text, f"{self.name}: {p}")
+        self.adopt_record(record, str(p), self.context.world if self.context is not None else None)
         self.q = q.copy()
         self.model_path = str(p)
+        self._has_model = True
         return self
 
     def evaluate(self, env: Any, seeds: Any, greedy: bool = False) -> pd.DataFrame:
@@ -195,6 +218,8 @@ class TabularAgent(Agent):
         out: dict[str, Any] = {"name": self.name, "params": dict(self.params)}
         if self.model_path is not None:
             out["model_path"] = self.model_path
+        if self.allow_other_world:
+            out["allow_other_world"] = True
         return out
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:

@@ -50,3 +50,8 @@ class DataError(ShortcutGymError, ValueError):
 class NotReadyError(UsageError, ValueError):
     """An object is asked for something it does not have yet (no bound context, no trained model, no
     kept trials); the message says what to do first. A ValueError too, as it was before."""
+
+
+class WorldMismatchError(ConfigError):
+    """A saved model is used on a world other than the one it was trained on (or its file keeps no
+    record of that world); the message names the file, both worlds and the parts that differ."""

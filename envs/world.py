@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import json
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -173,22 +174,53 @@ class World:
         what is computed once per world, such as a plan)."""
         h = hashlib.sha256()
         for name in self.__dataclass_fields__:
-            value = getattr(self, name)
-            h.update(name.encode())
-            if hasattr(value, "model_dump_json"):
-                h.update(value.model_dump_json().encode())
-            elif name == "commands":
-                for part in vars(value).values():
-                    h.update(part.tobytes() if isinstance(part, np.ndarray) else repr(part).encode())
-            else:
-                h.update(repr(value).encode())
+            _feed(h, name, getattr(self, name))
         return h.hexdigest()
+
+    def problem_parts(self) -> dict[str, str]:
+        """Digest (hex) of each part of the decision problem the world poses, as the simulator reads
+        it and however the settings spell it: ``commands`` (the command set built from the scenario's
+        menus, hotkeys and usage, not its name, description or default schedule), ``costs`` (K
+        resolved from the typist class, not the preset's name), ``memory``, ``schedule`` (the one in
+        force), ``observation`` (observe_recall, target_encoding) and ``aids`` (not the preset's name).
+        Settings a part holds but its kind ignores (an aid switched off) still count."""
+        costs = self.costs.model_dump(mode="json", exclude={"name"})
+        costs["klm"] = {**costs["klm"], "typist": None, "keystroke_s": self.costs.klm.k_s}
+        settings: dict[str, Any] = {
+            "costs": costs, "memory": self.memory.model_dump(mode="json"),
+            "schedule": self.schedule.model_dump(mode="json"),
+            "observation": {"observe_recall": self.observe_recall, "target_encoding": self.target_encoding},
+            "aids": self.aids.model_dump(mode="json", exclude={"name"}),
+        }
+        h = hashlib.sha256()
+        _feed(h, "commands", self.commands)
+        out = {"commands": h.hexdigest()}
+        for name, value in settings.items():
+            out[name] = hashlib.sha256(f"{name}:{json.dumps(value, sort_keys=True)}".encode()).hexdigest()
+        return out
+
+    def problem_digest(self) -> str:
+        """One digest (hex) of :meth:`problem_parts`: equal for worlds that pose the same problem
+        (the fingerprint a saved model keeps); :meth:`digest` also tells apart how it is spelled."""
+        return hashlib.sha256(json.dumps(self.problem_parts(), sort_keys=True).encode()).hexdigest()
 
     def with_changes(self, **changes: Any) -> World:
         """A copy with some fields replaced."""
         fields = {f: getattr(self, f) for f in self.__dataclass_fields__}
         fields.update(changes)
         return World(**fields)
+
+
+def _feed(h: Any, name: str, value: Any) -> None:
+    """Add one named field of a world to the hash ``h``."""
+    h.update(name.encode())
+    if hasattr(value, "model_dump_json"):
+        h.update(value.model_dump_json().encode())
+    elif name == "commands":
+        for part in vars(value).values():
+            h.update(part.tobytes() if isinstance(part, np.ndarray) else repr(part).encode())
+    else:
+        h.update(repr(value).encode())
 
 
 def make_world(

@@ -8,10 +8,14 @@ Q-values with epsilon = the model's final exploration rate. ``act`` samples from
 agent's generator, or takes its most probable action when ``deterministic=True``. Observations
 go through the frozen training statistics when ``normalize`` is on (default). Stable-Baselines3
 and torch are imported on first use; torch runs on :data:`~.algorithms.MAX_TORCH_THREADS` thread.
+A saved model keeps the record of the world it was trained on (:mod:`.files`); a loaded one
+refuses another world (or a zip without a record) unless ``allow_other_world=True``
+(:mod:`shortcut_gym.agents.world_record`).
 """
 
 from __future__ import annotations
 
+import json
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any, ClassVar
@@ -25,10 +29,11 @@ from shortcut_gym.agents.rollout import context_of, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
 from shortcut_gym.agents.sb3.training import train_model
+from shortcut_gym.agents.world_record import WorldRecorded, check_flag
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
 
 
-class SB3Agent(Agent):
+class SB3Agent(WorldRecorded, Agent):
     """A Stable-Baselines3 model as a zoo agent (subclasses pick the algorithm)."""
 
     name = "sb3"
@@ -36,8 +41,9 @@ class SB3Agent(Agent):
 
     def __init__(self, context: AgentContext | None = None, model_path: str | Path | None = None,
                  deterministic: bool = False, hyperparameters: dict[str, Any] | None = None, normalize: bool = True,
-                 **params: float) -> None:
+                 allow_other_world: bool = False, **params: float) -> None:
         super().__init__(context, **params)
+        self.allow_other_world = check_flag(self.name, allow_other_world)
         for key, flag in (("deterministic", deterministic), ("normalize", normalize)):
             if not isinstance(flag, bool):
                 raise ConfigError(f"{self.name}: {key} must be true or false, got {flag!r}")
@@ -56,11 +62,19 @@ class SB3Agent(Agent):
         if shape is not None and context.obs_names and shape[0] != len(context.obs_names):
             raise ConfigError(f"{self.name}: the model {self.model_path or ''} reads observations of length "
                               f"{shape[0]}, this world's have {len(context.obs_names)} (train it on this scenario)")
+        self.check_world(context.world)
         super().bind(context)
 
+    def has_model(self) -> bool:
+        """True once a model was trained or loaded."""
+        return self.model is not None
+
     def spec(self) -> dict[str, Any]:
-        return {"name": self.name, "model_path": self.model_path, "deterministic": self.deterministic,
-                "normalize": self.normalize, "hyperparameters": dict(self.hyperparameters), "params": {}}
+        out = {"name": self.name, "model_path": self.model_path, "deterministic": self.deterministic,
+               "normalize": self.normalize, "hyperparameters": dict(self.hyperparameters), "params": {}}
+        if self.allow_other_world:
+            out["allow_other_world"] = True
+        return out
 
     def train(self, env_or_world: Any, total_timesteps: int, seed: int = 0, progress_bar: bool = True,
               n_envs: int = 8) -> SB3Agent:
@@ -72,10 +86,12 @@ class SB3Agent(Agent):
             from shortcut_gym.envs.env import CommandSelectionEnv
 
             self.bind(context_of(CommandSelectionEnv(world=world)))
+        self.check_world(world)  # a loaded model trained further: on its own world only, unless allowed
         self.model, obs_norm = train_model(self.algorithm, self.hyperparameters, world, total_timesteps, seed, n_envs,
                                            self.normalize, self.model, f"train {self.name}" if progress_bar else None)
         if obs_norm is not None:
             self.obs_norm = obs_norm
+        self.trained_on(world)
         return self
 
     def _prepare(self, obs: np.ndarray) -> np.ndarray:
@@ -90,13 +106,16 @@ class SB3Agent(Agent):
         """Write the model zip; returns its path."""
         if self.model is None:
             raise NotReadyError(f"{self.name}: nothing to save, train or load a model first")
-        p = save_model(self.model, self.obs_norm, path)
+        record = self.record_to_save(self.context.world if self.context is not None else None)
+        p = save_model(self.model, self.obs_norm, path, json.dumps(record, sort_keys=True))
         self.model_path = str(p)
         return p
 
     def load(self, path: str | Path) -> SB3Agent:
         """Read a model saved by :meth:`save`."""
-        self.model, obs_norm = load_model(self.name, self.algorithm, path, self.normalize)
+        model, obs_norm, record = load_model(self.name, self.algorithm, path, self.normalize)
+        self.adopt_record(record, str(Path(path)), self.context.world if self.context is not None else None)
+        self.model = model
         if obs_norm is not None:
             self.obs_norm = obs_norm
         self.model_path = str(Path(path))

@@ -1,6 +1,7 @@
 """``shortcut-gym train``: train an SB3 (ppo, a2c, dqn) or tabular (q_learning, sarsa) agent on a
 world and save its model, which ``simulate``, ``sweep`` and ``score`` then load with
-``--agent NAME:model_path=FILE``."""
+``--agent NAME:model_path=FILE``. The model keeps the record of the world it was trained on and
+is refused on any other unless ``allow_other_world=true`` (:mod:`shortcut_gym.agents.world_record`)."""
 
 from __future__ import annotations
 
