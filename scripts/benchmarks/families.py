@@ -16,8 +16,11 @@ starts (planning time is printed apart). Families without a compiled decision ar
 users only (100,000 would take minutes) and say so.
 
 Then the held-out style sweep: 48 LHS points x 3 agents (always-menu, learn-first-1, the
-planner) x 6 users x 120 trials on local processes, planning time printed apart from the runs'
-simulation compute (target: simulation compute under 3 s).
+planner) x 6 users x 120 trials on local processes, planning printed apart from the runs'
+simulation. The pass line (target: under 3 s after planning) is the simulation's CPU seconds in
+the workers (summed over runs; not inflated when other processes share the cores), with the wall
+seconds beside it; planning (making or reading plans, and waiting for another worker's plan) is
+printed on its own line.
 """
 
 from __future__ import annotations
@@ -159,18 +162,20 @@ def part_heldout(quick: bool, out: Out = print) -> None:
         wall = time.perf_counter() - t0
         metas = [json.loads(p.read_text()) for p in (Path(tmp) / "s" / "runs").glob("*/meta.json")]
     plan_s = sum(m["plan_s"] for m in metas)
+    wait_s = sum(m.get("plan_wait_s") or 0.0 for m in metas)
     compute_s = sum(m["compute_s"] for m in metas)
     plan_cpu = sum(m["plan_cpu_s"] for m in metas)
     compute_cpu = sum(m["compute_cpu_s"] for m in metas)
-    verdict = "meets" if compute_s - plan_s < 3.0 else "above"
-    out(f"\nB. Held-out style sweep: {points} points x 3 agents x 6 users x 120 trials ({runs} runs), 2 processes")
-    out(f"   wall {wall:.2f} s; in-worker compute {compute_s:.2f} s = planning {plan_s:.2f} s "
-        f"+ simulation {compute_s - plan_s:.2f} s (target < 3 s after planning: {verdict}); "
+    sim_cpu, sim_wall = compute_cpu - plan_cpu, compute_s - plan_s - wait_s
+    verdict = "meets" if sim_cpu < 3.0 else "above"
+    out(f"\nB. Held-out style sweep: {points} points x 3 agents x 6 users x 120 trials ({runs} runs), 2 processes; "
         f"{len(report.failed)} failed")
-    out(f"   in-worker CPU {compute_cpu:.2f} s = planning {plan_cpu:.2f} s "
-        f"+ simulation {compute_cpu - plan_cpu:.2f} s; "
-        f"{report.plans_made} plans made, {report.plans_loaded} read from the plan store; start-up before "
-        f"forking {report.warm_up_s:.2f} s; load average {load_average()}")
+    out(f"   simulation: CPU {sim_cpu:.2f} s (target < 3 s after planning: {verdict}); "
+        f"wall in the workers {sim_wall:.2f} s, ratio wall/CPU {sim_wall / sim_cpu if sim_cpu else float('nan'):.2f}")
+    out(f"   planning: wall {plan_s:.2f} s, CPU {plan_cpu:.2f} s; waiting for the other worker's plan {wait_s:.2f} s; "
+        f"{report.plans_made} plans made, {report.plans_loaded} read from the plan store")
+    out(f"   sweep wall {wall:.2f} s in all (in-worker compute {compute_s:.2f} s, CPU {compute_cpu:.2f} s; start-up "
+        f"before forking {report.warm_up_s:.2f} s); load average {load_average()}")
 
 
 def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True,
