@@ -182,3 +182,18 @@ def test_a_bad_cap_is_refused_naming_it(tmp_path: Path, bad: Any) -> None:
     with pytest.raises(SweepSpecError, match="plan_store_bytes must be a whole number of bytes >= 1"):
         run_sweep(_spec(), tmp_path / "s", workers=1, progress=False, plan_store_bytes=bad)
     assert not (tmp_path / "s").exists()
+
+
+@pytest.mark.parametrize(("kw", "expected"), [
+    ({"plan_store": False, "plan_store_bytes": 10**6}, "plan_store_bytes caps the plans on disk"),
+    ({"plan_store": False, "keep_plans": True}, "keep_plans applies to the sweep's own"),
+    ({"plan_store": "elsewhere", "keep_plans": True}, "keep_plans applies to the sweep's own"),
+])
+def test_plan_options_that_would_do_nothing_are_refused(tmp_path: Path, monkeypatch: pytest.MonkeyPatch, kw: dict,
+                                                        expected: str) -> None:
+    from shortcut_gym.lab.sweep.spec import SweepSpecError
+
+    monkeypatch.chdir(tmp_path)
+    with pytest.raises(SweepSpecError, match=expected):
+        run_sweep(_spec(), tmp_path / "s", workers=1, progress=False, **kw)
+    assert not (tmp_path / "s").exists() and not (tmp_path / "elsewhere").exists()

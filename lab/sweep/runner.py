@@ -198,6 +198,12 @@ def run_sweep(
                                          or plan_store_bytes < 1):
         raise SweepSpecError(f"plan_store_bytes must be a whole number of bytes >= 1, got {plan_store_bytes!r}")
     own_plans = shared is not None and Path(shared) == store.plans_dir.resolve()
+    if plan_store_bytes is not None and shared is None:
+        raise SweepSpecError("plan_store_bytes caps the plans on disk, and this sweep keeps none there "
+                             "(plan_store=False, or a Ray cluster address without a plan_store folder)")
+    if keep_plans and not own_plans:
+        raise SweepSpecError("keep_plans applies to the sweep's own <folder>/plans; a plan_store folder given is "
+                             "always kept, and with plan_store=False there are no plans on disk")
     store.check_usable()
     started = False
     if not store.manifest_path.is_file():
