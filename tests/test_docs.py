@@ -104,6 +104,36 @@ def test_every_cli_subcommand_has_help() -> None:
         assert res.returncode == 0 and f"usage: shortcut-gym {name}" in res.stdout, res.stderr
 
 
+def _first_column(section: str, header: str) -> set[str]:
+    """The backquoted names in the first column of the README table under ``section`` headed ``header``."""
+    text = (ROOT / "README.md").read_text().split(f"### {section}\n", 1)[1].split("\n### ", 1)[0]
+    rows = text.split(header, 1)[1].split("\n\n", 1)[0].splitlines()[2:]
+    return {name for row in rows for name in re.findall(r"`([^`]+)`", row.split("|")[1])}
+
+
+def test_the_readme_tables_list_every_subcommand_and_every_registered_agent() -> None:
+    from shortcut_gym.agents.registry import AGENTS
+    from shortcut_gym.lab.cli import build_parser
+
+    subs = next(a for a in build_parser()._actions if a.dest == "command").choices
+    assert _first_column("Command line", "| subcommand | job |") == set(subs)
+    assert _first_column("Agents and mechanisms", "| name | what it is | free parameters |") == set(AGENTS)
+
+
+def test_the_score_limitation_is_documented_where_score_is_and_holds(capsys) -> None:
+    """README and ``score --help`` say pavlik_anderson memory is refused; score does refuse it (exit 2)."""
+    from shortcut_gym.lab.cli import build_parser, main
+
+    row = next(line for line in (ROOT / "README.md").read_text().splitlines() if line.startswith("| `score` |"))
+    subs = next(a for a in build_parser()._actions if a.dest == "command").choices
+    for text in (row, " ".join(subs["score"].format_help().split())):
+        assert "pavlik_anderson" in text and "two numbers" in text, text
+    memory = ROOT / "configs" / "memory" / "spacing.yaml"
+    assert "kind: pavlik_anderson" in memory.read_text()
+    assert main(["score", "--memory", str(memory), "--sessions", "1", "--users", "1"]) == 2
+    assert "'pavlik_anderson'" in capsys.readouterr().err
+
+
 @pytest.mark.parametrize(("doc", "commands"), _command_blocks())
 def test_quoted_commands_run(doc: str, commands: tuple[str, ...]) -> None:
     """Run as the docs say: from the project folder, each block's lines in order."""

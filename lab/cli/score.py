@@ -13,11 +13,18 @@ from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_numbe
 from shortcut_gym.lab.simulate import label_of
 
 PLANNER = "bounded_optimal"
+DESCRIPTION = (
+    "Score agents against the dynamic-programming planner on the same simulated users: time lost per user "
+    "(seconds), adoption trial, hotkey share. Worlds with pavlik_anderson memory are refused: the planner "
+    "collapses a command's memory into two numbers (strength and total trace weight, every trace decaying at one "
+    "rate), and spacing-sensitive decay gives each trace its own rate; use the actr, actr_exact, exponential or "
+    "power memory kinds.")
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``score`` subcommand."""
-    p = sub.add_parser("score", help="score agents against the planner on the same simulated users")
+    p = sub.add_parser("score", help="score agents against the planner on the same simulated users",
+                       description=DESCRIPTION)
     add_world_options(p, sessions=True)
     add_agent_options(p, "agent to score (repeatable; default: the baselines)")
     p.add_argument("--users", type=whole_number(1, 100_000), default=10, help="simulated users per agent")
