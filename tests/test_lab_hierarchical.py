@@ -125,3 +125,46 @@ def test_laplace_evidence_matches_sampling_the_fitted_prior(few_trials):
     # summed: the per-participant allowance added up (the Laplace bias of 0.05 nats each and the
     # sampling error of the sum)
     assert abs(laplace.sum() - sampled.sum()) < 4 * np.sqrt(np.sum(se**2)) + 0.05 * len(laplace)
+
+
+def test_report_takes_the_group_covariance_fit_takes(few_trials, tmp_path, capsys):
+    import pandas as pd
+
+    from shortcut_gym.lab.cli import main
+    from shortcut_gym.lab.data.logs import write_log
+
+    _, log, _, _, _ = few_trials
+    keep = log["participant"].isin(log["participant"].unique()[:6])
+    small = log[keep]
+    path = write_log(small.drop(columns=["command_index"]), tmp_path / "log.csv")
+    models = ["--model", "delta_rule=rescorla_wagner:mechanisms=[value]", "--model", "static_softmax"]
+    common = [str(path), *models, "--starts", "1", "--quiet", "--hierarchical"]
+    tables = {}
+    for sub, covariance in (("fit", "full"), ("report", "full"), ("report", "diagonal")):
+        out = tmp_path / f"{sub}_{covariance}"
+        extra = ["--sims", "1"] if sub == "report" else []
+        assert main([sub, *common, *extra, "--covariance", covariance, "--out", str(out)]) == 0
+        tables[sub, covariance] = pd.read_csv(out / "hierarchical.csv").set_index("model").sort_index()
+    report_index = (tmp_path / "report_full" / "index.md").read_text()
+    capsys.readouterr()
+    pd.testing.assert_frame_equal(tables["report", "full"], tables["fit", "full"])
+    # the full-covariance fit itself, outside the CLI: k means, k SDs and k(k-1)/2 correlations
+    direct = fit_hierarchical(validate_log(small, few_trials[0].commands), DELTA,
+                              context_for(small, few_trials[0].commands.names), n_starts=1, covariance="full")
+    assert tables["report", "full"].loc["delta_rule", "ibic"] == pytest.approx(direct.ibic, rel=1e-9)
+    assert tables["report", "full"].loc["delta_rule", "n_group_params"] == 2 + 2 + 1
+    assert tables["report", "diagonal"].loc["delta_rule", "n_group_params"] == 2 + 2
+    assert "(full covariance)" in report_index
+
+
+@pytest.mark.parametrize("sub", ["fit", "report"])
+def test_covariance_without_hierarchical_is_refused_naming_both(few_trials, tmp_path, capsys, sub):
+    from shortcut_gym.lab.cli import main
+    from shortcut_gym.lab.data.logs import write_log
+
+    path = write_log(few_trials[1].drop(columns=["command_index"]), tmp_path / "log.csv")
+    out = tmp_path / "out"
+    assert main([sub, str(path), "--model", "static_softmax", "--covariance", "full", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "--covariance full" in err and "--hierarchical" in err
+    assert not out.exists()  # refused before the output folder is claimed

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from shortcut_gym.lab.cli.options import add_log_fit_options, detail, log_fit_inputs, status, warn
+from shortcut_gym.lab.cli.options import add_log_fit_options, covariance_of, detail, log_fit_inputs, status, warn
 from shortcut_gym.lab.fitting import (
     HierarchicalFit,
     context_for,
@@ -26,8 +26,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("fit", help="fit models to a trial log by maximum likelihood (or MAP with --prior)")
     add_log_fit_options(p, "write its group parameters, MAPs with posterior SDs and integrated BIC",
                         "write cv_folds.csv, cv.csv")
-    p.add_argument("--covariance", choices=("diagonal", "full"), default="diagonal",
-                   help="group prior covariance of --hierarchical (default diagonal)")
     p.set_defaults(func=run)
 
 
@@ -50,9 +48,9 @@ def run(args: argparse.Namespace) -> int:
             warn(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
     status(f"wrote {path} and {args.out / 'parameters.csv'}")
     if args.hierarchical:
-        detail(f"fitting hierarchically ({args.covariance} group covariance)")
-        summary, by_model = fit_hierarchical_models(log, specs, context,
-                                                    args.starts, args.seed, args.covariance)
+        covariance = covariance_of(args)
+        detail(f"fitting hierarchically ({covariance} group covariance)")
+        summary, by_model = fit_hierarchical_models(log, specs, context, args.starts, args.seed, covariance)
         written = write_hierarchical(summary, by_model, args.out)
         print(summary.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
         status("wrote " + ", ".join(str(p) for p in written))

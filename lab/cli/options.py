@@ -209,8 +209,8 @@ def add_skip_bad(p: argparse.ArgumentParser) -> None:
 
 def add_log_fit_options(p: argparse.ArgumentParser, hierarchical_use: str, cross_validation_use: str) -> None:
     """The options of the subcommands that fit models to a trial log (``fit``, ``report``): the log,
-    :func:`add_common`'s, ``--skip-bad-participants``, ``--prior``, ``--hierarchical`` and
-    ``--cross-validate``, whose help ends with what the subcommand does with them."""
+    :func:`add_common`'s, ``--skip-bad-participants``, ``--prior``, ``--hierarchical`` with its
+    ``--covariance`` and ``--cross-validate``, whose help ends with what the subcommand does with them."""
     p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
     add_common(p)
     add_skip_bad(p)
@@ -219,9 +219,24 @@ def add_log_fit_options(p: argparse.ArgumentParser, hierarchical_use: str, cross
     p.add_argument("--hierarchical", action="store_true",
                    help="also fit each model hierarchically (EM, Gaussian group prior, Laplace per participant) "
                         "and " + hierarchical_use)
+    p.add_argument("--covariance", choices=COVARIANCES, default=None,
+                   help=f"group prior covariance of --hierarchical (default {COVARIANCES[0]})")
     p.add_argument("--cross-validate", action="store_true",
                    help="also score each model on held-out sessions (leave one session out) and "
                         + cross_validation_use)
+
+
+#: Group prior covariances of ``--hierarchical`` (:func:`~shortcut_gym.lab.fitting.fit_hierarchical`), default first.
+COVARIANCES = ("diagonal", "full")
+
+
+def covariance_of(args: argparse.Namespace) -> str:
+    """The ``--covariance`` of ``--hierarchical`` (its default when not given); giving it without
+    ``--hierarchical`` is an error rather than ignored."""
+    if args.covariance is not None and not args.hierarchical:
+        raise CLIError(f"--covariance {args.covariance}: applies to the --hierarchical fit only; "
+                       "add --hierarchical or drop --covariance")
+    return args.covariance or COVARIANCES[0]
 
 
 class LogFitInputs(NamedTuple):
@@ -238,6 +253,7 @@ def log_fit_inputs(args: argparse.Namespace) -> LogFitInputs:
     """Claim ``--out``, then read the world, the models, their priors and start ranges (so a
     mistyped option fails before the log is read) and the log, reporting the participants
     ``--skip-bad-participants`` left out."""
+    covariance_of(args)  # a stray --covariance fails before --out is claimed
     claim_output(args.out, args)
     world = world_of(args)
     specs = models_of(args)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from shortcut_gym.lab.cli.options import add_log_fit_options, log_fit_inputs, status, world_words
+from shortcut_gym.lab.cli.options import add_log_fit_options, covariance_of, log_fit_inputs, status, world_words
 from shortcut_gym.lab.cli.ranges import whole_number
 from shortcut_gym.lab.cli.yardstick import add_planner_options
 from shortcut_gym.lab.report import analyse_log
@@ -43,7 +43,7 @@ def run(args: argparse.Namespace) -> int:
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
                                 args.block, priors, args.knockout, not args.quiet,
                                 args.hierarchical, args.cross_validate, intervals=args.intervals,
-                                start_ranges=ranges,
+                                start_ranges=ranges, covariance=covariance_of(args),
                                 extra_sections=[("Study world", world_words(world, args)
                                                  + " The posterior-predictive simulations run on it.")])
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))

@@ -37,14 +37,14 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
                 knockout: str | None = None, progress: bool = False, hierarchical: bool = False,
                 cross_validated: bool = False, extra_sections: Sequence[tuple[str, str]] = (),
                 extra_entries: Sequence[tuple[Path, str]] = (),
-                intervals: str = "wald", start_ranges: dict | None = None,
+                intervals: str = "wald", start_ranges: dict | None = None, covariance: str = "diagonal",
                 ) -> tuple[Path, dict[str, pd.DataFrame]]:
     """Fit, compare, posterior-predictive check (and optional knock-out) of a validated log into ``out``.
 
     ``index.md`` gives the findings (verdict, tables, plots) then the files; ``extra_sections`` and
     ``extra_entries`` (already written) are added to it. ``hierarchical`` adds the hierarchical fits
-    (iBIC), ``cross_validated`` the leave-one-session-out comparison; the verdict then weighs them
-    too. Returns (index path, the tables by name).
+    (iBIC; group prior ``covariance`` "diagonal" or "full"), ``cross_validated`` the
+    leave-one-session-out comparison; the verdict then weighs them too. Returns (index path, the tables by name).
     """
     by_label = {s.label: s for s in specs}
     if knockout is not None:  # checked before any fit is made
@@ -79,14 +79,14 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     sections.append(fit_quality_section(fits))
     ibic = cv = None
     if hierarchical:
-        ibic, by_model = fit_hierarchical_models(log, specs, context, n_starts, seed)
+        ibic, by_model = fit_hierarchical_models(log, specs, context, n_starts, seed, covariance)
         groups, participants = hierarchical_tables(by_model)
         entries.append((write_table(ibic, out, "hierarchical"), "hierarchical fits: Laplace evidence, iBIC per model"))
         entries.append((write_table(groups, out, "hierarchical_group"), "group mean and SD per parameter"))
         entries.append((write_table(participants, out, "hierarchical_participants"),
                         "MAP and posterior SD per participant"))
         tables["hierarchical"] = ibic
-        sections.append(hierarchical_section(ibic, groups))
+        sections.append(hierarchical_section(ibic, groups, covariance))
     if cross_validated:
         folds = cross_validate(log, specs, context, n_starts, seed)
         cv = cv_summary(folds)

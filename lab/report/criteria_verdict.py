@@ -69,10 +69,12 @@ def agreement_words(winners: dict[str, str | None]) -> str:
     return "The criteria disagree: " + "; ".join(parts) + tail + ". " + WHY_THEY_PART
 
 
-def hierarchical_section(summary: pd.DataFrame, groups: pd.DataFrame) -> tuple[str, str]:
-    """Report section of the hierarchical fits: iBIC per model and the group parameters."""
+def hierarchical_section(summary: pd.DataFrame, groups: pd.DataFrame, covariance: str = "diagonal") -> tuple[str, str]:
+    """Report section of the hierarchical fits: iBIC per model and the group parameters (group prior
+    ``covariance`` "diagonal" or "full")."""
     cols = ["model", "participants", "n_params", "log_evidence", "ibic", "delta_ibic", "iterations", "converged"]
-    body = ("EM with a Gaussian group prior on the transformed parameters and a Laplace approximation per "
+    body = (f"EM with a Gaussian group prior ({covariance} covariance) on the transformed parameters and a "
+            "Laplace approximation per "
             "participant (Huys et al. 2011). Integrated BIC = -2 ln p(data | group prior) + group parameters x "
             "ln(trials); lower is better.\n\n" + markdown_table(summary[cols])
             + "\n\nGroup median and the range holding 95% of participants, per parameter "
