@@ -343,12 +343,21 @@ def failed_retrieval_s(par):
 
 
 @njit(cache=True)
-def seconds_since_last_use_feature(ist, fs, c, onset_s):
-    """The ``log1p_seconds_since_last_use`` observation entry (float32) of one user's command ``c``
-    at onset ``onset_s`` (``ist``, ``fs``: that user's per-command state); 0 before its first use."""
-    if ist[c, S_EXPOSURE] > 0:
-        return np.float32(math.log1p(max(onset_s - fs[c, F_LAST_USE], 0.0)))
+def since_last_use_feature(exposures, last_use_s, onset_s):
+    """The ``log1p_seconds_since_last_use`` observation entry (float32): log1p of the seconds from a
+    command's last use onset ``last_use_s`` to ``onset_s`` (at least 0), 0 before its first use
+    (``exposures`` = 0). The one owner of the formula: the kernel's observation and the lab's
+    rebuild from a log both call it."""
+    if exposures > 0:
+        return np.float32(math.log1p(max(onset_s - last_use_s, 0.0)))
     return np.float32(0.0)
+
+
+@njit(cache=True)
+def seconds_since_last_use_feature(ist, fs, c, onset_s):
+    """:func:`since_last_use_feature` of one user's command ``c`` at onset ``onset_s`` (``ist``,
+    ``fs``: that user's per-command state)."""
+    return since_last_use_feature(ist[c, S_EXPOSURE], fs[c, F_LAST_USE], onset_s)
 
 
 @njit(cache=True, nogil=True)

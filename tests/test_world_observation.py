@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from shortcut_gym.envs import CommandSelectionEnv, make_world
@@ -114,3 +115,54 @@ def test_layout_of_length_finds_the_one_layout_or_says_it_cannot() -> None:
         feature_index(RECALL_FEATURE, len(names) + 1, 1, names)
     with pytest.raises(ValueError, match="'nope' is not in this layout"):
         ObservationLayout(3).index("nope")
+
+
+class _Recorder:
+    """Wraps an env, keeping every observation it returns (reset and steps)."""
+
+    def __init__(self, env: CommandSelectionEnv) -> None:
+        self.env, self.seen = env, []
+        self.unwrapped = env
+
+    def __getattr__(self, name: str):
+        return getattr(self.env, name)
+
+    def reset(self, **kw):
+        obs, info = self.env.reset(**kw)
+        self.seen.append(obs)
+        return obs, info
+
+    def step(self, action):
+        out = self.env.step(action)
+        self.seen.append(out[0])
+        return out
+
+
+@pytest.mark.parametrize("agent", ["random", "learn_first_k:k=1", "always_hotkey"])
+def test_time_since_last_use_rebuilt_from_a_written_log_is_the_env_feature_bit_for_bit(tmp_path, agent) -> None:
+    """Through a log file (written, read back, validated), several users and overnight gaps: the
+    rebuild's log1p_seconds_since_last_use equals the one the env showed, bit for bit."""
+    from shortcut_gym.agents import make_agent, run_episode
+    from shortcut_gym.lab.cli.options import parse_agent_arg
+    from shortcut_gym.lab.data.logs import log_from_simulation, participant_trials, read_log, write_log
+
+    world = make_world(schedule={"sessions": 4, "trials_per_session": 25, "gap_h": 16.0})
+    spec = parse_agent_arg(agent)
+    shown, frames = {}, []
+    for user in range(3):
+        env = _Recorder(CommandSelectionEnv(world=world))
+        frames.append(run_episode(env, make_agent(spec["name"], **spec.get("options", {}),
+                                                  **spec.get("params", {})), seed=user).assign(user=user))
+        shown[user] = np.stack(env.seen[:-1])  # the observation before each trial
+    log = log_from_simulation(pd.concat(frames, ignore_index=True), world.commands)
+    log = read_log(write_log(log, tmp_path / "log.csv"), world.commands)
+    at = ObservationLayout(world.commands.n_commands).index("log1p_seconds_since_last_use")
+    participants = list(pd.unique(log["participant"]))
+    assert len(participants) == 3
+    for user, pid in enumerate(participants):
+        rebuilt = _observations(participant_trials(log, pid), world.commands.n_commands)[:, at]
+        expect = shown[user][:, at]
+        assert rebuilt.dtype == expect.dtype == np.float32
+        np.testing.assert_array_equal(rebuilt.view(np.uint32), expect.view(np.uint32))
+        assert (expect > math.log1p(15 * 3600.0)).sum() >= 1  # an overnight gap is among the values compared
+        assert (expect == 0.0).sum() >= 1  # and a first use

@@ -20,7 +20,7 @@ import pandas as pd
 from shortcut_gym.agents.base import Agent, AgentContext, LikelihoodAgent, Transition
 from shortcut_gym.agents.learning import TrialArrays
 from shortcut_gym.envs.info import UpcomingInfo, step_info, upcoming_info
-from shortcut_gym.envs.kernel import ACTION_NAMES
+from shortcut_gym.envs.kernel import ACTION_NAMES, since_last_use_feature
 from shortcut_gym.envs.observation import ObservationLayout, write_target
 from shortcut_gym.lab.fitting.specs import ModelSpec
 
@@ -48,8 +48,7 @@ def _observations(trials: pd.DataFrame, n_commands: int) -> np.ndarray:
         o = obs[t]
         write_target(o, c, n_commands, layout.onehot)
         o[at["log1p_exposures"]] = math.log1p(exposures[c])
-        if exposures[c] > 0:
-            o[at["log1p_seconds_since_last_use"]] = math.log1p(max(onset[t] - last[c], 0.0))
+        o[at["log1p_seconds_since_last_use"]] = since_last_use_feature(exposures[c], last[c], onset[t])
         o[at["log1p_hotkey_successes"]] = math.log1p(ok[c])
         o[at["log1p_hotkey_failures"]] = math.log1p(fail[c])
         o[at["log1p_learn_count"]] = math.log1p(learned[c])
