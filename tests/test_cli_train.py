@@ -84,3 +84,28 @@ def test_a_model_trained_on_another_world_is_refused(tmp_path: Path, capsys) -> 
     capsys.readouterr()
     assert main(["simulate", "--scenario", str(small), "--agent", f"sarsa:model_path={model}", "--users", "1"]) == 2
     assert "train it on this scenario" in capsys.readouterr().err
+
+
+def test_a_model_is_refused_on_other_costs_of_the_same_sizes_unless_allowed(tmp_path: Path, capsys) -> None:
+    model = tmp_path / "q.npz"
+    assert main(["train", "--agent", "q_learning", *SESSIONS, "--trials", "80", "--out", str(model), "--quiet",
+                 "--eval-users", "0"]) == 0
+    costs = tmp_path / "slow_keys.yaml"  # the default costs but a slower keystroke: same sizes, other problem
+    costs.write_text("name: slow_keys\nklm: {keystroke_s: 0.5}\n")
+    trained, other = (make_world(costs=c, schedule={"sessions": 1}) for c in (None, str(costs)))
+    capsys.readouterr()
+    simulate = ["simulate", "--costs", str(costs), *SESSIONS, "--users", "1", "--out", str(tmp_path / "sim")]
+    assert main([*simulate, "--agent", f"q_learning:model_path={model}"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and str(model) in err and "(costs differ)" in err
+    assert trained.problem_digest()[:12] in err and other.problem_digest()[:12] in err
+    assert main([*simulate, "--agent", f"q_learning:model_path={model},allow_other_world=true"]) == 0
+    warned = capsys.readouterr().err
+    assert f"{model} was trained on the world" in warned and "used anyway as allow_other_world=true" in warned
+    assert len(pd.read_parquet(tmp_path / "sim" / "trials.parquet")) == other.horizon
+    # the same costs file as training's world, spelled out, is the same problem and runs unwarned
+    same = tmp_path / "same.yaml"
+    same.write_text("name: same\nklm: {keystroke_s: 0.2}\n")
+    assert main(["simulate", "--costs", str(same), *SESSIONS, "--users", "1", "--overwrite",
+                 "--out", str(tmp_path / "sim"), "--agent", f"q_learning:model_path={model}"]) == 0
+    assert "allow_other_world" not in capsys.readouterr().err

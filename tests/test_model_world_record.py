@@ -14,6 +14,7 @@ import zipfile
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from shortcut_gym.agents import make_agent, run_episode
@@ -87,11 +88,21 @@ def _trained(name: str, world, path: Path) -> Path:
     return agent.save(path)
 
 
+class _Models(dict):
+    """Model files trained on A, each trained on first use (so a run of some tests trains only theirs)."""
+
+    def __init__(self, folder: Path) -> None:
+        super().__init__()
+        self.folder = folder
+
+    def __missing__(self, name: str) -> Path:
+        self[name] = _trained(name, A, self.folder / (f"{name}.npz" if name not in SB3_TINY else f"{name}.zip"))
+        return self[name]
+
+
 @pytest.fixture(scope="module")
-def models(tmp_path_factory) -> dict[str, Path]:
-    folder = tmp_path_factory.mktemp("models")
-    files = {"q_learning": "q.npz", "ppo": "ppo.zip", "a2c": "a2c.zip", "dqn": "dqn.zip"}
-    return {name: _trained(name, A, folder / f) for name, f in files.items()}
+def models(tmp_path_factory) -> _Models:
+    return _Models(tmp_path_factory.mktemp("models"))
 
 
 ALL = ["q_learning", "ppo", "a2c", "dqn"]
@@ -175,6 +186,8 @@ def test_model_without_record_is_refused_unless_allowed(models, name, tmp_path, 
 
 def test_consumers_refuse_through_the_spec(models) -> None:
     from shortcut_gym.agents.scoring import time_lost_vs_planner
+    from shortcut_gym.lab.fitting import ModelSpec
+    from shortcut_gym.lab.rationality import rationality_analysis
     from shortcut_gym.lab.simulate import simulate_agents
     from shortcut_gym.lab.sweep.batch import simulate_users
 
@@ -185,6 +198,9 @@ def test_consumers_refuse_through_the_spec(models) -> None:
             run(B_COSTS, spec)
     assert len(simulate_agents(A, [spec], [0])) == A.horizon
     assert len(simulate_agents(B_COSTS, [{**spec, "allow_other_world": True}], [0])) == B_COSTS.horizon
+    learning = [ModelSpec("q_learning", "mine", {"model_path": spec["model_path"]})]
+    with pytest.raises(WorldMismatchError, match="costs differ"):  # refused before any participant is fitted
+        rationality_analysis(pd.DataFrame(), B_COSTS, learning)
 
 
 def test_continued_training_on_another_world_is_refused_unless_allowed(models) -> None:

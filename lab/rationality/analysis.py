@@ -45,7 +45,7 @@ from shortcut_gym.agents.base import AgentContext, Transition
 from shortcut_gym.agents.planned_choice import BETA_MAX, cached_plan
 from shortcut_gym.agents.planner import break_even_table
 from shortcut_gym.agents.planner.valuation import executed_shares, executed_values
-from shortcut_gym.agents.rollout import drive_batch
+from shortcut_gym.agents.rollout import context_of_world, drive_batch
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.envs.simulator import BatchSimulator
@@ -234,6 +234,8 @@ def rationality_analysis(log: pd.DataFrame, base: World, learning: Sequence[Mode
         raise ConfigError(f"learning model labels must be unique and not {PLANNED!r}, got {labels}")
     if n_sims < 1:
         raise ConfigError(f"n_sims must be >= 1, got {n_sims}")
+    for s in learning:  # a trained model (model_path=) must be one of the base world: built bound to it, it
+        s.build(context_of_world(base))  # checks its world record (each participant's own world differs by design)
     jobs = [(pid, participant_trials(log, pid), base, options, list(learning), n_starts, seed, noise, n_sims)
             for pid in participants(log)]
     if n_jobs <= 1:
