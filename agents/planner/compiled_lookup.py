@@ -168,7 +168,7 @@ def _clear(mem):
     mem.hand[1] = -1
 
 
-@njit(**RULE_JIT)
+@njit(**RULE_JIT, inline="always")
 def _decay_factor(kind, f, age):
     """The share of its weight a trace keeps after ``age`` (s), as the planner's activation
     formulas compute it: age^-d (ACT-R kinds), e^{-lambda age}, (1 + age/u)^-b."""
@@ -188,7 +188,7 @@ def _fill_ages(clock, kind, f, out):
             out[i, j] = _decay_factor(kind, f, clock[i] - clock[j])
 
 
-@njit(**RULE_JIT)
+@njit(**RULE_JIT, inline="always")
 def _old_lump(now, d, weight, first, last, last_factor):
     """envs.memory._old_lump, operation for operation, with ``last_factor`` = (now - last)^-d given."""
     a_n = now - last
@@ -198,7 +198,7 @@ def _old_lump(now, d, weight, first, last, last_factor):
     return weight * last_factor * math.expm1((1 - d) * math.log1p(r)) / ((1 - d) * r)
 
 
-@njit(**RULE_JIT)
+@njit(**RULE_JIT, inline="always")
 def _activation(tab, mem, c, now, now_trial):
     """The planner's ``_activation`` of command ``c`` at clock ``now`` (s); ``now_trial``: a trial
     whose clock is ``now`` (the decay factors then come from the age table), or -1."""
