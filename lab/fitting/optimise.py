@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import contextlib
 import math
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -137,7 +137,46 @@ def draw_start(s: ParamSpec, rng: np.random.Generator) -> float:
     return float(np.clip(s.default + rng.normal(), lo, hi))
 
 
+def _optimiser_message(raw: object) -> str:
+    """The optimiser's stop message, never empty: L-BFGS-B sometimes says only 'ABNORMAL: '."""
+    text = str(raw if raw is not None else "").strip()
+    if not text:
+        return "stopped with no message from the optimiser"
+    if text.rstrip(": ").upper() == "ABNORMAL":
+        return "ABNORMAL: the line search found no better point (the optimiser gave no detail)"
+    return text
+
+
+def _bound_values(s: ParamSpec, box: tuple[float, float]) -> list[float]:
+    """Natural values at the ends of the optimiser's box that are real bounds of the parameter:
+    both ends for a logit transform, the lower one for a log transform, the finite natural
+    bounds of an untransformed parameter (none for an unbounded one)."""
+    if s.transform == "logit":
+        return [s.from_free(box[0]), s.from_free(box[1])]
+    if s.transform == "log":
+        return [s.from_free(box[0])]
+    return [b for b in (s.lower, s.upper) if math.isfinite(b)]
+
+
+def _cheap_to_bound(loglik: Callable[[np.ndarray], float], theta: np.ndarray, index: int, s: ParamSpec,
+                    box: tuple[float, float], ll: float) -> bool:
+    """Whether putting parameter ``index`` on one of its bounds (the others held at ``theta``)
+    costs less than :data:`NEAR_BEST_NATS` of ln L: the data do not tell the estimate from the
+    bound, whatever its coordinate. (On always-menu data the choice kernel's beta_ck ended at
+    49.99 and 24.9 of its 0..50 range with a flat likelihood towards 50; the coordinate test
+    alone did not flag either.)"""
+    for value in _bound_values(s, box):
+        moved = theta.copy()
+        moved[index] = value
+        v = float(loglik(moved))
+        if np.isfinite(v) and ll - v < NEAR_BEST_NATS:
+            return True
+    return False
+
+
 def _at_bound(s: ParamSpec, x: float, box: tuple[float, float]) -> bool:
+    """Whether the transformed coordinate ``x`` sits at the end of its box (cheap; used by the
+    optimiser's restart decision)."""
     if s.transform in ("logit", "log"):
         return abs(x) >= AT_BOUND_FREE or (s.transform == "log" and x <= -AT_BOUND_FREE)
     width = box[1] - box[0]
@@ -249,11 +288,13 @@ def fit_participant(
         best_total = float(best.fun) * max(n_trials, 1)
         theta = natural(best.x)
         ll = float(f(theta))
-        at_bound = tuple(n for n, v, box in zip(free, best.x, boxes, strict=True) if _at_bound(specs[n], float(v), box))
+        at_bound = tuple(n for j, (n, v, box) in enumerate(zip(free, best.x, boxes, strict=True))
+                         if _at_bound(specs[n], float(v), box)
+                         or _cheap_to_bound(f, theta, where[j], specs[n], box, ll))
         issues = []
         if at_bound:
             issues.append(f"at a bound: {', '.join(at_bound)}")
-        message = str(best.message)
+        message = _optimiser_message(best.message)
         converged = bool(getattr(best, "success", True))
         if not converged and confirmed:
             converged, message = True, f"{message}; accepted: the derivative-free polish could not improve it"
