@@ -181,8 +181,9 @@ def claim_output(path: Path | None, args: argparse.Namespace, option: str = "--o
         raise CLIError(f"{option} {path}: the file exists; give --overwrite to replace it")
 
 
-def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
-    """Options shared by the analysis subcommands."""
+def add_common(p: argparse.ArgumentParser, models: bool = True, fitting: bool = True) -> None:
+    """Options shared by the analysis subcommands; ``fitting`` adds ``--intervals`` and
+    ``--start-range`` (for the subcommands that pass them to their fits)."""
     add_world_options(p)
     if models:
         p.add_argument("--model", action="append", required=True, help=MODEL_HELP)
@@ -192,6 +193,8 @@ def add_common(p: argparse.ArgumentParser, models: bool = True) -> None:
     p.add_argument("--out", type=output_folder, required=True, help="output folder (created)")
     add_overwrite(p)
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    if not fitting:
+        return
     p.add_argument("--intervals", choices=INTERVAL_METHODS, default="wald",
                    help="95%% intervals: 'wald' (from the standard errors of the observed information), 'profile' "
                         "(profile likelihood, slower) or 'none' (no standard errors)")

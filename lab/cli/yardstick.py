@@ -10,16 +10,18 @@ from __future__ import annotations
 import argparse
 import time
 
-from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import (
     MODEL_HELP,
     add_common,
     add_skip_bad,
+    claim_output,
     detail,
     parse_model,
     report_skipped,
     status,
+    world_of,
+    world_words,
 )
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.data.logs import read_log
@@ -49,7 +51,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``yardstick`` subcommand."""
     p = sub.add_parser("yardstick", help="each participant's choices against the planner in their own world")
     p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
-    add_common(p, models=False)
+    add_common(p, models=False, fitting=False)  # the fits here take no --intervals or --start-range
     p.add_argument("--model", action="append", default=None,
                    help=f"learning model to compare with planned_choice (default rescorla_wagner); {MODEL_HELP}")
     add_skip_bad(p)
@@ -59,19 +61,22 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Write the folder; print the per-participant table and the group figures."""
-    world = make_world(args.scenario)
     learning = [parse_model(m) for m in (args.model or ["rescorla_wagner"])]
     if any(s.label == PLANNED for s in learning):
         raise CLIError(f"--model: {PLANNED!r} is the model every learning model is compared with; give learning "
                        "models only")
+    claim_output(args.out, args)
+    world = world_of(args)  # the base world: its costs, memory and schedule, with each participant's own times
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
-    detail(f"scenario {world.scenario.name}; log {args.log}: {len(log)} trials of {log['participant'].nunique()} "
-           f"participants; learning models {[s.label for s in learning]}; output folder {args.out}")
+    detail(f"log {args.log}: {len(log)} trials of {log['participant'].nunique()} participants; learning models "
+           f"{[s.label for s in learning]}; output folder {args.out}")
     start = time.perf_counter()
     result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed, args.jobs,
-                                  args.duration_noise, args.optimum_sims)
+                                  args.duration_noise, args.optimum_sims, progress=not args.quiet)
     entries, sections = write_rationality(result, args.out)
+    sections.append(("Study world", world_words(world, args) + " Each participant's own world is this one with "
+                                                               "their fitted operator times."))
     index = write_index(args.out, entries, "Rationality against each participant's own optimum", sections)
     cols = [c for c in ("participant", "time_lost_s", "excess_time_s", "optimal_share", "beta", "beta_low",
                         "beta_high", "better_model") if c in result.participants.columns]

@@ -223,12 +223,15 @@ def _participant(job: tuple) -> dict[str, Any]:
 
 def rationality_analysis(log: pd.DataFrame, base: World, learning: Sequence[ModelSpec] = (),
                          options: PlannerOptions | None = None, n_starts: int = 5, seed: int = 0, n_jobs: int = 1,
-                         noise: str = "lognormal", n_sims: int = 16) -> RationalityResult:
+                         noise: str = "lognormal", n_sims: int = 16, progress: bool = False) -> RationalityResult:
     """The rationality analysis of every participant of a validated log (see the module docstring).
 
     ``learning``: the learning models the planned-choice model competes with (labels must differ
-    from ``planned_choice``). ``n_jobs`` > 1 runs participants on that many processes.
+    from ``planned_choice``). ``n_jobs`` > 1 runs participants on that many processes. ``progress``
+    draws a bar over the participants (stderr).
     """
+    from tqdm.auto import tqdm
+
     options = options or PlannerOptions()
     labels = [s.label for s in learning]
     if PLANNED in labels or len(set(labels)) != len(labels):
@@ -239,11 +242,18 @@ def rationality_analysis(log: pd.DataFrame, base: World, learning: Sequence[Mode
         s.build(context_of_world(base))  # checks its world record (each participant's own world differs by design)
     jobs = [(pid, participant_trials(log, pid), base, options, list(learning), n_starts, seed, noise, n_sims)
             for pid in participants(log)]
+    bar = tqdm(total=len(jobs), desc="yardstick", disable=not progress, leave=False)
+    parts = []
     if n_jobs <= 1:
-        parts = [_participant(j) for j in jobs]
+        for j in jobs:
+            parts.append(_participant(j))
+            bar.update(1)
     else:
         with ProcessPoolExecutor(max_workers=n_jobs, mp_context=multiprocessing.get_context("spawn")) as pool:
-            parts = list(pool.map(_participant, jobs))
+            for part in pool.map(_participant, jobs):
+                parts.append(part)
+                bar.update(1)
+    bar.close()
     per = pd.DataFrame([p["row"] for p in parts])
     fits = pd.DataFrame([r for p in parts for r in p["fits"]])
     durations = pd.DataFrame([p["duration"] for p in parts])
