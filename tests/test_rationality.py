@@ -37,12 +37,14 @@ def analysed(world):
 def test_the_planner_itself_loses_no_time_and_always_chooses_optimally(analysed):
     _, res = analysed
     me = res.participants.set_index("participant").loc["plan-0"]
-    assert me["time_lost_s"] == 0.0
+    assert me["q_time_lost_s"] == 0.0
     assert me["optimal_share"] == 1.0
     assert res.trials.loc[res.trials["participant"] == "plan-0", "optimal"].all()
-    # its excess over the planner's own simulated mean is luck only (its recall draws): within 3 SD
-    # of one simulated user's total (SE x sqrt(24 simulations))
-    assert abs(me["excess_time_s"]) < 3 * me["optimum_time_se"] * np.sqrt(24)
+    # its simulated time lost is luck only (its recall draws): within 3 SD of one simulated user's
+    # total, the SE being that SD / sqrt(24 simulations)
+    assert me["n_sims"] == 24
+    assert me["simulated_time_lost_se"] == pytest.approx(me["optimum_time_sd_s"] / np.sqrt(24))
+    assert abs(me["simulated_time_lost_s"]) < 3 * me["optimum_time_sd_s"]
 
 
 def test_always_menu_loses_what_the_planner_predicts_on_its_schedule(analysed, world):
@@ -59,8 +61,8 @@ def test_always_menu_loses_what_the_planner_predicts_on_its_schedule(analysed, w
     predicted = trials["duration_s"].sum() - np.mean(totals)
     se = np.std(totals, ddof=1) / np.sqrt(len(totals))
     assert predicted > 20.0
-    assert me["excess_time_s"] == pytest.approx(predicted, abs=4 * np.hypot(se, me["optimum_time_se"]))
-    assert me["time_lost_s"] > 0 and me["optimal_share"] < 1.0
+    assert me["simulated_time_lost_s"] == pytest.approx(predicted, abs=4 * np.hypot(se, me["simulated_time_lost_se"]))
+    assert me["q_time_lost_s"] > 0 and me["optimal_share"] < 1.0
     assert me["commands_learned"] == 0
 
 
@@ -87,7 +89,7 @@ def test_commands_say_where_learning_pays_and_the_group_table_has_the_figures(an
     assert cmd["learning_pays"].any() and not cmd["learning_pays"].all()
     assert not cmd.loc[cmd["participant"] == "menu-0", "learned"].any()
     figures = set(res.group["figure"])
-    assert {"mean time_lost_s", "mean optimal_share", "median beta"} <= figures
+    assert {"mean simulated_time_lost_s", "mean q_time_lost_s", "mean optimal_share", "median beta"} <= figures
     assert {"joint_loglik", "joint_bic"} <= set(res.fits.columns)
     beta = res.participants.set_index("participant")
     assert beta.loc["plan-0", "beta_low"] > beta.loc["menu-0", "beta_high"]

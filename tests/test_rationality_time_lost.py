@@ -63,7 +63,7 @@ def test_always_menu_loses_the_simulated_loss_and_the_planner_loses_nothing(name
     # planner on the same simulated users (each user's schedule and recall draws shared)
     log = validate_log(simulate_log(world, make_agent("always_menu"), PARTICIPANTS, rng, prefix="menu"),
                        world.commands)
-    lost = np.array([assess_choices(participant_trials(log, pid), world, OPTIONS)["time_lost_s"].sum()
+    lost = np.array([assess_choices(participant_trials(log, pid), world, OPTIONS)["q_time_lost_s"].sum()
                      for pid in log["participant"].unique()])
     seeds = list(range(9000, 9000 + USERS))
     diff = simulated_totals(world, make_agent("always_menu"), seeds) - simulated_totals(world, planner, seeds)
@@ -75,7 +75,7 @@ def test_always_menu_loses_the_simulated_loss_and_the_planner_loses_nothing(name
     # a participant simulated by the planner itself (deterministic, no trial noise): nothing lost
     mine = validate_log(simulate_log(world, planner, 1, rng, prefix="plan"), world.commands)
     own = assess_choices(participant_trials(mine, "plan-0"), world, OPTIONS)
-    assert own["time_lost_s"].sum() == 0.0 and own["optimal"].all()
+    assert own["q_time_lost_s"].sum() == 0.0 and own["optimal"].all()
 
 
 def test_the_hand_shares_of_the_executed_policy_are_the_planners_simulated_shares():

@@ -60,13 +60,13 @@ def rationality_section(out: Path) -> pd.DataFrame:
     folder = out / "rationality"
     folder.mkdir(parents=True, exist_ok=True)
     write_log(log, folder / "volunteers_log.csv")
-    result = rationality_analysis(log, base, [ModelSpec("rescorla_wagner")], n_starts=2, n_sims=8)
+    result = rationality_analysis(log, base, [ModelSpec("rescorla_wagner")], n_starts=2, n_sims=64)
     entries, sections = write_rationality(result, folder)
     write_index(folder, entries, "Tidepool Logbook volunteers against their own optimum", sections)
     se = result.durations.set_index("participant")[["se_keystroke_s", "se_latency_factor_s"]]
     per = result.participants.join(se, on="participant")
     cols = ["participant", "own_keystroke_s", "se_keystroke_s", "own_latency_factor_s", "se_latency_factor_s",
-            "time_lost_s", "excess_time_s",
+            "simulated_time_lost_s", "simulated_time_lost_se", "q_time_lost_s",
             "optimal_share", "beta", "beta_low", "beta_high", "better_model"]
     print("\n== Were the volunteers bounded-optimal given their own costs? (Tidepool Logbook, invented group)")
     print(per[cols].to_string(index=False, float_format=lambda v: f"{v:.3g}"))

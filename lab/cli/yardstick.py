@@ -25,8 +25,8 @@ from shortcut_gym.lab.cli.options import (
 )
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.data.logs import read_log
-from shortcut_gym.lab.rationality import PLANNED, PlannerOptions, rationality_analysis
-from shortcut_gym.lab.rationality.report import write_rationality
+from shortcut_gym.lab.rationality import DEFAULT_SIMS, PLANNED, PlannerOptions, rationality_analysis
+from shortcut_gym.lab.rationality.report import HEADLINE_COLUMNS, write_rationality
 from shortcut_gym.lab.report.markdown import write_index
 
 
@@ -36,8 +36,9 @@ def add_planner_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--plan-weight-bins", type=whole_number(1, 50), default=5, help="planner trace-weight grid points")
     p.add_argument("--plan-select-users", type=whole_number(0, 1024), default=0,
                    help="simulated users on which the planner picks among its plans and fixed rules (0: none)")
-    p.add_argument("--optimum-sims", type=whole_number(1, 4096), default=16,
-                   help="simulated planner users per participant for the optimum time")
+    p.add_argument("--optimum-sims", type=whole_number(1, 65536), default=DEFAULT_SIMS,
+                   help="simulated planner users per participant on their own schedule for the headline "
+                        f"simulated time lost (its standard error falls as 1/sqrt; default {DEFAULT_SIMS})")
     p.add_argument("--duration-noise", choices=("lognormal", "gaussian"), default="lognormal",
                    help="duration likelihood of the operator-time fit")
 
@@ -78,8 +79,7 @@ def run(args: argparse.Namespace) -> int:
     sections.append(("Study world", world_words(world, args) + " Each participant's own world is this one with "
                                                                "their fitted operator times."))
     index = write_index(args.out, entries, "Rationality against each participant's own optimum", sections)
-    cols = [c for c in ("participant", "time_lost_s", "excess_time_s", "optimal_share", "beta", "beta_low",
-                        "beta_high", "better_model") if c in result.participants.columns]
+    cols = [c for c in HEADLINE_COLUMNS + ("better_model",) if c in result.participants.columns]
     print(result.participants[cols].to_string(index=False, float_format=lambda v: f"{v:.3g}"))
     print(result.group.to_string(index=False, float_format=lambda v: f"{v:.3g}"))
     status(f"report in {index.parent} ({time.perf_counter() - start:.1f} s)")

@@ -2,24 +2,30 @@
 
 Per participant: the operator times fitted to their own trial durations (:mod:`..fitting.durations`)
 give the world they imply; the yardstick planner (:class:`~shortcut_gym.agents.planner.BoundedOptimalPlanner`)
-plans for that world and tracks their memory from their logged outcomes. On every logged trial:
+plans for that world. Two figures of the time lost against their own optimum:
 
-* the optimal action a* is what the planner executes in the participant's state (its ``decide``);
-* the time lost is Q(a*) - Q(a), the planner's expected seconds (this use and the later ones of the
-  command) given up by the logged action a. Summed over trials this is the performance-difference
-  estimate of the whole history's loss against the optimum (Kakade & Langford 2002, "Approximately
-  optimal approximate reinforcement learning", ICML, lemma 6.1): E[sum of advantages along one's own
-  trajectory] = V(own policy) - V(optimal). It is zero for the planner's own choices. It is in the
-  executed policy's values with the homing priced at the midpoint of the participant's and the
-  optimum's hand shares (agents.planner.valuation: the decision values linearise the bilinear
-  homing cost at the optimum's shares and so counted a switch between two changed neighbours
-  twice, about 2x the simulated loss of an always-menu user). Against Monte Carlo it is within 3
-  standard errors plus 6% of the simulated loss on 15 of 20 (memory, world, policy) cells; with
-  ACT-R memory it overstates an always-menu user's loss (97 vs 83 s on the default world, +70%
-  with dear learning and 7-day gaps; tests/test_rationality_time_lost_family.py, docs/rationality.md);
-* the excess time is the logged time minus the planner's mean time over ``n_sims`` simulated users
-  on the participant's own schedule in their world (with its standard error): the loss in seconds
-  as the simulator counts it, including the participant's luck with recall and trial-time noise.
+* the headline, ``simulated_time_lost_s``: the logged total time minus the planner's mean total
+  time over ``n_sims`` simulated users replaying the participant's own schedule (their targets in
+  order, onsets, sessions and gaps) in their world, with its Monte Carlo standard error
+  ``simulated_time_lost_se``. Every participant's simulated users share one set of seeds (common
+  random numbers across participants). Its expectation over the participant's luck is exactly
+  E[own policy] - E[optimum] on their schedule, on every memory model (it needs no value function);
+  a single history carries its luck with recall and trial-time noise, whose scale is
+  ``optimum_time_sd_s`` (one simulated planner user's spread);
+* the decomposition, ``q_time_lost_s``: per logged trial Q(a*) - Q(a), the planner's expected
+  seconds (this use and the later ones of the command) given up by the logged action a, the
+  planner tracking the participant's memory from their logged outcomes; a* is what the planner
+  executes in their state (its ``decide``). Summed over trials it is the performance-difference
+  estimate of the loss (Kakade & Langford 2002, "Approximately optimal approximate reinforcement
+  learning", ICML, lemma 6.1): E[sum of advantages along one's own trajectory] = V(own policy) -
+  V(optimal); it is zero for the planner's own choices and says on which trials and commands the
+  time went. It is in the executed policy's values with the homing priced at the midpoint of the
+  participant's and the optimum's hand shares (agents.planner.valuation). It is approximate:
+  against Monte Carlo it is within 3 standard errors plus 6% of the simulated loss on 15 of 20
+  (memory, world, policy) cells; with ACT-R memory it overstates an always-menu user's loss (+17%
+  on the default world, +70% with dear learning and 7-day gaps), and with exponential memory, dear
+  learning and 1 h gaps it understates it (-21%; tests/test_rationality_time_lost_family.py,
+  docs/rationality.md).
 
 Per command: whether learning it pays *for them* (the planner's analytic break-even in their world,
 :func:`~shortcut_gym.agents.planner.break_even_table`, and whether the planner ever chooses learn or
@@ -58,6 +64,9 @@ from shortcut_gym.lab.fitting import ModelSpec, fit_durations, fit_participant, 
 #: chi2(1) 95% quantile / 2: the drop in ln L bounding a 95% profile-likelihood interval (Wilks 1938).
 PROFILE_DROP = 3.841458820694124 / 2.0
 PLANNED = "planned_choice"
+#: Simulated planner users per participant for ``simulated_time_lost_s`` (its Monte Carlo SE is
+#: the planner's spread / 16: about 0.4 s on a 160-trial default world, against a spread of 6-7 s).
+DEFAULT_SIMS = 256
 
 
 @dataclass(frozen=True)
@@ -106,8 +115,8 @@ def participant_shares(trials: pd.DataFrame) -> tuple[float, float]:
 
 def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
     """Per logged trial: the planner's action values (``q_*``, what it decides by), its optimal
-    action and the time lost (s): Q(a) - Q(a*) in the executed policy's values with the homing
-    priced at the midpoint of the participant's and the optimum's hand shares
+    action and the decomposition's time lost ``q_time_lost_s`` (s): Q(a*) - Q(a) in the executed
+    policy's values with the homing priced at the midpoint of the participant's and the optimum's hand shares
     (:func:`~shortcut_gym.agents.planner.valuation.executed_values`; each switch charged once)."""
     planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
     assert planner.plan is not None
@@ -138,21 +147,55 @@ def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) 
     return pd.DataFrame({
         "trial": d["trial"].to_numpy(), "command": command, "action": d["action"].astype(str).to_numpy(),
         "optimal_action": np.array(ACTION_NAMES, dtype=object)[best], "q_menu": q[:, 0], "q_hotkey": q[:, 1],
-        "q_learn": q[:, 2], "time_lost_s": v[rows, best] - v[rows, action], "optimal": action == best,
+        "q_learn": q[:, 2], "q_time_lost_s": v[rows, best] - v[rows, action], "optimal": action == best,
     })
 
 
-def planner_time_s(trials: pd.DataFrame, world: World, options: PlannerOptions, n_sims: int,
-                   seed: int) -> tuple[float, float]:
-    """Mean and standard error of the planner's total time (s) over ``n_sims`` simulated users on
-    the participant's own schedule (targets and onsets) in ``world``."""
-    schedule = schedule_of(trials.sort_values("trial", kind="stable"))
-    seeds = [int(x) for x in np.random.SeedSequence([seed, 0x71AE]).generate_state(n_sims)]
+@dataclass(frozen=True)
+class SimulatedLoss:
+    """One participant's time against the planner simulated on their own schedule (seconds).
+
+    ``lost_s`` = ``observed_s`` - ``optimum_s``; ``lost_se`` is its Monte Carlo standard error (the
+    observed time is data, so it is the SE of the planner's mean); ``optimum_sd_s`` is the spread of
+    one simulated planner user's total, the scale of the luck (recall draws, trial-time noise) in a
+    single history."""
+
+    observed_s: float
+    optimum_s: float
+    optimum_sd_s: float
+    lost_se: float
+    n_sims: int
+
+    @property
+    def lost_s(self) -> float:
+        """Observed total time minus the planner's mean simulated total time (s)."""
+        return self.observed_s - self.optimum_s
+
+
+def simulation_seeds(seed: int, n_sims: int) -> list[int]:
+    """The simulated users' seeds: the same for every participant of an analysis (common random
+    numbers: two participants' figures differ by their histories, not by the planner's draws)."""
+    return [int(x) for x in np.random.SeedSequence([seed, 0x71AE]).generate_state(n_sims)]
+
+
+def simulated_time_lost(trials: pd.DataFrame, world: World, options: PlannerOptions, n_sims: int,
+                        seed: int = 0) -> SimulatedLoss:
+    """The participant's logged total time against the planner's over ``n_sims`` simulated users
+    replaying their own schedule (targets in order, onsets, sessions, gaps: :func:`schedule_of`) in
+    ``world``, on the batched simulator (:func:`~shortcut_gym.agents.rollout.drive_batch`)."""
+    if n_sims < 1:
+        raise ConfigError(f"n_sims must be >= 1, got {n_sims}")
+    if trials.empty:
+        raise ConfigError("simulated_time_lost needs at least one trial of the participant")
+    ordered = trials.sort_values("trial", kind="stable")
+    schedule = schedule_of(ordered)
+    seeds = simulation_seeds(seed, n_sims)
     sim = BatchSimulator(world)
     sim.reset(seeds=seeds, schedules=[schedule] * n_sims)
     planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
     totals = drive_batch(sim, planner, seeds).sums.time_s.sum(axis=1)
-    return float(totals.mean()), float(totals.std(ddof=1) / np.sqrt(n_sims)) if n_sims > 1 else float("nan")
+    sd = float(totals.std(ddof=1)) if n_sims > 1 else float("nan")
+    return SimulatedLoss(float(ordered["duration_s"].sum()), float(totals.mean()), sd, sd / np.sqrt(n_sims), n_sims)
 
 
 def command_table(trials: pd.DataFrame, assessed: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
@@ -171,7 +214,7 @@ def command_table(trials: pd.DataFrame, assessed: pd.DataFrame, world: World, op
                      "break_even_uses": float(pays.loc[c, "break_even_uses"]),
                      "planner_uses_hotkey": bool((mine["optimal_action"] != "menu").any()),
                      "learned": learned, "hotkey_share_last_half": float((half["outcome"] == "hotkey").mean()),
-                     "time_lost_s": float(mine["time_lost_s"].sum())})
+                     "q_time_lost_s": float(mine["q_time_lost_s"].sum())})
     return pd.DataFrame(rows)
 
 
@@ -197,15 +240,16 @@ def _participant(job: tuple) -> dict[str, Any]:
     for j, s in enumerate(learning):
         fits.append(fit_participant(s, trials, ctx, n_starts, np.random.SeedSequence([seed, j + 1]), participant=pid))
     planned = fits[0]
-    optimum_s, optimum_se = planner_time_s(trials, world, options, n_sims, seed)
+    simulated = simulated_time_lost(trials, world, options, n_sims, seed)
     f, _ = loglik_function(spec, trials, ctx)
     lo, hi = profile_interval(f, planned.params["beta"], planned.loglik)
     best_learning = min(fits[1:], key=lambda r: r.bic) if learning else None
     row: dict[str, Any] = {
-        "participant": pid, "n_trials": len(trials), "observed_time_s": float(trials["duration_s"].sum()),
-        "time_lost_s": float(assessed["time_lost_s"].sum()),
-        "optimum_time_s": optimum_s, "optimum_time_se": optimum_se,
-        "excess_time_s": float(trials["duration_s"].sum()) - optimum_s,
+        "participant": pid, "n_trials": len(trials),
+        "simulated_time_lost_s": simulated.lost_s, "simulated_time_lost_se": simulated.lost_se,
+        "q_time_lost_s": float(assessed["q_time_lost_s"].sum()),
+        "observed_time_s": simulated.observed_s, "optimum_time_s": simulated.optimum_s,
+        "optimum_time_sd_s": simulated.optimum_sd_s, "n_sims": simulated.n_sims,
         "optimal_share": float(assessed["optimal"].mean()),
         "beta": planned.params["beta"], "beta_low": lo, "beta_high": hi,
         "planned_bic": planned.bic,
@@ -223,12 +267,14 @@ def _participant(job: tuple) -> dict[str, Any]:
 
 def rationality_analysis(log: pd.DataFrame, base: World, learning: Sequence[ModelSpec] = (),
                          options: PlannerOptions | None = None, n_starts: int = 5, seed: int = 0, n_jobs: int = 1,
-                         noise: str = "lognormal", n_sims: int = 16, progress: bool = False) -> RationalityResult:
+                         noise: str = "lognormal", n_sims: int = DEFAULT_SIMS,
+                         progress: bool = False) -> RationalityResult:
     """The rationality analysis of every participant of a validated log (see the module docstring).
 
     ``learning``: the learning models the planned-choice model competes with (labels must differ
-    from ``planned_choice``). ``n_jobs`` > 1 runs participants on that many processes. ``progress``
-    draws a bar over the participants (stderr).
+    from ``planned_choice``). ``n_jobs`` > 1 runs participants on that many processes. ``n_sims``:
+    simulated planner users per participant for the headline ``simulated_time_lost_s``; ``seed``
+    seeds the fits' starts and those users. ``progress`` draws a bar over the participants (stderr).
     """
     from tqdm.auto import tqdm
 
@@ -269,7 +315,7 @@ def group_summary(result: RationalityResult) -> pd.DataFrame:
     per = result.participants
     n = len(per)
     rows = []
-    for name in ("time_lost_s", "excess_time_s", "optimal_share", "beta"):
+    for name in ("simulated_time_lost_s", "q_time_lost_s", "optimal_share", "beta"):
         v = per[name].to_numpy(dtype=float)
         rows.append({"figure": f"mean {name}", "value": float(v.mean()),
                      "se": float(v.std(ddof=1) / np.sqrt(n)) if n > 1 else float("nan")})

@@ -10,6 +10,10 @@ import pandas as pd
 from shortcut_gym.lab.rationality.analysis import PLANNED, RationalityResult
 from shortcut_gym.lab.report.markdown import markdown_table, write_table
 
+#: The per-participant columns the report and the CLI show first (headline, its SE, decomposition).
+HEADLINE_COLUMNS = ("participant", "simulated_time_lost_s", "simulated_time_lost_se", "q_time_lost_s",
+                    "optimal_share", "beta", "beta_low", "beta_high")
+
 
 def _plt():
     import matplotlib
@@ -21,12 +25,14 @@ def _plt():
 
 
 def plot_time_lost(per: pd.DataFrame, path: Path) -> Path:
-    """Per participant: time lost by their choices (planner's values) and excess time (simulated), s."""
+    """Per participant: simulated time lost (with a 95% Monte Carlo interval) beside the decomposition
+    from the planner's values, s."""
     plt = _plt()
     fig, ax = plt.subplots(figsize=(max(5.0, 0.35 * len(per) + 2), 3.2))
     x = np.arange(len(per))
-    ax.bar(x - 0.2, per["time_lost_s"], 0.4, label="time lost by the choices (planner's values)")
-    ax.bar(x + 0.2, per["excess_time_s"], 0.4, yerr=1.96 * per["optimum_time_se"], label="logged - optimum (simulated)")
+    ax.bar(x - 0.2, per["simulated_time_lost_s"], 0.4, yerr=1.96 * per["simulated_time_lost_se"].fillna(0.0),
+           label="logged - optimum (simulated on own schedule)")
+    ax.bar(x + 0.2, per["q_time_lost_s"], 0.4, label="sum of Q(a*) - Q(a) (approximate decomposition)")
     ax.axhline(0, color="k", lw=0.6)
     ax.set_xticks(x, per["participant"], rotation=60, ha="right", fontsize=7)
     ax.set_ylabel("seconds against own optimum")
@@ -59,11 +65,13 @@ def write_rationality(result: RationalityResult, out: Path) -> tuple[list[tuple[
     out.mkdir(parents=True, exist_ok=True)
     per = result.participants
     entries = [
-        (write_table(per, out, "rationality_participants"), "per participant: time lost, excess time, share of "
-         "optimal choices, beta with its interval, planned vs learning model, own operator times"),
+        (write_table(per, out, "rationality_participants"), "per participant: simulated time lost with its SE, "
+         "the Q-value decomposition, share of optimal choices, beta with its interval, planned vs learning "
+         "model, own operator times"),
         (write_table(result.commands, out, "rationality_commands"), "per participant x command: does learning pay "
          "for them, did they learn it"),
-        (write_table(result.trials, out, "rationality_trials"), "per trial: planner values, optimal action, time lost"),
+        (write_table(result.trials, out, "rationality_trials"), "per trial: planner values, optimal action, "
+         "Q-value time lost"),
         (write_table(result.durations, out, "duration_fits"), "per participant: operator times from their durations "
          "with standard errors"),
         (write_table(result.fits, out, "rationality_fits"), "choice fits with the joint choice + duration likelihood"),
@@ -71,22 +79,25 @@ def write_rationality(result: RationalityResult, out: Path) -> tuple[list[tuple[
         (plot_time_lost(per, out / "time_lost.png"), "time against own optimum per participant"),
         (plot_rationality_index(per, out / "rationality_index.png"), "beta with interval vs optimal share"),
     ]
-    cols = [c for c in ("participant", "time_lost_s", "excess_time_s", "optimal_share", "beta", "beta_low",
-                        "beta_high", "learned_where_pays", "commands_pay", "better_model") if c in per.columns]
+    cols = [c for c in HEADLINE_COLUMNS + ("learned_where_pays", "commands_pay", "better_model") if c in per.columns]
     cmd = result.commands
     crosstab = pd.crosstab(cmd["learning_pays"].map({True: "learning pays", False: "does not pay"}),
                            cmd["learned"].map({True: "learned", False: "not learned"}))
     better = (per["better_model"] == PLANNED).sum() if "better_model" in per else 0
+    n_sims = sorted(set(per["n_sims"].astype(int))) if "n_sims" in per and len(per) else []
+    sims = f"{n_sims[0]} simulated users" if len(n_sims) == 1 else "the simulated users"
     sections = [
         ("Rationality against each participant's own optimum",
          "Each participant's operator times are fitted to their own trial durations; the yardstick planner "
-         "plans for the world they imply. *Time lost* is the seconds given up by the logged choices, valued by"
-         " the planner with the homing priced at the midpoint of the participant's and the optimum's hand "
-         "shares (zero for optimal choices; an upper estimate with ACT-R memory, see docs/rationality.md); "
-         "*excess* is the logged time minus the planner's simulated mean time on the participant's own "
-         "schedule. *beta* is the fitted inverse temperature of `planned_choice` with its 95% profile interval"
-         f" (the rationality index). {better} of {len(per)} participants are better explained by "
-         "`planned_choice` than by the learning models (BIC).\n\n"
+         "plans for the world they imply. *Time lost* (`simulated_time_lost_s`, with its Monte Carlo standard"
+         f" error `simulated_time_lost_se` over {sims}) is the logged total time minus the planner's mean "
+         "simulated time on the participant's own schedule (their targets in order) in that world; one "
+         "history carries its luck with recall and noise, of the order of `optimum_time_sd_s`. "
+         "`q_time_lost_s` decomposes the loss over trials by the planner's action values, Q(a*) - Q(a) summed"
+         " (zero for optimal choices; approximate: off by up to +70% with ACT-R memory, see "
+         "docs/rationality.md). *beta* is the fitted inverse temperature of `planned_choice` with its 95% "
+         f"profile interval (the rationality index). {better} of {len(per)} participants are better "
+         "explained by `planned_choice` than by the learning models (BIC).\n\n"
          + markdown_table(per[cols]) + "\n\n" + markdown_table(result.group) + "\n\n"
          "Commands (participant x command): does learning the hotkey pay for them, did they learn it.\n\n"
          + markdown_table(crosstab, index=True)
