@@ -18,9 +18,10 @@ from typing import Any, NamedTuple
 import pandas as pd
 
 from shortcut_gym.agents.registry import AGENTS, make_agent, read_agent_spec
-from shortcut_gym.envs.config import read_yaml
+from shortcut_gym.envs.config import load_settings, read_yaml
 from shortcut_gym.envs.errors import ConfigError
-from shortcut_gym.envs.world import World, make_world
+from shortcut_gym.envs.task import ScenarioSettings
+from shortcut_gym.envs.world import DEFAULT_SCENARIO, World, make_world
 from shortcut_gym.lab.cli import DETAIL_LOGGER, CLIError
 from shortcut_gym.lab.cli.ranges import input_file, output_folder, seed, whole_number
 from shortcut_gym.lab.cli.specs import SYNTAX, agent_spec_dict, is_number, parse_spec
@@ -147,12 +148,67 @@ def world_of(args: argparse.Namespace) -> World:
         if not isinstance(data, dict):
             raise CLIError(f"--schedule {args.schedule}: must hold a mapping of schedule settings, got {data!r}")
         schedule.update(data)
+    file_keys = set(schedule)
     sessions = getattr(args, "sessions", None)
     if sessions is not None:
         schedule["sessions"] = sessions
-    world = make_world(args.scenario, args.costs, args.memory, schedule or None)
+    scenario = load_settings(ScenarioSettings, args.scenario or DEFAULT_SCENARIO)  # its faults name its file
+    check_gap_count(args, scenario, schedule, file_keys)
+    world = make_world(scenario, args.costs, args.memory, schedule or None)
     detail(world_words(world, args))
     return world
+
+
+def _scenario_source(args: argparse.Namespace) -> tuple[str, Path | None]:
+    """How to name the scenario the options chose, and its file when it is the user's own."""
+    name = args.scenario or DEFAULT_SCENARIO
+    path = Path(name)
+    if path.suffix in (".yaml", ".yml") or path.exists():
+        return f"the schedule of --scenario {path}", path
+    return f"the schedule of the scenario preset {name!r}", None
+
+
+def check_gap_count(args: argparse.Namespace, scenario: ScenarioSettings, schedule: dict[str, Any],
+                    file_keys: set[str]) -> None:
+    """Refuse a ``gap_h`` list whose length is not sessions - 1 once the files and options are combined,
+    naming the file the list came from, what set the number of sessions, and the ways to fix it.
+
+    ``schedule`` holds the ``--schedule`` file's keys (``file_keys``) with ``--sessions`` laid over them;
+    values of the wrong type are left to the schedule's own validation.
+    """
+    gaps = schedule.get("gap_h", scenario.schedule.gap_h)
+    sessions = schedule.get("sessions", scenario.schedule.sessions)
+    if not isinstance(gaps, list) or not isinstance(sessions, int) or isinstance(sessions, bool):
+        return
+    if len(gaps) == sessions - 1:
+        return
+    schedule_file = getattr(args, "schedule", None)
+    scenario_words, scenario_file = _scenario_source(args)
+    list_from_schedule = "gap_h" in file_keys
+    if list_from_schedule:
+        list_words, list_file = f"--schedule {schedule_file}", schedule_file
+    else:
+        list_words, list_file = scenario_words, scenario_file
+    matching, needed = len(gaps) + 1, f"{sessions - 1} gap{'' if sessions == 2 else 's'}"
+    if getattr(args, "sessions", None) is not None:
+        sessions_words = f"--sessions {sessions}"
+        fix = f"give --sessions {matching} to match the list"
+    else:
+        in_file = "sessions" in file_keys
+        sessions_words = f"sessions: {sessions} in " + (f"--schedule {schedule_file}" if in_file else scenario_words)
+        sessions_file = schedule_file if in_file else scenario_file
+        also = f" (or set sessions: {matching} in {sessions_file})" if sessions_file is not None else ""
+        fix = f"give --sessions {matching}{also} to match the list"
+    if list_from_schedule:
+        edit = f"edit gap_h in {list_file} to list {needed}"
+    else:  # a scenario file's schedule must hold together on its own
+        edit = f"give --schedule with a gap_h of {needed}" + (
+            f", or edit the schedule in {list_file} to sessions: {sessions} with a gap_h of {needed}"
+            if list_file is not None else "")
+    listed = f"{len(gaps)} gap{'' if len(gaps) == 1 else 's'}"
+    made = f"{sessions} session{'' if sessions == 1 else 's'}"
+    raise CLIError(f"gap_h in {list_words} lists {listed} between sessions, but {sessions_words} makes {made}, "
+                   f"which need {needed}; {fix}, or {edit}")
 
 
 def world_words(world: World, args: argparse.Namespace) -> str:
