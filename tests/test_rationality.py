@@ -115,20 +115,27 @@ def test_planned_choice_and_the_delta_rule_are_told_apart(world):
     assert confusion.loc["rescorla_wagner", "rescorla_wagner"] >= 0.85
 
 
-def test_yardstick_cli_writes_the_folder_and_refuses_planned_choice_as_a_learning_model(tmp_path, capsys):
+@pytest.fixture()
+def small_case(tmp_path):
+    """A 2 x 30-trial scenario file and a log of two delta-rule users on it."""
     import yaml
 
     from shortcut_gym.envs.config import bundled_config_dir
-    from shortcut_gym.lab.cli import main
     from shortcut_gym.lab.data.logs import write_log
 
     scenario = yaml.safe_load((bundled_config_dir() / "scenarios" / "tidepool_logbook.yaml").read_text())
     scenario["schedule"].update(sessions=2, trials_per_session=30)
     path = tmp_path / "small.yaml"
     path.write_text(yaml.safe_dump(scenario))
-    world = make_world(path)
-    log = simulate_log(world, ModelSpec("rescorla_wagner"), 2, np.random.default_rng(1))
-    log_path = write_log(log, tmp_path / "log.csv")
+    log = simulate_log(make_world(path), ModelSpec("rescorla_wagner"), 2, np.random.default_rng(1))
+    return path, log, write_log(log, tmp_path / "log.csv")
+
+
+def test_yardstick_cli_writes_the_folder_and_refuses_planned_choice_as_a_learning_model(tmp_path, capsys,
+                                                                                       small_case):
+    from shortcut_gym.lab.cli import main
+
+    path, _, log_path = small_case
     out = tmp_path / "out"
     code = main(["yardstick", str(log_path), "--scenario", str(path), "--out", str(out), "--starts", "1",
                  "--optimum-sims", "4", "--quiet"])
@@ -139,3 +146,30 @@ def test_yardstick_cli_writes_the_folder_and_refuses_planned_choice_as_a_learnin
     assert main(["yardstick", str(log_path), "--scenario", str(path), "--out", str(out), "--model",
                  "planned_choice"]) == 2
     assert "is the model every learning model is compared with" in capsys.readouterr().err
+
+
+def test_report_rationality_adds_the_yardstick_section_with_the_simulated_headline(tmp_path, capsys, small_case):
+    from shortcut_gym.lab.cli import main
+
+    path, log, log_path = small_case
+    common = [str(log_path), "--scenario", str(path), "--starts", "1", "--optimum-sims", "8", "--quiet"]
+    models = ["--model", "static_softmax", "--model", "rescorla_wagner"]
+    assert main(["yardstick", *common, *models, "--out", str(tmp_path / "alone")]) == 0
+    assert main(["report", *common, *models, "--sims", "2", "--rationality", "--out", str(tmp_path / "report")]) == 0
+    index = (tmp_path / "report" / "index.md").read_text()
+    assert "## Rationality against each participant's own optimum" in index and "simulated_time_lost_s" in index
+    assert "rationality_participants.csv" in index and "time_lost.png" in index
+    per = pd.read_csv(tmp_path / "report" / "rationality_participants.csv", dtype={"participant": str})
+    alone = pd.read_csv(tmp_path / "alone" / "rationality_participants.csv", dtype={"participant": str})
+    # the report's section is the yardstick's analysis with the same options and seed
+    pd.testing.assert_frame_equal(per, alone)
+    # the headline is the log's own total per participant minus the planner's simulated mean
+    totals = log.groupby("participant")["duration_s"].sum()
+    np.testing.assert_allclose(per["observed_time_s"], totals.loc[per["participant"]].to_numpy(), rtol=1e-12)
+    np.testing.assert_allclose(per["simulated_time_lost_s"], per["observed_time_s"] - per["optimum_time_s"])
+    assert (per["simulated_time_lost_se"] > 0).all() and (per["n_sims"] == 8).all()
+    # without the flag the report has no such section
+    assert main(["report", *common, *models, "--sims", "2", "--out", str(tmp_path / "plain")]) == 0
+    assert "Rationality" not in (tmp_path / "plain" / "index.md").read_text()
+    assert not (tmp_path / "plain" / "rationality_participants.csv").exists()
+    capsys.readouterr()

@@ -4,9 +4,12 @@ from __future__ import annotations
 
 import argparse
 
+from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import add_log_fit_options, covariance_of, log_fit_inputs, status, world_words
 from shortcut_gym.lab.cli.ranges import whole_number
-from shortcut_gym.lab.cli.yardstick import add_planner_options
+from shortcut_gym.lab.cli.yardstick import add_planner_options, planner_options_of
+from shortcut_gym.lab.rationality import PLANNED, rationality_analysis
+from shortcut_gym.lab.rationality.report import write_rationality
 from shortcut_gym.lab.report import analyse_log
 
 
@@ -40,12 +43,25 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Write the report folder and print the summed criteria."""
     world, specs, priors, ranges, log = log_fit_inputs(args)
+    entries: list = []
+    sections: list = []
+    if args.rationality:
+        learning = [s for s in specs if s.name != PLANNED]
+        if any(s.label == PLANNED for s in learning):
+            raise CLIError(f"--model: a learning model is labelled {PLANNED!r}, the name of the yardstick's own "
+                           "choice model; give it another label")
+        status(f"rationality: each of {log['participant'].nunique()} participants against the planner in their "
+               "own world")
+        result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed,
+                                      args.jobs, args.duration_noise, args.optimum_sims, progress=not args.quiet)
+        entries, sections = write_rationality(result, args.out)  # beside the report's own files, no name shared
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
                                 args.block, priors, args.knockout, not args.quiet,
                                 args.hierarchical, args.cross_validate, intervals=args.intervals,
                                 start_ranges=ranges, covariance=covariance_of(args),
                                 extra_sections=[("Study world", world_words(world, args)
-                                                 + " The posterior-predictive simulations run on it.")])
+                                                 + " The posterior-predictive simulations run on it."), *sections],
+                                extra_entries=entries)
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(tables["bms"].to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     status(f"report in {index.parent}")
