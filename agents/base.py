@@ -221,6 +221,15 @@ class FusedBatchPolicy(BatchPolicy, Protocol):
 
 
 @runtime_checkable
+class RecordingBatchPolicy(FusedBatchPolicy, Protocol):
+    """A fused batch policy that can also keep every trial of its one-call run: ``run_recorded(sim)``
+    returns the sums and a :class:`~shortcut_gym.agents.rollout.TrialRecord` equal to the per-trial
+    loop's with ``keep_trials``."""
+
+    def run_recorded(self, sim: Any) -> Any: ...
+
+
+@runtime_checkable
 class BatchAgent(Protocol):
     """An agent with a batch policy: user i of ``batch_policy(n_users, seeds)`` draws what the
     agent reset with ``seeds[i]`` draws."""

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import math
 from collections import OrderedDict
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from typing import Any
 
 import numpy as np
@@ -32,6 +32,7 @@ import pandas as pd
 from numba import njit
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.planned_choice_batch import PlannedChoiceSteps, choice_probabilities, planned_choice_batch
 from shortcut_gym.agents.planner import BoundedOptimalPlanner
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
@@ -183,13 +184,21 @@ class PlannedChoice(Agent):
             self.reset()
         assert self._planner is not None
         q = self._planner.action_values(int(info["target"]), int(info["next_trial"]))
-        return softmax_probabilities(q, self.params["beta"], self.params.get("lapse", 0.0))
+        # the compiled softmax the batch policy draws from, so both give the same doubles
+        return np.array(choice_probabilities(float(q[0]), float(q[1]), float(q[2]), self.params["beta"],
+                                             self.params.get("lapse", 0.0)))
 
     def observe(self, transition: Transition) -> None:
         if self._planner is None:
             self.reset()
         assert self._planner is not None
         self._planner.observe(transition)
+
+    def batch_policy(self, n_users: int, seeds: Sequence[int]) -> PlannedChoiceSteps:
+        """Many simulated users at once (:mod:`shortcut_gym.agents.planned_choice_batch`): user i
+        draws what this agent reset with ``seeds[i]`` draws."""
+        return planned_choice_batch(self.name, self.planner(), self.params["beta"], self.params.get("lapse", 0.0),
+                                    n_users, seeds)
 
     # ---- fast likelihood ------------------------------------------------------------------
     def action_values_of(self, trials: pd.DataFrame) -> np.ndarray:

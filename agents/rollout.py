@@ -6,8 +6,10 @@ simulator (:func:`drive_batch`), with a neutral per-user sums type (:class:`User
 batch policy (:class:`~shortcut_gym.agents.base.BatchAgent`) is driven as a whole batch; when only
 sums are asked for and its policy runs a whole simulation itself
 (:class:`~shortcut_gym.agents.base.FusedBatchPolicy`), that one call replaces the loop, with the
-same numbers. Any other agent is driven as one agent object per user, given exactly the
-observations, info dicts and transitions :func:`run_episode` gives it on ``CommandSelection-v0``.
+same numbers; with every trial kept, so does a policy whose one call keeps them
+(:class:`~shortcut_gym.agents.base.RecordingBatchPolicy`). Any other agent is driven as one agent
+object per user, given exactly the observations, info dicts and transitions :func:`run_episode`
+gives it on ``CommandSelection-v0``.
 """
 
 from __future__ import annotations
@@ -27,6 +29,7 @@ from shortcut_gym.agents.base import (
     BatchAgent,
     BatchPolicy,
     FusedBatchPolicy,
+    RecordingBatchPolicy,
     SessionBatchPolicy,
     Transition,
 )
@@ -213,6 +216,9 @@ def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_bat
         policy = agent.batch_policy(sim.n_users, seeds)
         if fused and not keep_trials and isinstance(policy, FusedBatchPolicy):
             return BatchRollout(policy.run(sim))
+        if fused and keep_trials and isinstance(policy, RecordingBatchPolicy):
+            sums, kept = policy.run_recorded(sim)
+            return BatchRollout(sums, kept)
         stepper = _PolicyStepper(policy)
     else:
         stepper = _AgentStepper(agent, sim, seeds)

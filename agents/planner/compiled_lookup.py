@@ -73,13 +73,15 @@ class LookupTables(NamedTuple):
     next_trial: np.ndarray  # (commands, horizon - 1, G) int64: a trial whose clock is next_clock; or (0, 0, 0)
 
 
-def lookup_tables(agent: "BoundedOptimalPlanner") -> LookupTables | None:
+def lookup_tables(agent: "BoundedOptimalPlanner", values_only: bool = False) -> LookupTables | None:
     """The tables of a planner whose choice follows its plan (reset here if it was not, to price
-    its plan's times); None where the compiled rebuild does not apply (see the module docstring)."""
+    its plan's times); None where the compiled rebuild does not apply (see the module docstring).
+    ``values_only``: tables for :func:`action_values_user` alone, whatever the plan's choice
+    (``allowed`` is then 1 everywhere; :func:`decide_user` must not read them)."""
     if agent.plan is None or getattr(agent, "_times_for", None) is not agent.plan:
         agent.reset()
     plan = agent.plan
-    if plan is None or plan.choice.kind != "plan":
+    if plan is None or (plan.choice.kind != "plan" and not values_only):
         raise UsageError(f"{agent.name}: the compiled lookup is for a plan choice, this one is "
                          f"{plan.choice.label if plan is not None else 'not made'}")
     m = agent._memory
@@ -112,7 +114,7 @@ def lookup_tables(agent: "BoundedOptimalPlanner") -> LookupTables | None:
     sessions = int(np.asarray(agent._session).max()) + 1 if horizon else 1
     cap = horizon + sessions + 1  # traces per command: one per trial, one per warm-up block
     ints = np.array([_KIND_CODES[m.kind], m.recent_traces, 1 if agent._aids else 0, warmup, cap], dtype=np.int64)
-    allowed = np.array([1 if plan.choice.allows(c) else 0 for c in range(n_cmd)], dtype=np.int64)
+    allowed = np.array([1 if values_only or plan.choice.allows(c) else 0 for c in range(n_cmd)], dtype=np.int64)
     nu = agent._next_uses
     next_clock = np.ascontiguousarray(nu.clock_s, dtype=np.float64)
     ages, next_trial = np.zeros((0, 0)), np.zeros((0, 0, 0), dtype=np.int64)
@@ -157,7 +159,7 @@ def user_memory(n_cmd: int, cap: int) -> UserMemory:
 
 
 @njit(**RULE_JIT)
-def _clear(mem):
+def clear_memory(mem):
     mem.n_traces[:] = 0
     mem.lump[:, :] = 0.0
     mem.lump_trial[:, :] = -1
@@ -432,7 +434,7 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
     frac = np.empty(4)
     fail_lat = k.failed_retrieval_s(par)
     for b in range(n_users):
-        _clear(mem)
+        clear_memory(mem)
         for t in range(h):
             c = sched_cmd[b, t]
             a = decide_user(tab, mem, c, t, nw, pts, cell, frac)
