@@ -152,6 +152,12 @@ class Agent(ABC):
         """The agent's fittable parameters by name (empty for fixed agents)."""
         return {}
 
+    @classmethod  # noqa: B027 - most agents check nothing early
+    def check_options(cls, options: dict[str, Any]) -> None:
+        """Refuse, before the agent is built, what its class can tell is wrong in the constructor
+        keywords ``options`` (params and options together); a :class:`ConfigError` names the key.
+        Most agents check in their constructor only; the SB3 adapters check their hyperparameters."""
+
     def reset(self, seed: int | None = None) -> None:
         """Forget everything learned; reseed the agent's own random generator."""
         self.rng = agent_rng(seed)

@@ -56,11 +56,37 @@ def make_agent(name: str, context: AgentContext | None = None, **params: Any) ->
         raise ConfigError(f"{name}: {err}") from err
 
 
+def check_spec(spec: dict[str, Any], where: str) -> None:
+    """Refuse what an agent's class can tell is wrong in a spec dict before building it
+    (:meth:`Agent.check_options`); faults are :class:`ConfigError` starting with ``where``."""
+    cls = AGENTS.get(spec.get("name"))  # type: ignore[arg-type]
+    if cls is None:
+        return
+    params = spec.get("params") or {}
+    options = {k: v for k, v in spec.items() if k not in ("name", "params", "label")}
+    try:
+        cls.check_options({**options, **params} if isinstance(params, dict) else options)
+    except ConfigError as err:
+        raise ConfigError(f"{where}: {err}") from None
+
+
 class AgentSpec(StrictModel):
     """One agent as a YAML mapping (``--agent-file``, sweep specs): a registered ``name``, its
     ``params`` and any constructor option beside them (``model_path``, ``deterministic``,
     ``mechanisms``, ``n_bins``, ...); ``label`` names it in outputs. An option whose key ends in
     ``_path`` is taken relative to the spec file's folder when the spec is read from a file.
+
+    The SB3 agents (``ppo``, ``a2c``, ``dqn``) take the keyword arguments of their Stable-Baselines3
+    class's constructor as hyperparameters (``n_steps``, ``learning_rate``, ``gamma``,
+    ``buffer_size``, ...; all but ``policy``, ``env``, ``seed``, ``verbose`` and ``device``, which the
+    adapter sets), either under ``hyperparameters`` or beside the options like any other key (not under ``params``,
+    whose numbers are read as floats), which
+    is how the command line gives them: ``--agent ppo:n_steps=64,learning_rate=3e-4`` is this file's
+    ``name: ppo`` with ``hyperparameters: {n_steps: 64, learning_rate: 3.0e-4}``. A key given in both
+    places with two different values is refused; an unknown key is refused listing the known ones.
+    Nested values (``policy_kwargs: {net_arch: [32, 32]}``) go under ``hyperparameters`` in a file:
+    the one-line form takes no mappings. They are merged over the adapter's own defaults
+    (``shortcut_gym.agents.sb3.DEFAULT_HYPERPARAMETERS``) and matter when a new model is trained.
     """
 
     model_config = ConfigDict(extra="allow", frozen=True, allow_inf_nan=False)
@@ -68,6 +94,10 @@ class AgentSpec(StrictModel):
     label: str | None = Field(default=None, min_length=1, description="name in the outputs (default: from the spec)")
     params: dict[str, float] = Field(default_factory=dict,
                                      description="parameters by name (numbers; the agent's defaults otherwise)")
+    hyperparameters: dict[str, Any] | None = Field(
+        default=None, description="SB3 agents only: keyword arguments of the algorithm's constructor "
+                                  "(stable_baselines3.PPO, A2C, DQN), e.g. {n_steps: 64, gamma: 0.95, "
+                                  "policy_kwargs: {net_arch: [32, 32]}}; the adapter's defaults otherwise")
 
     @field_validator("name")
     @classmethod
@@ -88,6 +118,8 @@ class AgentSpec(StrictModel):
     def as_dict(self) -> dict[str, Any]:
         """The spec as the plain dict :func:`agent_from_spec` and the sweep take (no unset label)."""
         out: dict[str, Any] = {"name": self.name, "params": dict(self.params), **(self.model_extra or {})}
+        if self.hyperparameters is not None:
+            out["hyperparameters"] = dict(self.hyperparameters)
         if self.label is not None:
             out["label"] = self.label
         return out
@@ -115,7 +147,9 @@ def read_agent_spec(path: str | Path) -> AgentSpec:
     for key, value in extra.items():
         if key.endswith("_path") and isinstance(value, str) and not Path(value).is_absolute():
             extra[key] = str(path.parent / value)
-    return spec.model_copy(update=extra)
+    spec = spec.model_copy(update=extra)
+    check_spec(spec.as_dict(), str(path))
+    return spec
 
 
 def agent_from_spec(spec: dict[str, Any] | str | Path, context: AgentContext | None = None) -> Agent:

@@ -10,7 +10,9 @@ go through the frozen training statistics when ``normalize`` is on (default). St
 and torch are imported on first use; torch runs on :data:`~.algorithms.MAX_TORCH_THREADS` thread.
 A saved model keeps the record of the world it was trained on (:mod:`.files`); a loaded one
 refuses another world (or a zip without a record) unless ``allow_other_world=True``
-(:mod:`shortcut_gym.agents.world_record`).
+(:mod:`shortcut_gym.agents.world_record`). Hyperparameters of the SB3 class come under
+``hyperparameters`` or as keywords beside the options (``make_agent("ppo", n_steps=64)``), checked
+against the class's own signature (:mod:`.hyperparameters`).
 """
 
 from __future__ import annotations
@@ -28,9 +30,13 @@ from shortcut_gym.agents.frozen_policy import UserDraws
 from shortcut_gym.agents.rollout import context_of, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
+from shortcut_gym.agents.sb3.hyperparameters import gather_hyperparameters
 from shortcut_gym.agents.sb3.training import train_model
 from shortcut_gym.agents.world_record import WorldRecorded, check_flag
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
+
+#: The adapter's own options (its constructor's keywords); any other keyword is a hyperparameter.
+OPTIONS = ["allow_other_world", "deterministic", "hyperparameters", "model_path", "normalize"]
 
 
 class SB3Agent(WorldRecorded, Agent):
@@ -41,20 +47,29 @@ class SB3Agent(WorldRecorded, Agent):
 
     def __init__(self, context: AgentContext | None = None, model_path: str | Path | None = None,
                  deterministic: bool = False, hyperparameters: dict[str, Any] | None = None, normalize: bool = True,
-                 allow_other_world: bool = False, **params: float) -> None:
-        super().__init__(context, **params)
+                 allow_other_world: bool = False, **given: Any) -> None:
+        """``given``: hyperparameters beside the options (``ppo:n_steps=64``), joined with the
+        ``hyperparameters`` mapping by :func:`.hyperparameters.gather_hyperparameters`."""
+        super().__init__(context)
+        chosen = gather_hyperparameters(self.name, self.algorithm, hyperparameters, given, OPTIONS)
         self.allow_other_world = check_flag(self.name, allow_other_world)
         for key, flag in (("deterministic", deterministic), ("normalize", normalize)):
             if not isinstance(flag, bool):
                 raise ConfigError(f"{self.name}: {key} must be true or false, got {flag!r}")
         self.deterministic = deterministic
         self.normalize = normalize
-        self.hyperparameters = {**DEFAULT_HYPERPARAMETERS[self.algorithm], **(hyperparameters or {})}
+        self.hyperparameters = {**DEFAULT_HYPERPARAMETERS[self.algorithm], **chosen}
         self.obs_norm: dict[str, Any] | None = None
         self.model_path = None if model_path is None else str(model_path)
         self.model: Any = None
         if self.model_path is not None:
             self.load(self.model_path)
+
+    @classmethod
+    def check_options(cls, options: dict[str, Any]) -> None:
+        """Check the hyperparameters among ``options`` (keys and kinds) against the SB3 class."""
+        beside = {k: v for k, v in options.items() if k not in OPTIONS}
+        gather_hyperparameters(cls.name, cls.algorithm, options.get("hyperparameters"), beside, OPTIONS)
 
     def bind(self, context: AgentContext) -> None:
         """Attach the world facts; a loaded model must read this world's observation length."""

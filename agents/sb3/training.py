@@ -4,7 +4,9 @@ Training runs on ``n_envs`` batched users (``envs.vector.make_sb3_vec_env``) and
 ``normalize`` on, through SB3's ``VecNormalize`` of observations and rewards: without it PPO
 settles on always-menu in short budgets on this task (measured while building the adapter). The
 observation statistics are frozen after training and returned for saving beside the model.
-Progress bars use tqdm (SB3's own bar needs ``rich``, which is not a dependency).
+Progress bars use tqdm (SB3's own bar needs ``rich``, which is not a dependency). What SB3
+refuses in its settings while building or training (its asserts, a ValueError: ``n_steps * n_envs``
+of 1, episodic ``train_freq`` on several users) comes back as a ConfigError naming the algorithm.
 """
 
 from __future__ import annotations
@@ -12,6 +14,7 @@ from __future__ import annotations
 from typing import Any
 
 from shortcut_gym.agents.sb3.algorithms import algorithm_classes
+from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World
 
 
@@ -48,12 +51,24 @@ def train_model(algorithm: str, hyperparameters: dict[str, Any], world: World, t
         from stable_baselines3.common.vec_env import VecNormalize
 
         venv = VecNormalize(venv, norm_obs=True, norm_reward=True, gamma=hyperparameters.get("gamma", 0.99))
+    cls = algos[algorithm]
+
+    def refused(err: Exception) -> ConfigError:
+        return ConfigError(f"{algorithm}: stable_baselines3.{cls.__name__} refused its settings on {n_envs} "
+                           f"parallel users: {err} (hyperparameters {hyperparameters})")
+
     if model is None:
-        model = algos[algorithm]("MlpPolicy", venv, seed=seed, verbose=0, device="cpu", **hyperparameters)
+        try:
+            model = cls("MlpPolicy", venv, seed=seed, verbose=0, device="cpu", **hyperparameters)
+        except (AssertionError, ValueError, TypeError) as err:  # SB3 checks its settings with assert
+            raise refused(err) from err
     else:
         model.set_env(venv)
     callback = tqdm_callback(total_timesteps, progress_desc) if progress_desc is not None else None
-    model.learn(total_timesteps=int(total_timesteps), callback=callback)
+    try:
+        model.learn(total_timesteps=int(total_timesteps), callback=callback)
+    except AssertionError as err:  # e.g. episodic train_freq on several users
+        raise refused(err) from err
     if not normalize:
         return model, None
     rms = venv.obs_rms

@@ -17,7 +17,7 @@ from typing import Any, NamedTuple
 
 import pandas as pd
 
-from shortcut_gym.agents.registry import AGENTS, make_agent, read_agent_spec
+from shortcut_gym.agents.registry import AGENTS, check_spec, make_agent, read_agent_spec
 from shortcut_gym.envs.config import load_settings, read_yaml
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.task import ScenarioSettings
@@ -101,10 +101,15 @@ def parse_prior(text: str) -> tuple[str, Any]:
 
 
 def parse_agent_arg(text: str) -> dict[str, Any]:
-    """``--agent`` text (the syntax of :mod:`.specs`) -> agent spec dict; faults raise CLIError naming it."""
+    """``--agent`` text (the syntax of :mod:`.specs`) -> agent spec dict; faults raise CLIError naming it,
+    among them what the agent's class refuses before it is built (an SB3 agent's hyperparameters)."""
     spec = agent_spec_dict(text)
     if spec["name"] not in AGENTS:
         raise CLIError(f"agent {text!r}: unknown agent {spec['name']!r}; registered: {sorted(AGENTS)}")
+    try:
+        check_spec(spec, f"--agent {text!r} (command line)")
+    except ConfigError as err:
+        raise CLIError(str(err)) from None
     return spec
 
 
@@ -114,7 +119,8 @@ def add_agent_options(p: argparse.ArgumentParser, what: str = "agent (repeatable
                    help=f"{what} as {SYNTAX}; values are YAML scalars (numbers, true/false, text, paths, "
                         "lists as [a, b]), e.g. ppo:model_path=out/ppo.zip,deterministic=true")
     p.add_argument("--agent-file", action="append", default=None, type=Path,
-                   help="agent spec YAML (name, label, params, options beside them; repeatable)")
+                   help="agent spec YAML (name, label, params, options beside them, and for ppo/a2c/dqn "
+                        "hyperparameters:; docs/configs.md; repeatable)")
 
 
 def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -> list[dict[str, Any]]:

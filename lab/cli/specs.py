@@ -8,8 +8,10 @@ commas inside brackets or quotes do not split items). Unquoted text joining item
 (``value+lapse``) is refused with the bracket form to use: ``+`` is part of hotkey names and of
 numbers (``1e+3`` stays a number), so it is no list separator. Quote a value (``'a+b'``,
 ``'true'``) to keep it as text. ``null``/``~`` and mappings are refused: give a value, or leave
-the key out for the default. In a shell, quote the whole spec (``--model 'm=x:k=[a, b]'``): the
-brackets are a glob pattern and the space would split the word.
+the key out for the default (for ``--agent``, the refusal of a mapping says to give nested values,
+such as an SB3 agent's ``policy_kwargs``, in an ``--agent-file`` instead). In a shell, quote the
+whole spec (``--model 'm=x:k=[a, b]'``): the brackets are a glob pattern and the space would split
+the word.
 """
 
 from __future__ import annotations
@@ -22,6 +24,9 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.cli import CLIError
 
 SYNTAX = "[label=]name[:key=value,...]"
+#: What the refusal of a mapping in an ``--agent`` value adds.
+AGENT_NESTED_HINT = ("; nested values such as policy_kwargs go in a spec file, --agent-file FILE.yaml, "
+                     "under hyperparameters: (docs/configs.md, Agent spec)")
 
 
 @dataclass(frozen=True)
@@ -56,7 +61,7 @@ def split_items(text: str, where: str) -> list[str]:
     return [item.strip() for item in items if item.strip()]
 
 
-def _scalar(text: str, where: str) -> Any:
+def _scalar(text: str, where: str, nested: str = "") -> Any:
     try:
         value = parse_yaml(text, where)
     except ConfigError as err:
@@ -64,16 +69,17 @@ def _scalar(text: str, where: str) -> Any:
     if value is None:
         raise CLIError(f"{where}: no value (leave the key out to keep the default)")
     if isinstance(value, dict):
-        raise CLIError(f"{where}: a value is a number, boolean, text or list, not a mapping ({text!r})")
+        raise CLIError(f"{where}: a value is a number, boolean, text or list, not a mapping ({text!r}){nested}")
     return value
 
 
-def parse_value(text: str, where: str = "value") -> Any:
-    """One value read as a YAML scalar or flow list ``[a, b]``; unquoted ``a+b`` text is refused."""
+def parse_value(text: str, where: str = "value", nested: str = "") -> Any:
+    """One value read as a YAML scalar or flow list ``[a, b]``; unquoted ``a+b`` text is refused;
+    ``nested`` ends the refusal of a mapping (where to give one instead)."""
     text = text.strip()
     if not text:
         raise CLIError(f"{where}: empty value")
-    value = _scalar(text, where)
+    value = _scalar(text, where, nested)
     if isinstance(value, str) and "+" in value and text[0] not in "'\"":
         items = ", ".join(part.strip() for part in value.split("+") if part.strip())
         raise CLIError(f"{where}: {text!r} joins items with '+'; a list is written in square brackets, "
@@ -81,8 +87,9 @@ def parse_value(text: str, where: str = "value") -> Any:
     return value
 
 
-def parse_spec(text: str, what: str = "agent") -> SpecText:
-    """``[label=]name[:key=value,...]`` -> :class:`SpecText`; faults name ``what`` and the text."""
+def parse_spec(text: str, what: str = "agent", nested: str = "") -> SpecText:
+    """``[label=]name[:key=value,...]`` -> :class:`SpecText`; faults name ``what`` and the text
+    (``nested``: see :func:`parse_value`)."""
     where = f"{what} {text!r}"
     head, colon, rest = text.partition(":")
     label, eq, name = head.partition("=")
@@ -101,7 +108,7 @@ def parse_spec(text: str, what: str = "agent") -> SpecText:
             raise CLIError(f"{where}: {item!r} must look like key=value")
         if key in values:
             raise CLIError(f"{where}: key {key!r} is given twice")
-        values[key] = parse_value(value, f"{where}: {key}")
+        values[key] = parse_value(value, f"{where}: {key}", nested)
     return SpecText(name, label or None, values)
 
 
@@ -114,9 +121,10 @@ def agent_spec_dict(text: str) -> dict[str, Any]:
     """``--agent`` text -> the agent spec dict the registry builds from.
 
     Numbers go under ``params``, other values beside them as options; the registry passes both to
-    the agent, which tells its parameters from its options (a numeric option works either way).
+    the agent, which tells its parameters from its options (a numeric option works either way; an
+    SB3 agent's hyperparameters are such keys too: ``ppo:n_steps=64,normalize_advantage=false``).
     """
-    spec = parse_spec(text, "agent")
+    spec = parse_spec(text, "agent", AGENT_NESTED_HINT)
     out: dict[str, Any] = {"name": spec.name,
                            "params": {k: v for k, v in spec.values.items() if is_number(v)},
                            **{k: v for k, v in spec.values.items() if not is_number(v)}}

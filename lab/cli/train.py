@@ -22,14 +22,29 @@ from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_numbe
 TRAINABLE = ("ppo", "a2c", "dqn", "q_learning", "sarsa")
 #: Most trials of experience one ``train`` call gathers.
 MAX_TRIALS = 100_000_000
+#: The epilog of ``train --help``: the two ways to give SB3 hyperparameters.
+HYPERPARAMETER_HELP = """\
+SB3 hyperparameters (ppo, a2c, dqn) are the keyword arguments of stable_baselines3.PPO, A2C or DQN
+(all but policy, env, seed, verbose and device, which train sets). Give them either way:
+  on the line, beside the agent's options:
+    --agent 'ppo:n_steps=64,learning_rate=3e-4,gamma=0.99'
+    --agent 'dqn:buffer_size=5000,learning_starts=100,train_freq=[4, step]'
+  in an agent spec file, under hyperparameters: (nested values such as policy_kwargs only here):
+    --agent-file ppo.yaml   holding
+      name: ppo
+      hyperparameters: {n_steps: 64, learning_rate: 3.0e-4, policy_kwargs: {net_arch: [32, 32]}}
+The same keys are allowed in both places; one key given twice with two values is refused, and an
+unknown key is refused listing the known ones. Reference: docs/configs.md, Agent spec."""
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``train`` subcommand."""
-    p = sub.add_parser("train", help="train an SB3 or tabular agent and save its model for --agent ...:model_path=")
+    p = sub.add_parser("train", help="train an SB3 or tabular agent and save its model for --agent ...:model_path=",
+                       epilog=HYPERPARAMETER_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_world_options(p, sessions=True)
     add_agent_options(p, f"the agent to train, one of {', '.join(TRAINABLE)} (options such as "
-                         "deterministic=true are kept for its evaluation)")
+                         "deterministic=true are kept for its evaluation; SB3 hyperparameters go beside them, "
+                         "ppo:n_steps=64, see below)")
     p.add_argument("--trials", type=whole_number(1, MAX_TRIALS), default=40_000,
                    help="trials of experience (SB3: timesteps; tabular: whole simulated users of the horizon)")
     p.add_argument("--seed", type=seed, default=0, help="seed of the training users (and the model's own draws)")
