@@ -11,17 +11,17 @@ OUT ?= out/demo
 # declared floor), checked to be those versions, then a fast subset of the tests.
 LOWEST_VENV := .venv-lowest
 # Fast subset (about 2 min of tests on 2 cores) touching every direct dependency: gymnasium (env,
-# checker, wrappers, vector env), SB3 + torch (ppo/a2c/dqn, `train`, the world record in the model
-# zip), scipy (L-BFGS-B fits, milp assignment), threadpoolctl (fits), numba (kernel, planner solver,
-# learning rules), pandas/pyarrow (parquet logs), pyyaml/pydantic (config validation), matplotlib
-# (render, plots), tqdm (training).
+# checker, wrappers, vector env), SB3 + torch (ppo/a2c/dqn, `train`, spec hyperparameters read from
+# the SB3 signatures, the world record in the model zip), scipy (L-BFGS-B fits, milp assignment),
+# threadpoolctl (fits), numba (kernel, planner solver, learning rules), pandas/pyarrow (parquet logs),
+# pyyaml/pydantic (config validation), matplotlib (render, plots), tqdm (training).
 LOWEST_TESTS := tests/test_world_env.py tests/test_world_config.py tests/test_world_memory.py \
 	tests/test_world_observation.py tests/test_vector_env.py tests/test_world_wrappers.py \
 	tests/test_world_render.py tests/test_sb3_ecosystem.py tests/test_lab_logs.py tests/test_sweep_spec.py \
 	tests/test_cli_errors.py tests/test_cli_specs.py tests/test_cli_train.py tests/test_manners.py \
 	tests/test_design_assignment.py tests/test_lab_fitting.py tests/test_agents_planner.py \
 	tests/test_agents_learning.py tests/test_agents_rl.py::test_other_sb3_adapters_run_through_the_protocol \
-	tests/test_model_world_record.py
+	tests/test_model_world_record.py tests/test_sb3_spec_hyperparameters.py
 
 .PHONY: setup demo test test-lowest lint typecheck bench docs clean
 
