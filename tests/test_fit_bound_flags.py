@@ -108,3 +108,43 @@ def test_always_menu_participants_fitted_by_the_choice_kernel_are_flagged_at_a_b
         assert "beta_ck" in row["at_bound"].split(";"), row[["participant", "param_beta_ck", "at_bound"]]
         assert not row["fit_ok"] and "at a bound" in row["fit_issues"]
         assert row["message"].strip() not in ("", "ABNORMAL:")
+
+
+def _random_log(counts: dict[str, int]):
+    """A one-participant log whose actions are ``counts`` (action -> trials), in blocks."""
+    world = make_world(schedule={"sessions": 2, "trials_per_session": 30, "gap_h": 20.0})
+    trials = simulate_agents(world, [{"name": "always_menu"}], [1])
+    actions = [a for a, k in counts.items() for _ in range(k)]
+    trials = trials.iloc[: len(actions)].copy()
+    trials["action"] = actions
+    trials["outcome"] = trials["action"].map({"menu": "menu", "hotkey": "hotkey", "learn": "learned"})
+    log = trials.assign(participant=trials["user"].astype(str), command=trials["command_name"])
+    return world, validate_log(log.drop(columns=["agent", "user"]), world.commands)
+
+
+@pytest.mark.parametrize("counts", [
+    {"hotkey": 40, "learn": 20},            # no menu: the optimum is on p_hotkey + p_learn = 1
+    {"menu": 5, "hotkey": 45, "learn": 10},  # near that edge: a bound move is infeasible
+    {"menu": 30, "hotkey": 20, "learn": 10},  # interior
+])
+def test_random_model_fits_reach_the_multinomial_optimum_across_its_infeasible_region(counts) -> None:
+    # The random model refuses p_hotkey + p_learn > 1; neither the search nor the at-bound check
+    # may stop on that refusal. Its ln L has the closed form sum_a n_a ln(n_a / n) (multinomial ML).
+    world, log = _random_log(counts)
+    context = context_for(log, world.commands.names, world=world)
+    fits = fit_log(log, [ModelSpec("random")], context, n_starts=3, seed=1, intervals="none")
+    n = sum(counts.values())
+    truth = sum(k * math.log(k / n) for k in counts.values())
+    row = fits.iloc[0]
+    assert row["loglik"] <= truth + 1e-9
+    assert row["loglik"] >= truth - 0.05, (row["loglik"], truth)
+    assert row["param_p_hotkey"] + row["param_p_learn"] <= 1.0 + 1e-12
+    assert row["param_p_hotkey"] == pytest.approx(counts["hotkey"] / n, abs=0.02)
+
+
+def test_a_fixed_value_the_model_refuses_still_raises_its_error() -> None:
+    world, log = _random_log({"menu": 30, "hotkey": 20, "learn": 10})
+    context = context_for(log, world.commands.names, world=world)
+    with pytest.raises(Exception, match="exceeds 1"):
+        fit_log(log, [ModelSpec("random", fixed={"p_hotkey": 0.8, "p_learn": 0.7})], context, n_starts=1,
+                intervals="none")

@@ -147,6 +147,21 @@ def _optimiser_message(raw: object) -> str:
     return text
 
 
+def _feasible_only(loglik: Callable[[np.ndarray], float]) -> Callable[[np.ndarray], float]:
+    """``loglik`` with -inf where the model refuses the parameter values (ConfigError), for the
+    search only: a point outside the model's feasible set (the random model's p_hotkey +
+    p_learn > 1) is a point the optimum cannot be at. The reported ln L uses ``loglik`` itself, so
+    a fit that ends at a refused point still raises the model's error."""
+
+    def guarded(theta: np.ndarray) -> float:
+        try:
+            return float(loglik(theta))
+        except ConfigError:
+            return -math.inf
+
+    return guarded
+
+
 def _bound_values(s: ParamSpec, box: tuple[float, float]) -> list[float]:
     """Natural values at the ends of the optimiser's box that are real bounds of the parameter:
     both ends for a logit transform, the lower one for a log transform, the finite natural
@@ -209,6 +224,7 @@ def fit_participant(
     if intervals not in INTERVAL_METHODS:
         raise ConfigError(f"intervals must be one of {list(INTERVAL_METHODS)}, got {intervals!r}")
     f, fast = loglik_function(spec, trials, context)
+    guarded = _feasible_only(f)
     specs = spec.build(context).param_specs()
     free = [n for n in specs if n not in spec.fixed]
     check_ranges(specs, start_ranges, f"model {spec.label!r}")
@@ -231,7 +247,7 @@ def fit_participant(
 
     def neg_total(x: np.ndarray) -> float:
         theta = natural(x)
-        value = f(theta) + (log_prior(theta) if priors else 0.0)
+        value = guarded(theta) + (log_prior(theta) if priors else 0.0)
         return -value if np.isfinite(value) else 1e12 * max(n_trials, 1)
 
     def objective(x: np.ndarray) -> float:
@@ -290,7 +306,7 @@ def fit_participant(
         ll = float(f(theta))
         at_bound = tuple(n for j, (n, v, box) in enumerate(zip(free, best.x, boxes, strict=True))
                          if _at_bound(specs[n], float(v), box)
-                         or _cheap_to_bound(f, theta, where[j], specs[n], box, ll))
+                         or _cheap_to_bound(guarded, theta, where[j], specs[n], box, ll))
         issues = []
         if at_bound:
             issues.append(f"at a bound: {', '.join(at_bound)}")
