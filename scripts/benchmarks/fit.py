@@ -11,8 +11,10 @@
    1,000 trials x 10 starts with 2 worker processes: wall time (target < 120 s).
 
 3. The rationality analysis (lab/rationality: duration fit, own-world plan, choice scoring,
-   planned_choice and rescorla_wagner fits, optimum simulation) on 50 participants x 400 trials
-   with trial-time noise (CV 0.2) on 2 processes: wall time (target < 180 s).
+   planned_choice and rescorla_wagner fits, the headline's planner simulations) on 50
+   participants x 400 trials with trial-time noise (CV 0.2) on 2 processes: wall time (target <
+   180 s) with the default number of simulated planner users per participant and with 16 (the
+   former default, the reference), and the headline's simulations alone.
 
 ``quick`` uses 400 trials per participant, 4 participants, 2 starts and fewer repeats (and 3
 participants x 160 trials for part 3).
@@ -141,17 +143,36 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
 
 
 def rationality(quick: bool, out: Out, participants: int | None, jobs: int) -> None:
-    """Part 3: wall time of the whole rationality analysis."""
-    from shortcut_gym.lab.rationality import rationality_analysis
+    """Part 3: wall time of the whole rationality analysis, at the default number of simulated
+    planner users for the headline and at the former 16 (the reference, same run), and of the
+    headline's simulations alone."""
+    from shortcut_gym.lab.rationality import DEFAULT_SIMS, PlannerOptions, rationality_analysis, simulated_time_lost
 
     n = participants if participants is not None else (3 if quick else 50)
     world = make_world(schedule={"sessions": 4 if quick else 10, "trials_per_session": 40},
                        costs={"noise": {"cv": 0.2}})
     log = validate_log(simulate_log(world, ModelSpec("rescorla_wagner"), n, np.random.default_rng(1), prefix="R"),
                        world.commands)
-    t = time.perf_counter()
-    result = rationality_analysis(log, world, [ModelSpec("rescorla_wagner")], n_starts=2, n_jobs=jobs)
-    wall = time.perf_counter() - t
     out(f"\n== rationality analysis, {n} participants x {world.horizon} trials on {jobs} processes")
-    out(f"wall time {wall:.1f} s (target < 180 s for 50 x 400); {wall / n:.2f} s per participant")
+    walls = {}
+    for sims in (16, DEFAULT_SIMS):
+        t = time.perf_counter()
+        result = rationality_analysis(log, world, [ModelSpec("rescorla_wagner")], n_starts=2, n_jobs=jobs,
+                                      n_sims=sims)
+        walls[sims] = time.perf_counter() - t
+        per = result.participants
+        out(f"{sims} simulated planner users per participant: wall time {walls[sims]:.1f} s (target < 180 s for "
+            f"50 x 400); {walls[sims] / n:.2f} s per participant; mean simulated_time_lost_se "
+            f"{per['simulated_time_lost_se'].mean():.2f} s")
+    out(f"wall time ratio {DEFAULT_SIMS} / 16 simulations: {walls[DEFAULT_SIMS] / walls[16]:.2f}")
     out(result.group.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
+    # the headline's simulations alone, in this process, on the base world (plans cached once)
+    options = PlannerOptions()
+    trials = [participant_trials(log, pid) for pid in log["participant"].unique()]
+    simulated_time_lost(trials[0], world, options, 2, 0)  # plan and compile outside the timing
+    t = time.perf_counter()
+    for tr in trials:
+        simulated_time_lost(tr, world, options, DEFAULT_SIMS, 0)
+    alone = time.perf_counter() - t
+    out(f"headline simulations alone ({DEFAULT_SIMS} users x {world.horizon} trials per participant, one process, "
+        f"plan cached): {alone:.2f} s for {n} participants, {alone / walls[DEFAULT_SIMS]:.1%} of the analysis' wall")
