@@ -154,6 +154,8 @@ def rationality(quick: bool, out: Out, participants: int | None, jobs: int) -> N
     log = validate_log(simulate_log(world, ModelSpec("rescorla_wagner"), n, np.random.default_rng(1), prefix="R"),
                        world.commands)
     out(f"\n== rationality analysis, {n} participants x {world.horizon} trials on {jobs} processes")
+    first = log[log["participant"] == log["participant"].iloc[0]]
+    rationality_analysis(first, world, [ModelSpec("rescorla_wagner")], n_starts=1, n_jobs=1, n_sims=2)  # compiles
     walls = {}
     for sims in (16, DEFAULT_SIMS):
         t = time.perf_counter()
