@@ -15,6 +15,11 @@ CartPole vector env; the fixed baselines above 1x. The planner's plan is made be
 starts (planning time is printed apart). Families without a compiled decision are timed at 1,024
 users only (100,000 would take minutes) and say so.
 
+Part C: planned choice (softmax over the planner's action values) batched against its per-user
+path (one agent object per user, ``use_batch_policy=False``), sums only and with every trial kept,
+as interleaved pairs in the same run; the ratio of trials per second is the median of the pairs'
+ratios, with their min and max. Its plan is made before the clock starts.
+
 Then the held-out style sweep: 48 LHS points x 3 agents (always-menu, learn-first-1, the
 planner) x 6 users x 120 trials on local processes, planning printed apart from the runs'
 simulation. The pass line (target: under 3 s after planning) is the simulation's CPU seconds in
@@ -53,7 +58,11 @@ FAMILIES: list[tuple[str, dict[str, Any], bool]] = [
     ("tabular: q_learning (frozen)", {"name": "q_learning"}, True),
     ("learning: rescorla_wagner", {"name": "rescorla_wagner"}, True),
     ("planner: bounded_optimal", {"name": "bounded_optimal"}, True),
+    ("planner: planned_choice", {"name": "planned_choice", "with_lapse": True, "params": {"beta": 2.0, "lapse": 0.05}},
+     True),
 ]
+#: the planned-choice agent of part C (a mid inverse temperature, a small lapse)
+PLANNED_CHOICE = FAMILIES[-1][1]
 USERS = (1_024, 100_000)
 
 
@@ -178,11 +187,41 @@ def part_heldout(quick: bool, out: Out = print) -> None:
         f"before forking {report.warm_up_s:.2f} s); load average {load_average()}")
 
 
+def part_planned_choice(sessions: int, quick: bool, out: Out = print) -> None:
+    """Part C: planned choice batched (its compiled batch policy) against its per-user path, paired."""
+    world = make_world(schedule={"sessions": sessions, "trials_per_session": 40})
+    spec = PLANNED_CHOICE
+    plan_s = build_agent(spec, world).prepare()  # type: ignore[attr-defined]
+    batched_users, per_user_users = (256, 4) if quick else (1_024, 8)
+    pairs = 3 if quick else 5
+    out(f"\nC. planned_choice batched vs per-user, {sessions * 40} trials per user (planning {plan_s:.2f} s, not "
+        f"timed); load average {load_average()}")
+    for record in ("blocks", "trials"):
+        rates: dict[bool, list[float]] = {True: [], False: []}
+        for batched in (True, False):  # warm-up: compiles
+            simulate_users(world, spec, [0, 1], record=record, use_batch_policy=batched)
+        for _ in range(pairs):
+            for batched in (True, False):
+                users = batched_users if batched else per_user_users
+                t0 = time.perf_counter()
+                sums = simulate_users(world, spec, range(users), record=record, use_batch_policy=batched)
+                rates[batched].append(int(sums.trials.sum()) / (time.perf_counter() - t0))
+        ratios = [b / p for b, p in zip(rates[True], rates[False], strict=True)]
+        kept = "sums only" if record == "blocks" else "every trial kept"
+        out(f"   {kept:<17} batched {batched_users:>5,} users {np.median(rates[True]):>11,.0f} trials/s   per-user "
+            f"{per_user_users} users {np.median(rates[False]):>9,.0f} trials/s   ratio {np.median(ratios):>7,.1f}x "
+            f"(min {min(ratios):,.1f}x, max {max(ratios):,.1f}x, {pairs} pairs)")
+    out(f"   load average at end {load_average()}")
+
+
 def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True,
         only: tuple[str, ...] = ()) -> None:
-    """Both parts (``quick``: 1,024 users, one thread, an 8-point sweep); ``only`` limits part A
-    to the families whose name contains one of these strings ("sweep" runs part B alone)."""
+    """The three parts (``quick``: 1,024 users, one thread, an 8-point sweep); ``only`` limits part A
+    to the families whose name contains one of these strings ("sweep" runs part B alone; part C
+    runs when a string is part of "planned_choice")."""
     if only != ("sweep",):
         part_families(sessions, quick, sb3, out, only)
     if not only or "sweep" in only:
         part_heldout(quick, out)
+    if not only or any(o in "planned_choice" for o in only):
+        part_planned_choice(sessions, quick, out)
