@@ -56,6 +56,7 @@ from shortcut_gym.agents.rollout import context_of_world, drive_batch
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.envs.simulator import BatchSimulator
+from shortcut_gym.envs.task import Schedule
 from shortcut_gym.envs.world import World
 from shortcut_gym.lab.compare import bms_of_fits
 from shortcut_gym.lab.data.logs import participant_trials, participants, schedule_of
@@ -182,20 +183,53 @@ def simulated_time_lost(trials: pd.DataFrame, world: World, options: PlannerOpti
                         seed: int = 0) -> SimulatedLoss:
     """The participant's logged total time against the planner's over ``n_sims`` simulated users
     replaying their own schedule (targets in order, onsets, sessions, gaps: :func:`schedule_of`) in
-    ``world``, on the batched simulator (:func:`~shortcut_gym.agents.rollout.drive_batch`)."""
+    ``world``, on the batched simulator (:func:`~shortcut_gym.agents.rollout.drive_batch`).
+
+    When the world's schedule is longer than the participant's log, the planner plans for the
+    world's horizon and its time over the logged trials is counted: the schedule is continued by
+    :func:`continued_schedule` and the first trials' durations summed (a trial's time does not
+    depend on the trials after it, so the continuation changes nothing counted)."""
     if n_sims < 1:
         raise ConfigError(f"n_sims must be >= 1, got {n_sims}")
     if trials.empty:
         raise ConfigError("simulated_time_lost needs at least one trial of the participant")
     ordered = trials.sort_values("trial", kind="stable")
     schedule = schedule_of(ordered)
+    n = schedule.horizon
     seeds = simulation_seeds(seed, n_sims)
     sim = BatchSimulator(world)
-    sim.reset(seeds=seeds, schedules=[schedule] * n_sims)
+    sim.reset(seeds=seeds, schedules=[continued_schedule(schedule, world.horizon)] * n_sims)
     planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
-    totals = drive_batch(sim, planner, seeds).sums.time_s.sum(axis=1)
+    if n == world.horizon:
+        totals = drive_batch(sim, planner, seeds).sums.time_s.sum(axis=1)
+    else:
+        kept = drive_batch(sim, planner, seeds, keep_trials=True).trials
+        assert kept is not None  # invariant: keep_trials=True keeps them
+        totals = kept.duration_s[:, :n].sum(axis=1)
     sd = float(totals.std(ddof=1)) if n_sims > 1 else float("nan")
     return SimulatedLoss(float(ordered["duration_s"].sum()), float(totals.mean()), sd, sd / np.sqrt(n_sims), n_sims)
+
+
+def continued_schedule(schedule: Schedule, horizon: int, command: int | None = None) -> Schedule:
+    """``schedule`` continued to ``horizon`` trials: the further trials target ``command`` (default:
+    the last logged one), in the last session, one median onset interval apart (60 s when the log
+    gives none). Raises :class:`ConfigError` when the schedule is already longer."""
+    n = schedule.horizon
+    if n > horizon:
+        raise ConfigError(f"a participant has {n} trials, the world's schedule only {horizon}; give a world whose "
+                          "schedule covers the log")
+    extra = horizon - n
+    if extra == 0:
+        return schedule
+    steps = np.diff(schedule.onset_s)[np.diff(schedule.session) == 0]
+    step = float(np.median(steps)) if len(steps) else 60.0
+    target = int(schedule.command[-1]) if command is None else int(command)
+    return Schedule(
+        command=np.concatenate([schedule.command, np.full(extra, target, dtype=np.int64)]),
+        onset_s=np.concatenate([schedule.onset_s, schedule.onset_s[-1] + step * np.arange(1, extra + 1)]),
+        session=np.concatenate([schedule.session, np.full(extra, schedule.session[-1], dtype=np.int64)]),
+        gap_total_s=np.concatenate([schedule.gap_total_s, np.full(extra, schedule.gap_total_s[-1])]),
+    )
 
 
 def command_table(trials: pd.DataFrame, assessed: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
