@@ -24,6 +24,7 @@ from shortcut_gym.agents.rollout import context_of_world, drive_batch
 from shortcut_gym.envs import BatchSimulator, CommandSelectionEnv, make_world
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, UsageError
+from shortcut_gym.envs.task import Schedule
 from shortcut_gym.lab.sweep.batch import simulate_users
 
 SEEDS = [0, 5, 17, 2024, 99_991]
@@ -217,3 +218,33 @@ def test_bad_use_is_refused_with_its_reason() -> None:
     with pytest.raises(ConfigError, match="the plan covers 42 trials, the simulator 56"):
         agent.batch_policy(2, [1, 2]).run(_sim(longer, [1, 2]))
     assert isinstance(other, PlannedChoiceSteps)
+
+
+@pytest.mark.parametrize("name", ["planned_choice", "bounded_optimal"])
+def test_a_schedule_shorter_than_the_plan_runs_the_same_on_every_path(name) -> None:
+    # a log cut short (fewer trials than the world's schedule) is simulated on the world's plan:
+    # the compiled run, its recorded run and the per-trial Python path give the same trials
+    world = make_world(schedule=SHORT)
+    seeds = [3, 4, 5]
+    full = _sim(world, seeds)
+    cut = 17
+    schedules = [Schedule(full.sched_command[i, :cut].copy(), full.sched_onset[i, :cut].copy(),
+                          full.sched_session[i, :cut].copy(), full.sched_gap[i, :cut].copy())
+                 for i in range(len(seeds))]
+    params = {"beta": 2.0} if name == "planned_choice" else {}
+    agent = make_agent(name, context_of_world(world), **params)
+
+    def short() -> BatchSimulator:
+        sim = BatchSimulator(world)
+        sim.reset(seeds=seeds, schedules=schedules)
+        return sim
+
+    fused = drive_batch(short(), agent, seeds).sums
+    recorded = drive_batch(short(), agent, seeds, keep_trials=True)
+    stepped = drive_batch(short(), agent, seeds, fused=False, keep_trials=True)
+    assert recorded.trials is not None and stepped.trials is not None
+    assert recorded.trials.action.shape == (len(seeds), cut)
+    for field in ("action", "outcome", "duration_s"):
+        np.testing.assert_array_equal(getattr(recorded.trials, field), getattr(stepped.trials, field), err_msg=field)
+    for field in ("trials", "time_s", "actions", "command_uses"):
+        np.testing.assert_array_equal(getattr(fused, field), getattr(stepped.sums, field), err_msg=field)

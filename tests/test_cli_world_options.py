@@ -22,8 +22,11 @@ from shortcut_gym.lab.cli import build_parser, main
 #: The options of ``add_world_options``.
 WORLD_OPTIONS = ("--scenario", "--costs", "--memory", "--schedule", "--sessions")
 #: Subcommands that build no world of their own from options (a sweep or an aid study names its
-#: world in its spec; audit and bench compute none; compare reads a fits table only).
-NO_WORLD = {"sweep", "aids", "audit", "bench", "compare"}
+#: world in its spec; audit and bench compute none).
+NO_WORLD = {"sweep", "aids", "audit", "bench"}
+#: Subcommands that take the world options to record the study's world only: compare reads a fits
+#: table and names the world the fits were made in (index.md's "Study world").
+RECORD_ONLY = {"compare"}
 #: The base schedule of every run: one short session (12 trials).
 TINY = {"sessions": 1, "trials_per_session": 12, "trial_interval_s": 45.0, "gap_h": 24.0}
 #: A cheap planned-choice model (world-reading: its likelihood depends on every part of the world).
@@ -117,14 +120,14 @@ CHANGES: dict[str, tuple[str, str]] = {
 def test_every_world_option_of_every_subcommand_has_a_case() -> None:
     accepted = world_options_of_parser()
     takers = {name for name, options in accepted.items() if options}
-    assert takers == set(CASES), "a subcommand gained or lost world options: update CASES (or NO_WORLD)"
+    assert takers == set(CASES) | RECORD_ONLY, "a subcommand gained or lost world options: update CASES (or NO_WORLD)"
     assert set(accepted) == takers | NO_WORLD, "a new subcommand: list it in CASES or NO_WORLD"
-    for name in CASES:
+    for name in takers:
         assert accepted[name] == set(CHANGES), f"{name} takes only {sorted(accepted[name])} of the world options"
 
 
 def test_subcommands_without_a_world_refuse_world_options(files, capsys) -> None:
-    argv = {"compare": ["compare", str(files["log"]), "--out", "x"], "audit": ["audit", str(files["log"].parent)],
+    argv = {"audit": ["audit", str(files["log"].parent)],
             "bench": ["bench", "--quick"], "sweep": ["sweep", "tiny", "--plan-only"],
             "aids": ["aids", "tidepool_aids"]}
     assert set(argv) == NO_WORLD
@@ -160,3 +163,29 @@ def test_each_world_option_reaches_the_computation(name: str, files, tmp_path: P
         assert _same(spelled, base), f"{name} {option} {default} (the default) changed the figures"
         other = _run(name, [option, value["changed"]], files, tmp_path / f"changed{option}", capsys)
         assert not _same(other, base), f"{name} {option} {changed}: the figures did not change"
+
+
+def _study_world(out: Path) -> str:
+    """The "Study world" section of an index.md."""
+    text = (out / "index.md").read_text()
+    return text.split("Study world", 1)[1]
+
+
+def test_compare_records_each_world_option_in_its_index(files, tmp_path: Path, capsys) -> None:
+    fits = tmp_path / "fits"
+    assert main(["-q", "fit", str(files["log"]), "--model", "static_softmax", "--model", "random", "--starts", "1",
+                 "--intervals", "none",
+                 "--schedule", str(files["tiny"]), "--out", str(fits), "--quiet"]) == 0
+
+    def compare(out: Path, world: list[str]) -> str:
+        assert main(["-q", "compare", str(fits / "fits.csv"), "--schedule", str(files["tiny"]), *world,
+                     "--out", str(out)]) == 0
+        return _study_world(out)
+
+    base = compare(tmp_path / "base", [])
+    assert "1 sessions" not in base and "(12 trials per simulated participant)" in base
+    for option, (changed, _) in CHANGES.items():
+        value = str(files[changed]) if changed in files else changed
+        words = compare(tmp_path / f"changed{option}", [option, value])
+        assert words != base, option
+        assert (value if option != "--sessions" else f"{value} sessions") in words, (option, words)

@@ -488,7 +488,7 @@ class CompiledPlanLookup:
             raise UsageError("a fused run needs a fresh batch policy (trial 0)")
         if self.n_users != sim.n_users:
             raise ConfigError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
-        if sim.horizon != self.tables.clock.shape[0]:
+        if sim.horizon > self.tables.clock.shape[0]:  # a shorter schedule (a log cut short) runs on the plan
             raise ConfigError(f"the plan covers {self.tables.clock.shape[0]} trials, the simulator {sim.horizon}")
         n_cmd = sim.world.commands.n_commands
         sums = SumArrays(**vars(UserSums.zeros(sim.n_users, int(sim.sched_session.max()) + 1, n_cmd)))
