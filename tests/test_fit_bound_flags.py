@@ -148,3 +148,123 @@ def test_a_fixed_value_the_model_refuses_still_raises_its_error() -> None:
     with pytest.raises(Exception, match="exceeds 1"):
         fit_log(log, [ModelSpec("random", fixed={"p_hotkey": 0.8, "p_learn": 0.7})], context, n_starts=1,
                 intervals="none")
+
+
+# ---- the threshold itself, the others held, plateaus, non-finite bounds: closed forms ------------
+
+#: The rule's stated line (nats), written out so that a change of the fitter's constant fails here.
+LINE_NATS = 0.1
+LOGIT_01 = ParamSpec("rate", 0.5, 0.0, 1.0, "logit")
+LOG_2 = ParamSpec("floor", 3.0, 2.0, math.inf, "log")
+
+
+def _gaussian_cost(s: ParamSpec, mu: float, sd: float) -> float:
+    """Closed form: ln L lost moving a Gaussian-likelihood parameter from its optimum mu onto the
+    cheapest bound (a log transform: its lower bound; otherwise each finite bound)."""
+    tried = [s.lower] if s.transform == "log" else [b for b in (s.lower, s.upper) if math.isfinite(b)]
+    return min(0.5 * ((b - mu) / sd) ** 2 for b in tried)
+
+
+STRADDLE = [  # pairs on either side of 0.1 nats (closed-form cost in the comment), every bounded kind
+    (LOGIT_01, 0.9, 0.3), (LOGIT_01, 0.9, 0.2),      # upper end: 0.056 / 0.125
+    (LOGIT_01, 0.08, 0.3), (LOGIT_01, 0.08, 0.1),    # lower end: 0.036 / 0.32
+    (LOGIT, 49.0, 2.5), (LOGIT, 49.0, 2.0),          # 0..50 upper: 0.08 / 0.125
+    (LOGIT, 1.0, 2.5), (LOGIT, 1.0, 2.0),            # 0..50 lower: 0.08 / 0.125
+    (LOG, 0.05, 0.2), (LOG, 0.05, 0.1),              # floor 0: 0.031 / 0.125
+    (LOG_2, 2.1, 0.5), (LOG_2, 2.6, 0.5),            # floor 2: 0.02 / 0.72
+    (BOXED, 2.8, 0.5), (BOXED, 2.8, 0.4),            # box upper: 0.08 / 0.125
+    (BOXED, -1.9, 0.25), (BOXED, -1.9, 0.2),         # box lower: 0.08 / 0.125
+]
+
+
+@pytest.mark.parametrize(("spec", "mu", "sd"), STRADDLE, ids=[f"{s.name}-{m}-{d}" for s, m, d in STRADDLE])
+def test_the_line_is_at_a_tenth_of_a_nat_for_every_kind_of_bound(spec: ParamSpec, mu: float, sd: float) -> None:
+    """ln L = -(theta - mu)^2 / (2 sd^2) at its optimum mu, coordinate far from the box's end:
+    flagged iff the closed-form cost of the cheapest bound is < 0.1 nats; each pair straddles it."""
+    def loglik(theta) -> float:
+        return -0.5 * ((float(theta[0]) - mu) / sd) ** 2
+
+    assert abs(spec.to_free(mu)) < 10.0
+    assert _flags(spec, mu, loglik) is (_gaussian_cost(spec, mu, sd) < LINE_NATS)
+
+
+def test_the_straddling_pairs_fall_on_both_sides_of_the_line() -> None:
+    """Guard on the table above: each pair has one case under 0.1 nats and one over it."""
+    for first, second in zip(STRADDLE[::2], STRADDLE[1::2], strict=True):
+        assert _gaussian_cost(*first) < LINE_NATS < _gaussian_cost(*second), (first, second)
+
+
+def test_the_others_are_held_at_the_estimate_not_refitted() -> None:
+    """Correlated Gaussian (correlation 0.95): with the other parameter held at its estimate,
+    moving the first 0.3 onto its lower bound costs 0.5 d^2 P_11 = 0.46 nats (not flagged),
+    though refitting the other would cost only 0.5 d^2 / Sigma_11 = 0.045 nats."""
+    mu = np.array([0.3, 0.0])
+    cov = np.array([[1.0, 0.95], [0.95, 1.0]])
+    prec = np.linalg.inv(cov)
+
+    def loglik(theta) -> float:
+        d = np.asarray(theta, dtype=float) - mu
+        return -0.5 * float(d @ prec @ d)
+
+    a, b = ParamSpec("a", 0.5, 0.0, 5.0, "logit"), ParamSpec("b", 0.0, -20.0, 20.0, "logit")
+    assert 0.5 * 0.09 * prec[0, 0] > LINE_NATS > 0.5 * 0.09 / cov[0, 0]
+    assert not _cheap_to_bound(loglik, mu.copy(), 0, a, free_box(a), loglik(mu))
+    assert not _cheap_to_bound(loglik, mu.copy(), 1, b, free_box(b), loglik(mu))
+    # and with no correlation the same move costs 0.045 nats: flagged
+    assert _cheap_to_bound(lambda t: -0.5 * float(np.sum((np.asarray(t) - mu) ** 2)), mu.copy(), 0, a, free_box(a),
+                           0.0)
+
+
+def test_a_plateau_towards_a_bound_is_flagged_though_the_coordinate_is_not_extreme() -> None:
+    """ln L = -5 exp(-w) rises to a plateau as the weight w grows (as a choice-kernel weight does
+    on data that never vary): at w = 24.9 of 0..50 (logit coordinate -0.008) or 49.99 the upper
+    bound gains 5 (e^-w - e^-50) nats; a rising ln L is never an interior optimum."""
+    def loglik(theta) -> float:
+        return -5.0 * math.exp(-float(theta[0]))
+
+    assert abs(LOGIT.to_free(24.9)) < 0.01
+    for w in (24.9, 49.99, 2.0):
+        assert not _at_bound(LOGIT, LOGIT.to_free(w), free_box(LOGIT))  # coordinate <= 8.5
+        assert _flags(LOGIT, w, loglik), w
+
+
+def test_a_bound_where_ln_l_is_not_finite_is_never_cheap() -> None:
+    """ln L = -inf on and next to the lower bound (a rate that must be positive for the data), and
+    steep towards any upper one: the lower bound is no cheap alternative to an estimate, however
+    flat ln L is near it (0.01 ln v: from 0.001 to 1e-6 it falls only 0.07 nats)."""
+    def loglik(theta) -> float:
+        v = float(theta[0])
+        return 0.01 * math.log(v) - 100.0 * v**2 if v > 1e-6 else -math.inf
+
+    for spec, estimate in ((LOG, 0.001), (LOGIT_01, 0.001), (BOXED, 0.5)):
+        shifted = ParamSpec(spec.name, 0.5, 0.0, spec.upper, spec.transform)
+        theta = np.array([estimate])
+        assert not _cheap_to_bound(loglik, theta, 0, shifted, free_box(shifted), loglik(theta)), spec.name
+
+
+# ---- end to end, against the closed form of the choice kernel on always-menu data ----------------
+
+def _menu_loglik(alpha: float, beta: float, n: int) -> float:
+    """Closed form of the choice kernel's ln L on n trials that all chose the menu, 3 actions
+    (menu, hotkey, learn): K_t[menu] = 1 - (1 - alpha)^t, the others stay 0, so
+    P_t(menu) = 1 / (1 + 2 exp(-beta K_t[menu])); the first trial is uniform."""
+    return -math.log(3.0) - sum(math.log1p(2.0 * math.exp(-beta * (1.0 - (1.0 - alpha) ** t))) for t in range(1, n))
+
+
+def test_always_menu_fits_match_the_closed_form_and_their_weight_gets_no_standard_error() -> None:
+    """The fitted ln L equals the closed form, beta_ck on its bound 50 costs < 0.1 nats by that
+    closed form, and the flagged beta_ck gets no standard error and no Wald interval."""
+    from shortcut_gym.agents.registry import make_agent
+    from shortcut_gym.lab.checks.predictive import simulate_log
+
+    world = make_world(schedule={"sessions": 3, "trials_per_session": 30, "gap_h": 20.0})
+    log = validate_log(simulate_log(world, make_agent("always_menu"), 3, np.random.default_rng(4)), world.commands)
+    assert (log["action"] == "menu").all()
+    fits = fit_log(log, [ModelSpec("choice_kernel")], context_for(log, world.commands.names), n_starts=3, seed=2)
+    n = len(log) // 3
+    for _, r in fits.iterrows():
+        a, b = r["param_alpha_ck"], r["param_beta_ck"]
+        assert r["loglik"] == pytest.approx(_menu_loglik(a, b, n), abs=1e-9)
+        assert r["loglik"] - _menu_loglik(a, 50.0, n) < LINE_NATS
+        assert "beta_ck" in r["at_bound"].split(";") and not r["fit_ok"], r.to_dict()
+        assert math.isnan(r["se_beta_ck"]) and math.isnan(r["lower_beta_ck"]) and math.isnan(r["upper_beta_ck"])
