@@ -34,6 +34,8 @@ def action_index(action: Any) -> int:
     Floats, booleans, strings and other number types are refused with :class:`ActionError`,
     even when they equal an action (``1.0``, ``True``, ``Decimal('1')``).
     """
+    if type(action) is int and 0 <= action <= 2:  # the common case, checked first
+        return action
     value = action
     if isinstance(value, np.ndarray) and value.ndim == 0:
         value = value[()]
@@ -80,6 +82,7 @@ class CommandSelectionEnv(gym.Env):
         self._act = np.zeros(1, dtype=np.int64)
         self._last: StepInfo | None = None
         self._painter: Any = None
+        self._step_arrays: tuple[np.ndarray, ...] = ()
 
     # ---- gymnasium API --------------------------------------------------------------------
     def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
@@ -93,7 +96,13 @@ class CommandSelectionEnv(gym.Env):
             schedule = options.get("schedule")
             if schedule is not None and not isinstance(schedule, Schedule):
                 raise ConfigError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
-        obs = self._sim.reset(rngs=[self.np_random], schedules=[schedule])
+        sim = self._sim
+        obs = sim.reset(rngs=[self.np_random], schedules=[schedule])
+        # the kernel's arrays after this reset, in step_users' order (read once, not per step)
+        self._step_arrays = (sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
+                             sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock,
+                             sim.sched_onset, sim.sched_uniform, sim.sched_session, sim.reward, sim.outcome,
+                             sim.operator_time_s, sim.p_recall, sim.obs, sim.sched_noise)
         self._last = None
         return obs[0].copy(), self._upcoming_info()  # type: ignore[return-value]
 
@@ -107,10 +116,7 @@ class CommandSelectionEnv(gym.Env):
         if t >= sim.horizon:
             raise UsageError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
         self._act[0] = a
-        k.step_users(self._act, sim.kernel_int_params, sim.kernel_params, sim.command_constants,
-                     sim.command_float_state, sim.command_counts, sim.traces, sim.user_state,
-                     sim.sched_command, sim.sched_clock, sim.sched_onset, sim.sched_uniform, sim.sched_session,
-                     sim.reward, sim.outcome, sim.operator_time_s, sim.p_recall, sim.obs, sim.sched_noise)
+        k.step_users(self._act, *self._step_arrays)
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
         terminated = t + 1 >= sim.horizon

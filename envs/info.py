@@ -95,19 +95,18 @@ def simulator_upcoming_info(sim: BatchSimulator, user: int, command_names: Seque
     """User ``user``'s upcoming-trial info on a batched simulator."""
     t = sim.trial
     last = min(t, sim.horizon - 1)
-    c = int(sim.sched_command[user, last])
-    return upcoming_info(c, command_names[c], t, float(sim.sched_onset[user, last]),
-                         int(sim.sched_session[user, last]))
+    c = sim.sched_command.item(user, last)  # .item: the Python int/float, without a numpy scalar
+    return upcoming_info(c, command_names[c], t, sim.sched_onset.item(user, last), sim.sched_session.item(user, last))
 
 
 def simulator_step_info(sim: BatchSimulator, user: int, trial: int, action: int,
                         command_names: Sequence[str]) -> StepInfo:
     """User ``user``'s info after ``sim.step`` ran trial ``trial`` with ``action``."""
-    c = int(sim.sched_command[user, trial])
+    c = sim.sched_command.item(user, trial)
     return step_info(
-        simulator_upcoming_info(sim, user, command_names), trial, int(sim.sched_session[user, trial]),
-        float(sim.sched_onset[user, trial]), c, command_names[c], int(action), OUTCOME_NAMES[sim.outcome[user]],
-        -float(sim.reward[user]), float(sim.p_recall[user]),
+        simulator_upcoming_info(sim, user, command_names), trial, sim.sched_session.item(user, trial),
+        sim.sched_onset.item(user, trial), c, command_names[c], int(action), OUTCOME_NAMES[sim.outcome.item(user)],
+        -sim.reward.item(user), sim.p_recall.item(user),
         dict(zip(OPERATOR_NAMES, sim.operator_time_s[user].tolist(), strict=True)),
     )
 
