@@ -34,7 +34,7 @@ def main(per_model: int = 3, n_starts: int = 3) -> dict[str, pd.DataFrame]:
     print(f"log: {log['participant'].nunique()} participants, {len(log)} trials")
 
     # 2. Maximum-likelihood fits per participant x model (multi-start, seeded).
-    fits = fit_log(log, models, context_for(log, world.commands.names), n_starts=n_starts, seed=0, n_jobs=1)
+    fits = fit_log(log, models, context_for(log, world.commands.names, world), n_starts=n_starts, seed=0, n_jobs=1)
     print(fits[["participant", "model", "loglik", "bic"]].to_string(index=False, float_format=lambda v: f"{v:.1f}"))
 
     # 3. Summed criteria and random-effects Bayesian model selection.

@@ -45,7 +45,7 @@ def main() -> int:
     for m, spec in enumerate(MODELS):
         log, truth = simulate_known(world, spec, args.participants, np.random.default_rng(100 + m))
         log = validate_log(log, world.commands)
-        context = context_for(log, world.commands.names)
+        context = context_for(log, world.commands.names, world)
         t0 = time.perf_counter()
         fits = fit_log(log, [spec], context, n_starts=args.starts, seed=1).set_index("participant")
         after_s = time.perf_counter() - t0

@@ -115,7 +115,7 @@ def run(quick: bool = False, out: Out = print, participants: int | None = None, 
     # 2. the 3-model fit on worker processes: the former fitter, then the current one without and
     # with standard errors (the same log, models, starts and processes)
     specs = [ModelSpec("static_softmax"), HABIT, rw]
-    context = context_for(log, world.commands.names)
+    context = context_for(log, world.commands.names, world)
     t = time.perf_counter()
     former = np.array(former_fit_log(log, specs, context, starts, 0, jobs))
     former_wall = time.perf_counter() - t

@@ -39,7 +39,7 @@ def hierarchical(quick: bool, out: Out) -> None:
     log, truth = simulate_known(world, spec, n, np.random.default_rng(0))
     log = validate_log(log, world.commands)
     simulated = time.perf_counter() - t
-    context = context_for(log, world.commands.names)
+    context = context_for(log, world.commands.names, world)
     trials = participant_trials(log, truth["participant"].iloc[0])
     f, _ = loglik_function(spec, trials, AgentContext(context.n_commands, len(trials), context.command_names))
     theta = np.array([0.3, 3.0])
