@@ -192,6 +192,13 @@ class CommandSet:
     probability: np.ndarray  # float, usage probability
     within_menu_probability: np.ndarray  # float, probability among its menu's items
 
+    def __post_init__(self) -> None:
+        # read-only copies: a world (and the digest that keys its plans) cannot change under a simulator
+        for name in ("menu_of", "item_index", "menu_size", "keystrokes", "probability", "within_menu_probability"):
+            frozen = np.array(getattr(self, name))
+            frozen.flags.writeable = False
+            object.__setattr__(self, name, frozen)
+
     @property
     def n_commands(self) -> int:
         """Number of commands."""
