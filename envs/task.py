@@ -138,8 +138,8 @@ class ScheduleSettings(StrictModel):
         if isinstance(self.gap_h, list) and len(self.gap_h) != self.sessions - 1:
             raise ValueError(
                 f"gap_h lists {len(self.gap_h)} gaps but {self.sessions} sessions need "
-                f"{self.sessions - 1} (one between each pair of sessions): list {self.sessions - 1}, "
-                f"or set sessions to {len(self.gap_h) + 1}"
+                f"{self.sessions - 1} (one between each pair of sessions): give a list of {self.sessions - 1} "
+                f"gaps or one number for every gap, or set sessions to {len(self.gap_h) + 1}"
             )
         return self
 

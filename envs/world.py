@@ -223,6 +223,23 @@ def _feed(h: Any, name: str, value: Any) -> None:
         h.update(repr(value).encode())
 
 
+def _check_inherited_gaps(base: ScheduleSettings, override: Any, scenario: Any) -> None:
+    """Refuse an override of the sessions that keeps the scenario's per-gap list when the list no
+    longer fits, naming where the list came from and the two fixes."""
+    if not isinstance(override, dict) or "gap_h" in override or not isinstance(base.gap_h, list):
+        return
+    sessions = override.get("sessions", base.sessions)
+    if not isinstance(sessions, int) or isinstance(sessions, bool) or len(base.gap_h) == sessions - 1:
+        return
+    source = "the default scenario" if scenario is None else (
+        f"the scenario {str(scenario)!r}" if isinstance(scenario, (str, Path)) else "the scenario given")
+    raise ConfigError(
+        f"schedule={override!r}: {source} lists gap_h {base.gap_h} ({len(base.gap_h)} gaps, for "
+        f"{base.sessions} sessions), which does not fit {sessions} sessions; give gap_h with the sessions "
+        f"(one number for every gap, e.g. {{'sessions': {sessions}, 'gap_h': 24.0}}, or a list of "
+        f"{sessions - 1} gaps), or keep sessions at {len(base.gap_h) + 1}")
+
+
 def make_world(
     scenario: str | Path | dict | ScenarioSettings | None = None,
     costs: str | Path | dict | CostSettings | None = None,
@@ -244,6 +261,7 @@ def make_world(
         sch = schedule
     else:
         merged = {**sc.schedule.model_dump(), **schedule} if isinstance(schedule, dict) else schedule
+        _check_inherited_gaps(sc.schedule, schedule, scenario)
         sch = validate(ScheduleSettings, merged, "schedule")
     if target_encoding not in ("onehot", "index"):
         raise ConfigError(f"target_encoding must be 'onehot' or 'index', got {target_encoding!r}")

@@ -148,4 +148,4 @@ def test_a_scenario_file_whose_own_list_does_not_fit_names_the_file_and_both_fix
     path = _scenario_with(tmp_path, f"sessions: 5\n{TRIALS}gap_h: [2, 30]")
     err = _refusal(["simulate", "--scenario", str(path), "--users", "1", "--out", str(tmp_path / "o")], capsys)
     assert str(path) in err and "gap_h lists 2 gaps but 5 sessions need 4" in err, err
-    assert "list 4, or set sessions to 3" in err, err
+    assert "give a list of 4 gaps or one number for every gap, or set sessions to 3" in err, err

@@ -41,3 +41,40 @@ def test_a_command_set_copies_the_arrays_it_is_given() -> None:
         given[name][0] = given[name][0]  # the caller's arrays stay writable
         np.testing.assert_array_equal(getattr(copy, name), getattr(commands, name))
         assert not getattr(copy, name).flags.writeable
+
+
+def _scenario_with_gap_list(tmp_path) -> str:
+    import yaml
+
+    from shortcut_gym.envs.config import bundled_config_dir
+
+    scenario = yaml.safe_load((bundled_config_dir() / "scenarios" / "tidepool_logbook.yaml").read_text())
+    scenario["schedule"] = {"sessions": 4, "trials_per_session": 10, "gap_h": [20.0, 44.0, 70.0]}
+    path = tmp_path / "listed.yaml"
+    path.write_text(yaml.safe_dump(scenario))
+    return str(path)
+
+
+@pytest.mark.parametrize("sessions", [1, 2, 6])
+def test_a_sessions_override_that_breaks_the_scenarios_gap_list_names_the_scenario_and_the_fixes(
+        tmp_path, sessions) -> None:
+    from shortcut_gym.envs.errors import ConfigError
+
+    path = _scenario_with_gap_list(tmp_path)
+    with pytest.raises(ConfigError) as raised:
+        make_world(path, schedule={"sessions": sessions, "trials_per_session": 12})
+    message = str(raised.value)
+    assert path in message and "[20.0, 44.0, 70.0]" in message and f"fit {sessions} sessions" in message
+    assert "'gap_h': 24.0" in message and f"a list of {sessions - 1} gaps" in message
+    assert "keep sessions at 4" in message
+    # each fix it names works
+    assert make_world(path, schedule={"sessions": sessions, "gap_h": 24.0}).schedule.sessions == sessions
+    if sessions > 1:
+        gaps = [5.0] * (sessions - 1)
+        assert make_world(path, schedule={"sessions": sessions, "gap_h": gaps}).schedule.gap_h == gaps
+    assert make_world(path, schedule={"sessions": 4, "trials_per_session": 12}).horizon == 48
+
+
+def test_a_sessions_override_that_fits_the_gap_list_is_taken(tmp_path) -> None:
+    world = make_world(_scenario_with_gap_list(tmp_path), schedule={"trials_per_session": 5})
+    assert world.schedule.gap_h == [20.0, 44.0, 70.0] and world.horizon == 20
