@@ -26,6 +26,16 @@ from shortcut_gym.lab.fitting import ModelSpec, context_for, fit_log
 from shortcut_gym.lab.fitting.starts import check_ranges, draw_in_range
 
 
+def correlation_or_nan(x: np.ndarray, y: np.ndarray) -> float:
+    """Pearson correlation of ``x`` and ``y``; NaN where it is undefined: fewer than two values, or
+    either side constant (tested exactly, since a float standard deviation of equal values can come out
+    as 1e-17 rather than 0 and give a meaningless number)."""
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    if len(x) < 2 or np.ptp(x) == 0 or np.ptp(y) == 0:
+        return float("nan")
+    return float(np.corrcoef(x, y)[0, 1])
+
+
 def draw_parameters(spec: ModelSpec, rng: np.random.Generator,
                     ranges: Mapping[str, tuple[float, float]] | None = None) -> dict[str, float]:
     """Known generating parameters: each drawn over its plausible range (``ranges[name]`` if given,
@@ -64,7 +74,9 @@ def parameter_recovery(world: World, spec: ModelSpec, n_participants: int = 20, 
 
     Summary per parameter: Pearson correlation, Spearman rank correlation (robust to the few fits
     that run far along a flat direction), mean bias (fitted - true), RMSE, true-value spread,
-    the share of 95% intervals holding the true value, and how the true values were drawn.
+    the share of 95% intervals holding the true value, and how the true values were drawn. A
+    parameter whose true value is the same for everyone (held fixed in the population) has true_sd 0
+    and both correlations NaN (undefined); its bias and RMSE still say where the fits landed.
     """
     rng = np.random.default_rng(seed)
     log, truth = simulate_known(world, spec, n_participants, rng, ranges, population=population)
@@ -79,16 +91,17 @@ def parameter_recovery(world: World, spec: ModelSpec, n_participants: int = 20, 
     rows = []
     for n in spec.free_parameters():
         t, f = merged[n].to_numpy(float), merged[f"param_{n}"].to_numpy(float)
-        r = float(np.corrcoef(t, f)[0, 1]) if t.std() > 0 and f.std() > 0 else float("nan")
-        rt, rf = pd.Series(t).rank().to_numpy(), pd.Series(f).rank().to_numpy()
-        rank_r = float(np.corrcoef(rt, rf)[0, 1]) if rt.std() > 0 and rf.std() > 0 else float("nan")
+        held = bool(np.ptp(t) == 0)  # the same true value for everyone (held fixed in the population)
+        r = correlation_or_nan(t, f)
+        rank_r = correlation_or_nan(pd.Series(t).rank().to_numpy(), pd.Series(f).rank().to_numpy())
         lo = merged.get(f"lower_{n}", pd.Series(np.nan, index=merged.index)).to_numpy(float)
         hi = merged.get(f"upper_{n}", pd.Series(np.nan, index=merged.index)).to_numpy(float)
         has = np.isfinite(lo) & np.isfinite(hi)
         covered = float(np.mean((lo[has] <= t[has]) & (t[has] <= hi[has]))) if has.any() else float("nan")
         rows.append({"model": spec.label, "parameter": n, "correlation": r, "rank_correlation": rank_r,
                      "bias": float(np.mean(f - t)),
-                     "rmse": float(np.sqrt(np.mean((f - t) ** 2))), "true_sd": float(t.std(ddof=1)),
+                     "rmse": float(np.sqrt(np.mean((f - t) ** 2))),
+                     "true_sd": 0.0 if held and len(t) > 1 else float(t.std(ddof=1)),
                      "interval_coverage": covered, "n": len(t), "drawn": drawn[n]})
     pairs = pd.DataFrame([{"model": spec.label, "participant": row["participant"], "parameter": n,
                            "true": row[n], "fitted": row[f"param_{n}"]}

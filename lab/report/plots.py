@@ -49,7 +49,8 @@ def plot_parameter_recovery(pairs: pd.DataFrame, summary: pd.DataFrame, path: Pa
         lo, hi = float(min(d["true"].min(), d["fitted"].min())), float(max(d["true"].max(), d["fitted"].max()))
         ax.plot([lo, hi], [lo, hi], "k--", lw=0.8)
         r = summary.loc[summary["parameter"] == p, "correlation"]
-        ax.set_title(f"{p}\nr = {float(r.iloc[0]):.2f}", fontsize=8)
+        r_value = float(r.iloc[0])
+        ax.set_title(f"{p}\nr = {r_value:.2f}" if np.isfinite(r_value) else f"{p}\nr undefined", fontsize=8)
         ax.set_xlabel("true")
     axes[0][0].set_ylabel("fitted")
     fig.tight_layout()

@@ -14,9 +14,21 @@ def parameter_recovery_section(label: str, summary: pd.DataFrame) -> tuple[str, 
     cols = [c for c in ("parameter", "correlation", "rank_correlation", "bias", "rmse", "true_sd", "interval_coverage",
                         "n")
             if c in summary.columns]
-    worst = summary.sort_values("correlation").iloc[0]
-    words = (f"Lowest true-fitted correlation: {worst['parameter']} ({worst['correlation']:.2f}). "
-             f"![true vs fitted](parameter_recovery_{label}.png)")
+    words = ""
+    held = summary[summary["true_sd"] == 0] if "true_sd" in summary.columns else summary.iloc[:0]
+    if not held.empty:
+        how = [f"{p} ({d})" if isinstance(d, str) else str(p)
+               for p, d in zip(held["parameter"], held.get("drawn", pd.Series(None, index=held.index)), strict=True)]
+        words += (f"Held fixed (the same true value for every simulated participant, true SD 0): {', '.join(how)}. "
+                  "A correlation with a constant is undefined, shown as -; bias and RMSE still say how far "
+                  "the fits landed from that value. ")
+    defined = summary[np.isfinite(summary["correlation"].to_numpy(float))]
+    if defined.empty:
+        words += "No true-fitted correlation is defined. "
+    else:
+        worst = defined.sort_values("correlation").iloc[0]
+        words += f"Lowest true-fitted correlation: {worst['parameter']} ({worst['correlation']:.2f}). "
+    words += f"![true vs fitted](parameter_recovery_{label}.png)"
     return (f"Parameter recovery ({label})", markdown_table(summary[cols]) + "\n\n" + words)
 
 
