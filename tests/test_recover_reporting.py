@@ -1,4 +1,4 @@
-"""What ``recover`` reports about parameters held fixed in the population.
+"""What ``recover`` reports: parameters held fixed in the population, and the doubtful fits.
 
 A parameter drawn as one fixed value has no spread, so a correlation with it is undefined
 (Pearson's r divides by the standard deviation of the truth; Spearman's by that of its ranks).
@@ -19,7 +19,7 @@ from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.checks.population import read_population
 from shortcut_gym.lab.checks.recovery import correlation_or_nan, parameter_recovery
 from shortcut_gym.lab.cli import main
-from shortcut_gym.lab.report import parameter_recovery_section
+from shortcut_gym.lab.report import fit_quality_section, parameter_recovery_section
 
 # one value held fixed at 0.4: the float mean of three 0.4s is not exactly 0.4, so a test on the
 # standard deviation being > 0 lets a meaningless "correlation" through
@@ -77,14 +77,43 @@ def test_section_when_no_correlation_is_defined() -> None:
     assert "alpha (fixed 0.3)" in body
 
 
-def test_recover_index_names_fixed_parameters(tmp_path: Path) -> None:
+def _table_rows(index: str, heading: str) -> list[dict[str, str]]:
+    """The rows of the first pipe table under ``## heading`` of an index.md."""
+    part = index.split(f"## {heading}\n", 1)[1].split("\n## ", 1)[0]
+    lines = [ln for ln in part.splitlines() if ln.startswith("|")]
+    head = [c.strip() for c in lines[0].strip("|").split("|")]
+    return [dict(zip(head, (c.strip() for c in ln.strip("|").split("|")), strict=True)) for ln in lines[2:]]
+
+
+def test_recover_index_names_fixed_parameters_and_every_doubtful_fit(tmp_path: Path) -> None:
     spec = tmp_path / "pop.yaml"
     spec.write_text(yaml.safe_dump(HELD))
     out = tmp_path / "rec"
-    assert main(["recover", "--population", str(spec), "--study", "parameters", "--sessions", "2",
-                 "--starts", "2", "--seed", "5", "--out", str(out), "--quiet"]) == 0
+    assert main(["recover", "--population", str(spec), "--sessions", "2", "--starts", "2", "--seed", "5",
+                 "--out", str(out), "--quiet"]) == 0  # both studies
     index = (out / "index.md").read_text()
     summary = pd.read_csv(out / "parameter_recovery_rw.csv").set_index("parameter")
     assert np.isnan(summary.loc["alpha", "correlation"]) and np.isnan(summary.loc["alpha", "rank_correlation"])
     recovery = index.split("## Parameter recovery (rw)\n", 1)[1].split("\n## ", 1)[0]
     assert "alpha (fixed 0.4)" in recovery and "Lowest true-fitted correlation: beta" in recovery
+
+    fits = pd.read_csv(out / "model_recovery_fits.csv")
+    assert fits["fit_ok"].dtype == bool
+    ok = fits["fit_ok"]
+    assert ok.any() and (~ok).any()  # the check below sees both kinds
+    listed = _table_rows(index, "Fit quality (model-recovery fits)")
+    assert {(r["generator"], r["participant"], r["model"]) for r in listed} == set(
+        zip(fits.loc[~ok, "generator"], fits.loc[~ok, "participant"], fits.loc[~ok, "model"], strict=True))
+    assert len(listed) == int((~ok).sum())
+    issues = {(r["participant"], r["model"]): r["fit_issues"] for r in listed}
+    for _, row in fits[~ok].iterrows():
+        assert issues[(row["participant"], row["model"])] == str(row["fit_issues"])
+    assert f"{int(ok.sum())} of {len(fits)} fits passed every check" in index
+    assert f"{int((~ok).sum())} doubtful fit(s)" in index
+
+
+def test_fit_quality_section_without_doubtful_fits() -> None:
+    fits = pd.DataFrame([{"participant": "p", "model": "m", "loglik": -1.0, "starts_near_best": 2, "n_starts": 2,
+                          "fit_ok": True, "fit_issues": ""}])
+    heading, body = fit_quality_section(fits)
+    assert heading == "Fit quality" and "1 of 1 fits passed" in body and "No doubtful fits" in body

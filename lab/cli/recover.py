@@ -13,6 +13,7 @@ from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import MODEL_HELP, add_common, claim_output, models_of, status, world_of, world_words
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.report import (
+    fit_quality_section,
     markdown_table,
     model_recovery_section,
     parameter_recovery_section,
@@ -85,6 +86,9 @@ def run(args: argparse.Namespace) -> int:
         entries.append((write_table(fits, args.out, "model_recovery_fits"), "all fits of the model-recovery study"))
         entries.append((plot_confusion(confusion, args.out / "model_confusion.png"), "confusion heat map"))
         sections.append(model_recovery_section(confusion))
+        heading, body = fit_quality_section(
+            fits, "`model_recovery_fits.csv` for every estimate with its standard error and interval")
+        sections.append((f"{heading} (model-recovery fits)", body))
         print(confusion.to_string(float_format=lambda v: f"{v:.2f}"))
     index = write_index(args.out, entries, "Recovery studies", sections)
     status(f"wrote {index.parent}")

@@ -72,18 +72,22 @@ def comparison_sections(summed: pd.DataFrame, bms: BMSResult) -> list[tuple[str,
     ]
 
 
-def fit_quality_section(fits: pd.DataFrame) -> tuple[str, str]:
+def fit_quality_section(fits: pd.DataFrame, estimates: str = "`parameters.csv` for every estimate with its "
+                        "standard error and interval") -> tuple[str, str]:
     """Report section listing every doubtful fit (``fit_ok`` false) with its reasons, and the
-    agreement of the starts, from a fit table of :func:`~shortcut_gym.lab.fitting.fit_log`."""
+    agreement of the starts, from a fit table of :func:`~shortcut_gym.lab.fitting.fit_log` (with a
+    ``generator`` column, as in model recovery, that column is listed too); ``estimates`` says where
+    the reader finds the estimates."""
     if "fit_ok" not in fits.columns:
         return ("Fit quality", "The fit table has no diagnostics (written by an older version).")
     ok = fits["fit_ok"].astype(str).str.lower().isin(["true", "1"])
-    bad = fits.loc[~ok, ["participant", "model", "loglik", "starts_near_best", "n_starts", "fit_issues"]]
+    cols = ["participant", "model", "loglik", "starts_near_best", "n_starts", "fit_issues"]
+    bad = fits.loc[~ok, (["generator"] if "generator" in fits.columns else []) + cols]
     words = (f"{int(ok.sum())} of {len(fits)} fits passed every check (converged, no parameter at a bound, at least "
              "two starts within 0.1 nats of the best, standard errors defined). ")
     if bad.empty:
         return ("Fit quality", words + "No doubtful fits.")
     words += (f"{len(bad)} doubtful fit(s), listed below: treat their estimates (and the standard errors of "
               "parameters at a bound) with care; a parameter at a bound often means the data cannot pin it "
-              "(see `parameters.csv` for every estimate with its standard error and interval).")
+              f"(see {estimates}).")
     return ("Fit quality", words + "\n\n" + markdown_table(bad.reset_index(drop=True)))
