@@ -96,7 +96,7 @@ def parameter_recovery(world: World, spec: ModelSpec, n_participants: int = 20, 
         rank_r = correlation_or_nan(pd.Series(t).rank().to_numpy(), pd.Series(f).rank().to_numpy())
         lo = merged.get(f"lower_{n}", pd.Series(np.nan, index=merged.index)).to_numpy(float)
         hi = merged.get(f"upper_{n}", pd.Series(np.nan, index=merged.index)).to_numpy(float)
-        has = np.isfinite(lo) & np.isfinite(hi)
+        has = ~np.isnan(lo) & ~np.isnan(hi)  # an end may be infinite: a side the data did not limit
         covered = float(np.mean((lo[has] <= t[has]) & (t[has] <= hi[has]))) if has.any() else float("nan")
         rows.append({"model": spec.label, "parameter": n, "correlation": r, "rank_correlation": rank_r,
                      "bias": float(np.mean(f - t)),

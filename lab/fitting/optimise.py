@@ -376,6 +376,15 @@ def _uncertainty(neg_total, x: np.ndarray, free: list[str], specs: Mapping[str, 
         else:
             lower[n] = upper[n] = float("nan")
             continue
-        a, b = s.from_free(max(lo_x, boxes[j][0])), s.from_free(min(hi_x, boxes[j][1]))
-        lower[n], upper[n] = float(min(a, b)), float(max(a, b))
+        lower[n], upper[n] = interval_ends(s, lo_x, hi_x, boxes[j])
     return se, lower, upper
+
+
+def interval_ends(s: ParamSpec, lo_x: float, hi_x: float, box: tuple[float, float]) -> tuple[float, float]:
+    """Natural (lower, upper) of the transformed interval [lo_x, hi_x]; an end at or past the end of the
+    optimiser's box is reported as the parameter's own bound (``s.lower``/``s.upper``: 0 rather than
+    logit -30's 9.4e-14, infinite for an unbounded side), since the data set no limit before it."""
+    reach = 1e-9 * (box[1] - box[0])
+    lo = s.lower if lo_x <= box[0] + reach else s.from_free(max(lo_x, box[0]))
+    hi = s.upper if hi_x >= box[1] - reach else s.from_free(min(hi_x, box[1]))
+    return float(min(lo, hi)), float(max(lo, hi))
