@@ -15,7 +15,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -28,6 +28,9 @@ from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import Schedule
 from shortcut_gym.envs.world import World
 from shortcut_gym.lab.data.logs import participant_trials, participants, schedule_of
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
 from shortcut_gym.lab.fitting import ModelSpec, fitted_agent
 
 
@@ -114,9 +117,10 @@ def posterior_predictive(
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Data vs model hotkey share per block.
 
-    Returns (per-participant table, group table). The group table has, per model and block, the
-    data's mean over participants and the model's mean and ``interval`` percentile band over
-    ``n_sims`` simulated replicates of that group mean.
+    Returns (per-participant table, group table). The group table has, per model and block
+    (numbered from 0: with ``block='session'`` the log's session number), the data's mean over
+    participants and the model's mean and ``interval`` percentile band over ``n_sims`` simulated
+    replicates of that group mean (column ``replicates``).
     """
     by_label = {s.label: s for s in specs}
     rng = np.random.default_rng(seed)
@@ -153,12 +157,37 @@ def posterior_predictive(
             grows.append({"model": label, "block": b, "data_mean": data_mean[b],
                           "model_mean": mean_over_people[:, b].mean(),
                           "model_lo": np.quantile(mean_over_people[:, b], lo_q),
-                          "model_hi": np.quantile(mean_over_people[:, b], hi_q), "interval": interval})
+                          "model_hi": np.quantile(mean_over_people[:, b], hi_q), "interval": interval,
+                          "replicates": n_sims})
     return per, pd.DataFrame(grows)
 
 
-def plot_predictive(group: pd.DataFrame, path: str | Path, title: str = "Hotkey use per block") -> Path:
-    """One panel per model: data mean (dots) vs model mean and interval band; saved as PNG."""
+#: Fewest simulated replicates for a 90% band to be read plainly: below 20 its 5% and 95% points
+#: are little more than the lowest and highest replicate (the page says so). A project choice.
+ROUGH_BAND_REPLICATES = 20
+#: Most tick labels on the block axis (every block up to this many, else every k-th).
+MAX_BLOCK_TICKS = 12
+
+
+def band_words(interval: float, replicates: int | None) -> str:
+    """Name of the model band: e.g. 'model 90% band', or with too few replicates
+    'model 90% band (rough: 2 replicates)'."""
+    words = f"model {interval:.0%} band"
+    if replicates is not None and replicates < ROUGH_BAND_REPLICATES:
+        words += f" (rough: {replicates} replicate{'s' if replicates != 1 else ''})"
+    return words
+
+
+def block_ticks(blocks: Sequence[int]) -> list[int]:
+    """Integer tick positions for the block axis: every block, or every k-th when there are many."""
+    values = sorted({int(b) for b in blocks})
+    step = max(1, -(-len(values) // MAX_BLOCK_TICKS))
+    return values[::step]
+
+
+def predictive_figure(group: pd.DataFrame, title: str = "Hotkey use per block") -> Figure:
+    """One panel per model: data mean (dots) vs model mean and interval band over the block
+    numbers of ``group`` as they are (from 0, as in ``predictive_group.csv``), integer ticks."""
     from matplotlib.figure import Figure  # object API: the global backend is left alone
 
     models = list(dict.fromkeys(group["model"]))
@@ -166,17 +195,27 @@ def plot_predictive(group: pd.DataFrame, path: str | Path, title: str = "Hotkey 
     axes = fig.subplots(1, len(models), sharey=True, squeeze=False)
     for ax, label in zip(axes[0], models, strict=True):
         g = group[group["model"] == label]
-        x = g["block"].to_numpy() + 1
-        ax.fill_between(x, g["model_lo"], g["model_hi"], alpha=0.3, label=f"model {g['interval'].iloc[0]:.0%} band")
+        x = g["block"].to_numpy(dtype=np.int64)
+        replicates = int(g["replicates"].iloc[0]) if "replicates" in g.columns else None
+        ax.fill_between(x, g["model_lo"], g["model_hi"], alpha=0.3,
+                        label=band_words(float(g["interval"].iloc[0]), replicates))
         ax.plot(x, g["model_mean"], "-", label="model mean")
         ax.plot(x, g["data_mean"], "ko", ms=4, label="data")
+        ticks = block_ticks(x)
+        ax.set_xticks(ticks, [str(t) for t in ticks])
         ax.set_title(label)
-        ax.set_xlabel("block")
+        ax.set_xlabel("block (from 0)")
         ax.set_ylim(0, 1)
     axes[0][0].set_ylabel("share of hotkey choices")
     axes[0][0].legend(fontsize=7, loc="best")
     fig.suptitle(title)
     fig.tight_layout()
+    return fig
+
+
+def plot_predictive(group: pd.DataFrame, path: str | Path, title: str = "Hotkey use per block") -> Path:
+    """:func:`predictive_figure` saved as PNG at ``path``."""
+    fig = predictive_figure(group, title)
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
     fig.savefig(p, dpi=110)

@@ -8,7 +8,12 @@ from pathlib import Path
 import pandas as pd
 
 from shortcut_gym.envs.errors import ConfigError
-from shortcut_gym.lab.checks.predictive import plot_predictive, posterior_predictive
+from shortcut_gym.lab.checks.predictive import (
+    ROUGH_BAND_REPLICATES,
+    band_words,
+    plot_predictive,
+    posterior_predictive,
+)
 from shortcut_gym.lab.checks.recovery import knockout_study, knockout_variants
 from shortcut_gym.lab.compare import bms_of_fits, comparison_table, summed_criteria
 from shortcut_gym.lab.fitting import (
@@ -30,6 +35,21 @@ from shortcut_gym.lab.report.criteria_verdict import (
 from shortcut_gym.lab.report.markdown import markdown_table, write_index, write_table
 from shortcut_gym.lab.report.plots import plot_comparison
 from shortcut_gym.lab.report.sections import comparison_sections, fit_quality_section
+
+
+def predictive_words(block: str | int, n_sims: int, interval: float) -> str:
+    """The posterior-predictive section: what was simulated, how blocks are numbered, and a warning
+    when too few replicates were simulated for the band to be read."""
+    what = "session" if block == "session" else f"{block}-trial"
+    words = (f"Hotkey share per {what} block (blocks numbered from 0, as in `predictive_group.csv`), data against "
+             f"{n_sims} simulation{'s' if n_sims != 1 else ''} of each fitted model on each participant's own "
+             f"schedule, with the {band_words(interval, None).removeprefix('model ')} of the simulated group mean.")
+    if n_sims < ROUGH_BAND_REPLICATES:
+        words += (f" **The band is rough:** it rests on {n_sims} replicate{'s' if n_sims != 1 else ''} (fewer than "
+                  f"{ROUGH_BAND_REPLICATES}), so its {(1 - interval) / 2:.0%} and {(1 + interval) / 2:.0%} points are "
+                  "little more than the lowest and highest simulated values; run with "
+                  f"`--sims {ROUGH_BAND_REPLICATES}` or more to read it.")
+    return words + "\n\n![posterior-predictive check](predictive.png)"
 
 
 def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int = 10, seed: int = 0,
@@ -97,10 +117,7 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     if hierarchical or cross_validated:
         verdict = dict(sections)["Verdict"] + "\n\n" + agreement_words(criterion_winners(summed, bms, ibic, cv))
         sections[0] = ("Verdict", verdict)
-    sections.append(("Posterior-predictive check",
-                     f"Hotkey share per {block} block, data against {n_sims} simulations of each fitted model "
-                     "on each participant's own schedule (`predictive_group.csv`).\n\n"
-                     "![posterior-predictive check](predictive.png)"))
+    sections.append(("Posterior-predictive check", predictive_words(block, n_sims, float(group["interval"].iloc[0]))))
     if knockout is not None:
         ko, ko_fits = knockout_study(log, by_label[knockout], world, n_starts, seed, n_jobs, progress)
         entries.append((write_table(ko, out, "knockout"), f"BIC change when each mechanism of {knockout} is removed"))
