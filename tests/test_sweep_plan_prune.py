@@ -118,21 +118,21 @@ def _age(paths: list[Path]) -> None:
 
 def test_prune_removes_least_recently_used_entries_down_to_the_cap(tmp_path: Path) -> None:
     sizes = [300, 500, 200, 400, 100]
-    paths = []
-    for i, size in enumerate(sizes):
-        p = tmp_path / f"{i:064x}.plan"
-        p.write_bytes(b"x" * size)
-        paths.append(p)
-    (tmp_path / "x.plan.damaged-1").write_bytes(b"y" * 10_000)  # set aside: not counted, not removed
+    paths = [tmp_path / f"{i:064x}.plan" for i in range(len(sizes))]
+    aside = tmp_path / f"{9:064x}.plan.damaged-1"  # set aside: counted, and the first to go when over the cap
     order = [paths[i] for i in (3, 0, 4, 1, 2)]  # last use: 3 oldest, then 0, 4, 1, 2 newest
-    _age(order)
-    for cap in (1500, 1200, 1000, 700, 300, 1):
+    for cap in (11_600, 11_500, 1500, 1200, 1000, 700, 300, 1):
         for p, size in zip(paths, sizes, strict=True):
             p.write_bytes(b"x" * size)
+        aside.write_bytes(b"y" * 10_000)
         _age(order)
         removed = plan_store.prune(tmp_path, cap, keep=paths[2])
-        # the truth: walk the last-use order oldest first, dropping while over the cap, never the kept one
-        left, expect = sum(sizes), []
+        # the truth: the set-aside file first, then the last-use order oldest first, dropping while
+        # over the cap, never the kept one
+        left, expect = sum(sizes) + 10_000, []
+        if left > cap:
+            expect.append(aside)
+            left -= 10_000
         for p in order:
             if left <= cap:
                 break
@@ -141,7 +141,8 @@ def test_prune_removes_least_recently_used_entries_down_to_the_cap(tmp_path: Pat
                 left -= sizes[paths.index(p)]
         assert removed == expect, cap
         assert plan_store.store_bytes(tmp_path) == left and paths[2].exists()
-        assert (tmp_path / "x.plan.damaged-1").exists()
+        assert aside.exists() == (cap >= sum(sizes) + 10_000)
+        assert not list(tmp_path.glob("*.lock"))  # the locks taken to remove entries go with them
 
 
 def test_prune_leaves_an_entry_whose_lock_is_held(tmp_path: Path) -> None:

@@ -17,11 +17,17 @@ the Python and numpy versions, so a plan made by other code is never read back a
   while an entry is looked up, made and written, so processes wanting the same plan wait for
   one plan. (Advisory; where ``fcntl`` is missing two processes may both plan, still correctly.)
 
-* Size cap (optional, per process: :func:`set_plan_store`'s ``max_bytes``): after writing an entry
-  the process removes the least recently used entries (oldest modification time first; a load
-  marks its entry used) until the entries total at most the cap, never the entry just written
-  and never one whose lock another process holds (:func:`prune`). A removed entry is planned again
-  when next wanted, with the same result.
+* Size cap (optional, per process: :func:`set_plan_store`'s ``max_bytes``): the cap is on every
+  file the store makes (:func:`store_files`: entries, their lock files, temporary files of a
+  write, and damaged entries set aside), not on the entries alone. After writing an entry the
+  process prunes (:func:`prune`): it removes the lock files and temporaries nobody holds any more
+  (left by a process that died, or by entries gone), then, while the store's files total more than
+  the cap, the damaged entries set aside (oldest first) and the least recently used entries
+  (oldest modification time first; a load marks its entry used), each with its lock file; never
+  the entry just written and never one whose lock another process holds. A removed entry is
+  planned again when next wanted, with the same result. A lock file is removed only while held,
+  and a process taking a lock checks that the file it locked is still the one under that name
+  (:func:`key_lock`), so removing lock files never lets two processes hold one key.
 
 The store is this user's own cache: entries are pickles, so load only stores you wrote.
 The store in use is set per process (:func:`set_plan_store`, :func:`using_plan_store`) or by the
@@ -138,18 +144,45 @@ def _folder(store: Path) -> Path:
     return store
 
 
+def _take_lock(path: Path, wait: bool) -> io.BufferedRandom | None:
+    """The open, exclusively locked lock file ``path`` (created when missing); None when another
+    process holds it and ``wait`` is False. A lock file removed or replaced while this process
+    waited for it (by :func:`prune`) is opened again, so the lock held is always the one under
+    ``path``."""
+    while True:
+        fh = open(path, "a+b")  # noqa: SIM115 - returned open, closed by _drop_lock
+        if fcntl is None:
+            return fh
+        try:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | (0 if wait else fcntl.LOCK_NB))
+        except BlockingIOError:
+            fh.close()
+            return None
+        try:
+            now = os.stat(path)
+        except FileNotFoundError:
+            now = None
+        held = os.fstat(fh.fileno())
+        if now is not None and (now.st_ino, now.st_dev) == (held.st_ino, held.st_dev):
+            return fh
+        fh.close()  # removed while we waited: lock the file now under that name
+
+
+def _drop_lock(fh: io.BufferedRandom) -> None:
+    if fcntl is not None:
+        fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+    fh.close()
+
+
 @contextlib.contextmanager
 def key_lock(store: Path, key: tuple) -> Iterator[None]:
     """Hold the exclusive lock of ``key``'s entry (other processes wanting it wait)."""
-    path = _folder(store) / f"{entry_name(key)}.lock"
-    with open(path, "a+b") as fh:
-        if fcntl is not None:
-            fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
-        try:
-            yield
-        finally:
-            if fcntl is not None:
-                fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+    fh = _take_lock(_folder(store) / f"{entry_name(key)}.lock", wait=True)
+    assert fh is not None  # waiting never gives up
+    try:
+        yield
+    finally:
+        _drop_lock(fh)
 
 
 def entry_path(store: Path, key: tuple) -> Path:
@@ -246,7 +279,9 @@ def load(store: Path, key: tuple) -> Plan | None:
 
 
 def save(store: Path, key: tuple, plan: Plan) -> Path:
-    """Write ``key``'s entry atomically (a uniquely named temporary file renamed over it)."""
+    """Write ``key``'s entry atomically (a uniquely named temporary file renamed over it). Call it
+    holding :func:`key_lock` where capped processes share the store: :func:`prune` takes a
+    temporary whose key's lock is free for one a dead process left."""
     path = entry_path(_folder(store), key)
     tmp = path.with_name(f".{path.name}.{os.getpid()}-{uuid.uuid4().hex}.tmp")
     try:
@@ -266,44 +301,115 @@ def entries(store: Path) -> list[Path]:
     return sorted(Path(store).glob("*.plan")) if Path(store).is_dir() else []
 
 
-def store_bytes(store: Path) -> int:
-    """Bytes of the store's entries (temporary and set-aside files not counted)."""
-    total = 0
-    for path in entries(store):
+#: The kinds of file a store makes, as :func:`store_files` names them.
+FILE_KINDS = ("entry", "lock", "temporary", "set aside")
+
+
+def file_kind(name: str) -> str | None:
+    """Which kind of store file a file name is (:data:`FILE_KINDS`), or None for a file that is
+    not the store's (never counted, never removed): the store's names start with an entry stem,
+    64 lowercase hex digits."""
+    temporary = name.startswith(".") and name.endswith(".tmp")
+    stem, dot, rest = name[1 if temporary else 0:].partition(".")
+    if not dot or len(stem) != 64 or stem.strip("0123456789abcdef"):
+        return None
+    if temporary:
+        return "temporary" if rest.startswith("plan.") else None  # .<stem>.plan.<pid>-<random>.tmp
+    if rest == "plan":
+        return "entry"
+    if rest == "lock":
+        return "lock"
+    return "set aside" if rest.startswith("plan.damaged-") else None
+
+
+def _stem(path: Path) -> str:
+    """The entry stem (key digest) a store file belongs to."""
+    name = path.name.lstrip(".")
+    return name.split(".", 1)[0]
+
+
+def store_files(store: Path) -> list[tuple[str, Path, int, int]]:
+    """Every file the store made, as (kind, path, bytes, modification time in ns), sorted by path;
+    files gone while listed are left out."""
+    if not Path(store).is_dir():
+        return []
+    out = []
+    for path in sorted(Path(store).iterdir()):
+        kind = file_kind(path.name)
+        if kind is None:
+            continue
         with contextlib.suppress(FileNotFoundError):
-            total += path.stat().st_size
-    return total
+            st = path.stat()
+            if not path.is_dir():
+                out.append((kind, path, st.st_size, st.st_mtime_ns))
+    return out
+
+
+def store_bytes(store: Path) -> int:
+    """Bytes of every file the store made (entries, locks, temporaries and damaged entries set
+    aside; what the cap of :func:`prune` bounds)."""
+    return sum(size for _, _, size, _ in store_files(store))
+
+
+def _unlink(path: Path, removed: list[Path]) -> bool:
+    try:
+        path.unlink()
+    except FileNotFoundError:
+        return False
+    removed.append(path)
+    return True
 
 
 def prune(store: Path, max_bytes: int, keep: Path | None = None) -> list[Path]:
-    """Remove least recently used entries (oldest modification time first) until the entries total
-    at most ``max_bytes``; ``keep`` and entries whose lock another process holds (being made or read)
-    are left. Returns the removed entries. The cap may stay exceeded by what is left."""
-    sized = []
-    for path in entries(store):
-        with contextlib.suppress(FileNotFoundError):
-            st = path.stat()
-            sized.append((st.st_mtime_ns, path.name, path, st.st_size))
-    total = sum(size for *_, size in sized)
-    removed = []
-    for _, _, path, size in sorted(sized):
+    """Bring the store's files (:func:`store_files`) to at most ``max_bytes`` in all.
+
+    First, always: lock files of entries that are gone and temporaries of writes no process makes
+    now (their key's lock is free: the writer died), each removed while holding its key's lock.
+    Then, while over the cap: damaged entries set aside, oldest first; then entries, least recently
+    used (oldest modification time) first, each with its lock file, skipping ``keep`` and entries
+    whose lock another process holds (being made or read). Returns every file removed, in order.
+    The cap may stay exceeded by what is left (``keep`` and entries in use)."""
+    files = store_files(store)
+    total = sum(size for *_, size, _ in files)
+    sizes = {path: size for _, path, size, _ in files}
+    removed: list[Path] = []
+    store = Path(store)
+
+    def under_lock(lock: Path, targets: list[Path], drop_lock: bool) -> bool:
+        """Remove ``targets`` (and ``lock`` when ``drop_lock``) holding ``lock``; False when it is held."""
+        nonlocal total
+        if fcntl is None and any(file_kind(t.name) == "temporary" for t in targets):
+            return False  # without locks a live writer cannot be told from a dead one
+        made_here = not lock.exists()  # a lock file this call makes is not left behind
+        fh = _take_lock(lock, wait=False)
+        if fh is None:
+            return False
+        try:
+            for target in targets:
+                if _unlink(target, removed):
+                    total -= sizes.get(target, 0)
+            if made_here or (drop_lock and not (store / f"{_stem(lock)}.plan").exists()):
+                if _unlink(lock, removed if not made_here else []):
+                    total -= sizes.get(lock, 0)
+        finally:
+            _drop_lock(fh)
+        return True
+
+    live = {_stem(path) for kind, path, *_ in files if kind == "entry"}
+    for kind, path, _, _ in files:
+        if kind == "lock" and _stem(path) not in live:
+            under_lock(path, [], drop_lock=True)
+        elif kind == "temporary":
+            under_lock(store / f"{_stem(path)}.lock", [path], drop_lock=_stem(path) not in live)
+    for _, _, path in sorted((mtime, path.name, path) for kind, path, _, mtime in files if kind == "set aside"):
+        if total <= max_bytes:
+            break
+        if _unlink(path, removed):
+            total -= sizes[path]
+    for _, _, path in sorted((mtime, path.name, path) for kind, path, _, mtime in files if kind == "entry"):
         if total <= max_bytes:
             break
         if keep is not None and path == keep:
             continue
-        with open(path.with_suffix(".lock"), "a+b") as fh:
-            if fcntl is not None:
-                try:
-                    fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
-                except OSError:
-                    continue  # in use by another process
-            try:
-                path.unlink()
-            except FileNotFoundError:
-                pass
-            else:
-                removed.append(path)
-            total -= size
-            if fcntl is not None:
-                fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+        under_lock(path.with_suffix(".lock"), [path], drop_lock=True)
     return removed

@@ -35,8 +35,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="keep <out>/plans when the sweep finishes (by default it is removed; a resumed sweep "
                         "plans again what it needs, with the same results). A --plan-folder is always kept")
     p.add_argument("--plan-cap", type=positive_number, default=None, metavar="MB",
-                   help="most megabytes (10^6 bytes) of plans kept on disk: after writing a plan a worker removes "
-                        "the least recently used ones (default: no cap)")
+                   help="most megabytes (10^6 bytes) of the plan folder on disk, counting its lock files, "
+                        "half-written and damaged plans: after writing a plan a worker removes those nobody "
+                        "holds, then the least recently used plans (default: no cap)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     add_agent_options(p, "agent replacing the spec's agent list (repeatable)")
     p.set_defaults(func=run)

@@ -184,9 +184,10 @@ def run_sweep(
 
     When the sweep finishes, its own ``<folder>/plans`` is removed unless ``keep_plans`` (a
     resumed or retried sweep plans again what it needs; results are the same). A ``plan_store``
-    folder given here is the user's and is never removed; ``plan_store_bytes`` caps its entries
-    (or the default store's while the sweep runs): each worker removes the least recently used
-    entries after writing one (:func:`shortcut_gym.agents.planner.plan_store.prune`)."""
+    folder given here is the user's and is never removed; ``plan_store_bytes`` caps its files
+    (or the default store's while the sweep runs; entries, lock files, temporaries and damaged
+    entries set aside all count): each worker prunes after writing an entry
+    (:func:`shortcut_gym.agents.planner.plan_store.prune`)."""
     start = time.perf_counter()
     sweep, source = _spec_and_source(spec)
     runs = plan_runs(sweep, source)
