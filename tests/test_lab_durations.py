@@ -118,3 +118,66 @@ def test_the_group_fit_shrinks_keystroke_times_toward_the_truth_and_fills_uniden
     assert err_group < err_ml
     no_learn = table["encoding_s"].to_numpy()[0::2]  # participants without a learn trial
     assert np.allclose(no_learn, no_learn[0], rtol=1e-3) and abs(no_learn[0] - base.costs.learn.encoding_s) > 0.05
+
+
+def _pushed_below_zero(world, keystroke_s: float):
+    """A random participant's log whose durations are the noise-free times of operator values with
+    ``keystroke_s`` (may be negative: the data then push K below zero), plus small Gaussian noise."""
+    log = _log(world, make_agent("random", p_hotkey=0.5, p_learn=0.25), seed=4)
+    trials = participant_trials(log, log["participant"].iloc[0])
+    design = operator_design(trials, world)
+    theta = np.array([1.4, keystroke_s, 1.1, 0.4, 2.0, 0.07])  # DURATION_PARAMETERS order
+    d = design.predicted_s(theta) + np.random.default_rng(0).normal(0.0, 0.05, len(trials))
+    assert d.min() > 0
+    return trials.assign(duration_s=d), design, d
+
+
+@pytest.mark.parametrize("keystroke_s", [-0.2, -0.02])
+def test_operators_the_data_push_below_zero_sit_on_the_floor_at_the_constrained_optimum(world, keystroke_s):
+    from shortcut_gym.lab.fitting.durations import DURATION_PARAMETERS, MIN_OPERATOR_S
+
+    trials, design, d = _pushed_below_zero(world, keystroke_s)
+    fit = fit_durations(trials, world, noise="gaussian", participant="P-neg")
+    assert fit.at_floor == ("keystroke_s",)
+    assert fit.estimates["keystroke_s"] == MIN_OPERATOR_S and math.isnan(fit.standard_errors["keystroke_s"])
+    assert all(np.isfinite(fit.standard_errors[n]) for n in DURATION_PARAMETERS if n != "keystroke_s")
+    assert fit.world.costs.klm.keystroke_s == MIN_OPERATOR_S  # a valid world: the yardstick can plan for it
+    assert fit.row()["at_floor"] == "keystroke_s"
+
+    # independent check: the sum of squares under b >= floor, minimised by a generic bounded optimiser
+    theta = np.array([fit.estimates[n] for n in DURATION_PARAMETERS])
+
+    def ssr(b):
+        r = d - design.predicted_s(b)
+        return float(r @ r)
+
+    other = optimize_bounded(ssr, theta + 0.3, MIN_OPERATOR_S)
+    assert ssr(theta) <= ssr(other) + 1e-9
+    # KKT: on the floor the sum of squares rises as K rises; every other operator is stationary
+    grad = -2 * design.counts.T @ (d - design.predicted_s(theta))
+    assert grad[1] >= 0
+    assert np.allclose(np.delete(grad, 1), 0.0, atol=1e-6 * len(d))
+    # the Gaussian ln L is that of the residuals at the maximum-likelihood sigma
+    r = d - design.predicted_s(theta)
+    sigma = math.sqrt(float(r @ r) / len(d))
+    assert fit.sigma == pytest.approx(sigma, rel=1e-12)
+    assert fit.loglik == pytest.approx(float(np.sum(-0.5 * np.log(2 * np.pi * sigma ** 2) - r ** 2 / (2 * sigma ** 2))),
+                                       rel=1e-12)
+
+    lognormal = fit_durations(trials, world, noise="lognormal", participant="P-neg")
+    assert lognormal.at_floor == ("keystroke_s",) and math.isnan(lognormal.standard_errors["keystroke_s"])
+
+
+def test_an_operator_above_the_floor_is_not_flagged_and_the_fit_is_plain_least_squares(world):
+    trials, design, d = _pushed_below_zero(world, 0.3)
+    fit = fit_durations(trials, world, noise="gaussian")
+    assert fit.at_floor == () and fit.row()["at_floor"] == ""
+    ols, *_ = np.linalg.lstsq(design.counts, d - design.offset_s, rcond=None)
+    assert fit.estimates["keystroke_s"] == pytest.approx(ols[1], rel=1e-10)
+
+
+def optimize_bounded(f, x0, lower):
+    from scipy import optimize
+
+    return optimize.minimize(f, x0, method="Powell", bounds=[(lower, None)] * len(x0),
+                             options={"xtol": 1e-12, "ftol": 1e-14, "maxfev": 200000}).x

@@ -173,3 +173,21 @@ def test_report_rationality_adds_the_yardstick_section_with_the_simulated_headli
     assert "Rationality" not in (tmp_path / "plain" / "index.md").read_text()
     assert not (tmp_path / "plain" / "rationality_participants.csv").exists()
     capsys.readouterr()
+
+
+def test_participants_whose_durations_cannot_show_an_operator_are_named_with_it(analysed, world, tmp_path):
+    from shortcut_gym.lab.fitting.durations import fit_durations
+    from shortcut_gym.lab.rationality.report import write_rationality
+
+    log, res = analysed
+    per = res.participants.set_index("participant")
+    for pid in per.index:  # the column lists exactly the operators the duration fit could not identify
+        dfit = fit_durations(participant_trials(log, pid), world, "lognormal", pid)
+        assert per.loc[pid, "held_operators"] == ";".join(n for n, ok in dfit.identified.items() if not ok)
+    # always-menu never pressed a key: its keystroke time is the study's, and the page says so
+    assert "keystroke_s" in per.loc["menu-0", "held_operators"].split(";")
+    _, sections = write_rationality(res, tmp_path)
+    text = dict(sections)["Participants judged partly on the study's operator times"]
+    assert "`menu-0`" in text and "keystroke_s" in text
+    listed = {line.split("`")[1] for line in text.splitlines() if line.startswith("- `")}
+    assert listed == {p for p in per.index if per.loc[p, "held_operators"]}

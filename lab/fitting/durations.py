@@ -31,6 +31,12 @@ mean is the predicted time mu and the coefficient of variation is sqrt(exp(sigma
 world's optional trial-time noise has this form); ``gaussian``, d ~ N(mu, sigma^2), whose maximum
 likelihood estimate is the least-squares regression of (d - offset) on the operator counts.
 Standard errors: inverse observed information (lognormal), the OLS covariance (gaussian).
+
+Every operator time is kept at or above :data:`MIN_OPERATOR_S`: where the unconstrained optimum
+puts one below it (the data trade K against M and P, and push K under zero), the fit is the
+constrained maximum (bounded least squares for ``gaussian``, the bounded likelihood for
+``lognormal``); the operator is then named in ``at_floor`` and has no standard error, and the
+others' standard errors are those of the fit with it held there.
 """
 
 from __future__ import annotations
@@ -177,6 +183,7 @@ class DurationFit:
     loglik: float
     n_trials: int
     world: World = field(repr=False)
+    at_floor: tuple[str, ...] = ()  # identified operators held at MIN_OPERATOR_S by the constraint
 
     @property
     def cv(self) -> float:
@@ -192,7 +199,7 @@ class DurationFit:
         """One tidy row: participant, noise, ln L, sigma, cv, then ``<name>``, ``se_<name>``."""
         out: dict[str, Any] = {"participant": self.participant, "noise": self.noise, "loglik": self.loglik,
                                "n_params": self.n_params, "n_trials": self.n_trials, "sigma": self.sigma,
-                               "cv": self.cv}
+                               "cv": self.cv, "at_floor": ";".join(self.at_floor)}
         for name in DURATION_PARAMETERS:
             out[name] = self.estimates[name]
             out[f"se_{name}"] = self.standard_errors[name]
@@ -260,22 +267,40 @@ def fit_durations(trials: pd.DataFrame, world: World, noise: DurationNoise = "lo
     theta = base.copy()
     se = np.full(len(base), np.nan)
     if noise == "gaussian":
-        beta, *_ = np.linalg.lstsq(X, y, rcond=None)
+        beta, floor = _least_squares_at_or_above_floor(X, y)
         resid = y - X @ beta
         sigma = math.sqrt(float(resid @ resid) / n)
-        cov = float(resid @ resid) / (n - len(free)) * np.linalg.pinv(X.T @ X)
+        inner = ~floor  # the standard errors of the operators off the floor, the others held there
+        cov = float(resid @ resid) / (n - int(inner.sum())) * np.linalg.pinv(X[:, inner].T @ X[:, inner])
         theta[free] = beta
-        se[free] = np.sqrt(np.diag(cov))
+        se[free[inner]] = np.sqrt(np.diag(cov))
         ll = float(np.sum(-0.5 * math.log(2 * math.pi * sigma ** 2) - resid ** 2 / (2 * sigma ** 2)))
     else:
         theta_free, sigma, ll, cov = _lognormal_ml(X, y, design.duration_s, fixed_s, base[free])
         theta[free] = theta_free
         se[free] = np.sqrt(np.clip(np.diag(cov), 0.0, np.inf))
-        se[free[theta_free <= 1.01 * MIN_OPERATOR_S]] = np.nan
+        floor = theta_free <= 1.01 * MIN_OPERATOR_S
+        se[free[floor]] = np.nan
     estimates = dict(zip(DURATION_PARAMETERS, theta.tolist(), strict=True))
     identified = {name: bool(j in free) for j, name in enumerate(DURATION_PARAMETERS)}
+    at_floor = tuple(DURATION_PARAMETERS[j] for j in free[floor])
     return DurationFit(participant, noise, estimates, dict(zip(DURATION_PARAMETERS, se.tolist(), strict=True)),
-                       identified, sigma, ll, n, implied_world(world, estimates))
+                       identified, sigma, ll, n, implied_world(world, estimates), at_floor)
+
+
+def _least_squares_at_or_above_floor(X: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """argmin ||y - X b||^2 subject to b >= MIN_OPERATOR_S, and which b sit on that floor: the OLS
+    solution when it satisfies the bound (then exactly OLS), else bounded-variable least squares."""
+    beta, *_ = np.linalg.lstsq(X, y, rcond=None)
+    if np.all(beta >= MIN_OPERATOR_S):
+        return beta, np.zeros(len(beta), dtype=bool)
+    res = optimize.lsq_linear(X, y, bounds=(MIN_OPERATOR_S, np.inf), method="bvls", tol=1e-14)
+    floor = res.x <= MIN_OPERATOR_S * (1 + 1e-9)
+    beta = np.where(floor, MIN_OPERATOR_S, res.x)
+    if (~floor).any():  # the free operators' exact least squares given the floored ones
+        rest = y - X[:, floor] @ beta[floor]
+        beta[~floor], *_ = np.linalg.lstsq(X[:, ~floor], rest, rcond=None)
+    return beta, floor
 
 
 def _lognormal_ml(X: np.ndarray, y: np.ndarray, d: np.ndarray, fixed_s: np.ndarray,

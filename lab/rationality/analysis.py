@@ -290,6 +290,8 @@ def _participant(job: tuple) -> dict[str, Any]:
         "commands_pay": int(commands["learning_pays"].sum()), "commands_learned": int(commands["learned"].sum()),
         "learned_where_pays": int((commands["learning_pays"] & commands["learned"]).sum()),
         "duration_cv": dfit.cv, **{f"own_{k}": v for k, v in dfit.estimates.items()},
+        "held_operators": ";".join(name for name, ok in dfit.identified.items() if not ok),
+        "operators_at_floor": ";".join(dfit.at_floor),
     }
     if best_learning is not None:
         row.update(best_learning_model=best_learning.model, learning_bic=best_learning.bic,

@@ -86,6 +86,7 @@ def write_rationality(result: RationalityResult, out: Path) -> tuple[list[tuple[
     better = (per["better_model"] == PLANNED).sum() if "better_model" in per else 0
     n_sims = sorted(set(per["n_sims"].astype(int))) if "n_sims" in per and len(per) else []
     sims = f"{n_sims[0]} simulated users" if len(n_sims) == 1 else "the simulated users"
+    held = per[per["held_operators"].fillna("").astype(str) != ""] if "held_operators" in per else per.iloc[:0]
     sections = [
         ("Rationality against each participant's own optimum",
          "Each participant's operator times are fitted to their own trial durations; the yardstick planner "
@@ -102,5 +103,20 @@ def write_rationality(result: RationalityResult, out: Path) -> tuple[list[tuple[
          "Commands (participant x command): does learning the hotkey pay for them, did they learn it.\n\n"
          + markdown_table(crosstab, index=True)
          + "\n\n![time lost](time_lost.png)\n\n![rationality index](rationality_index.png)"),
+        ("Participants judged partly on the study's operator times", held_operators_text(held, len(per))),
     ]
     return entries, sections
+
+
+def held_operators_text(held: pd.DataFrame, n: int) -> str:
+    """The section naming participants whose durations could not show some operator times: their
+    optimum (and so their time lost, optimal share and beta) uses the study's values there."""
+    if held.empty:
+        return f"None: every operator time of all {n} participants was fitted to their own durations."
+    lines = [f"- `{pid}`: {ops.replace(';', ', ')}" for pid, ops in zip(held["participant"], held["held_operators"],
+                                                                      strict=True)]
+    return (f"{len(held)} of {n} participants never showed some operators in their trials (no hotkey trial: "
+            "no keystroke time; no learn trial: no encoding time; ...), so those operators keep the study's "
+            "values and their optimum is the study's answer there, not theirs. A participant who never pressed a "
+            "hotkey may have stayed with the menus *because* keys are slow for them; these data cannot tell. "
+            "Read their time lost, optimal share and beta with this in mind:\n\n" + "\n".join(lines))
