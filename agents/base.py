@@ -134,6 +134,10 @@ class Agent(ABC):
     #: what ``likelihood_function`` takes, for agents that have one (:class:`LikelihoodAgent`):
     #: "trial_arrays" (the lab's per-trial arrays of one participant) or "frame" (the frame itself)
     likelihood_input: ClassVar[str] = "trial_arrays"
+    #: True for agents that act on the dynamic-programming planner's plan of their world, which
+    #: refuse a world whose memory kind the planner does not model
+    #: (:func:`shortcut_gym.agents.planner.memory_model.check_memory_kind`)
+    needs_planner: ClassVar[bool] = False
 
     def __init__(self, context: AgentContext | None = None, **params: float) -> None:
         self.context = context

@@ -33,7 +33,7 @@ from numba import njit
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.planned_choice_batch import PlannedChoiceSteps, choice_probabilities, planned_choice_batch
-from shortcut_gym.agents.planner import BoundedOptimalPlanner
+from shortcut_gym.agents.planner import BoundedOptimalPlanner, check_memory_kind
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
 from shortcut_gym.envs.world import World, make_world
@@ -112,6 +112,7 @@ class PlannedChoice(Agent):
     """Softmax (inverse temperature ``beta``, optional ``lapse``) over the planner's action values."""
 
     name = "planned_choice"
+    needs_planner = True
     likelihood_input = "frame"
 
     def __init__(self, context: AgentContext | None = None, world: World | dict | str | None = None,
@@ -126,6 +127,8 @@ class PlannedChoice(Agent):
         if world is not None and not isinstance(world, World):
             raise ConfigError(f"{self.name}: world must be a World or a dict of make_world arguments, got "
                               f"{type(world).__name__}")
+        if world is not None:
+            check_memory_kind(world, f"agent {self.name!r}")
         # checks the planner options now, with the planner's own messages
         BoundedOptimalPlanner(keyboard_share=keyboard_share, n_bins=n_bins, n_weight_bins=n_weight_bins,
                               select_users=select_users)
@@ -154,7 +157,14 @@ class PlannedChoice(Agent):
         if w is None:
             raise ConfigError(f"{self.name}: needs the chooser's world: make_agent('{self.name}', world=...) or a "
                               "context with .world")
+        check_memory_kind(w, f"agent {self.name!r}")
         return w
+
+    def bind(self, context: AgentContext) -> None:
+        """Attach the world facts; a bound world the planner cannot plan for is refused here."""
+        if self.world is None and context.world is not None:
+            check_memory_kind(context.world, f"agent {self.name!r}")
+        super().bind(context)
 
     def plan_key(self) -> tuple:
         """Cache key of this agent's plan and logged values: the world's content digest and the options."""

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
@@ -11,13 +12,14 @@ from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
 from shortcut_gym.agents.learning import ChoiceKernelAgent, ComposedLearner, RescorlaWagnerAgent, RWChoiceKernelAgent
 from shortcut_gym.agents.planned_choice import PlannedChoice
-from shortcut_gym.agents.planner import BoundedOptimalPlanner
+from shortcut_gym.agents.planner import BoundedOptimalPlanner, check_memory_kind
 from shortcut_gym.agents.sb3 import A2CAgent, DQNAgent, PPOAgent
 from shortcut_gym.agents.static_softmax import StaticSoftmax
 from shortcut_gym.agents.tabular import QLearningAgent, SarsaAgent
 from shortcut_gym.envs.config import read_yaml, validate
 from shortcut_gym.envs.errors import ConfigError, ShortcutGymError
 from shortcut_gym.envs.strict import StrictModel
+from shortcut_gym.envs.world import World
 
 AGENTS: dict[str, type[Agent]] = {}
 
@@ -54,6 +56,16 @@ def make_agent(name: str, context: AgentContext | None = None, **params: Any) ->
         if "argument" not in str(err):
             raise
         raise ConfigError(f"{name}: {err}") from err
+
+
+def refuse_planner_memory(world: World, named: Iterable[tuple[str, str]], who: str) -> None:
+    """Refuse up front, with :class:`~shortcut_gym.agents.planner.memory_model.PlannerMemoryError`, a world
+    whose memory kind the planner does not model when any (label, registered name) of ``named`` acts on the
+    planner's plan (``Agent.needs_planner``); ``who`` names the caller, the message the agent."""
+    for label, name in named:
+        cls = AGENTS.get(name)
+        if cls is not None and cls.needs_planner:
+            check_memory_kind(world, f"{who}: agent {label!r}")
 
 
 def check_spec(spec: dict[str, Any], where: str) -> None:

@@ -12,7 +12,7 @@ from collections.abc import Mapping, Sequence
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent
-from shortcut_gym.agents.planner import BoundedOptimalPlanner
+from shortcut_gym.agents.planner import BoundedOptimalPlanner, check_memory_kind
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.errors import DataError
@@ -50,6 +50,7 @@ def time_lost_vs_planner(world: World, agents: Mapping[str, Agent], seeds: Seque
                          planner_label: str = "bounded_optimal") -> pd.DataFrame:
     """Simulate the agents and the planner on the same seeds and score them against the planner."""
     runs = dict(agents)
+    check_memory_kind(world, "time_lost_vs_planner")
     if planner_label not in runs:
         runs[planner_label] = BoundedOptimalPlanner(world=world)
     return score_trials(simulate_trials(world, runs, seeds), planner_label)

@@ -8,7 +8,7 @@ from typing import Any
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent
-from shortcut_gym.agents.registry import agent_from_spec
+from shortcut_gym.agents.registry import agent_from_spec, refuse_planner_memory
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.world import World
@@ -36,6 +36,8 @@ def simulate_agents(world: World, specs: Sequence[dict[str, Any] | Agent], seeds
     object by its full spec.
     """
     labelled = [(label_of(s.spec()), s) if isinstance(s, Agent) else (label_of(s), agent_from_spec(s)) for s in specs]
+    refuse_planner_memory(world, [(label, a.name) for label, a in labelled if getattr(a, "world", None) is None],
+                          "simulate_agents")
     return labelled_trial_table(CommandSelectionEnv(world=world), labelled, seeds)
 
 

@@ -92,7 +92,15 @@ from shortcut_gym.agents.planner.break_even import PATH_USERS, break_even_table,
 from shortcut_gym.agents.planner.exact import ExactMDP, evaluate_exactly, exact_mdp, small_world
 from shortcut_gym.agents.planner.interpolation import GridConstants
 from shortcut_gym.agents.planner.mdp import GRID_HALF_WIDTH, CommandMDP, build_command_mdp
-from shortcut_gym.agents.planner.memory_model import N_GAP_QUANTILES, gap_distribution, weight_grid
+from shortcut_gym.agents.planner.memory_model import (
+    N_GAP_QUANTILES,
+    PLANNER_MEMORY_REASON,
+    PlannerMemoryError,
+    check_memory_kind,
+    gap_distribution,
+    planner_memory_refusal,
+    weight_grid,
+)
 from shortcut_gym.agents.planner.next_uses import NextUses, next_use_points
 from shortcut_gym.agents.planner.search import (
     SELECTION_USERS,
@@ -108,6 +116,7 @@ __all__ = [
     "GRID_HALF_WIDTH",
     "N_GAP_QUANTILES",
     "PATH_USERS",
+    "PLANNER_MEMORY_REASON",
     "SELECTION_SEED",
     "SELECTION_USERS",
     "ActionTimes",
@@ -118,11 +127,13 @@ __all__ = [
     "GridConstants",
     "NextUses",
     "Plan",
+    "PlannerMemoryError",
     "PolicyChoice",
     "action_rewards",
     "action_times",
     "break_even_table",
     "build_command_mdp",
+    "check_memory_kind",
     "evaluate_exactly",
     "exact_mdp",
     "expected_uses",
@@ -131,6 +142,7 @@ __all__ = [
     "learn_once_recall",
     "next_use_points",
     "plan_world",
+    "planner_memory_refusal",
     "predicted_time_s",
     "select_policy",
     "small_world",

@@ -23,6 +23,7 @@ from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy
 from shortcut_gym.agents.planner.batch import PlanLookupBatch, rule_policy
 from shortcut_gym.agents.planner.cache import timed_cached_plan
 from shortcut_gym.agents.planner.compiled_lookup import CompiledPlanLookup, lookup_tables
+from shortcut_gym.agents.planner.memory_model import check_memory_kind
 from shortcut_gym.agents.planner.next_uses import next_use_points
 from shortcut_gym.agents.planner.search import SELECTION_USERS, Plan, command_times
 from shortcut_gym.agents.planner.selection import rule_action
@@ -52,6 +53,7 @@ class BoundedOptimalPlanner(Agent):
     """
 
     name = "bounded_optimal"
+    needs_planner = True
 
     def __init__(self, context: AgentContext | None = None, world: World | dict | str | Path | None = None,
                  keyboard_share: float | None = None, n_bins: int = 40, n_weight_bins: int = 10,
@@ -70,6 +72,8 @@ class BoundedOptimalPlanner(Agent):
             raise ConfigError(f"{self.name}: n_weight_bins={n_weight_bins} must be a whole number >= 1")
         if int(select_users) != select_users or select_users < 0:
             raise ConfigError(f"{self.name}: select_users={select_users} must be a whole number >= 0")
+        if world is not None:
+            check_memory_kind(world, f"agent {self.name!r}")
         self.select_users = int(select_users)
         self.world = world
         self.keyboard_share = None if keyboard_share is None else float(keyboard_share)
@@ -95,11 +99,18 @@ class BoundedOptimalPlanner(Agent):
         return {"name": self.name, "keyboard_share": self.keyboard_share, "n_bins": self.n_bins,
                 "n_weight_bins": self.n_weight_bins, "select_users": self.select_users, "params": {}}
 
+    def bind(self, context: AgentContext) -> None:
+        """Attach the world facts; a bound world the planner cannot plan for is refused here."""
+        if self.world is None and context.world is not None:
+            check_memory_kind(context.world, f"agent {self.name!r}")
+        super().bind(context)
+
     def _world(self) -> World:
         w = self.world or (self.context.world if self.context is not None else None)
         if w is None:
             raise ConfigError(f"{self.name}: needs the world it plans for: make_agent('{self.name}', world=...) "
                               "or a context with .world")
+        check_memory_kind(w, f"agent {self.name!r}")
         return w
 
     def reset(self, seed: int | None = None) -> None:

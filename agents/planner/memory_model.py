@@ -22,11 +22,33 @@ QUANTILE_MIDPOINTS = (np.arange(N_GAP_QUANTILES) + 0.5) / N_GAP_QUANTILES
 SUPPORTED_KINDS = ("actr", "actr_exact", "exponential", "power")
 
 
-def check_memory_kind(world: World) -> None:
-    """Refuse a memory kind the planner does not model (spacing-sensitive decay)."""
-    if world.memory.kind not in SUPPORTED_KINDS:
-        raise ConfigError(f"the planner supports memory kinds actr, actr_exact, exponential, power; "
-                          f"got {world.memory.kind!r}")
+#: Why the planner refuses a memory kind outside :data:`SUPPORTED_KINDS`: the one wording every
+#: refusal uses (agents, library calls, subcommands), after naming who refuses and the kind.
+PLANNER_MEMORY_REASON = (
+    "the planner collapses a command's memory into two numbers (strength and total trace weight, every trace "
+    "decaying at one rate), and spacing-sensitive decay gives each trace its own rate; use the actr, actr_exact, "
+    "exponential or power memory kinds")
+
+
+class PlannerMemoryError(ConfigError):
+    """A world whose memory kind the planner cannot plan for (the message names who needed the plan)."""
+
+
+def planner_memory_refusal(world: World, who: str) -> str | None:
+    """The refusal of ``who`` (an agent, a library call or a subcommand that needs the planner) for
+    ``world``, or None when the planner models the world's memory kind."""
+    kind = world.memory.kind
+    if kind in SUPPORTED_KINDS:
+        return None
+    return f"{who}: memory kind {kind!r} is refused: {PLANNER_MEMORY_REASON}"
+
+
+def check_memory_kind(world: World, who: str = "the planner") -> None:
+    """Refuse a memory kind the planner does not model (spacing-sensitive decay) with
+    :class:`PlannerMemoryError` naming ``who`` needed the plan."""
+    refusal = planner_memory_refusal(world, who)
+    if refusal is not None:
+        raise PlannerMemoryError(refusal)
 
 
 def gap_distribution(world: World, command: int) -> tuple[np.ndarray, np.ndarray]:

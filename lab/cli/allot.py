@@ -5,7 +5,16 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, status, world_of
+from shortcut_gym.lab.cli.options import (
+    add_agent_options,
+    add_world_options,
+    agent_specs_of,
+    refuse_planner_agents,
+    refuse_planner_world,
+    spec_names,
+    status,
+    world_of,
+)
 from shortcut_gym.lab.cli.ranges import output_folder, seed, whole_number
 from shortcut_gym.lab.design.assignment import (
     budget_curve,
@@ -64,6 +73,10 @@ def run(args: argparse.Namespace) -> int:
                           f"commands, {len(pool)} free combinations (at most {most})")
     counts = {c.keystrokes for c in pool}
     specs = agent_specs_of(args)
+    if specs:
+        refuse_planner_agents(world, "allot", "--agent", spec_names(specs))
+    else:
+        refuse_planner_world(world, "allot (it prices every command by the planner; --agent prices by simulation)")
     if specs:
         table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users))
     else:

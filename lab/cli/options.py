@@ -12,11 +12,13 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 
 import argparse
 import logging
+from collections.abc import Iterable
 from pathlib import Path
 from typing import Any, NamedTuple
 
 import pandas as pd
 
+from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
 from shortcut_gym.agents.registry import AGENTS, check_spec, make_agent, read_agent_spec
 from shortcut_gym.envs.config import load_settings, read_yaml
 from shortcut_gym.envs.errors import ConfigError
@@ -163,6 +165,29 @@ def world_of(args: argparse.Namespace) -> World:
     world = make_world(scenario, args.costs, args.memory, schedule or None)
     detail(world_words(world, args))
     return world
+
+
+def refuse_planner_world(world: World, who: str) -> None:
+    """Refuse up front, before any computation, a world the planner cannot plan for when ``who``
+    (a subcommand, or a subcommand's option naming an agent) needs the planner (one wording:
+    :func:`~shortcut_gym.agents.planner.memory_model.planner_memory_refusal`)."""
+    refusal = planner_memory_refusal(world, who)
+    if refusal is not None:
+        raise CLIError(refusal)
+
+
+def refuse_planner_agents(world: World, command: str, option: str, named: Iterable[tuple[str, str]]) -> None:
+    """:func:`refuse_planner_world` for each (text as given, registered agent name) of ``named`` whose
+    agent acts on the planner's plan (``Agent.needs_planner``), named as ``command option 'text'``."""
+    for text, name in named:
+        cls = AGENTS.get(name)
+        if cls is not None and cls.needs_planner:
+            refuse_planner_world(world, f"{command} {option} {text!r}")
+
+
+def spec_names(specs: Iterable[dict[str, Any]]) -> list[tuple[str, str]]:
+    """(label or name, name) of agent spec dicts, for :func:`refuse_planner_agents`."""
+    return [(str(s.get("label") or s["name"]), str(s["name"])) for s in specs]
 
 
 def _scenario_source(args: argparse.Namespace) -> tuple[str, Path | None]:
@@ -322,6 +347,7 @@ def log_fit_inputs(args: argparse.Namespace) -> LogFitInputs:
     claim_output(args.out, args)
     world = world_of(args)
     specs = models_of(args)
+    refuse_planner_agents(world, args.command, "--model", [(s.label, s.name) for s in specs])
     priors = priors_of(args.prior, specs)
     ranges = start_ranges_of(args.start_range, specs)
     log = read_log(args.log, world.commands, args.skip_bad_participants)

@@ -10,7 +10,16 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.checks.population import default_population, read_population
 from shortcut_gym.lab.checks.recovery import model_recovery, parameter_recovery
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import MODEL_HELP, add_common, claim_output, models_of, status, world_of, world_words
+from shortcut_gym.lab.cli.options import (
+    MODEL_HELP,
+    add_common,
+    claim_output,
+    models_of,
+    refuse_planner_agents,
+    status,
+    world_of,
+    world_words,
+)
 from shortcut_gym.lab.cli.ranges import input_file, whole_number
 from shortcut_gym.lab.report import (
     fit_quality_section,
@@ -56,6 +65,8 @@ def run(args: argparse.Namespace) -> int:
     else:
         populations = [default_population(s, args.participants or 20) for s in models_of(args)]
     specs = [p.spec for p in populations]
+    refuse_planner_agents(world, "recover", "--model" if args.population is None else "--population",
+                          [(s.label, s.name) for s in specs])
     by_label = {p.spec.label: p for p in populations}
     if args.study in ("models", "both") and len(specs) < 2:
         raise CLIError("model recovery (--study models or both) needs at least two models")

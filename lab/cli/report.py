@@ -5,7 +5,14 @@ from __future__ import annotations
 import argparse
 
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_log_fit_options, covariance_of, log_fit_inputs, status, world_words
+from shortcut_gym.lab.cli.options import (
+    add_log_fit_options,
+    covariance_of,
+    log_fit_inputs,
+    refuse_planner_world,
+    status,
+    world_words,
+)
 from shortcut_gym.lab.cli.ranges import whole_number
 from shortcut_gym.lab.cli.yardstick import add_planner_options, planner_options_of
 from shortcut_gym.lab.rationality import PLANNED, rationality_analysis
@@ -46,6 +53,7 @@ def run(args: argparse.Namespace) -> int:
     entries: list = []
     sections: list = []
     if args.rationality:
+        refuse_planner_world(world, "report --rationality")
         learning = [s for s in specs if s.name != PLANNED]
         if any(s.label == PLANNED for s in learning):
             raise CLIError(f"--model: a learning model is labelled {PLANNED!r}, the name of the yardstick's own "

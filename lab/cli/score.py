@@ -5,20 +5,27 @@ from __future__ import annotations
 
 import argparse
 
+from shortcut_gym.agents.planner.memory_model import PLANNER_MEMORY_REASON
 from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.scoring import time_lost_vs_planner
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, detail, status, world_of
+from shortcut_gym.lab.cli.options import (
+    add_agent_options,
+    add_world_options,
+    agent_specs_of,
+    detail,
+    refuse_planner_world,
+    status,
+    world_of,
+)
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_number
 from shortcut_gym.lab.simulate import label_of
 
 PLANNER = "bounded_optimal"
 DESCRIPTION = (
     "Score agents against the dynamic-programming planner on the same simulated users: time lost per user "
-    "(seconds), adoption trial, hotkey share. Worlds with pavlik_anderson memory are refused: the planner "
-    "collapses a command's memory into two numbers (strength and total trace weight, every trace decaying at one "
-    "rate), and spacing-sensitive decay gives each trace its own rate; use the actr, actr_exact, exponential or "
-    "power memory kinds.")
+    "(seconds), adoption trial, hotkey share. Worlds with pavlik_anderson memory are refused: "
+    f"{PLANNER_MEMORY_REASON}.")
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -38,6 +45,7 @@ def run(args: argparse.Namespace) -> int:
     if args.seed + args.users - 1 > MAX_SEED:
         raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
     world = world_of(args)
+    refuse_planner_world(world, "score")
     specs = agent_specs_of(args, default=["always_menu", "always_hotkey", "learn_first_k:k=1"])
     agents = {}
     for spec in specs:

@@ -20,6 +20,8 @@ from shortcut_gym.lab.cli.options import (
     agent_specs_of,
     claim_output,
     detail,
+    refuse_planner_agents,
+    spec_names,
     status,
     world_of,
 )
@@ -76,6 +78,7 @@ def run_population(args: argparse.Namespace) -> int:
     except ConfigError as err:
         raise CLIError(str(err)) from None
     world = world_of(args)
+    refuse_planner_agents(world, "simulate", "--population", [(p.spec.label, p.spec.name) for p in populations])
     detail(f"population {args.population}: {sum(p.participants for p in populations)} participants from seed "
            f"{args.seed}; trial log {args.log}")
     rng = np.random.default_rng(args.seed)
@@ -109,6 +112,7 @@ def run(args: argparse.Namespace) -> int:
         raise CLIError(f"--seed {args.seed} with --users {args.users}: the last seed exceeds {MAX_SEED}")
     world = world_of(args)
     specs = agent_specs_of(args, default=["always_menu", "always_hotkey", "learn_first_k:k=1"])
+    refuse_planner_agents(world, "simulate", "--agent", spec_names(specs))
     detail(f"{args.users} users per agent, seeds {args.seed}..{args.seed + args.users - 1}; outputs: "
            + (", ".join(f"{name} {path}" for name, path in (("folder", args.out), ("trial log", args.log))
                         if path is not None) or "none (the table only)"))

@@ -18,6 +18,7 @@ from shortcut_gym.lab.cli.options import (
     claim_output,
     detail,
     parse_model,
+    refuse_planner_world,
     report_skipped,
     status,
     world_of,
@@ -68,6 +69,7 @@ def run(args: argparse.Namespace) -> int:
                        "models only")
     claim_output(args.out, args)
     world = world_of(args)  # the base world: its costs, memory and schedule, with each participant's own times
+    refuse_planner_world(world, "yardstick")
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
     detail(f"log {args.log}: {len(log)} trials of {log['participant'].nunique()} participants; learning models "

@@ -32,6 +32,8 @@ import numpy as np
 import pandas as pd
 from pydantic import Field, ValidationError
 
+from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
+from shortcut_gym.agents.registry import AGENTS
 from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.config import format_validation_error, load_settings, read_yaml
 from shortcut_gym.envs.errors import ConfigError
@@ -106,11 +108,28 @@ def parse_study(data: Any, source: str = "<aid study>") -> tuple[AidStudySpec, d
         raise ConfigError(f"{source}: population.path: the population axis cannot be an aid setting "
                           "(the aids are the other axis)")
     resolve_path(settings, spec.population.path, f"{source}: population.path")
-    agent_specs(sweep, source)
+    agents = agent_specs(sweep, source)
     for value in spec.population.values:
         for label, aid in aids.items():
             _world(settings, spec.population.path, value, aid, f"{source}: aids.{label} at {value!r}")
+    _refuse_planner_memory(spec, settings, agents, source)
     return spec, aids
+
+
+def _refuse_planner_memory(spec: AidStudySpec, settings: dict[str, Any], agents: list[tuple[str, dict[str, Any]]],
+                           source: str) -> None:
+    """Refuse, before anything is simulated, a planner agent on a population value whose world's
+    memory kind the planner does not model (the aids leave the memory as it is)."""
+    planners = [label for label, agent in agents if AGENTS[agent["name"]].needs_planner]
+    if not planners:
+        return
+    path = spec.population.path
+    for value in spec.population.values:
+        world = _world(settings, path, value, None, f"{source}: {path}={value!r}")
+        for label in planners:
+            refusal = planner_memory_refusal(world, f"{source}: agent {label!r} at {path}={value!r}")
+            if refusal is not None:
+                raise ConfigError(refusal)
 
 
 def load_study(path: str | Path) -> tuple[AidStudySpec, dict[str, AidSettings]]:
@@ -156,6 +175,7 @@ def run_study(spec: AidStudySpec, aids: dict[str, AidSettings], threads: int | N
     sweep = _as_sweep(spec)
     settings = base_settings(sweep)
     agents = agent_specs(sweep)
+    _refuse_planner_memory(spec, settings, agents, f"aid study {spec.name!r}")
     seeds = sweep.seed_list()
     if len(seeds) > MAX_USERS:
         raise ConfigError(f"users: at most {MAX_USERS:,} simulated users")

@@ -53,11 +53,12 @@ from shortcut_gym.agents.planner import (
     action_rewards,
     action_times,
     build_command_mdp,
+    check_memory_kind,
     expected_uses,
     plan_world,
     solve_finite_horizon,
 )
-from shortcut_gym.agents.registry import agent_from_spec
+from shortcut_gym.agents.registry import agent_from_spec, refuse_planner_memory
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs import CommandSelectionEnv, World
 from shortcut_gym.envs.errors import ConfigError, DataError
@@ -161,6 +162,7 @@ def planner_savings(world: World, keystrokes: Iterable[int] = (1, 2, 3), keyboar
     at the fixed hand share. A command used once has a one-stage problem: the best reward of the
     no-trace state (the menu: a hotkey without a trace fails, learning costs the menu and more).
     """
+    check_memory_kind(world, "planner_savings")
     ks = _check_share(keyboard_share)
     counts = tuple(sorted({int(k) for k in keystrokes}))
     if not counts or counts[0] < 1:
@@ -200,6 +202,8 @@ def population_savings(world: World, agents: Sequence[dict[str, Any]], keystroke
     """
     if not agents:
         raise ConfigError("population_savings needs at least one agent spec")
+    refuse_planner_memory(world, [(str(s.get("label") or s.get("name")), str(s.get("name"))) for s in agents],
+                          "population_savings")
     counts = tuple(sorted({int(k) for k in keystrokes}))
     n = world.commands.n_commands
     labelled = [(f"a{i}", agent_from_spec(s)) for i, s in enumerate(agents)]

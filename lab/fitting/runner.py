@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext
+from shortcut_gym.agents.registry import refuse_planner_memory
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.data.logs import participant_trials, participants
 from shortcut_gym.lab.fitting.nesting import nested_start, nesting_order
@@ -65,6 +66,8 @@ def fit_log(
     labels = [s.label for s in specs]
     if len(set(labels)) != len(labels):
         raise ConfigError(f"model labels must be unique, got {labels}")
+    if context.world is not None:
+        refuse_planner_memory(context.world, [(s.label, s.name) for s in specs], "fit_log")
     priors = {k: dict(v) for k, v in (priors or {}).items()}
     ranges = {k: dict(v) for k, v in (start_ranges or {}).items()}
     unknown = sorted((set(priors) | set(ranges)) - set(labels))

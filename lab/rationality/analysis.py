@@ -50,7 +50,7 @@ from scipy import optimize
 
 from shortcut_gym.agents.base import AgentContext, Transition
 from shortcut_gym.agents.planned_choice import BETA_MAX, cached_plan
-from shortcut_gym.agents.planner import break_even_table
+from shortcut_gym.agents.planner import break_even_table, check_memory_kind
 from shortcut_gym.agents.planner.valuation import executed_shares, executed_values
 from shortcut_gym.agents.rollout import context_of_world, drive_batch
 from shortcut_gym.envs.errors import ConfigError
@@ -314,6 +314,7 @@ def rationality_analysis(log: pd.DataFrame, base: World, learning: Sequence[Mode
     """
     from tqdm.auto import tqdm
 
+    check_memory_kind(base, "rationality_analysis")
     options = options or PlannerOptions()
     labels = [s.label for s in learning]
     if PLANNED in labels or len(set(labels)) != len(labels):

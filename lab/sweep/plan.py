@@ -13,7 +13,8 @@ import json
 from collections import OrderedDict
 from typing import Any
 
-from shortcut_gym.agents.registry import agent_from_spec
+from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
+from shortcut_gym.agents.registry import AGENTS, agent_from_spec
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World, make_world
 from shortcut_gym.lab.simulate import label_of
@@ -86,11 +87,16 @@ def plan_runs(spec: SweepSpec, source: str = "<sweep spec>") -> list[dict[str, A
     runs: list[dict[str, Any]] = []
     for p, point in enumerate(design_points(spec.vary)):
         settings = apply_overrides(base, point)
+        where = ", ".join(f"{k}={v!r}" for k, v in point.items()) or "the base setting"
         try:
-            world_from_settings(settings)
+            world = world_from_settings(settings)
         except ConfigError as err:
-            where = ", ".join(f"{k}={v!r}" for k, v in point.items()) or "the base setting"
             raise SweepSpecError(f"{source}: vary point {p} ({where}): {err}") from None
+        for label, agent_spec in agents:
+            if AGENTS[agent_spec["name"]].needs_planner:
+                refusal = planner_memory_refusal(world, f"{source}: vary point {p} ({where}): agent {label!r}")
+                if refusal is not None:
+                    raise SweepSpecError(refusal)
         for label, agent_spec in agents:
             body = {"point": point, "agent": agent_spec, "label": label, "seeds": seeds, "settings": settings,
                     "trial_tables": spec.outputs.trial_tables}

@@ -155,7 +155,7 @@ def _remove_plans(store: SweepStore) -> int | None:
 
 def _spec_and_source(spec: SweepSpec | dict | str | Path) -> tuple[SweepSpec, str]:
     if isinstance(spec, SweepSpec):
-        return spec, "<sweep spec>"
+        return spec, f"sweep spec {spec.name!r}"
     if isinstance(spec, dict):
         return parse_spec(spec), "<sweep spec>"
     return load_spec(spec), str(spec)
