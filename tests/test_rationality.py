@@ -168,6 +168,16 @@ def test_report_rationality_adds_the_yardstick_section_with_the_simulated_headli
     np.testing.assert_allclose(per["observed_time_s"], totals.loc[per["participant"]].to_numpy(), rtol=1e-12)
     np.testing.assert_allclose(per["simulated_time_lost_s"], per["observed_time_s"] - per["optimum_time_s"])
     assert (per["simulated_time_lost_se"] > 0).all() and (per["n_sims"] == 8).all()
+    # the verdict says that it leaves planned_choice out and what the rationality section finds for it
+    verdict = index.split("## Verdict", 1)[1].split("\n## ", 1)[0]
+    group = pd.read_csv(tmp_path / "report" / "rationality_group.csv").set_index("figure")["value"]
+    share = group["participants better explained by planned_choice (BIC)"]
+    assert "compares the `--model` models only" in verdict and f"{share:.0%} of the participants" in verdict
+    # the rationality choice fits have their own fit-quality section, listing every doubtful one
+    fits = pd.read_csv(tmp_path / "report" / "rationality_fits.csv", dtype={"participant": str})
+    quality = index.split("## Fit quality (rationality choice fits)", 1)[1].split("\n## ", 1)[0]
+    for _, bad in fits[~fits["fit_ok"]].iterrows():
+        assert bad["participant"] in quality and bad["model"] in quality
     # without the flag the report has no such section
     assert main(["report", *common, *models, "--sims", "2", "--out", str(tmp_path / "plain")]) == 0
     assert "Rationality" not in (tmp_path / "plain" / "index.md").read_text()
@@ -191,3 +201,22 @@ def test_participants_whose_durations_cannot_show_an_operator_are_named_with_it(
     assert "`menu-0`" in text and "keystroke_s" in text
     listed = {line.split("`")[1] for line in text.splitlines() if line.startswith("- `")}
     assert listed == {p for p in per.index if per.loc[p, "held_operators"]}
+
+
+def test_the_rationality_plots_leave_the_global_backend_alone(analysed, tmp_path):
+    import subprocess
+    import sys
+
+    _, res = analysed
+    res.participants.to_pickle(tmp_path / "per.pkl")
+    code = (
+        "import matplotlib, sys; matplotlib.use('svg'); import pandas as pd; "
+        "from shortcut_gym.lab.rationality.report import plot_rationality_index, plot_time_lost; "
+        f"per = pd.read_pickle({str(tmp_path / 'per.pkl')!r}); "
+        f"plot_time_lost(per, __import__('pathlib').Path({str(tmp_path / 't.png')!r})); "
+        f"plot_rationality_index(per, __import__('pathlib').Path({str(tmp_path / 'r.png')!r})); "
+        "print(matplotlib.get_backend(), 'matplotlib.pyplot' in sys.modules)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
+    assert out == ["svg", "False"]
+    assert (tmp_path / "t.png").stat().st_size > 1000 and (tmp_path / "r.png").stat().st_size > 1000

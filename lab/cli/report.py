@@ -16,7 +16,7 @@ from shortcut_gym.lab.cli.options import (
 from shortcut_gym.lab.cli.ranges import whole_number
 from shortcut_gym.lab.cli.yardstick import add_planner_options, planner_options_of
 from shortcut_gym.lab.rationality import PLANNED, rationality_analysis
-from shortcut_gym.lab.rationality.report import write_rationality
+from shortcut_gym.lab.rationality.report import verdict_scope, write_rationality
 from shortcut_gym.lab.report import analyse_log
 
 
@@ -52,6 +52,7 @@ def run(args: argparse.Namespace) -> int:
     world, specs, priors, ranges, log = log_fit_inputs(args)
     entries: list = []
     sections: list = []
+    note = ""
     if args.rationality:
         refuse_planner_world(world, "report --rationality")
         learning = [s for s in specs if s.name != PLANNED]
@@ -63,13 +64,14 @@ def run(args: argparse.Namespace) -> int:
         result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed,
                                       args.jobs, args.duration_noise, args.optimum_sims, progress=not args.quiet)
         entries, sections = write_rationality(result, args.out)  # beside the report's own files, no name shared
+        note = verdict_scope(result)
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
                                 args.block, priors, args.knockout, not args.quiet,
                                 args.hierarchical, args.cross_validate, intervals=args.intervals,
                                 start_ranges=ranges, covariance=covariance_of(args),
                                 extra_sections=[("Study world", world_words(world, args)
                                                  + " The posterior-predictive simulations run on it."), *sections],
-                                extra_entries=entries)
+                                extra_entries=entries, verdict_note=note)
     print(tables["summed"].to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(tables["bms"].to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     status(f"report in {index.parent}")

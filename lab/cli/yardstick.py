@@ -80,7 +80,7 @@ def run(args: argparse.Namespace) -> int:
     entries, sections = write_rationality(result, args.out)
     sections.append(("Study world", world_words(world, args) + " Each participant's own world is this one with "
                                                                "their fitted operator times."))
-    index = write_index(args.out, entries, "Rationality against each participant's own optimum", sections)
+    index = write_index(args.out, entries, "Yardstick: each participant against their own optimum", sections)
     cols = [c for c in HEADLINE_COLUMNS + ("better_model",) if c in result.participants.columns]
     print(result.participants[cols].to_string(index=False, float_format=lambda v: f"{v:.3g}"))
     print(result.group.to_string(index=False, float_format=lambda v: f"{v:.3g}"))

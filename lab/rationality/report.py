@@ -3,33 +3,37 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
 from shortcut_gym.lab.rationality.analysis import PLANNED, RationalityResult
 from shortcut_gym.lab.report.markdown import markdown_table, write_table
+from shortcut_gym.lab.report.sections import fit_quality_section
 
 #: The per-participant columns the report and the CLI show first (headline, its SE, decomposition).
 HEADLINE_COLUMNS = ("participant", "simulated_time_lost_s", "simulated_time_lost_se", "q_time_lost_s",
                     "optimal_share", "beta", "beta_low", "beta_high")
 
 
-def _plt():
-    import matplotlib
+def _figure(**kwargs: Any) -> Any:
+    """A matplotlib ``Figure`` (object API: no pyplot, the global backend is left alone)."""
+    from matplotlib.figure import Figure
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
+    return Figure(**kwargs)
 
 
 def plot_time_lost(per: pd.DataFrame, path: Path) -> Path:
-    """Per participant: simulated time lost (with a 95% Monte Carlo interval) beside the decomposition
-    from the planner's values, s."""
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(max(5.0, 0.35 * len(per) + 2), 3.2))
+    """Per participant: simulated time lost with its 95% Monte Carlo interval (error bar) and +-2
+    planner SDs (grey band: the luck one history carries, ``optimum_time_sd_s``), beside the
+    decomposition from the planner's values, s."""
+    fig = _figure(figsize=(max(5.0, 0.35 * len(per) + 2), 3.2))
+    ax = fig.subplots()
     x = np.arange(len(per))
+    if "optimum_time_sd_s" in per:
+        luck = 2 * per["optimum_time_sd_s"].fillna(0.0).to_numpy()
+        ax.bar(x - 0.2, 2 * luck, 0.5, bottom=-luck, color="0.85", label="+-2 SD of one optimal history (luck)")
     ax.bar(x - 0.2, per["simulated_time_lost_s"], 0.4, yerr=1.96 * per["simulated_time_lost_se"].fillna(0.0),
            label="logged - optimum (simulated on own schedule)")
     ax.bar(x + 0.2, per["q_time_lost_s"], 0.4, label="sum of Q(a*) - Q(a) (approximate decomposition)")
@@ -39,24 +43,25 @@ def plot_time_lost(per: pd.DataFrame, path: Path) -> Path:
     ax.legend(fontsize=7)
     fig.tight_layout()
     fig.savefig(path, dpi=110)
-    plt.close(fig)
     return path
 
 
 def plot_rationality_index(per: pd.DataFrame, path: Path) -> Path:
-    """Inverse temperature with its 95% profile interval against the share of optimal choices."""
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(5, 3.4))
+    """Inverse temperature with its 95% profile interval against the share of optimal choices,
+    each point labelled with its participant."""
+    fig = _figure(figsize=(5, 3.4))
+    ax = fig.subplots()
     beta = per["beta"].clip(lower=1e-3)
     low = (beta - per["beta_low"].clip(lower=1e-3)).clip(lower=0)
     high = (per["beta_high"] - beta).clip(lower=0)
     ax.errorbar(per["optimal_share"], beta, yerr=[low, high], fmt="o", ms=4, capsize=2)
+    for pid, xv, yv in zip(per["participant"], per["optimal_share"], beta, strict=True):
+        ax.annotate(str(pid), (xv, yv), textcoords="offset points", xytext=(3, 3), fontsize=6)
     ax.set_yscale("log")
     ax.set_xlabel("share of optimal choices")
     ax.set_ylabel("inverse temperature beta (1/s)")
     fig.tight_layout()
     fig.savefig(path, dpi=110)
-    plt.close(fig)
     return path
 
 
@@ -104,8 +109,26 @@ def write_rationality(result: RationalityResult, out: Path) -> tuple[list[tuple[
          + markdown_table(crosstab, index=True)
          + "\n\n![time lost](time_lost.png)\n\n![rationality index](rationality_index.png)"),
         ("Participants judged partly on the study's operator times", held_operators_text(held, len(per))),
+        ("Fit quality (rationality choice fits)",
+         fit_quality_section(result.fits, "`rationality_fits.csv` for every choice fit")[1]),
     ]
     return entries, sections
+
+
+def verdict_scope(result: RationalityResult) -> str:
+    """The sentence a report's verdict adds when the rationality section is there: planned_choice is
+    not among the models the verdict compares, and what the section finds for it."""
+    group = dict(zip(result.group["figure"], result.group["value"], strict=True)) if len(result.group) else {}
+    share = group.get(f"participants better explained by {PLANNED} (BIC)")
+    pxp = group.get(f"BMS protected exceedance probability of {PLANNED}")
+    found = ""
+    if share is not None and np.isfinite(share):
+        found = f": {share:.0%} of the participants are better explained by it than by the learning models (BIC)"
+        if pxp is not None and np.isfinite(pxp):
+            found += f", BMS protected exceedance probability {pxp:.2f}"
+    return (f"This verdict compares the `--model` models only. `{PLANNED}` (softmax over the yardstick planner's "
+            "values in each participant's own world) is fitted per participant in the section \"Rationality "
+            f"against each participant's own optimum\"{found}.")
 
 
 def held_operators_text(held: pd.DataFrame, n: int) -> str:

@@ -58,13 +58,14 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
                 cross_validated: bool = False, extra_sections: Sequence[tuple[str, str]] = (),
                 extra_entries: Sequence[tuple[Path, str]] = (),
                 intervals: str = "wald", start_ranges: dict | None = None, covariance: str = "diagonal",
-                ) -> tuple[Path, dict[str, pd.DataFrame]]:
+                verdict_note: str = "") -> tuple[Path, dict[str, pd.DataFrame]]:
     """Fit, compare, posterior-predictive check (and optional knock-out) of a validated log into ``out``.
 
     ``index.md`` gives the findings (verdict, tables, plots) then the files; ``extra_sections`` and
     ``extra_entries`` (already written) are added to it. ``hierarchical`` adds the hierarchical fits
     (iBIC; group prior ``covariance`` "diagonal" or "full"), ``cross_validated`` the
-    leave-one-session-out comparison; the verdict then weighs them too. Returns (index path, the tables by name).
+    leave-one-session-out comparison; the verdict then weighs them too. ``verdict_note`` is added to
+    the verdict (what it leaves out). Returns (index path, the tables by name).
     """
     by_label = {s.label: s for s in specs}
     if knockout is not None:  # checked before any fit is made
@@ -117,6 +118,8 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     if hierarchical or cross_validated:
         verdict = dict(sections)["Verdict"] + "\n\n" + agreement_words(criterion_winners(summed, bms, ibic, cv))
         sections[0] = ("Verdict", verdict)
+    if verdict_note:  # what the verdict leaves out (the rationality section's own model)
+        sections[0] = ("Verdict", dict(sections)["Verdict"] + "\n\n" + verdict_note)
     sections.append(("Posterior-predictive check", predictive_words(block, n_sims, float(group["interval"].iloc[0]))))
     if knockout is not None:
         ko, ko_fits = knockout_study(log, by_label[knockout], world, n_starts, seed, n_jobs, progress)
