@@ -149,3 +149,26 @@ def test_the_age_table_holds_each_memory_kinds_decay_factor_of_every_trial_pair(
         np.testing.assert_allclose(tables.ages[i[later], j[later]], want, rtol=1e-13, err_msg=m.kind)
         # every next use sits on the trial it names
         np.testing.assert_array_equal(clock[tables.next_trial], tables.next_clock)
+
+
+def test_shared_next_use_points_name_the_first_earlier_point_with_the_same_clock_and_share() -> None:
+    from shortcut_gym.agents.planner.compiled_lookup import same_points
+    rng = np.random.default_rng(3)
+    clock = rng.integers(0, 3, size=(2, 5, 8)).astype(float)  # few values: many repeats
+    fresh = rng.integers(0, 2, size=(2, 5, 8)) * 0.5
+    got = same_points(clock, fresh)
+    for c, t, g in np.ndindex(*clock.shape):  # brute force: the first g' < g equal in both
+        want = next((h for h in range(g) if clock[c, t, h] == clock[c, t, g] and fresh[c, t, h] == fresh[c, t, g]),
+                    -1)
+        assert got[c, t, g] == want, (c, t, g)
+    # the planner's own tables repeat points (a frequent command's short gaps), so the bit-for-bit
+    # tests above run through the shared points
+    world = make_world(schedule=SCHEDULE, memory=WORLDS[0][0], aids=WORLDS[0][1], costs=WORLDS[0][2])
+    agent = _planner(world)
+    agent.bind(context_of_world(world))
+    tables = lookup_tables(agent)
+    assert tables is not None and (tables.same_point >= 0).any()
+    src = tables.same_point
+    c, t, g = np.nonzero(src >= 0)
+    np.testing.assert_array_equal(tables.next_clock[c, t, g], tables.next_clock[c, t, src[c, t, g]])
+    np.testing.assert_array_equal(tables.fresh[c, t, g], tables.fresh[c, t, src[c, t, g]])

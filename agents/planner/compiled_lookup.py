@@ -7,7 +7,9 @@ per-user scratch arrays and :meth:`BoundedOptimalPlanner.action_values` rebuilt 
 operation: the exact trial cost of the tracked activation, the interface aids' terms, the warm-up
 block's traces, and the future term (the plan's V bilinear in activation and log weight at the
 N_GAP_QUANTILES next-use points, averaged in numpy's pairwise order). Ties go to the lowest action
-index, as ``argmax``. Everything the lookup reads is tabulated once per plan (:func:`lookup_tables`).
+index, as ``argmax``. Everything the lookup reads is tabulated once per plan (:func:`lookup_tables`);
+a next-use point with the same clock and share as an earlier one of its trial copies that point's
+values (:func:`same_points`: the same doubles in, the same doubles out).
 
 Compiled: a "plan" choice (restricted to some commands or not) for memory kinds actr (hybrid base
 level), actr_exact, exponential and power, aids on or off. Kept on the Python path
@@ -71,6 +73,7 @@ class LookupTables(NamedTuple):
     grid: GridConstants
     ages: np.ndarray  # (horizon, horizon): decay factor at trial i's clock of a trace laid at trial j's; or (0, 0)
     next_trial: np.ndarray  # (commands, horizon - 1, G) int64: a trial whose clock is next_clock; or (0, 0, 0)
+    same_point: np.ndarray  # (commands, horizon - 1, G) int64: an earlier point g' with the same clock and share, or -1
 
 
 def lookup_tables(agent: "BoundedOptimalPlanner", values_only: bool = False) -> LookupTables | None:
@@ -128,7 +131,19 @@ def lookup_tables(agent: "BoundedOptimalPlanner", values_only: bool = False) -> 
                         value_row, values, next_clock,
                         np.ascontiguousarray(nu.fresh, dtype=np.float64), times, cmdc,
                         np.ascontiguousarray(agent._new_weights, dtype=np.float64),
-                        np.flatnonzero(agent._cmdc[:, k.C_WARMUP_S] > 0).astype(np.int64), g0, ages, next_trial)
+                        np.flatnonzero(agent._cmdc[:, k.C_WARMUP_S] > 0).astype(np.int64), g0, ages, next_trial,
+                        same_points(next_clock, np.asarray(nu.fresh, dtype=np.float64)))
+
+
+def same_points(next_clock: np.ndarray, fresh: np.ndarray) -> np.ndarray:
+    """For each next-use point (c, t, g): the first earlier point g' of (c, t) with the same clock
+    and the same fresh share (the same doubles, so the same values there), else -1."""
+    out = np.full(next_clock.shape, -1, dtype=np.int64)
+    for g in range(1, next_clock.shape[-1]):
+        for h in range(g - 1, -1, -1):  # the earliest match wins: walk down, keep overwriting
+            hit = (next_clock[..., h] == next_clock[..., g]) & (fresh[..., h] == fresh[..., g])
+            out[..., g] = np.where(hit, h, out[..., g])
+    return out
 
 
 # ---- compiled memory of one user ------------------------------------------------------------------------
@@ -367,6 +382,11 @@ def action_values_user(tab, mem, c, trial, nw, pts, cell, frac):
         for j in range(4):  # the weight after each trace is the same at every point: its log once
             cell[j], frac[j] = weight_coordinate(weight + nw[j], tab.grid)
         for g in range(pts.shape[1]):
+            src = tab.same_point[c, trial, g]
+            if src >= 0:  # the same clock and share as an earlier point: the same values
+                for j in range(4):
+                    pts[j, g] = pts[j, src]
+                continue
             act = _activation(tab, mem, c, tab.next_clock[c, trial, g], tab.next_trial[c, trial, g] if tabled else -1)
             old = math.exp(act) if act > -np.inf else 0.0
             fr = tab.fresh[c, trial, g]
