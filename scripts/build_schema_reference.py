@@ -233,7 +233,8 @@ def population_section() -> list[str]:
             for d in DISTRIBUTIONS]
     out += ["", "`simulate --population FILE --log LOG` writes the true parameters beside the log as "
             "`<log stem>_truth.csv`: one row per participant with `participant`, `model` (the label), `agent`, "
-            "`options` (the agent's options as JSON) and one column per parameter of the agent (free and fixed)."]
+            "`options` (the agent's options as JSON) and one column per parameter of the agent (free and fixed). "
+            "Participants are named `<label>-<index>` (index 0, 1, ... within each model's block of the spec)."]
     return out + [""]
 
 

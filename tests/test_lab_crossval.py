@@ -50,7 +50,7 @@ def test_generating_model_wins_on_held_out_sessions(generator):
 def test_session_shares_equal_the_replayed_per_trial_probabilities(spec):
     # compiled agents through prefix differences, the random baseline through the replay
     log = validate_log(simulate_known(WORLD, M3, 1, np.random.default_rng(2))[0], WORLD.commands)
-    trials = participant_trials(log, "sim0-0")
+    trials = participant_trials(log, "sim0")
     ctx = AgentContext(WORLD.commands.n_commands, len(trials), WORLD.commands.names)
     agent = spec.build(ctx)
     rng = np.random.default_rng(5)

@@ -59,8 +59,8 @@ def simulate_known(world: World, spec: ModelSpec, n_participants: int, rng: np.r
         params = population.draw(rng) if population is not None else draw_parameters(spec, rng, ranges)
         agent_spec = ModelSpec(spec.name, spec.label, spec.options, {**dict(spec.fixed), **params})
         log = simulate_log(world, agent_spec, 1, rng, prefix=f"{prefix}{i}")
-        frames.append(log)
-        truth.append({"participant": f"{prefix}{i}-0", **params})
+        frames.append(log.assign(participant=f"{prefix}{i}"))  # one user per participant: <prefix><index>
+        truth.append({"participant": f"{prefix}{i}", **params})
     return pd.concat(frames, ignore_index=True), pd.DataFrame(truth)
 
 
