@@ -138,6 +138,11 @@ class Agent(ABC):
     #: refuse a world whose memory kind the planner does not model
     #: (:func:`shortcut_gym.agents.planner.memory_model.check_memory_kind`)
     needs_planner: ClassVar[bool] = False
+    #: True when ``bind`` rebuilds (or ``reset`` rebuilds) everything the agent derives from the bound
+    #: world, so an agent bound to one world may be bound again to another: the drivers
+    #: (:func:`shortcut_gym.agents.rollout.bind_for_world`) rebind it when it runs on another world,
+    #: and refuse an agent with False naming both worlds
+    rebinds: ClassVar[bool] = True
 
     def __init__(self, context: AgentContext | None = None, **params: float) -> None:
         self.context = context
@@ -151,6 +156,11 @@ class Agent(ABC):
     def bind(self, context: AgentContext) -> None:
         """Attach the world facts (command count, horizon) before the first ``reset``."""
         self.context = context
+
+    def own_world(self) -> Any:
+        """The world the agent was built for, whatever it is bound to (None: it acts for the bound
+        context's world). The planner agents built with ``world=`` return it."""
+        return None
 
     def param_specs(self) -> dict[str, ParamSpec]:
         """The agent's fittable parameters by name (empty for fixed agents)."""

@@ -165,6 +165,11 @@ class PlannedChoice(Agent):
         if self.world is None and context.world is not None:
             check_memory_kind(context.world, f"agent {self.name!r}")
         super().bind(context)
+        self._planner = None  # the next reset fetches the plan of the bound world
+
+    def own_world(self) -> World | None:
+        """The ``world=`` the agent was built with (None: it plans for the bound context's world)."""
+        return self.world
 
     def plan_key(self) -> tuple:
         """Cache key of this agent's plan and logged values: the world's content digest and the options."""

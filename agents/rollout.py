@@ -33,12 +33,12 @@ from shortcut_gym.agents.base import (
     SessionBatchPolicy,
     Transition,
 )
-from shortcut_gym.agents.world_record import WorldRecorded
-from shortcut_gym.envs.errors import ConfigError, UsageError
+from shortcut_gym.agents.world_record import WorldRecorded, describe, differing_parts, world_record
+from shortcut_gym.envs.errors import ConfigError, UsageError, WorldMismatchError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.kernel import N_OPS, OUTCOME_NAMES
 from shortcut_gym.envs.simulator import BatchSimulator
-from shortcut_gym.envs.world import World
+from shortcut_gym.envs.world import World, same_world
 from shortcut_gym.envs.wrappers import TRIAL_COLUMNS, trial_row
 
 
@@ -53,17 +53,57 @@ def context_of(env: gym.Env) -> AgentContext:
     return context_of_world(env.unwrapped.world)  # type: ignore[attr-defined]
 
 
+def _words(world: World) -> str:
+    return describe(world_record(world))
+
+
+def check_own_world(agent: Agent, world: World, where: str) -> None:
+    """Refuse an agent built for its own world (``Agent.own_world``) on a world posing another problem
+    (:meth:`World.problem_digest`), naming both worlds and the parts that differ."""
+    own = agent.own_world()
+    if own is None or own is world or own.problem_digest() == world.problem_digest():
+        return
+    parts = differing_parts(world_record(own), world_record(world))
+    raise WorldMismatchError(
+        f"{where}: agent {agent.name!r} was built for the world {_words(own)} (its world= option) and runs on "
+        f"the world {_words(world)} ({', '.join(parts) or 'their contents'} differ); build it without world= "
+        "to act for the world it runs on, or run it on its own world")
+
+
+def bind_for_world(agent: Agent, world: World, horizon: int | None = None, where: str = "run_episode") -> None:
+    """Make ``agent`` act for ``world`` before a driver runs it there (``horizon``: trials per user
+    when it is bound here, the world's by default).
+
+    Unbound: bound to ``world``. Bound to another world (by content, :meth:`World.digest`; a context
+    without a world counts as another): bound again when the agent rebinds (``Agent.rebinds``: its
+    world-derived state is rebuilt), else refused with :class:`WorldMismatchError` naming both
+    worlds. A context bound to this world is kept (its horizon too). An agent built for its own
+    world (``Agent.own_world``, the planners' ``world=``) acts for that world whatever it is bound
+    to, so it is refused on a world posing another problem (:meth:`World.problem_digest`). A trained
+    model (:class:`WorldRecorded`) is then checked against ``world`` as its record says.
+    """
+    check_own_world(agent, world, where)
+    context = agent.context
+    if context is None or not same_world(context.world, world):
+        if context is not None and not agent.rebinds:
+            bound = "a context without a world" if context.world is None else f"the world {_words(context.world)}"
+            raise WorldMismatchError(
+                f"{where}: agent {agent.name!r} is bound to {bound} and runs on the world {_words(world)}; it "
+                "cannot be bound again (its state is not rebuilt on bind): build a new agent for this world")
+        agent.bind(context_of_world(world, horizon))
+    if isinstance(agent, WorldRecorded):  # a trained model must meet its own world here too
+        agent.check_world(world)
+
+
 def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials: int | None = None) -> pd.DataFrame:
     """One simulated user: reset env and agent with ``seed``, step until the episode ends
     (terminated at the schedule's end, or truncated by a wrapper such as ``TimeLimit``).
 
-    Returns one row per trial: trial, session, onset_s, command, command_name, action (name),
+    The agent is bound to the env's world first, or bound again when it was bound to another
+    (:func:`bind_for_world`). Returns one row per trial: trial, session, onset_s, command, command_name, action (name),
     outcome, duration_s, p_recall and the time breakdown ``t_<operator>`` columns.
     """
-    if agent.context is None:
-        agent.bind(context_of(env))
-    elif isinstance(agent, WorldRecorded):  # a trained model bound before: it must meet its own world here too
-        agent.check_world(env.unwrapped.world)  # type: ignore[attr-defined]
+    bind_for_world(agent, env.unwrapped.world)  # type: ignore[attr-defined]
     obs, info = env.reset(seed=seed)
     agent.reset(seed)
     rows = []
@@ -197,7 +237,8 @@ class _AgentStepper:
 
 def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_batch_policy: bool = True,
                 fused: bool = True, keep_trials: bool = False) -> BatchRollout:
-    """Run every user of ``sim`` (just reset) to its horizon with ``agent`` (bound to the world).
+    """Run every user of ``sim`` (just reset) to its horizon with ``agent`` (bound to the world; one
+    bound to another world is bound again to the simulator's, with its horizon: :func:`bind_for_world`).
 
     User ``b``'s agent draws what the agent reset with ``seeds[b]`` draws. ``use_batch_policy``
     False drives one agent object per user even when a batch policy exists; ``fused`` False keeps
@@ -209,8 +250,12 @@ def drive_batch(sim: BatchSimulator, agent: Agent, seeds: Sequence[int], use_bat
         raise UsageError("drive_batch needs a simulator just reset (trial 0)")
     if len(seeds) != sim.n_users:
         raise ConfigError(f"{len(seeds)} agent seeds for {sim.n_users} simulated users")
-    if isinstance(agent, WorldRecorded):
-        agent.check_world(sim.world)
+    if agent.context is not None:  # bound to another world: bound again to the simulator's (or refused)
+        bind_for_world(agent, sim.world, sim.horizon, "drive_batch")
+    else:
+        check_own_world(agent, sim.world, "drive_batch")
+        if isinstance(agent, WorldRecorded):
+            agent.check_world(sim.world)
     stepper: _PolicyStepper | _AgentStepper
     if use_batch_policy and isinstance(agent, BatchAgent):
         policy = agent.batch_policy(sim.n_users, seeds)

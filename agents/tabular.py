@@ -150,12 +150,10 @@ class TabularAgent(WorldRecorded, Agent):
 
     def train(self, env: Any, episodes: int, seed: int = 0, progress_bar: bool = True) -> pd.DataFrame:
         """Learn for ``episodes`` simulated users (seeds seed, seed+1, ...); returns total time per episode."""
-        from shortcut_gym.agents.rollout import context_of
+        from shortcut_gym.agents.rollout import bind_for_world
 
-        if self.context is None:
-            self.bind(context_of(env))
         world = env.unwrapped.world
-        self.check_world(world)
+        bind_for_world(self, world, where=f"{self.name} train")  # checks a trained table's world too
         self.learning = True
         totals = []
         try:

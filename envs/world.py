@@ -211,6 +211,14 @@ class World:
         return World(**fields)
 
 
+def same_world(a: World | None, b: World | None) -> bool:
+    """Whether ``a`` and ``b`` are the same world by content (:meth:`World.digest`); None is only
+    the same as None."""
+    if a is b:
+        return True
+    return a is not None and b is not None and a.digest() == b.digest()
+
+
 def _feed(h: Any, name: str, value: Any) -> None:
     """Add one named field of a world to the hash ``h``."""
     h.update(name.encode())

@@ -37,7 +37,7 @@ from shortcut_gym.envs.memory import (
     recall_probability,
 )
 from shortcut_gym.envs.task import session_onsets
-from shortcut_gym.envs.world import World, make_world
+from shortcut_gym.envs.world import World, make_world, same_world
 
 
 class BoundedOptimalPlanner(Agent):
@@ -103,7 +103,16 @@ class BoundedOptimalPlanner(Agent):
         """Attach the world facts; a bound world the planner cannot plan for is refused here."""
         if self.world is None and context.world is not None:
             check_memory_kind(context.world, f"agent {self.name!r}")
+        before = self.context.world if self.context is not None else None
         super().bind(context)
+        if self.world is None and not same_world(before, context.world):  # plan again for the new world
+            self.plan = None
+            self._times_for = None
+            self._lookup_for = None
+
+    def own_world(self) -> World | None:
+        """The ``world=`` the agent was built with (None: it plans for the bound context's world)."""
+        return self.world
 
     def _world(self) -> World:
         w = self.world or (self.context.world if self.context is not None else None)

@@ -239,13 +239,12 @@ def evaluate_exactly(world: World, agent: Agent, max_states: int = MAX_STATES) -
     to the same state). Memoised by the simulator state, so the agent's decision must be a function
     of it (true of both).
     """
-    from shortcut_gym.agents.rollout import context_of_world
+    from shortcut_gym.agents.rollout import bind_for_world
     from shortcut_gym.envs.kernel import OUTCOME_NAMES
 
     kern = _Kernel(world)
     names = world.commands.names
-    if agent.context is None:
-        agent.bind(context_of_world(world))
+    bind_for_world(agent, world, where="evaluate_exactly")
     agent.reset(0)
     obs = np.zeros(len(world.observation_names()), dtype=np.float32)
     memo: dict[tuple[int, bytes], float] = {}

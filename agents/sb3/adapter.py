@@ -27,7 +27,7 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.frozen_policy import UserDraws
-from shortcut_gym.agents.rollout import context_of, evaluate_agent
+from shortcut_gym.agents.rollout import bind_for_world, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
 from shortcut_gym.agents.sb3.hyperparameters import gather_hyperparameters
@@ -97,11 +97,8 @@ class SB3Agent(WorldRecorded, Agent):
         from shortcut_gym.envs.world import World
 
         world = env_or_world if isinstance(env_or_world, World) else env_or_world.unwrapped.world
-        if self.context is None:
-            from shortcut_gym.envs.env import CommandSelectionEnv
-
-            self.bind(context_of(CommandSelectionEnv(world=world)))
-        self.check_world(world)  # a loaded model trained further: on its own world only, unless allowed
+        # a loaded model trained further: on its own world only, unless allowed
+        bind_for_world(self, world, where=f"{self.name} train")
         self.model, obs_norm = train_model(self.algorithm, self.hyperparameters, world, total_timesteps, seed, n_envs,
                                            self.normalize, self.model, f"train {self.name}" if progress_bar else None)
         if obs_norm is not None:
