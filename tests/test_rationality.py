@@ -88,6 +88,15 @@ def test_commands_say_where_learning_pays_and_the_group_table_has_the_figures(an
     assert set(cmd["participant"]) == {"plan-0", "menu-0"}
     assert cmd["learning_pays"].any() and not cmd["learning_pays"].all()
     assert not cmd.loc[cmd["participant"] == "menu-0", "learned"].any()
+    # learning pays where the optimum itself learns or uses the hotkey on the participant's history
+    trials = res.trials
+    for (pid, c), row in cmd.set_index(["participant", "command"]).iterrows():
+        mine = trials[(trials["participant"] == pid) & (trials["command"] == c)]
+        assert row["learning_pays"] == (mine["optimal_action"] != "menu").any(), (pid, c)
+    # so the planner's own participant never "learned where learning does not pay"
+    plan = cmd[cmd["participant"] == "plan-0"]
+    assert plan["learned"].any() and not (plan["learned"] & ~plan["learning_pays"]).any()
+    assert {"break_even_pays", "break_even_uses"} <= set(cmd.columns)
     figures = set(res.group["figure"])
     assert {"mean simulated_time_lost_s", "mean q_time_lost_s", "mean optimal_share", "median beta"} <= figures
     assert {"joint_loglik", "joint_bic"} <= set(res.fits.columns)

@@ -32,7 +32,7 @@ def logged():
     return participant_trials(log, log["participant"].iloc[0])
 
 
-def test_a_continued_schedule_keeps_the_logged_trials_and_runs_on_in_the_last_session(logged) -> None:
+def test_a_continued_schedule_keeps_the_logged_trials_and_runs_on_in_a_session_of_its_own(logged) -> None:
     schedule = schedule_of(logged)
     for horizon, command in ((20, None), (21, None), (35, 3)):
         longer = continued_schedule(schedule, horizon, command)
@@ -41,7 +41,7 @@ def test_a_continued_schedule_keeps_the_logged_trials_and_runs_on_in_the_last_se
             np.testing.assert_array_equal(getattr(longer, field)[:20], getattr(schedule, field))
         extra = longer.command[20:]
         assert (extra == (schedule.command[-1] if command is None else command)).all()
-        assert (longer.session[20:] == schedule.session[-1]).all()
+        assert (longer.session[20:] == schedule.session.max() + 1).all()
         np.testing.assert_allclose(np.diff(longer.onset_s[19:]), 30.0)  # the logged within-session interval
     with pytest.raises(ConfigError, match="a participant has 20 trials, the world's schedule only 19"):
         continued_schedule(schedule, 19)

@@ -187,33 +187,30 @@ def simulated_time_lost(trials: pd.DataFrame, world: World, options: PlannerOpti
 
     When the world's schedule is longer than the participant's log, the planner plans for the
     world's horizon and its time over the logged trials is counted: the schedule is continued by
-    :func:`continued_schedule` and the first trials' durations summed (a trial's time does not
-    depend on the trials after it, so the continuation changes nothing counted)."""
+    :func:`continued_schedule` in a session of its own and the logged sessions' times summed (a
+    trial's time does not depend on the trials after it, so the continuation changes nothing
+    counted; the compiled run's per-session sums serve, no trial is kept)."""
     if n_sims < 1:
         raise ConfigError(f"n_sims must be >= 1, got {n_sims}")
     if trials.empty:
         raise ConfigError("simulated_time_lost needs at least one trial of the participant")
     ordered = trials.sort_values("trial", kind="stable")
     schedule = schedule_of(ordered)
-    n = schedule.horizon
     seeds = simulation_seeds(seed, n_sims)
     sim = BatchSimulator(world)
     sim.reset(seeds=seeds, schedules=[continued_schedule(schedule, world.horizon)] * n_sims)
     planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
-    if n == world.horizon:
-        totals = drive_batch(sim, planner, seeds).sums.time_s.sum(axis=1)
-    else:
-        kept = drive_batch(sim, planner, seeds, keep_trials=True).trials
-        assert kept is not None  # invariant: keep_trials=True keeps them
-        totals = kept.duration_s[:, :n].sum(axis=1)
+    logged_sessions = int(schedule.session.max()) + 1  # the continuation is session logged_sessions
+    totals = drive_batch(sim, planner, seeds).sums.time_s[:, :logged_sessions].sum(axis=1)
     sd = float(totals.std(ddof=1)) if n_sims > 1 else float("nan")
     return SimulatedLoss(float(ordered["duration_s"].sum()), float(totals.mean()), sd, sd / np.sqrt(n_sims), n_sims)
 
 
 def continued_schedule(schedule: Schedule, horizon: int, command: int | None = None) -> Schedule:
     """``schedule`` continued to ``horizon`` trials: the further trials target ``command`` (default:
-    the last logged one), in the last session, one median onset interval apart (60 s when the log
-    gives none). Raises :class:`ConfigError` when the schedule is already longer."""
+    the last logged one), in a session of their own after the last logged one (no gap), one median
+    onset interval apart (60 s when the log gives none). Raises :class:`ConfigError` when the
+    schedule is already longer."""
     n = schedule.horizon
     if n > horizon:
         raise ConfigError(f"a participant has {n} trials, the world's schedule only {horizon}; give a world whose "
@@ -227,13 +224,15 @@ def continued_schedule(schedule: Schedule, horizon: int, command: int | None = N
     return Schedule(
         command=np.concatenate([schedule.command, np.full(extra, target, dtype=np.int64)]),
         onset_s=np.concatenate([schedule.onset_s, schedule.onset_s[-1] + step * np.arange(1, extra + 1)]),
-        session=np.concatenate([schedule.session, np.full(extra, schedule.session[-1], dtype=np.int64)]),
+        session=np.concatenate([schedule.session, np.full(extra, schedule.session.max() + 1, dtype=np.int64)]),
         gap_total_s=np.concatenate([schedule.gap_total_s, np.full(extra, schedule.gap_total_s[-1])]),
     )
 
 
 def command_table(trials: pd.DataFrame, assessed: pd.DataFrame, world: World, options: PlannerOptions) -> pd.DataFrame:
-    """Per command of one participant: does learning pay for them, did they learn it."""
+    """Per command of one participant: does learning pay for them (``learning_pays``: the planner in
+    their world chooses learn or the hotkey for it at some trial of their history; the simple
+    break-even rule's answer is ``break_even_pays``), did they learn it."""
     pays = break_even_table(world, options.keyboard_share, options.n_bins).set_index("command")
     rows = []
     for c, part in trials.groupby("command", sort=True):
@@ -243,10 +242,12 @@ def command_table(trials: pd.DataFrame, assessed: pd.DataFrame, world: World, op
         recalled = float((attempts["outcome"] == "hotkey").mean()) if len(attempts) else 0.0
         learned = bool(((part["action"] == "learn").any() or (part["outcome"] == "hotkey").any())
                        and len(attempts) >= max(1, len(half) // 2) and recalled >= 0.5)
+        planner_keys = bool((mine["optimal_action"] != "menu").any())
         rows.append({"command": int(c), "uses": len(part),
-                     "learning_pays": bool(pays.loc[c, "learning_pays"]),
+                     "learning_pays": planner_keys,
+                     "break_even_pays": bool(pays.loc[c, "learning_pays"]),
                      "break_even_uses": float(pays.loc[c, "break_even_uses"]),
-                     "planner_uses_hotkey": bool((mine["optimal_action"] != "menu").any()),
+                     "planner_uses_hotkey": planner_keys,
                      "learned": learned, "hotkey_share_last_half": float((half["outcome"] == "hotkey").mean()),
                      "q_time_lost_s": float(mine["q_time_lost_s"].sum())})
     return pd.DataFrame(rows)
