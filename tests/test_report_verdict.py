@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from shortcut_gym.envs.world import make_world
 from shortcut_gym.lab.compare import random_effects_bms
 from shortcut_gym.lab.report.criteria_verdict import WHY_THEY_PART, agreement_words, criterion_winners
 
@@ -67,3 +68,24 @@ def test_report_cli_weighs_hierarchical_and_held_out_criteria(tmp_path, capsys):
         assert (out / f"{name}.csv").is_file()
     ibic = pd.read_csv(out / "hierarchical.csv")
     assert set(ibic["model"]) == {"ck", "rw"} and np.isfinite(ibic["ibic"]).all()
+
+
+def test_a_report_of_one_model_is_refused_before_any_fit(tmp_path, capsys, monkeypatch) -> None:
+    import shortcut_gym.lab.report.analysis as analysis
+    from shortcut_gym.lab.cli import main
+    from shortcut_gym.lab.data.logs import write_log
+    from shortcut_gym.lab.simulate import simulate_agents
+
+    world = make_world(schedule={"sessions": 2, "trials_per_session": 10})
+    trials = simulate_agents(world, [{"name": "always_menu"}], [1, 2])
+    log = trials.assign(participant=trials["user"].astype(str), command=trials["command_name"])
+    path = write_log(log.drop(columns=["agent", "user"]), tmp_path / "log.csv")
+
+    def no_fit(*args, **kwargs):
+        raise AssertionError("a fit ran before the refusal")
+
+    monkeypatch.setattr(analysis, "fit_log", no_fit)
+    code = main(["report", str(path), "--model", "rescorla_wagner", "--sessions", "2", "--out", str(tmp_path / "r")])
+    assert code == 2
+    err = capsys.readouterr().err
+    assert "give at least two models, got ['rescorla_wagner']" in err and "fit fits a single model" in err

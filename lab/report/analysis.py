@@ -68,6 +68,9 @@ def analyse_log(log: pd.DataFrame, specs: list, world, out: Path, n_starts: int 
     the verdict (what it leaves out). Returns (index path, the tables by name).
     """
     by_label = {s.label: s for s in specs}
+    if len(specs) < 2:  # checked before any fit is made: the comparison and the BMS need two models
+        raise ConfigError(f"a report compares models: give at least two models, got {[s.label for s in specs]} "
+                          "(fit fits a single model)")
     if knockout is not None:  # checked before any fit is made
         if knockout not in by_label:
             raise ConfigError(f"knock-out model {knockout!r} is not among the fitted models {list(by_label)}")
