@@ -35,6 +35,7 @@ from shortcut_gym.agents.frozen_policy import UserDraws
 from shortcut_gym.agents.planner.batch import PlanLookupBatch
 from shortcut_gym.agents.planner.compiled_lookup import (
     I_CAP,
+    PTS_ROWS,
     LookupTables,
     action_values_user,
     clear_memory,
@@ -111,7 +112,7 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
     keep = rec_action.shape[0] > 0
     scratch = np.empty(k.N_OPS)
     nw = np.empty(4)
-    pts = np.empty((4, tab.next_clock.shape[2]))
+    pts = np.empty((PTS_ROWS, tab.next_clock.shape[2]))
     cell = np.empty(4, dtype=np.int64)
     frac = np.empty(4)
     fail_lat = k.failed_retrieval_s(par)

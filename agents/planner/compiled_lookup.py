@@ -327,7 +327,7 @@ def _pairwise_mean(pts, j):
 @njit(**RULE_JIT)
 def decide_user(tab, mem, c, trial, nw, pts, cell, frac):
     """:meth:`BoundedOptimalPlanner.decide` for a plan choice (menu off the choice's commands);
-    ``nw``, ``pts``, ``cell``, ``frac``: scratch (4,), (4, G), (4,) int64, (4,)."""
+    ``nw``, ``pts``, ``cell``, ``frac``: scratch (4,), (PTS_ROWS, G), (4,) int64, (4,)."""
     if tab.allowed[c] == 0:
         return k.MENU
     q_menu, q_hot, q_learn = action_values_user(tab, mem, c, trial, nw, pts, cell, frac)
@@ -381,22 +381,70 @@ def action_values_user(tab, mem, c, trial, nw, pts, cell, frac):
         tabled = tab.next_trial.shape[0] > 0
         for j in range(4):  # the weight after each trace is the same at every point: its log once
             cell[j], frac[j] = weight_coordinate(weight + nw[j], tab.grid)
-        for g in range(pts.shape[1]):
-            src = tab.same_point[c, trial, g]
-            if src >= 0:  # the same clock and share as an earlier point: the same values
-                for j in range(4):
-                    pts[j, g] = pts[j, src]
-                continue
-            act = _activation(tab, mem, c, tab.next_clock[c, trial, g], tab.next_trial[c, trial, g] if tabled else -1)
-            old = math.exp(act) if act > -np.inf else 0.0
-            fr = tab.fresh[c, trial, g]
-            for j in range(4):
-                s = old + nw[j] * fr
-                pts[j, g] = bilinear_at(V, math.log(s) if s > 0 else -np.inf, cell[j], frac[j], tab.grid)
+        _future_points(tab, mem, c, trial, V, nw, pts, cell, frac, tabled)
         q_menu += _pairwise_mean(pts, 0)
         q_learn += _pairwise_mean(pts, 1)
         q_hot += p * _pairwise_mean(pts, 2) + (1.0 - p) * _pairwise_mean(pts, 3)
     return q_menu, q_hot, q_learn
+
+
+@njit(**RULE_JIT, inline="always")
+def _future_points(tab, mem, c, trial, V, nw, pts, cell, frac, tabled):
+    """``pts[j, g]``: V at next-use point g after a trace of ``nw[j]`` laid now, as
+    ``interpolate_after_traces`` computes it, each value by the same operations; done in phases
+    across the points (every point's trace sum, then every lump, then the logarithms, ...) so
+    that the points' independent work sits side by side for the processor (rows 4..9 of ``pts``
+    are the phases' scratch). Points repeating an earlier one (``same_point``) copy its values."""
+    n_pts = pts.shape[1]
+    src = tab.same_point[c, trial]
+    n = mem.n_traces[c]
+    kind = tab.ints[I_KIND]
+    f = tab.floats
+    for g in range(n_pts):  # row 8: the sum over the tracked traces, in their order
+        pts[8, g] = 0.0
+    for j in range(n):
+        w = mem.weights[c, j]
+        tj = mem.trial_of[c, j]
+        tj_ok = tabled and tj >= 0 and tab.ages.shape[0] > 0
+        for g in range(n_pts):
+            if src[g] < 0:
+                if tj_ok:
+                    pts[8, g] += w * tab.ages[tab.next_trial[c, trial, g], tj]
+                else:
+                    pts[8, g] += w * _decay_factor(kind, f, tab.next_clock[c, trial, g] - mem.times[c, j])
+    if n > 0 and kind == MEM_HYBRID and mem.lump[c, 0] != 0.0:  # the hybrid's old lump
+        d = f[F_DECAY]
+        last = mem.lump_trial[c, 1]
+        lw, lf, ll = mem.lump[c, 0], mem.lump[c, 1], mem.lump[c, 2]
+        by_table = tabled and last >= 0 and tab.ages.shape[0] > 0
+        for g in range(n_pts):
+            if src[g] < 0:
+                now = tab.next_clock[c, trial, g]
+                factor = tab.ages[tab.next_trial[c, trial, g], last] if by_table else (now - ll) ** (-d)
+                pts[8, g] += _old_lump(now, d, lw, lf, ll, factor)
+    for g in range(n_pts):  # row 9: e^A of the old memory at the point
+        if src[g] < 0:
+            total = pts[8, g]
+            act = (math.log(total) if total > 0 else -np.inf) if n > 0 else -np.inf
+            pts[9, g] = math.exp(act) if act > -np.inf else 0.0
+    for g in range(n_pts):  # rows 4..7: the activation after each new trace
+        if src[g] < 0:
+            old = pts[9, g]
+            fr = tab.fresh[c, trial, g]
+            for j in range(4):
+                s = old + nw[j] * fr
+                pts[4 + j, g] = math.log(s) if s > 0 else -np.inf
+    for g in range(n_pts):
+        if src[g] < 0:
+            for j in range(4):
+                pts[j, g] = bilinear_at(V, pts[4 + j, g], cell[j], frac[j], tab.grid)
+        else:
+            for j in range(4):
+                pts[j, g] = pts[j, src[g]]
+
+
+#: rows of the ``pts`` scratch of :func:`decide_user` / :func:`action_values_user`
+PTS_ROWS = 10
 
 
 @njit(**RULE_JIT)
@@ -449,7 +497,7 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
     n_cmd = cmdc.shape[0]
     scratch = np.empty(k.N_OPS)
     nw = np.empty(4)
-    pts = np.empty((4, tab.next_clock.shape[2]))
+    pts = np.empty((PTS_ROWS, tab.next_clock.shape[2]))
     cell = np.empty(4, dtype=np.int64)
     frac = np.empty(4)
     fail_lat = k.failed_retrieval_s(par)
