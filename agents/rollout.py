@@ -33,7 +33,7 @@ from shortcut_gym.agents.base import (
     SessionBatchPolicy,
     Transition,
 )
-from shortcut_gym.agents.world_record import WorldRecorded, describe, differing_parts, world_record
+from shortcut_gym.agents.world_record import WorldRecorded, describe, differing_parts, parts_differ, world_record
 from shortcut_gym.envs.errors import ConfigError, UsageError, WorldMismatchError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.kernel import N_OPS, OUTCOME_NAMES
@@ -66,7 +66,7 @@ def check_own_world(agent: Agent, world: World, where: str) -> None:
     parts = differing_parts(world_record(own), world_record(world))
     raise WorldMismatchError(
         f"{where}: agent {agent.name!r} was built for the world {_words(own)} (its world= option) and runs on "
-        f"the world {_words(world)} ({', '.join(parts) or 'their contents'} differ); build it without world= "
+        f"the world {_words(world)} ({parts_differ(parts)}); build it without world= "
         "to act for the world it runs on, or run it on its own world")
 
 

@@ -13,7 +13,8 @@ On use, :class:`WorldRecorded` agents compare the record with the world they are
 on) and raise :class:`~shortcut_gym.envs.errors.WorldMismatchError` in one line naming the file,
 both worlds and the parts that differ. A file written before records existed holds none and is
 refused the same way. The option ``allow_other_world=true`` lets either run, with a warning on the
-``shortcut_gym`` logger each time the model meets a new world.
+``shortcut_gym`` logger once per model file and world in a process (however many agents are built
+from the file for that world, as a sweep's run builds one to prepare and one to simulate).
 """
 
 from __future__ import annotations
@@ -36,8 +37,13 @@ OVERRIDE = "allow_other_world"
 #: What each part of a world is called in messages.
 PART_NAMES = {"commands": "scenario commands", "costs": "costs", "memory": "memory", "schedule": "schedule",
               "observation": "observation options", "aids": "interface aids"}
+#: The part names of :data:`PART_NAMES` that are singular nouns (they take "differs" alone).
+SINGULAR_PARTS = frozenset({"memory", "schedule"})
 
 log = logging.getLogger(__name__)
+
+#: (owner, model path, trained digest, used digest) already warned about in this process.
+_WARNED: set[tuple[str, str | None, str | None, str]] = set()
 
 
 @contextmanager
@@ -69,6 +75,16 @@ def differing_parts(trained: dict[str, Any], used: dict[str, Any]) -> list[str]:
     """Names of the parts whose digests differ (all of them when the record lists none)."""
     a, b = trained.get("parts") or {}, used["parts"]
     return [PART_NAMES.get(n, n) for n in b if a.get(n) != b[n]]
+
+
+def parts_differ(parts: list[str]) -> str:
+    """The differing parts in words with the verb agreeing: ``memory differs``, ``costs differ``,
+    ``costs and memory differ``, ``costs, memory and schedule differ``; none: ``their contents differ``."""
+    if not parts:
+        return "their contents differ"
+    if len(parts) == 1:
+        return f"{parts[0]} {'differs' if parts[0] in SINGULAR_PARTS else 'differ'}"
+    return f"{', '.join(parts[:-1])} and {parts[-1]} differ"
 
 
 def record_text(world: World) -> str:
@@ -111,11 +127,13 @@ def check_model_world(owner: str, path: str | None, record: dict[str, Any] | Non
                    f"before world records), so it cannot be checked against this world {describe(used)}")
     else:
         parts = differing_parts(record, used)
-        what = f"{', '.join(parts)} differ" if parts else "their contents differ"
         message = (f"{owner}: {where} was trained on the world {describe(record)}, not on this world "
-                   f"{describe(used)} ({what})")
+                   f"{describe(used)} ({parts_differ(parts)})")
     if allow_other_world:
-        log.warning("%s; used anyway as %s=true", message, OVERRIDE)
+        key = (owner, path, None if record is None else record["digest"], used["digest"])
+        if key not in _WARNED:
+            _WARNED.add(key)
+            log.warning("%s; used anyway as %s=true", message, OVERRIDE)
         return
     raise WorldMismatchError(f"{message}; retrain it on this world, or give {OVERRIDE}=true to use it anyway")
 

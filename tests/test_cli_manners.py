@@ -141,3 +141,15 @@ def test_verbose_says_what_is_being_done(tmp_path: Path, capsys) -> None:
     assert any("3 users per agent, seeds 4..6" in line and str(log) in line for line in info)
     assert any(f"wrote trial log {log}" in line for line in info)
     assert verbose.out == plain.out  # -v changes only stderr
+
+
+@pytest.mark.parametrize(("users", "agents", "words"), [
+    (1, ["always_menu"], "(1 participant)"), (2, ["always_menu"], "(2 participants)"),
+    (1, ["always_menu", "always_hotkey"], "(2 participants)"),
+])
+def test_the_log_line_counts_participants_in_words(tmp_path: Path, capsys, users, agents, words) -> None:
+    log = tmp_path / "log.csv"
+    given = [a for name in agents for a in ("--agent", name)]
+    assert main(["simulate", *ONE, *given, "--users", str(users), "--log", str(log)]) == 0
+    line = [x for x in capsys.readouterr().err.splitlines() if x.startswith("wrote trial log")]
+    assert line == [f"wrote trial log {log} {words}"]

@@ -109,3 +109,21 @@ def test_a_model_is_refused_on_other_costs_of_the_same_sizes_unless_allowed(tmp_
     assert main(["simulate", "--costs", str(same), *SESSIONS, "--users", "1", "--overwrite",
                  "--out", str(tmp_path / "sim"), "--agent", f"q_learning:model_path={model}"]) == 0
     assert "allow_other_world" not in capsys.readouterr().err
+
+
+def test_sweep_warns_once_per_world_about_a_model_used_on_other_worlds(tmp_path: Path, capsys) -> None:
+    model = tmp_path / "q.npz"
+    assert main(["train", "--agent", "q_learning", *SESSIONS, "--trials", "40", "--out", str(model), "--quiet",
+                 "--eval-users", "0"]) == 0
+    spec = tmp_path / "two_keystrokes.yaml"
+    spec.write_text("name: two_keystrokes\nbase:\n  schedule: {sessions: 1, trials_per_session: 6}\n"
+                    "vary:\n  design: grid\n  parameters:\n    costs.klm.keystroke_s: {values: [0.3, 0.5]}\n"
+                    f"agents:\n  - {{name: q_learning, model_path: {model}, allow_other_world: true}}\n"
+                    "seeds: {first: 0, count: 3}\n")
+    capsys.readouterr()
+    assert main(["-q", "sweep", str(spec), "--workers", "1", "--out", str(tmp_path / "sw")]) == 0
+    warned = [line for line in capsys.readouterr().err.splitlines() if "used anyway as allow_other_world" in line]
+    digests = {make_world(costs={"klm": {"keystroke_s": k}}, schedule={"sessions": 1, "trials_per_session": 6})
+               .problem_digest()[:12] for k in (0.3, 0.5)}
+    assert len(warned) == 2 and {d for d in digests if any(d in line for line in warned)} == digests
+    assert all("(costs and schedule differ)" in line for line in warned)

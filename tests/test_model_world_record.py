@@ -20,6 +20,7 @@ import pytest
 from shortcut_gym.agents import make_agent, run_episode
 from shortcut_gym.agents.rollout import context_of_world
 from shortcut_gym.agents.sb3.files import RECORD_MEMBER
+from shortcut_gym.agents.world_record import check_model_world, parts_differ, world_record
 from shortcut_gym.envs import CommandSelectionEnv, make_world
 from shortcut_gym.envs.config import bundled_config_dir, read_yaml
 from shortcut_gym.envs.errors import ConfigError, WorldMismatchError
@@ -210,3 +211,28 @@ def test_continued_training_on_another_world_is_refused_unless_allowed(models) -
     allowed = make_agent("q_learning", model_path=models["q_learning"], allow_other_world=True)
     allowed.train(CommandSelectionEnv(world=B_COSTS), 1, progress_bar=False)
     assert allowed.trained_for is not None and allowed.trained_for["digest"] == B_COSTS.problem_digest()
+
+
+#: Worlds each differing from A in the parts named, with the words the refusal must use for them.
+WORDED = [
+    (make_world(memory="spacing", schedule={"sessions": 1}), "(memory differs)"),
+    (make_world(schedule={"sessions": 1, "trials_per_session": 7}), "(schedule differs)"),
+    (B_COSTS, "(costs differ)"),
+    (B_COMMANDS, "(scenario commands differ)"),
+    (make_world(costs="fast_typist_mouse", memory="spacing", schedule={"sessions": 1}), "(costs and memory differ)"),
+    (make_world(costs="fast_typist_mouse", memory="spacing", schedule={"sessions": 1, "trials_per_session": 7}),
+     "(costs, memory and schedule differ)"),
+]
+
+
+@pytest.mark.parametrize(("other", "words"), WORDED, ids=[w for _, w in WORDED])
+def test_the_refusal_names_the_differing_parts_in_words_that_agree(other, words) -> None:
+    with pytest.raises(WorldMismatchError) as err:
+        check_model_world("q_learning", "q.npz", world_record(A), other, allow_other_world=False)
+    assert words in str(err.value)
+
+
+def test_parts_in_words_for_none_one_and_many() -> None:
+    assert parts_differ([]) == "their contents differ"
+    assert parts_differ(["memory"]) == "memory differs" and parts_differ(["interface aids"]) == "interface aids differ"
+    assert parts_differ(["a", "b"]) == "a and b differ" and parts_differ(["a", "b", "c", "d"]) == "a, b, c and d differ"

@@ -161,7 +161,7 @@ def test_a_planner_built_for_its_own_world_is_refused_on_another(name: str) -> N
         run_episode(CommandSelectionEnv(world=SLOW), agent, seed=0)
     text = str(refused.value)
     assert f"agent {name!r} was built for the world {describe(world_record(QUICK))}" in text
-    assert f"runs on the world {describe(world_record(SLOW))} (costs, schedule differ)" in text
+    assert f"runs on the world {describe(world_record(SLOW))} (costs and schedule differ)" in text
 
 
 def test_a_trained_table_on_another_world_is_refused_and_allowed_when_asked() -> None:

@@ -59,6 +59,11 @@ def warn(message: str) -> None:
     _STATUS.warning(message)
 
 
+def counted(n: int, noun: str) -> str:
+    """``n`` and the noun, plural unless ``n`` is 1: ``1 participant``, ``3 participants``."""
+    return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
+
+
 def parse_model(text: str) -> ModelSpec:
     """'[label=]name[:key=value,...]' -> ModelSpec (the syntax of :mod:`.specs`); keys that are
     parameters are held fixed, the others are options.
@@ -352,7 +357,7 @@ def log_fit_inputs(args: argparse.Namespace) -> LogFitInputs:
     ranges = start_ranges_of(args.start_range, specs)
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
-    detail(f"log {args.log}: {len(log)} trials of {log['participant'].nunique()} participants")
+    detail(f"log {args.log}: {counted(len(log), 'trial')} of {counted(log['participant'].nunique(), 'participant')}")
     detail(f"output folder {args.out}")
     return LogFitInputs(world, specs, priors, ranges, log)
 

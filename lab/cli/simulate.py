@@ -19,6 +19,7 @@ from shortcut_gym.lab.cli.options import (
     add_world_options,
     agent_specs_of,
     claim_output,
+    counted,
     detail,
     refuse_planner_agents,
     spec_names,
@@ -93,7 +94,7 @@ def run_population(args: argparse.Namespace) -> int:
         truths.append(truth)
     log = validate_log(pd.concat(logs, ignore_index=True), world.commands, source="simulated population")
     truth = pd.concat(truths, ignore_index=True)
-    status(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
+    status(f"wrote trial log {write_log(log, args.log)} ({counted(log['participant'].nunique(), 'participant')})")
     truth.to_csv(_truth_path(args.log), index=False)
     status(f"wrote true parameters {_truth_path(args.log)}")
     for pop in populations:
@@ -127,5 +128,5 @@ def run(args: argparse.Namespace) -> int:
     if args.log is not None:
         keyed = trials.assign(participant_key=[f"{a}-u{u}" for a, u in zip(trials["agent"], trials["user"])])
         log = log_from_simulation(keyed, world.commands, participant_column="participant_key", prefix="")
-        status(f"wrote trial log {write_log(log, args.log)} ({log['participant'].nunique()} participants)")
+        status(f"wrote trial log {write_log(log, args.log)} ({counted(log['participant'].nunique(), 'participant')})")
     return 0
