@@ -129,7 +129,13 @@ def evaluate_agent(env: gym.Env, agent: Agent, seeds: Iterable[int]) -> pd.DataF
 
 
 def labelled_trial_table(env: gym.Env, agents: Iterable[tuple[str, Agent]], seeds: Sequence[int]) -> pd.DataFrame:
-    """Trial table of every (label, agent) x seed: columns agent, user, then run_episode's."""
+    """Trial table of every (label, agent) x seed: columns agent, user, then run_episode's. Labels
+    must be unique (two agents under one label would be one agent in the table)."""
+    agents = list(agents)
+    labels = [label for label, _ in agents]
+    repeated = sorted({label for label in labels if labels.count(label) > 1})
+    if repeated:
+        raise ConfigError(f"agent labels repeat: {repeated}; give each agent its own label")
     frames = []
     for label, agent in agents:
         for s in seeds:

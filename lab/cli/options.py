@@ -134,8 +134,18 @@ def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -
     """The agent specs of ``--agent`` then ``--agent-file`` (or ``default`` texts when neither is given)."""
     texts = args.agent if args.agent or args.agent_file else default
     specs = [parse_agent_arg(t) for t in texts or []]
+    sources = [f"--agent {t!r}" for t in texts or []]
     specs += [read_agent_spec(path).as_dict() for path in args.agent_file or []]
-    for spec in specs:
+    sources += [f"--agent-file {path}" for path in args.agent_file or []]
+    from shortcut_gym.lab.simulate import label_of  # the label results are keyed by
+
+    seen: dict[str, str] = {}
+    for spec, source in zip(specs, sources, strict=True):
+        label = label_of(spec)
+        if label in seen:  # two agents under one label would be merged in every table
+            raise CLIError(f"{seen[label]} and {source} both give the agent label {label!r}; results are keyed by "
+                           "label: give one of them another (label=name:... on the line, label: in a file)")
+        seen[label] = source
         detail("agent " + ", ".join(f"{k}={v}" for k, v in spec.items()))
     return specs
 
