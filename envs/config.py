@@ -14,7 +14,7 @@ from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.memory import MemorySettings
-from shortcut_gym.envs.task import ScenarioSettings
+from shortcut_gym.envs.task import ScenarioSettings, ScheduleSettings
 
 M = TypeVar("M", bound=BaseModel)
 
@@ -25,6 +25,20 @@ _FOLDERS: dict[type[BaseModel], str] = {
     MemorySettings: "memory",
     AidSettings: "aids",
 }
+
+#: What each settings type is called in messages (the words of the options and files that give it).
+_KINDS: dict[type[BaseModel], str] = {
+    CostSettings: "costs",
+    ScenarioSettings: "scenario",
+    MemorySettings: "memory",
+    AidSettings: "interface aid",
+    ScheduleSettings: "schedule",
+}
+
+
+def kind_of(model: type[BaseModel]) -> str:
+    """The user-facing name of a settings type (``scenario``, ``costs``...; the class name for others)."""
+    return _KINDS.get(model, model.__name__)
 
 
 def format_validation_error(err: ValidationError, source: str) -> str:
@@ -46,7 +60,7 @@ def validate(model: type[M], data: Any, source: str) -> M:
     if isinstance(data, model):
         return data
     if not isinstance(data, dict):
-        raise ConfigError(f"{source}: expected a mapping of {model.__name__} fields, got {type(data).__name__}")
+        raise ConfigError(f"{source}: expected a mapping of {kind_of(model)} fields, got {type(data).__name__}")
     try:
         return model.model_validate(data)
     except ValidationError as err:
@@ -120,7 +134,7 @@ def load_settings(model: type[M], spec: str | Path | dict | M | None) -> M:
     if isinstance(spec, model):
         return spec
     if isinstance(spec, dict):
-        return validate(model, spec, f"<{model.__name__} dict>")
+        return validate(model, spec, f"<{kind_of(model)} dict>")
     if isinstance(spec, (str, Path)):
         path = Path(spec)
         if path.suffix in (".yaml", ".yml") or path.exists():
@@ -129,6 +143,8 @@ def load_settings(model: type[M], spec: str | Path | dict | M | None) -> M:
         preset = bundled_config_dir() / folder / f"{spec}.yaml" if folder else None
         if preset is None or not preset.is_file():
             known = bundled_names(model) if folder else []
-            raise ConfigError(f"unknown {model.__name__} preset {str(spec)!r}; bundled: {known}")
+            raise ConfigError(f"unknown {kind_of(model)} preset {str(spec)!r}, and no file {str(spec)!r} either "
+                              f"(bundled presets: {known}; a path is read as a file when it ends in .yaml "
+                              "or .yml or exists)")
         return validate(model, read_yaml(preset), str(preset))
-    raise ConfigError(f"cannot read {model.__name__} from a {type(spec).__name__}")
+    raise ConfigError(f"cannot read {kind_of(model)} settings from a {type(spec).__name__}")

@@ -36,7 +36,7 @@ def _study(**changes: Any) -> dict[str, Any]:
 
 
 @pytest.mark.parametrize(("change", "fault"), [
-    ({"aids": {"x": "no_such_preset"}}, "aids.x: unknown AidSettings preset 'no_such_preset'"),
+    ({"aids": {"x": "no_such_preset"}}, "aids.x: unknown interface aid preset 'no_such_preset'"),
     ({"aids": {"x": {"menu_delay": {"delay_s": 2.0}}}}, "aids.x: switches no aid on"),
     ({"aids": {"none": "menu_delay"}}, "'none' names the aid-free reference"),
     ({"aids": {"x": {"nudge": {"commands": ["Nope"]}}}}, "unknown command 'Nope'"),

@@ -117,7 +117,8 @@ def test_single_key_and_punctuation_hotkeys_are_valid(hotkey: str, keys: int) ->
 
 
 def test_unknown_preset_lists_bundled_ones() -> None:
-    with pytest.raises(ConfigError, match=r"unknown CostSettings preset 'turbo'; bundled: \[.*'average_skilled_mouse'"):
+    with pytest.raises(ConfigError, match=r"unknown costs preset 'turbo', and no file 'turbo' either "
+                                          r"\(bundled presets: \[.*'average_skilled_mouse'"):
         make_world(costs="turbo")
 
 
@@ -134,7 +135,7 @@ def test_yaml_file_errors_name_the_file(tmp_path: Path) -> None:
         make_world(costs=tmp_path / "missing.yaml")
     listy = tmp_path / "list.yaml"
     listy.write_text("- 1\n- 2\n")
-    with pytest.raises(ConfigError, match=r"list\.yaml: expected a mapping of CostSettings fields, got list"):
+    with pytest.raises(ConfigError, match=r"list\.yaml: expected a mapping of costs fields, got list"):
         make_world(costs=listy)
 
 

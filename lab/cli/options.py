@@ -20,9 +20,9 @@ import pandas as pd
 
 from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
 from shortcut_gym.agents.registry import AGENTS, check_spec, make_agent, read_agent_spec
-from shortcut_gym.envs.config import load_settings, read_yaml
+from shortcut_gym.envs.config import load_settings, read_yaml, validate
 from shortcut_gym.envs.errors import ConfigError
-from shortcut_gym.envs.task import ScenarioSettings
+from shortcut_gym.envs.task import ScenarioSettings, ScheduleSettings
 from shortcut_gym.envs.world import DEFAULT_SCENARIO, World, make_world
 from shortcut_gym.lab.cli import DETAIL_LOGGER, CLIError
 from shortcut_gym.lab.cli.ranges import input_file, output_folder, seed, whole_number
@@ -177,6 +177,8 @@ def world_of(args: argparse.Namespace) -> World:
         schedule["sessions"] = sessions
     scenario = load_settings(ScenarioSettings, args.scenario or DEFAULT_SCENARIO)  # its faults name its file
     check_gap_count(args, scenario, schedule, file_keys)
+    if file_keys:  # the file's faults name the file, as the other settings files' do
+        validate(ScheduleSettings, {**scenario.schedule.model_dump(), **schedule}, str(args.schedule))
     world = make_world(scenario, args.costs, args.memory, schedule or None)
     detail(world_words(world, args))
     return world
