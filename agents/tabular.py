@@ -37,6 +37,7 @@ from tqdm.auto import tqdm
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
 from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
+from shortcut_gym.agents.model_files import file_contents, hint_for
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
 from shortcut_gym.agents.world_record import WorldRecorded, atomic_path, check_flag, parse_record
 from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
@@ -182,14 +183,16 @@ class TabularAgent(WorldRecorded, Agent):
         p = Path(path)
         if not p.is_file():
             raise ConfigError(f"{self.name}: no Q table at {p}")
+        held = file_contents(p)
+        if held.kind != "table" or held.name != self.name:
+            raise DataError(f"{self.name}: {p} holds {held.description}, not a {self.name} Q table"
+                            f"{hint_for(held, p)}")
         try:
-            with np.load(p) as d:
-                name, q = str(d["name"]), d["q"]
+            with np.load(p, allow_pickle=False) as d:
+                q = d["q"]
                 text = str(d["world"]) if "world" in d.files else None
         except (OSError, ValueError, KeyError) as err:
             raise DataError(f"{self.name}: {p} is not a Q table written by save ({err})") from None
-        if name != self.name:
-            raise DataError(f"{self.name}: {p} holds a {name} table")
         if q.ndim != 2 + len(_SIZES) or q.shape[1:] != (*_SIZES, 3):
             raise DataError(f"{self.name}: {p} holds a table of shape {q.shape}, not commands x {(*_SIZES, 3)}")
         if self.context is not None and q.shape[0] != self.context.n_commands:

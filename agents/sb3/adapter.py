@@ -119,7 +119,7 @@ class SB3Agent(WorldRecorded, Agent):
         if self.model is None:
             raise NotReadyError(f"{self.name}: nothing to save, train or load a model first")
         record = self.record_to_save(self.context.world if self.context is not None else None)
-        p = save_model(self.model, self.obs_norm, path, json.dumps(record, sort_keys=True))
+        p = save_model(self.model, self.obs_norm, path, json.dumps(record, sort_keys=True), self.algorithm)
         self.model_path = str(p)
         return p
 

@@ -3,24 +3,35 @@ and the record of the world it was trained on.
 
 The world record (:mod:`shortcut_gym.agents.world_record`) is one more member of the model's own
 zip, :data:`RECORD_MEMBER` (JSON), so it travels with the model; SB3's loader reads only its own
-members and ignores it. Both files are written to temporary names and moved into place, so a
-reader never sees a half-written or unrecorded model.
+members and ignores it. The record's ``algorithm`` entry names the SB3 algorithm, so a zip given
+to another adapter (or a file of another kind: a Q table, a zip without a model) is refused in one
+line saying what it holds (:mod:`shortcut_gym.agents.model_files`) before SB3 reads it. Both files
+are written to temporary names and moved into place, so a reader never sees a half-written or
+unrecorded model.
 """
 
 from __future__ import annotations
 
+import json
 import zipfile
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from shortcut_gym.agents.model_files import (
+    ALGORITHM_KEY,
+    RECORD_MEMBER,
+    file_contents,
+    hint_for,
+    sb3_title,
+    with_article,
+)
 from shortcut_gym.agents.sb3.algorithms import algorithm_classes
 from shortcut_gym.agents.world_record import atomic_path, parse_record
 from shortcut_gym.envs.errors import ConfigError, DataError
 
-#: The zip member holding the world record.
-RECORD_MEMBER = "shortcut_gym_world.json"
+__all__ = ["RECORD_MEMBER", "load_model", "norm_path", "read_record", "save_model"]
 
 
 def norm_path(model_zip: Path) -> Path:
@@ -28,9 +39,11 @@ def norm_path(model_zip: Path) -> Path:
     return model_zip.with_suffix(".obs_norm.npz")
 
 
-def save_model(model: Any, obs_norm: dict[str, Any] | None, path: str | Path, record_text: str) -> Path:
+def save_model(model: Any, obs_norm: dict[str, Any] | None, path: str | Path, record_text: str,
+               algorithm: str) -> Path:
     """Write the model zip (``.zip`` added when missing) with the world record ``record_text`` (JSON)
-    as :data:`RECORD_MEMBER`, and its statistics; returns the zip's path."""
+    and the ``algorithm`` name as :data:`RECORD_MEMBER`, and its statistics; returns the zip's path."""
+    member = json.dumps({**json.loads(record_text), ALGORITHM_KEY: algorithm}, sort_keys=True)
     p = Path(path)
     p = p if p.suffix == ".zip" else p.with_suffix(".zip")
     if obs_norm is not None:
@@ -40,7 +53,7 @@ def save_model(model: Any, obs_norm: dict[str, Any] | None, path: str | Path, re
         with open(tmp, "wb") as f:  # a file object: SB3 writes it as it is, adding no suffix
             model.save(f)
         with zipfile.ZipFile(tmp, "a") as z:
-            z.writestr(RECORD_MEMBER, record_text)
+            z.writestr(RECORD_MEMBER, member)
     return p
 
 
@@ -53,7 +66,9 @@ def read_record(owner: str, path: Path) -> dict[str, Any] | None:
             text = z.read(RECORD_MEMBER).decode()
     except (OSError, zipfile.BadZipFile, UnicodeDecodeError) as err:
         raise DataError(f"{owner}: {path} is not a model zip written by save ({err})") from None
-    return parse_record(text, f"{owner}: {path}")
+    record = parse_record(text, f"{owner}: {path}")
+    record.pop(ALGORITHM_KEY, None)  # the model's, not the world's
+    return record
 
 
 def load_model(owner: str, algorithm: str, path: str | Path,
@@ -64,8 +79,19 @@ def load_model(owner: str, algorithm: str, path: str | Path,
     if not p.is_file() and not p.with_suffix(".zip").is_file():
         raise ConfigError(f"{owner}: no model file at {p}")
     zip_path = p if p.is_file() else p.with_suffix(".zip")
+    held = file_contents(zip_path)
+    asked = with_article(f"{sb3_title(algorithm)} model")
+    if held.kind != "sb3" or (held.name is not None and held.name != algorithm):
+        raise DataError(f"{owner}: {zip_path} holds {held.description}, not {asked}"
+                        f"{hint_for(held, zip_path)}")
     record = read_record(owner, zip_path)
-    model = algorithm_classes()[algorithm].load(str(zip_path), device="cpu")
+    cls = algorithm_classes()[algorithm]
+    try:
+        model = cls.load(str(zip_path), device="cpu")
+    except (AssertionError, AttributeError, KeyError, ValueError, TypeError, RuntimeError, EOFError,
+            zipfile.BadZipFile) as err:  # a zip of an untold algorithm, or one damaged
+        raise DataError(f"{owner}: {zip_path} holds {held.description}, which stable_baselines3.{cls.__name__} "
+                        f"could not read ({type(err).__name__}: {err}); is it {asked} written by save?") from None
     if not normalize:
         return model, None, record
     norm = norm_path(zip_path if zip_path.suffix == ".zip" else zip_path.with_suffix(".zip"))
