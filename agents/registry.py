@@ -11,6 +11,7 @@ from pydantic import ConfigDict, Field, field_validator
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
 from shortcut_gym.agents.learning import ChoiceKernelAgent, ComposedLearner, RescorlaWagnerAgent, RWChoiceKernelAgent
+from shortcut_gym.agents.learning.mechanisms import OPTION_DEFAULTS
 from shortcut_gym.agents.planned_choice import PlannedChoice
 from shortcut_gym.agents.planner import BoundedOptimalPlanner, check_memory_kind
 from shortcut_gym.agents.sb3 import A2CAgent, DQNAgent, PPOAgent
@@ -36,6 +37,37 @@ for _cls in (AlwaysMenu, AlwaysHotkey, LearnFirstK, RandomAgent, StaticSoftmax, 
              ChoiceKernelAgent, RWChoiceKernelAgent, ComposedLearner, BoundedOptimalPlanner, PlannedChoice,
              QLearningAgent, SarsaAgent, PPOAgent, A2CAgent, DQNAgent):
     register_agent(_cls)
+
+
+#: Meaning of every constructor option (a keyword that is not a fitted parameter) of the registered
+#: agents, by keyword; the config reference lists them per agent and its test requires an entry here.
+OPTION_DOCS: dict[str, str] = {
+    "covariates": "covariates of the utilities, a list of `log_exposure` (ln(1 + earlier trials of the command)) "
+                  "and `session` (the session index); each adds one weight per non-menu action",
+    "mechanisms": "list of the learner's mechanisms (see `shortcut_gym.agents.learning.mechanisms`); a mechanism's "
+                  "parameters exist only when it is listed",
+    "options": "fixed prior time estimates in seconds, a mapping of `prior_time_s` (a first menu selection), "
+               "`prior_hotkey_s` (a recalled hotkey) and `prior_failure_s` (a failed attempt); defaults "
+               + ", ".join(f"{k} {v:g} s" for k, v in OPTION_DEFAULTS.items())
+               + " (assumptions of this project, no source)",
+    "world": "the world the plan is made for: a bundled scenario name or a mapping of `make_world` arguments "
+             "(`scenario`, `costs`, `memory`, ...); null: the world the agent runs in",
+    "keyboard_share": "share (0..1) of trials the plan takes to find the hand on the keyboard; null: the plan "
+                      "finds its own shares by fixed point",
+    "n_bins": "activation grid points of the plan, from tau - 8 s to tau + 8 s (tau the memory's `threshold`, s "
+              "its `noise_s`, both in activation units); more is finer and slower",
+    "n_weight_bins": "total-trace-weight grid points of the plan (geometric grid)",
+    "select_users": "common simulated users on which the plan is compared with simple fixed rules, the better one "
+                    "executed (0: execute the plan as it is)",
+    "with_lapse": "add the `lapse` parameter: the probability of a uniform random action",
+    "model_path": "a saved model file to load (relative to the spec file's folder); null: a new, untrained model",
+    "allow_other_world": "let a loaded model run on a world other than the one it was trained on (with a warning) "
+                         "instead of refusing it",
+    "deterministic": "take the policy's most probable action instead of sampling one",
+    "hyperparameters": "keyword arguments of the Stable-Baselines3 class's constructor, merged over the adapter's "
+                       "defaults (see AgentSpec); other keys of the spec that are not options land here too",
+    "normalize": "pass observations through the normalisation statistics frozen at the end of training",
+}
 
 
 def make_agent(name: str, context: AgentContext | None = None, **params: Any) -> Agent:
@@ -102,7 +134,7 @@ class AgentSpec(StrictModel):
     """
 
     model_config = ConfigDict(extra="allow", frozen=True, allow_inf_nan=False)
-    name: str = Field(min_length=1, description="registered agent name (see ``shortcut_gym.agents.AGENTS``)")
+    name: str = Field(min_length=1, description="registered agent name (see [Agents](#agents))")
     label: str | None = Field(default=None, min_length=1, description="name in the outputs (default: from the spec)")
     params: dict[str, float] = Field(default_factory=dict,
                                      description="parameters by name (numbers; the agent's defaults otherwise)")

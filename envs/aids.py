@@ -50,7 +50,8 @@ AID_NAMES = ("key_labels", "nudge", "menu_delay", "menu_lockout", "warmup")
 class _AidSection(StrictModel):
     """One aid: which commands it applies to (``"none"`` = off, ``"all"``, or a list of names)."""
 
-    commands: CommandChoice = "none"
+    commands: CommandChoice = Field(default="none", description=(
+        "the commands the aid applies to: `none` (off), `all`, or a list of the scenario's command names"))
 
     @field_validator("commands")
     @classmethod
@@ -115,7 +116,8 @@ class MenuLockout(_AidSection):
 class Warmup(_AidSection):
     """Practice of chosen hotkeys at session start (see the module docstring). Assumptions, no source."""
 
-    sessions: Literal["first", "every"] = "first"
+    sessions: Literal["first", "every"] = Field(default="first", description=(
+        "practise before the first session only (`first`) or before every session (`every`)"))
     reading_s: float = Field(default=1.0, ge=0, description="reading the prompt, per command (s)")
     trace_weight: float = Field(default=1.0, ge=0, description="trace laid per practised command")
 
@@ -123,12 +125,12 @@ class Warmup(_AidSection):
 class AidSettings(StrictModel):
     """All interface aids of a world; one YAML preset in ``configs/aids/`` is one of these."""
 
-    name: str = "none"
-    key_labels: KeyLabels = KeyLabels()
-    nudge: Nudge = Nudge()
-    menu_delay: MenuDelay = MenuDelay()
-    menu_lockout: MenuLockout = MenuLockout()
-    warmup: Warmup = Warmup()
+    name: str = Field(default="none", description="the preset's name (shown in outputs)")
+    key_labels: KeyLabels = Field(default=KeyLabels(), description="hotkey printed beside the menu item")
+    nudge: Nudge = Field(default=Nudge(), description="a hotkey reminder after some menu selections")
+    menu_delay: MenuDelay = Field(default=MenuDelay(), description="a wait added to every menu selection")
+    menu_lockout: MenuLockout = Field(default=MenuLockout(), description="the menu item disabled after some uses")
+    warmup: Warmup = Field(default=Warmup(), description="hotkey practice at the start of a session")
 
     @property
     def any_on(self) -> bool:

@@ -69,13 +69,17 @@ class KLMOperators(_Strict):
 
     typist: TypistClass = Field(default="average_skilled_typist",
                                 description="KLM typist class that sets K (0.08 best ... 1.20 worst s per keystroke)")
-    keystroke_s: float | None = Field(
-        default=None, gt=0, le=MAX_OPERATOR_S, description="K; overrides the typist class when given"
-    )
-    point_s: float = Field(default=KLM_POINT_S, gt=0, le=MAX_OPERATOR_S, description="P")
-    button_s: float = Field(default=KLM_BUTTON_S, gt=0, le=MAX_OPERATOR_S, description="B")
-    home_s: float = Field(default=KLM_HOME_S, ge=0, le=MAX_OPERATOR_S, description="H")
-    mental_s: float = Field(default=KLM_MENTAL_S, ge=0, le=MAX_OPERATOR_S, description="M")
+    keystroke_s: float | None = Field(default=None, gt=0, le=MAX_OPERATOR_S, description=(
+        "K: one keystroke; overrides the typist class when given (Card, Moran & Newell 1980)"))
+    point_s: float = Field(default=KLM_POINT_S, gt=0, le=MAX_OPERATOR_S, description=(
+        "P: point with the mouse to a target on the display; 1.1 s, Card, Moran & Newell (1980)"))
+    button_s: float = Field(default=KLM_BUTTON_S, gt=0, le=MAX_OPERATOR_S, description=(
+        "B: press or release a mouse button (a click is 2 B); 0.1 s, Card, Moran & Newell (1983)"))
+    home_s: float = Field(default=KLM_HOME_S, ge=0, le=MAX_OPERATOR_S, description=(
+        "H: move the hand between keyboard and mouse; 0.4 s, Card, Moran & Newell (1980)"))
+    mental_s: float = Field(default=KLM_MENTAL_S, ge=0, le=MAX_OPERATOR_S, description=(
+        "M: mental preparation before a menu selection or a hotkey; 1.35 s, Card, Moran & Newell (1980) "
+        "(Kieras' later guide uses 1.2 s, from memory: preset `kieras_mental`)"))
 
     @property
     def k_s(self) -> float:
@@ -93,8 +97,12 @@ class FittsLaw(_Strict):
     check the paper's table before relying on the exact figures.
     """
 
-    intercept_s: float = Field(default=-0.107, ge=-MAX_OPERATOR_S, le=MAX_OPERATOR_S)
-    slope_s_per_bit: float = Field(default=0.223, gt=0, le=MAX_OPERATOR_S)
+    intercept_s: float = Field(default=-0.107, ge=-MAX_OPERATOR_S, le=MAX_OPERATOR_S, description=(
+        "a: intercept of MT = a + b log2(D/W + 1); -0.107 s, mouse pointing of MacKenzie, Sellen & Buxton (1991), "
+        "from memory; a + b log2(1.5) (the first menu item) must stay > 0"))
+    slope_s_per_bit: float = Field(default=0.223, gt=0, le=MAX_OPERATOR_S, description=(
+        "b: seconds per bit of the index of difficulty log2(D/W + 1); 0.223 s/bit, MacKenzie, Sellen & Buxton "
+        "(1991), from memory"))
 
 
 class MenuModel(_Strict):
@@ -107,11 +115,21 @@ class MenuModel(_Strict):
     et al. (2007); check the paper before relying on the exact figures.
     """
 
-    search_intercept_s: float = Field(default=0.0, ge=0, le=MAX_OPERATOR_S)
-    search_slope_s_per_item: float = Field(default=0.1, ge=0, le=MAX_OPERATOR_S)
-    decision_intercept_s: float = Field(default=0.08, ge=0, le=MAX_OPERATOR_S)
-    decision_slope_s_per_bit: float = Field(default=0.15, ge=0, le=MAX_OPERATOR_S)
-    item_height_px: float = Field(default=24.0, ge=1, le=10_000)
+    search_intercept_s: float = Field(default=0.0, ge=0, le=MAX_OPERATOR_S, description=(
+        "a_s: fixed part of the novice visual search T_search = a_s + b_s n (Cockburn, Gutwin & Greenberg 2007); "
+        "0 s, from memory of the paper's orders of magnitude"))
+    search_slope_s_per_item: float = Field(default=0.1, ge=0, le=MAX_OPERATOR_S, description=(
+        "b_s: novice search time per item of the menu (n items); 0.1 s/item, from memory of Cockburn, Gutwin & "
+        "Greenberg (2007)"))
+    decision_intercept_s: float = Field(default=0.08, ge=0, le=MAX_OPERATOR_S, description=(
+        "a_d: intercept of the expert decision time T_decision = a_d + b_d log2(1/p) (Hick-Hyman law, Hick 1952, "
+        "Hyman 1953, as used by Cockburn, Gutwin & Greenberg 2007); 0.08 s, from memory"))
+    decision_slope_s_per_bit: float = Field(default=0.15, ge=0, le=MAX_OPERATOR_S, description=(
+        "b_d: seconds per bit of log2(1/p), p the item's share of its menu's uses; 0.15 s/bit, from memory of "
+        "Cockburn, Gutwin & Greenberg (2007)"))
+    item_height_px: float = Field(default=24.0, ge=1, le=10_000, description=(
+        "h: height of a menu item; pointing to item i (from 0) runs D = (i + 0.5) h to a target W = h, so h "
+        "cancels in D/W and does not change any time; 24 px is common practice for desktop menus, no source"))
 
 
 class LearnModel(_Strict):
@@ -120,7 +138,9 @@ class LearnModel(_Strict):
     The encoding time is an assumption of this project (no source).
     """
 
-    encoding_s: float = Field(default=1.5, ge=0, le=MAX_ENCODING_S)
+    encoding_s: float = Field(default=1.5, ge=0, le=MAX_ENCODING_S, description=(
+        "time a learn trial spends rehearsing the hotkey label on top of the menu path; 1.5 s is an assumption "
+        "of this project (no source)"))
 
 
 class ErrorModel(_Strict):
@@ -131,8 +151,11 @@ class ErrorModel(_Strict):
     project (no source). An undo costs M + undo_keystrokes x K.
     """
 
-    commission_share: float = Field(default=0.25, ge=0, le=1)
-    undo_keystrokes: int = Field(default=2, ge=1, le=20)
+    commission_share: float = Field(default=0.25, ge=0, le=1, description=(
+        "share (0..1) of failed hotkey recalls that type a wrong command (its keystrokes), then undo it (M + "
+        "undo_keystrokes x K) before the menu; the rest go straight to the menu; an assumption (no source)"))
+    undo_keystrokes: int = Field(default=2, ge=1, le=20, description=(
+        "keystrokes of the undo shortcut (2 for Ctrl+Z), each costing K; an assumption (no source)"))
 
 
 class TrialTimeNoise(_Strict):
@@ -145,19 +168,21 @@ class TrialTimeNoise(_Strict):
     on changes no other draw.
     """
 
-    cv: float = Field(default=0.0, ge=0, le=5)
+    cv: float = Field(default=0.0, ge=0, le=5, description=(
+        "coefficient of variation (sd / mean, dimensionless) of the lognormal factor on each trial's time; "
+        "0 = off; lognormal times are common practice, no source for a value"))
 
 
 class CostSettings(_Strict):
     """All time-model settings; one YAML preset in ``configs/costs/`` is one of these."""
 
-    name: str = "custom"
-    klm: KLMOperators = KLMOperators()
-    fitts: FittsLaw = FittsLaw()
-    menu: MenuModel = MenuModel()
-    learn: LearnModel = LearnModel()
-    errors: ErrorModel = ErrorModel()
-    noise: TrialTimeNoise = TrialTimeNoise()
+    name: str = Field(default="custom", description="the preset's name (shown in outputs)")
+    klm: KLMOperators = Field(default=KLMOperators(), description="Keystroke-Level Model operator times")
+    fitts: FittsLaw = Field(default=FittsLaw(), description="Fitts' law coefficients of mouse pointing")
+    menu: MenuModel = Field(default=MenuModel(), description="search-decision-pointing time of a menu item")
+    learn: LearnModel = Field(default=LearnModel(), description="the extra time of a deliberate learn trial")
+    errors: ErrorModel = Field(default=ErrorModel(), description="what a failed hotkey recall costs")
+    noise: TrialTimeNoise = Field(default=TrialTimeNoise(), description="optional trial-to-trial time noise")
 
     @model_validator(mode="after")
     def _pointing_positive(self) -> CostSettings:

@@ -40,8 +40,9 @@ MEMORY_CODES: dict[str, int] = {
 
 
 #: Sane ranges (a project choice, no source): a trace weight above 100 presentations, a
-#: threshold outside +-50 (its scale differs by memory kind), noise outside 0.01-10 s, a latency factor above 10 s or a
-#: retrieval-failure time F e^-tau above 10 minutes is taken for a mistake and refused.
+#: threshold outside +-50 (its scale differs by memory kind), a noise s outside 0.01-10 (activation
+#: units, like tau), a latency factor above 10 s or a retrieval-failure time F e^-tau above 10
+#: minutes is taken for a mistake and refused.
 MAX_TRACE_WEIGHT = 100.0
 MAX_RETRIEVAL_FAIL_S = 600.0
 
@@ -54,10 +55,18 @@ class TraceWeights(StrictModel):
     label as feedback, plain menu use lays an incidental trace only when > 0.
     """
 
-    learn: float = Field(default=2.0, ge=0, le=MAX_TRACE_WEIGHT)
-    hotkey_success: float = Field(default=1.0, ge=0, le=MAX_TRACE_WEIGHT)
-    hotkey_failure: float = Field(default=0.5, ge=0, le=MAX_TRACE_WEIGHT)
-    menu: float = Field(default=0.0, ge=0, le=MAX_TRACE_WEIGHT)
+    learn: float = Field(default=2.0, ge=0, le=MAX_TRACE_WEIGHT, description=(
+        "weight of the trace a learn trial lays (deliberate rehearsal), "
+        "in standard ACT-R presentations (1 = one); 2.0 is an assumption (no source)"))
+    hotkey_success: float = Field(default=1.0, ge=0, le=MAX_TRACE_WEIGHT, description=(
+        "weight of the trace a recalled hotkey lays (retrieval practice), "
+        "in standard ACT-R presentations (1 = one); 1.0 is an assumption (no source)"))
+    hotkey_failure: float = Field(default=0.5, ge=0, le=MAX_TRACE_WEIGHT, description=(
+        "weight of the trace a failed attempt lays (the label seen in the menu after it), "
+        "in standard ACT-R presentations (1 = one); 0.5 is an assumption (no source)"))
+    menu: float = Field(default=0.0, ge=0, le=MAX_TRACE_WEIGHT, description=(
+        "weight of the trace a plain menu selection lays (incidental; 0 = none), "
+        "in standard ACT-R presentations (1 = one); 0.0 is an assumption (no source)"))
 
 
 class MemorySettings(StrictModel):
@@ -71,18 +80,41 @@ class MemorySettings(StrictModel):
     memory; 1.0 = real time).
     """
 
-    kind: MemoryKind = "actr"
-    decay: float = Field(default=0.5, gt=0, lt=1)
-    threshold: float = Field(default=-3.5, ge=-50, le=50)
-    noise_s: float = Field(default=0.4, ge=0.01, le=10)
-    latency_factor_s: float = Field(default=0.05, gt=0, le=10)
-    recent_traces: int = Field(default=3, ge=1, le=64)
-    spacing_scale: float = Field(default=0.217, ge=0, le=10)
-    spacing_intercept: float = Field(default=0.177, gt=0)
-    exponential_rate_per_s: float = Field(default=2e-5, gt=0, le=1)
-    power_time_unit_s: float = Field(default=1.0, ge=1e-3, le=86_400)
-    gap_time_scale: float = Field(default=1.0, ge=1e-6, le=1)
-    weights: TraceWeights = TraceWeights()
+    kind: MemoryKind = Field(default="actr", description=(
+        "memory model: `actr` ACT-R base-level learning (Anderson & Lebiere 1998) in the O(1) hybrid form of "
+        "Petrov (2006); `actr_exact` the exact sum over every trace; `pavlik_anderson` spacing-sensitive decay "
+        "(Pavlik & Anderson 2005); `exponential` and `power` forgetting (Wixted & Ebbesen 1991)"))
+    decay: float = Field(default=0.5, gt=0, lt=1, description=(
+        "d (dimensionless): each trace adds w age^-d to the strength (`actr`, `actr_exact`; the exponent b of "
+        "`power`); 0.5 is the ACT-R base-level learning default, Anderson & Lebiere (1998)"))
+    threshold: float = Field(default=-3.5, ge=-50, le=50, description=(
+        "tau (activation units, dimensionless): retrieval threshold of P(recall) = 1 / (1 + exp(-(A - tau) / s)), "
+        "Anderson & Lebiere (1998); a failed retrieval takes F e^-tau; -3.5 is an assumption (no source)"))
+    noise_s: float = Field(default=0.4, ge=0.01, le=10, json_schema_extra={"unit": ""}, description=(
+        "s (activation units, dimensionless; not seconds: the name carries the letter s): activation noise of "
+        "P(recall) = 1 / (1 + exp(-(A - tau) / s)), Anderson & Lebiere (1998); 0.4 is an assumption (no source)"))
+    latency_factor_s: float = Field(default=0.05, gt=0, le=10, description=(
+        "F: a recalled hotkey takes F e^-A to retrieve, a failed one F e^-tau (at most 600 s), Anderson & Lebiere "
+        "(1998); 0.05 s is an assumption (no source)"))
+    recent_traces: int = Field(default=3, ge=1, le=64, description=(
+        "k: traces per command kept exactly by `actr`'s hybrid form, the older ones lumped (Petrov 2006); read by "
+        "`actr` only; 3 is a project choice (no source)"))
+    spacing_scale: float = Field(default=0.217, ge=0, le=10, description=(
+        "c (dimensionless): trace j decays at d_j = c e^(m_j-1) + a, m_j-1 the activation when it is laid "
+        "(`pavlik_anderson` only); 0.217, Pavlik & Anderson (2005), from memory"))
+    spacing_intercept: float = Field(default=0.177, gt=0, description=(
+        "a (dimensionless): the decay of a trace laid with no prior trace, and the floor of d_j (`pavlik_anderson` "
+        "only, where it must be < 1); 0.177, Pavlik & Anderson (2005), from memory"))
+    exponential_rate_per_s: float = Field(default=2e-5, gt=0, le=1, description=(
+        "lambda: strength sum_j w_j e^(-lambda age_j) (`exponential` only; form of Wixted & Ebbesen 1991); "
+        "2e-5 per s (half-life 9.6 h) is an assumption (no source)"))
+    power_time_unit_s: float = Field(default=1.0, ge=1e-3, le=86_400, description=(
+        "u: strength sum_j w_j (1 + age_j / u)^-d (`power` only; form of Wixted & Ebbesen 1991); 1 s is a "
+        "project choice (no source)"))
+    gap_time_scale: float = Field(default=1.0, ge=1e-6, le=1, description=(
+        "factor (dimensionless) on the time between sessions as memory sees it, every kind; 1 = real time; "
+        "Pavlik & Anderson's psychological-time factor, 0.025 in their 2005 fit (from memory)"))
+    weights: TraceWeights = Field(default=TraceWeights(), description="trace weight laid by each kind of event")
 
     @model_validator(mode="after")
     def _spacing_decay_below_one(self) -> MemorySettings:

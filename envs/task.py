@@ -153,7 +153,7 @@ class ScenarioSettings(StrictModel):
     """A scenario: the command set and the default schedule (one YAML in configs/scenarios)."""
 
     name: str = Field(min_length=1, description="the scenario's name (shown in outputs)")
-    description: str = ""
+    description: str = Field(default="", description="free text about the scenario (not used by the model)")
     menus: list[MenuSpec] = Field(min_length=1, description="the menu bar, left to right")
     zipf_exponent: float = Field(default=1.0, ge=0, le=20,
                                  description="usage frequency of the k-th command in menu order ~ k^-exponent when "

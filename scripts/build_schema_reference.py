@@ -69,9 +69,13 @@ POPULATION_EXAMPLE = ("models:\n  delta:\n    agent: rescorla_wagner\n    partic
 _UNIT_WORDS = {"s": "s", "h": "h", "ms": "ms", "px": "px", "min": "min"}
 
 
-def unit_of(name: str) -> str:
+def unit_of(name: str, field: FieldInfo | None = None) -> str:
     """The unit a field's name carries (``encoding_s`` -> s, ``slope_s_per_bit`` -> s/bit,
-    ``rate_per_h`` -> 1/h); empty for a count, a share or text."""
+    ``rate_per_h`` -> 1/h); empty for a count, a share or text. A field that declares its own
+    ``unit`` (``json_schema_extra``, e.g. the dimensionless activation noise ``noise_s``) gets that."""
+    extra = field.json_schema_extra if field is not None else None
+    if isinstance(extra, dict) and "unit" in extra:
+        return str(extra["unit"])
     parts = name.split("_")
     for i, part in enumerate(parts):
         if part == "per" and i + 1 < len(parts):
@@ -94,7 +98,7 @@ def type_text(annotation: Any) -> str:
     """A short readable type: ``number``, ``whole number``, ``text``, ``a | b`` choices, ``list of X``."""
     origin = typing.get_origin(annotation)
     if origin is Literal:
-        return " \\| ".join(f"`{a}`" for a in typing.get_args(annotation))
+        return " | ".join(f"`{a}`" for a in typing.get_args(annotation))  # _cell escapes the pipes
     if origin in (typing.Union, types.UnionType):
         return " or ".join(type_text(a) for a in typing.get_args(annotation))
     if origin is list:
@@ -142,9 +146,39 @@ def range_text(field: FieldInfo) -> str:
     return ", ".join(bounds)
 
 
+_ROLE = re.compile(r":(?:py:)?(data|func|mod|class|meth|attr|obj):`(~?)\.?([\w.]+)`")
+
+
+def markdown_text(text: str, module: str) -> str:
+    """Docstring text as Markdown: Sphinx roles become code (``:data:`X``` also gets the value of the
+    constant ``X`` of ``module`` when it is a number), double backticks single ones."""
+
+    def role(match: re.Match[str]) -> str:
+        kind, short, target = match.groups()
+        shown = target.rsplit(".", 1)[-1] if short else target
+        if kind == "data":
+            value = _constant(target, module)
+            if isinstance(value, (int, float)) and not isinstance(value, bool):
+                return f"`{shown}` (= {value:,})" if isinstance(value, int) else f"`{shown}` (= {value:g})"
+        return f"`{shown}`"
+
+    return re.sub(r"``(.+?)``", r"`\1`", _ROLE.sub(role, text))
+
+
+def _constant(target: str, module: str) -> Any:
+    """The object ``target`` names, looked up in ``module`` (or as a dotted path); None if not found."""
+    owner, _, name = target.rpartition(".")
+    try:
+        return getattr(__import__(owner or module, fromlist=[name]), name, None)
+    except ImportError:
+        return None
+
+
 def _doc(model: type[BaseModel]) -> str:
     doc = inspect.getdoc(model) or ""
-    return " ".join(doc.split()) if doc and doc != inspect.getdoc(BaseModel) else ""
+    if not doc or doc == inspect.getdoc(BaseModel):
+        return ""
+    return markdown_text(" ".join(doc.split()), model.__module__)
 
 
 def _cell(text: str) -> str:
@@ -162,8 +196,9 @@ def model_section(model: type[BaseModel], done: set[type[BaseModel]], depth: int
     lines += ["| field | type | default | unit | allowed | description |", "|---|---|---|---|---|---|"]
     nested: list[type[BaseModel]] = []
     for name, field in model.model_fields.items():
+        description = markdown_text(field.description or "", model.__module__)
         lines.append(f"| `{name}` | {_cell(type_text(field.annotation))} | {_cell(default_text(field))} | "
-                     f"{unit_of(name)} | {_cell(range_text(field))} | {_cell(field.description or '')} |")
+                     f"{unit_of(name, field)} | {_cell(range_text(field))} | {_cell(description)} |")
         nested += [m for m in _model_of(field.annotation) if m not in done and m not in nested]
     lines.append("")
     if extra == "allow":
@@ -192,9 +227,11 @@ def render() -> str:
         "Every config file is YAML, validated on load by the pydantic model named below: unknown keys, "
         "booleans given for numbers, `inf`/`nan`, keys given twice and out-of-range values are refused with "
         "the file and the dotted field named. Units are those the field names carry (`_s` seconds, `_h` "
-        "hours, `_per_bit` per bit of information, `_px` pixels); fields without a unit are counts, shares "
-        "or text. The sources of the defaults are named in each model's description (from the code's "
-        "docstrings).",
+        "hours, `_per_bit` per bit of information, `_px` pixels) unless the field declares its own (the "
+        "activation noise `noise_s` is the letter s of the recall function, dimensionless); fields without a "
+        "unit are counts, shares, dimensionless model constants or text. Each description gives the field's "
+        "meaning and where its default comes from: a published source, common practice (no source), an "
+        "assumption of this project, or a value recalled from memory (check the source before relying on it).",
         "",
         "| kind | model | given as |",
         "|---|---|---|",
@@ -210,8 +247,99 @@ def render() -> str:
         out += [f"## {kind[0].upper()}{kind[1:]}", "", f"Example ({kind}):", "",
                 f"<!-- example: {kind} -->", "```yaml", example.rstrip("\n"), "```", ""]
         out += model_section(model, done)
+        if kind == "agent spec":
+            out += agents_section()
     out += population_section()
     return "\n".join(out).rstrip("\n") + "\n"
+
+
+def _number(value: float) -> str:
+    """A bound or default as text: whole numbers without a decimal point, infinities as words."""
+    if value == float("inf"):
+        return "none"
+    if value == float("-inf"):
+        return "none"
+    return f"{value:g}"
+
+
+def _option_default(value: Any) -> str:
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return str(value).lower()
+    if isinstance(value, tuple):
+        value = list(value)
+    return f"`{value!r}`" if not isinstance(value, str) else f"`{value}`"
+
+
+def agent_parameters(name: str) -> list[tuple[str, Any, str]]:
+    """(parameter, ParamSpec, mechanism or "") of a registered agent; the composed learner with
+    every mechanism listed, so that every parameter it can take is shown."""
+    from shortcut_gym.agents.learning.mechanisms import MECHANISMS, owner_of
+    from shortcut_gym.agents.learning.presets import COMPOSED
+    from shortcut_gym.agents.registry import make_agent
+
+    agent = make_agent(name, mechanisms=list(MECHANISMS)) if name == COMPOSED else make_agent(name)
+    learning = hasattr(agent, "mechanisms")
+    return [(p, spec, (owner_of(p) or "") if learning else "") for p, spec in agent.param_specs().items()]
+
+
+def agent_options(name: str) -> list[tuple[str, str, str]]:
+    """(option, default text, meaning) of a registered agent: its constructor's keywords besides
+    the context and the parameters."""
+    from shortcut_gym.agents.learning.presets import PublishedLearningModel
+    from shortcut_gym.agents.registry import AGENTS, OPTION_DOCS
+
+    cls = AGENTS[name]
+    out = []
+    for p in list(inspect.signature(cls.__init__).parameters.values())[1:]:
+        if p.name == "context" or p.kind is inspect.Parameter.VAR_KEYWORD:
+            continue
+        if p.name not in OPTION_DOCS:
+            raise KeyError(f"agent {name!r}: option {p.name!r} has no entry in agents.registry.OPTION_DOCS")
+        default, meaning = _option_default(p.default), OPTION_DOCS[p.name]
+        if p.name == "mechanisms" and issubclass(cls, PublishedLearningModel):
+            default = f"`{list(cls.default_mechanisms)!r}`"
+            meaning = "fixed: the published model's own mechanisms (for others use `composed_learner`)"
+        elif p.name == "mechanisms":
+            default = "**required**"
+        out.append((p.name, default, meaning))
+    return out
+
+
+def agents_section() -> list[str]:
+    """One table of parameters and one of options per registered agent."""
+    from shortcut_gym.agents.registry import AGENTS
+
+    out = ["### Agents", "",
+           "Every registered agent (`name` of an agent spec), with its parameters (under `params`: a number "
+           "within the bounds, inclusive; `none` = unbounded) and its options (beside `params`).", ""]
+    for name, cls in AGENTS.items():
+        summary = inspect.getdoc(cls) or ""
+        summary = markdown_text(" ".join(summary.split("\n\n", 1)[0].split()), cls.__module__)
+        out += [f"#### {name}", "", summary, ""]
+        params = agent_parameters(name)
+        if params:
+            with_mech = any(m for _, _, m in params)
+            head = "| parameter | default | lower | upper |" + (" mechanism |" if with_mech else "") + " meaning |"
+            out += [head, "|---" * head.count(" | ") + "|---|"]
+            for p, spec, mech in params:
+                row = f"| `{p}` | {_number(spec.default)} | {_number(spec.lower)} | {_number(spec.upper)} |"
+                out.append(row + (f" `{mech}` |" if with_mech else "") + f" {_cell(spec.doc)} |")
+        else:
+            out.append("No parameters.")
+        out.append("")
+        options = agent_options(name)
+        if options:
+            out += ["| option | default | meaning |", "|---|---|---|"]
+            out += [f"| `{o}` | {_cell(d)} | {_cell(m)} |" for o, d, m in options]
+            if any(p.kind is inspect.Parameter.VAR_KEYWORD and p.name != "params"
+                   for p in inspect.signature(cls.__init__).parameters.values()):
+                out += ["", "Any other key is a hyperparameter of the Stable-Baselines3 class (see AgentSpec)."]
+        else:
+            out.append("No options.")
+        out.append("")
+    return out
 
 
 def population_section() -> list[str]:

@@ -46,23 +46,34 @@ class _Strict(StrictModel):
 class BaseSetting(_Strict):
     """The setting every run starts from (``make_world`` arguments; presets, paths or mappings)."""
 
-    scenario: str | dict[str, Any] | None = None
-    costs: str | dict[str, Any] | None = None
-    memory: str | dict[str, Any] | None = None
-    schedule: dict[str, Any] | None = None
-    aids: str | dict[str, Any] | None = None
-    observe_recall: bool = False
-    target_encoding: Literal["onehot", "index"] = "onehot"
+    scenario: str | dict[str, Any] | None = Field(default=None, description=(
+        "a bundled scenario name, a YAML path (from the spec's folder) or the settings inline; null: "
+        "`tidepool_logbook`"))
+    costs: str | dict[str, Any] | None = Field(default=None, description=(
+        "a bundled costs preset, a YAML path or the settings inline; null: `average_skilled_mouse`"))
+    memory: str | dict[str, Any] | None = Field(default=None, description=(
+        "a bundled memory preset, a YAML path or the settings inline; null: the MemorySettings defaults"))
+    schedule: dict[str, Any] | None = Field(default=None, description=(
+        "ScheduleSettings keys laid over the scenario's own schedule; null: the scenario's"))
+    aids: str | dict[str, Any] | None = Field(default=None, description=(
+        "a bundled aids preset, a YAML path or the settings inline; null: no aids"))
+    observe_recall: bool = Field(default=False, description=(
+        "add the true recall probability of the trial's command to the observation"))
+    target_encoding: Literal["onehot", "index"] = Field(default="onehot", description=(
+        "the trial's command in the observation: one entry per command (`onehot`) or its index (`index`)"))
 
 
 class ParameterRange(_Strict):
     """Values of one varied parameter: an explicit list, or ``low``..``high`` (linear or log)."""
 
-    values: list[float | int | str] | None = None
-    low: float | None = None
-    high: float | None = None
-    steps: int | None = Field(default=None, ge=2)
-    scale: Literal["linear", "log"] = "linear"
+    values: list[float | int | str] | None = Field(default=None, description=(
+        "the parameter's values, in the dotted setting's own unit (non-empty; instead of low/high)"))
+    low: float | None = Field(default=None, description="lowest value, in the setting's own unit (< high)")
+    high: float | None = Field(default=None, description="highest value, in the setting's own unit")
+    steps: int | None = Field(default=None, ge=2, description=(
+        "grid design only: number of values from low to high, both ends included"))
+    scale: Literal["linear", "log"] = Field(default="linear", description=(
+        "spacing from low to high: `linear`, or `log` (geometric steps, log-uniform draws; needs low > 0)"))
 
     @model_validator(mode="after")
     def _one_form(self) -> ParameterRange:
@@ -84,10 +95,14 @@ class ParameterRange(_Strict):
 class Variation(_Strict):
     """The design over the varied parameters."""
 
-    design: Literal["grid", "random", "lhs"] = "grid"
+    design: Literal["grid", "random", "lhs"] = Field(default="grid", description=(
+        "`grid`: every combination of the values; `random`: independent uniform draws; `lhs`: Latin hypercube "
+        "(McKay, Beckman & Conover 1979)"))
     points: int | None = Field(default=None, ge=1, description="number of points (random, lhs)")
-    seed: int = 0
-    parameters: dict[str, ParameterRange] = Field(default_factory=dict)
+    seed: int = Field(default=0, description="seed of the random and lhs draws of the design points (not of the users)")
+    parameters: dict[str, ParameterRange] = Field(default_factory=dict, description=(
+        "dotted setting path (`costs.klm.keystroke_s`, starting with scenario, costs, memory, schedule or aids) "
+        "-> its values"))
 
     @model_validator(mode="after")
     def _design_fields(self) -> Variation:
@@ -117,16 +132,17 @@ class AgentEntry(_Strict):
     """One agent: a registered name and its parameters; ``label`` names it in the outputs."""
 
     model_config = ConfigDict(extra="allow", frozen=True, allow_inf_nan=False)
-    name: str = Field(min_length=1)
-    params: dict[str, Any] = Field(default_factory=dict)
-    label: str | None = None
+    name: str = Field(min_length=1, description="registered agent name (see [Agents](#agents))")
+    params: dict[str, Any] = Field(default_factory=dict, description="the agent's parameters by name")
+    label: str | None = Field(default=None, description=(
+        "name of the agent in the outputs (default: from the name and parameters)"))
 
 
 class SeedBlock(_Strict):
     """Simulated users: seeds ``first``, ``first + 1``, ... (``count`` of them)."""
 
-    first: int = Field(default=0, ge=0)
-    count: int = Field(ge=1, le=MAX_USERS)
+    first: int = Field(default=0, ge=0, description="seed of the first simulated user")
+    count: int = Field(ge=1, le=MAX_USERS, description="number of simulated users, the same in every run")
 
     @model_validator(mode="after")
     def _fits_in_int64(self) -> SeedBlock:
@@ -138,40 +154,50 @@ class SeedBlock(_Strict):
 class Horizon(_Strict):
     """Overrides of the schedule's length."""
 
-    sessions: int | None = Field(default=None, ge=1)
-    trials_per_session: int | None = Field(default=None, ge=1)
+    sessions: int | None = Field(default=None, ge=1, description="sessions per user instead of the schedule's")
+    trials_per_session: int | None = Field(default=None, ge=1, description=(
+        "trials per session instead of the schedule's"))
 
 
 class BreakEvenMap(_Strict):
     """The break-even map: two varied cost parameters, the learner and the command it is read for."""
 
-    x: str
-    y: str
-    learner: str | None = None
-    command: int | str = 0
+    x: str = Field(description="varied parameter (dotted path) on the map's x axis; numeric values, grid design")
+    y: str = Field(description="varied parameter on the y axis (not x)")
+    learner: str | None = Field(default=None, description=(
+        "label of the agent whose saving over `always_menu` is mapped; default: the first `learn_first_k`, "
+        "else the reference agent"))
+    command: int | str = Field(default=0, description=(
+        "the command the map is read for: its name, or its index in menu order (from 0)"))
 
 
 class Outputs(_Strict):
     """What to write besides the result table and the summary."""
 
-    trial_tables: bool = False
-    plots: bool = True
-    adoption_by: str | None = None
-    break_even: BreakEvenMap | None = None
-    reference_agent: str | None = None
+    trial_tables: bool = Field(default=False, description="also write every trial of every run (trials.parquet)")
+    plots: bool = Field(default=True, description="draw the plots (plots/)")
+    adoption_by: str | None = Field(default=None, description=(
+        "varied parameter (dotted path) with one panel per value in the adoption plot; default: the first varied one"))
+    break_even: BreakEvenMap | None = Field(default=None, description=(
+        "the break-even map; null: drawn over the first two varied parameters when the design is a grid"))
+    reference_agent: str | None = Field(default=None, description=(
+        "label of the agent the summary's gap_to_reference_s is measured against; default: the first "
+        "`bounded_optimal`"))
 
 
 class SweepSpec(_Strict):
     """A whole sweep."""
 
-    name: str = Field(min_length=1, pattern=r"^[A-Za-z0-9_.-]+$")
-    description: str = ""
-    base: BaseSetting = BaseSetting()
-    vary: Variation = Variation()
-    agents: list[AgentEntry] = Field(min_length=1)
-    seeds: SeedBlock | list[int]
-    horizon: Horizon | None = None
-    outputs: Outputs = Outputs()
+    name: str = Field(min_length=1, pattern=r"^[A-Za-z0-9_.-]+$", description=(
+        "the sweep's name (letters, digits, `_.-`; titles its report and plots)"))
+    description: str = Field(default="", description="free text about the sweep")
+    base: BaseSetting = Field(default=BaseSetting(), description="the setting every run starts from")
+    vary: Variation = Field(default=Variation(), description="the varied parameters and the design over them")
+    agents: list[AgentEntry] = Field(min_length=1, description="the agents, each run at every design point")
+    seeds: SeedBlock | list[int] = Field(description=(
+        "the simulated users: a block `{first, count}` or a list of distinct seeds (0 .. 2^63 - 1)"))
+    horizon: Horizon | None = Field(default=None, description="shorter or longer schedule; null: the base's")
+    outputs: Outputs = Field(default=Outputs(), description="what to write besides the tables")
 
     @field_validator("seeds")
     @classmethod
