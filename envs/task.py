@@ -118,7 +118,8 @@ class ScheduleSettings(StrictModel):
     trial_interval_s: float = Field(default=60.0, ge=MIN_TRIAL_INTERVAL_S, le=MAX_TRIAL_INTERVAL_S,
                                     description="time between trial onsets within a session")
     gap_h: float | list[float] = Field(default=24.0, description="gap between sessions: one value for every gap, "
-                                                                 "or a list of sessions - 1 gaps (each > 0)")
+                                                                 "or a list of sessions - 1 gaps (each > 0 and "
+                                                                 f"≤ {MAX_GAP_H:,.0f} h)")
 
     @field_validator("gap_h")
     @classmethod

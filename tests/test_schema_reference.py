@@ -320,3 +320,19 @@ def test_agent_option_rows_are_accepted_with_their_shown_default(name: str) -> N
         _build(name, no_such_option=1)
     used = {r["option"].strip("`") for s in _agent_sections().values() for r in _table(s, "option")}
     assert used == set(OPTION_DOCS), "OPTION_DOCS entries no agent takes, or options it lacks"
+
+
+@pytest.mark.parametrize("height", [1.0, 7.5, 24.0, 300.0])
+def test_the_item_height_cancels_as_its_description_says(height: float) -> None:
+    """Fitts' law with D = (i + 0.5) h and W = h: the menu time is the same for every item height."""
+    from shortcut_gym.envs.costs import CostSettings, MenuModel, menu_time_s
+
+    assert "cancels" in (MenuModel.model_fields["item_height_px"].description or "")
+    base, tall = CostSettings(), CostSettings(menu={"item_height_px": height})
+    for item in range(6):
+        for selection in (1, 2, 9):
+            args = (8, item, 0.25, selection, False)
+            assert menu_time_s(tall, *args) == pytest.approx(menu_time_s(base, *args), rel=1e-12)
+    world = make_world(costs={"menu": {"item_height_px": height}})
+    reference = make_world(costs={"menu": {"item_height_px": 24.0}})
+    assert np.allclose(world.command_constants(), reference.command_constants(), rtol=1e-12, atol=0)
