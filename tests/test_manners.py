@@ -43,7 +43,7 @@ WORKFLOW = textwrap.dedent('''
         report = run_sweep({"name": "manners", "base": {"schedule": {"sessions": 2, "trials_per_session": 5}},
                             "vary": {"parameters": {"costs.klm.keystroke_s": {"values": [0.2, 0.3]}}},
                             "agents": [{"name": "always_menu"}, {"name": "learn_first_k", "params": {"k": 1}}],
-                            "seeds": {"count": 2}}, folder + "/sweep", workers=1, progress=False)
+                            "seeds": {"count": 2}}, folder + "/sweep", workers=1)  # default: no progress bar
         pairs = pd.DataFrame({"parameter": ["a"] * 3, "true": [1.0, 2.0, 3.0], "fitted": [1.1, 1.9, 3.2]})
         plot_parameter_recovery(pairs, pd.DataFrame({"parameter": ["a"], "correlation": [0.99]}), folder + "/r.png")
         plot_confusion(pd.DataFrame([[0.9, 0.1], [0.2, 0.8]], index=["x", "y"], columns=["x", "y"]), folder + "/c.png")

@@ -168,7 +168,7 @@ def run_sweep(
     workers: int | None = None,
     address: str | None = None,
     retry_failed: bool = False,
-    progress: bool = True,
+    progress: bool = False,
     write_outputs: bool = True,
     plan_store: str | Path | bool | None = None,
     keep_plans: bool = False,
@@ -187,7 +187,8 @@ def run_sweep(
     folder given here is the user's and is never removed; ``plan_store_bytes`` caps its files
     (or the default store's while the sweep runs; entries, lock files, temporaries and damaged
     entries set aside all count): each worker prunes after writing an entry
-    (:func:`shortcut_gym.agents.planner.plan_store.prune`)."""
+    (:func:`shortcut_gym.agents.planner.plan_store.prune`). ``progress``: draw a progress bar on
+    stderr (off by default: a library call prints nothing; the CLI turns it on)."""
     start = time.perf_counter()
     sweep, source = _spec_and_source(spec)
     runs = plan_runs(sweep, source)
