@@ -1,7 +1,11 @@
 """``shortcut-gym train``: train an SB3 (ppo, a2c, dqn) or tabular (q_learning, sarsa) agent on a
 world and save its model, which ``simulate``, ``sweep`` and ``score`` then load with
 ``--agent NAME:model_path=FILE``. The model keeps the record of the world it was trained on and
-is refused on any other unless ``allow_other_world=true`` (:mod:`shortcut_gym.agents.world_record`)."""
+is refused on any other unless ``allow_other_world=true`` (:mod:`shortcut_gym.agents.world_record`).
+
+``--out`` is used as given: its suffix must be the agent's (``.zip`` for SB3, which also writes
+``.obs_norm.npz`` beside it while ``normalize`` is on; ``.npz`` for tabular agents), and a file
+that exists is replaced only with ``--overwrite``; both are checked before any training."""
 
 from __future__ import annotations
 
@@ -12,10 +16,20 @@ from pathlib import Path
 from shortcut_gym.agents.registry import agent_from_spec, make_agent
 from shortcut_gym.agents.rollout import context_of, evaluate_agent
 from shortcut_gym.agents.sb3 import SB3Agent
+from shortcut_gym.agents.sb3.files import norm_path
 from shortcut_gym.agents.tabular import TabularAgent
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.lab.cli import CLIError
-from shortcut_gym.lab.cli.options import add_agent_options, add_world_options, agent_specs_of, detail, status, world_of
+from shortcut_gym.lab.cli.options import (
+    add_agent_options,
+    add_overwrite,
+    add_world_options,
+    agent_specs_of,
+    claim_output,
+    detail,
+    status,
+    world_of,
+)
 from shortcut_gym.lab.cli.ranges import MAX_SEED, output_file, seed, whole_number
 
 #: Agents ``train`` knows how to train and save (registry names).
@@ -50,11 +64,27 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--seed", type=seed, default=0, help="seed of the training users (and the model's own draws)")
     p.add_argument("--envs", type=whole_number(1, 1024), default=8, help="parallel simulated users (SB3 only)")
     p.add_argument("--out", type=output_file, required=True,
-                   help="model file to write (SB3: .zip plus .obs_norm.npz beside it; tabular: .npz)")
+                   help="model file to write, used as given: SB3 a .zip (plus .obs_norm.npz beside it), "
+                        "tabular a .npz")
+    add_overwrite(p)
     p.add_argument("--eval-users", type=whole_number(0, 100_000), default=20,
                    help="users (seeds after the training ones) to compare the trained agent with always-menu on")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run)
+
+
+def files_to_write(agent: SB3Agent | TabularAgent, name: str, out: Path) -> list[Path]:
+    """The files training ``agent`` writes for ``--out out``: ``out`` itself (its suffix checked
+    against the agent's) and, for SB3 with ``normalize`` on, its observation statistics."""
+    suffix, what = ((".zip", "an SB3 model zip (its observation statistics go in .obs_norm.npz beside it)")
+                    if isinstance(agent, SB3Agent) else (".npz", "a Q table .npz"))
+    if out.suffix != suffix:
+        given = f"the suffix {out.suffix!r}" if out.suffix else "no suffix"
+        raise CLIError(f"--out {out}: {name} writes {what}, so the file must end in {suffix} ({given} given); "
+                       f"give --out {out.with_suffix(suffix)}")
+    if isinstance(agent, SB3Agent) and agent.normalize:
+        return [out, norm_path(out)]
+    return [out]
 
 
 def run(args: argparse.Namespace) -> int:
@@ -70,6 +100,10 @@ def run(args: argparse.Namespace) -> int:
     world = world_of(args)
     env = CommandSelectionEnv(world=world)
     agent = agent_from_spec(spec)
+    if not isinstance(agent, SB3Agent | TabularAgent):  # pragma: no cover - TRAINABLE lists only the two kinds
+        raise CLIError(f"train: no training for {spec['name']!r}")
+    for path in files_to_write(agent, spec["name"], Path(args.out)):
+        claim_output(path, args, "--out" if path == Path(args.out) else "--out (its observation statistics)")
     episodes = math.ceil(args.trials / world.horizon)
     first_eval = args.seed + (episodes if isinstance(agent, TabularAgent) else 0) + 1
     if first_eval + args.eval_users > MAX_SEED:
@@ -78,14 +112,13 @@ def run(args: argparse.Namespace) -> int:
     if isinstance(agent, SB3Agent):
         agent.train(world, total_timesteps=args.trials, seed=args.seed, progress_bar=not args.quiet, n_envs=args.envs)
         trained = f"{args.trials} timesteps on {args.envs} parallel users"
-    elif isinstance(agent, TabularAgent):
+    else:
         agent.bind(context_of(env))
         agent.train(env, episodes, seed=args.seed, progress_bar=not args.quiet)
         trained = f"{episodes} simulated users of {world.horizon} trials"
-    else:  # pragma: no cover - TRAINABLE lists only the two kinds
-        raise CLIError(f"train: no training for {spec['name']!r}")
     Path(args.out).parent.mkdir(parents=True, exist_ok=True)
     path = agent.save(Path(args.out))
+    assert path == Path(args.out), (path, args.out)  # files_to_write checked the suffix save keeps
     status(f"trained {spec['name']} for {trained}; wrote {path}")
     if args.eval_users:
         seeds = range(first_eval, first_eval + args.eval_users)
