@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import difflib
+import inspect
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
@@ -100,18 +102,90 @@ def refuse_planner_memory(world: World, named: Iterable[tuple[str, str]], who: s
             check_memory_kind(world, f"{who}: agent {label!r}")
 
 
-def check_spec(spec: dict[str, Any], where: str) -> None:
-    """Refuse what an agent's class can tell is wrong in a spec dict before building it
-    (:meth:`Agent.check_options`); faults are :class:`ConfigError` starting with ``where``."""
-    cls = AGENTS.get(spec.get("name"))  # type: ignore[arg-type]
+#: The fields of an agent spec mapping (:class:`AgentSpec`); every other key is a constructor option
+#: or a parameter of the agent (or, for the SB3 agents, a hyperparameter).
+SPEC_FIELDS = ("name", "label", "params", "hyperparameters")
+
+
+def agent_options(cls: type[Agent]) -> list[str]:
+    """The constructor options of an agent class: its named keyword arguments beyond ``context``
+    (``hyperparameters`` counts as a spec field, not an option), sorted."""
+    kinds = (inspect.Parameter.POSITIONAL_OR_KEYWORD, inspect.Parameter.KEYWORD_ONLY)
+    return sorted(n for n, p in inspect.signature(cls.__init__).parameters.items()
+                  if p.kind in kinds and n not in ("self", "context", "hyperparameters"))
+
+
+def takes_hyperparameters(cls: type[Agent]) -> bool:
+    """True for the agents whose constructor takes SB3 hyperparameters (``ppo``, ``a2c``, ``dqn``)."""
+    return "hyperparameters" in inspect.signature(cls.__init__).parameters
+
+
+def _words(names: Iterable[str]) -> str:
+    names = list(names)
+    return ", ".join(names) if names else "none"
+
+
+def _hyperparameter_owners(key: str) -> list[str]:
+    """The registered SB3 agents of which ``key`` is a hyperparameter (imports SB3: fault path only)."""
+    from shortcut_gym.agents.sb3.hyperparameters import known_hyperparameters
+
+    return [name for name, cls in AGENTS.items()
+            if takes_hyperparameters(cls) and key in known_hyperparameters(getattr(cls, "algorithm", name))]
+
+
+def _probe_parameters(cls: type[Agent], given: dict[str, Any], where: str) -> list[str]:
+    """The parameter names of ``cls`` built with the options of ``given`` that shape it (files and
+    worlds left out, so nothing is loaded); its refusal of an option starts with ``where``."""
+    shaping = {k: v for k, v in given.items()
+               if k in agent_options(cls) and not k.endswith("_path") and k != "world"}
+    try:
+        return list(make_agent(cls.name, **shaping).param_specs())
+    except ConfigError as err:
+        raise ConfigError(f"{where}: {err}") from None
+
+
+def check_spec(spec: dict[str, Any], where: str, file: bool = False) -> None:
+    """Refuse what can be told wrong in a spec dict before the agent is built: a key that is no
+    spec field (``file``: the spec came from a mapping, whose fields are then listed), constructor
+    option nor parameter of the agent, ``hyperparameters`` given to an agent that takes none, and
+    what the agent's class refuses itself (:meth:`Agent.check_options`: the SB3 hyperparameters).
+    Faults are :class:`ConfigError` starting with ``where``."""
+    name = spec.get("name")
+    cls = AGENTS.get(name) if isinstance(name, str) else None
     if cls is None:
         return
     params = spec.get("params") or {}
-    options = {k: v for k, v in spec.items() if k not in ("name", "params", "label")}
+    beside = {k: v for k, v in spec.items() if k not in ("name", "params", "label")}
+    options = agent_options(cls)
+    if not takes_hyperparameters(cls) and beside.get("hyperparameters") is not None:
+        sb3 = [n for n, c in AGENTS.items() if takes_hyperparameters(c)]
+        raise ConfigError(f"{where}: hyperparameters: are for the SB3 agents only ({', '.join(sb3)}); {name} takes "
+                          f"parameters under params: ({_words(_probe_parameters(cls, beside, where))}) and options "
+                          f"beside them ({_words(options)})")
     try:
-        cls.check_options({**options, **params} if isinstance(params, dict) else options)
+        cls.check_options({**beside, **params} if isinstance(params, dict) else beside)
     except ConfigError as err:
         raise ConfigError(f"{where}: {err}") from None
+    if takes_hyperparameters(cls) or not isinstance(params, dict):
+        return  # the SB3 check above named every unknown key; a bad params mapping is the schema's to refuse
+    parameters = _probe_parameters(cls, beside, where)
+    known = set(options) | set(parameters)
+    unknown = [k for k in (*params, *beside) if k not in known and k != "hyperparameters"]
+    if not unknown:
+        return
+    fields = f"spec fields: {', '.join(SPEC_FIELDS)} (SB3 agents only); " if file else ""
+    listing = f"({fields}parameters of {name}: {_words(parameters)}; options of {name}: {_words(options)})"
+    key = unknown[0]
+    keys = f"key {key!r}" if len(unknown) == 1 else "keys " + ", ".join(repr(k) for k in unknown)
+    if file and all(k in params for k in unknown):
+        keys += " under params"
+    owners = _hyperparameter_owners(key)
+    if len(unknown) == 1 and owners:
+        raise ConfigError(f"{where}: unknown {keys}: {key} is a hyperparameter of the SB3 agents "
+                          f"({', '.join(owners)}), not a parameter or option of {name} {listing}")
+    close = difflib.get_close_matches(key, [*(SPEC_FIELDS if file else ()), *known], n=1)
+    hint = f"; did you mean {close[0]!r}?" if len(unknown) == 1 and close else ""
+    raise ConfigError(f"{where}: unknown {keys} {listing}{hint}")
 
 
 class AgentSpec(StrictModel):
@@ -184,6 +258,8 @@ def read_agent_spec(path: str | Path) -> AgentSpec:
             known = sorted(p.stem for p in bundled.parent.glob("*.yaml"))
             raise ConfigError(f"{path}: no such agent spec file, nor a bundled one; bundled: {known}")
         path = bundled
+    if path.is_dir():
+        raise ConfigError(f"{path}: is a folder, not an agent spec file (give a YAML file, or a bundled spec's name)")
     if not path.is_file():
         raise ConfigError(f"{path}: no such agent spec file")
     spec = validate(AgentSpec, read_yaml(path), str(path))
@@ -192,14 +268,15 @@ def read_agent_spec(path: str | Path) -> AgentSpec:
         if key.endswith("_path") and isinstance(value, str) and not Path(value).is_absolute():
             extra[key] = str(path.parent / value)
     spec = spec.model_copy(update=extra)
-    check_spec(spec.as_dict(), str(path))
+    check_spec(spec.as_dict(), str(path), file=True)
     return spec
 
 
-def agent_from_spec(spec: dict[str, Any] | str | Path, context: AgentContext | None = None) -> Agent:
+def agent_from_spec(spec: dict[str, Any] | str | Path, context: AgentContext | None = None,
+                    source: str = "agent spec") -> Agent:
     """Build an agent from ``{'name': ..., 'params': {...}, ...}`` or a YAML file holding one
-    (validated as :class:`AgentSpec`). ``label`` is a name for outputs and not passed on."""
-    source = "agent spec"
+    (validated as :class:`AgentSpec`). ``label`` is a name for outputs and not passed on. Faults
+    start with ``source`` (a file's own path when ``spec`` is one)."""
     if isinstance(spec, (str, Path)):
         source = str(spec)
         spec = read_agent_spec(spec).as_dict()

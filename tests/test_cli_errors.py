@@ -43,7 +43,7 @@ def _one_line_exit_2(argv: list[str], capsys, expected: str) -> str:
     (["simulate", "--agent", "learn_first_k:k=1.5"], "k must be a whole number"),
     (["simulate", "--agent", "learn_first_k:k=.nan"], "k must be a finite number"),
     (["simulate", "--agent", "learn_first_k:k=nan"], "parameter k must be a number, got 'nan'"),
-    (["simulate", "--agent", "learn_first_k:zz=1"], "unknown parameter(s) ['zz']"),
+    (["simulate", "--agent", "learn_first_k:zz=1"], "--agent 'learn_first_k:zz=1' (command line): unknown key 'zz'"),
     (["simulate", "--scenario", "no_such_scenario"],
      "unknown scenario preset 'no_such_scenario', and no file 'no_such_scenario' either"),
     (["sweep", "no_such_spec"], "no such file"),

@@ -267,8 +267,11 @@ def test_the_tabular_agents_spec_is_unchanged(tmp_path: Path, name: str) -> None
     path.write_text(f"name: {name}\nparams: {{learning_rate: 0.2, epsilon: 0.05}}\n")
     assert read_agent_spec(path).as_dict() == {"name": name, "params": {"learning_rate": 0.2, "epsilon": 0.05}}
     assert agent_from_spec(path).spec() == agent.spec()
-    with pytest.raises(ConfigError, match=r"unknown parameter\(s\) \['n_steps'\]"):
-        agent_from_spec(parse_agent_arg(f"{name}:n_steps=64"))
+    with pytest.raises(CLIError, match=f"n_steps is a hyperparameter of the SB3 agents .*, not a parameter or "
+                                       f"option of {name}"):
+        parse_agent_arg(f"{name}:n_steps=64")
+    with pytest.raises(ConfigError, match=r"unknown parameter\(s\) \['n_steps'\]"):  # built without the check
+        agent_from_spec({"name": name, "params": {"n_steps": 64}})
     path.write_text(f"name: {name}\nhyperparameters: {{n_steps: 64}}\n")
     with pytest.raises(ConfigError, match="hyperparameters"):
         agent_from_spec(path)

@@ -19,7 +19,7 @@ from typing import Any, NamedTuple
 import pandas as pd
 
 from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
-from shortcut_gym.agents.registry import AGENTS, check_spec, make_agent, read_agent_spec
+from shortcut_gym.agents.registry import AGENTS, agent_from_spec, check_spec, make_agent, read_agent_spec
 from shortcut_gym.envs.config import load_settings, read_yaml, validate
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.task import ScenarioSettings, ScheduleSettings
@@ -107,14 +107,38 @@ def parse_prior(text: str) -> tuple[str, Any]:
         raise CLIError(f"prior {text!r}: {err}") from None
 
 
+def agent_where(text: str) -> str:
+    """How a fault names an ``--agent`` option's text."""
+    return f"--agent {text!r} (command line)"
+
+
 def parse_agent_arg(text: str) -> dict[str, Any]:
     """``--agent`` text (the syntax of :mod:`.specs`) -> agent spec dict; faults raise CLIError naming it,
-    among them what the agent's class refuses before it is built (an SB3 agent's hyperparameters)."""
+    among them what can be told before the agent is built (unknown keys, an SB3 agent's hyperparameters)."""
     spec = agent_spec_dict(text)
     if spec["name"] not in AGENTS:
         raise CLIError(f"agent {text!r}: unknown agent {spec['name']!r}; registered: {sorted(AGENTS)}")
     try:
-        check_spec(spec, f"--agent {text!r} (command line)")
+        check_spec(spec, agent_where(text))
+    except ConfigError as err:
+        raise CLIError(str(err)) from None
+    return spec
+
+
+def read_spec_file(path: Path) -> dict[str, Any]:
+    """An ``--agent-file``/``--model-file`` spec (a YAML path or a bundled spec's bare name) as a spec
+    dict, validated as :func:`~shortcut_gym.agents.registry.read_agent_spec` does; faults name the file."""
+    try:
+        return read_agent_spec(path).as_dict()
+    except ConfigError as err:
+        raise CLIError(str(err)) from None
+
+
+def built_once(spec: dict[str, Any], where: str) -> dict[str, Any]:
+    """``spec`` after building its agent once, so what the constructor refuses (a value out of range,
+    a missing model file) is told naming ``where`` (the option's text or the spec file)."""
+    try:
+        agent_from_spec(spec, source=where)
     except ConfigError as err:
         raise CLIError(str(err)) from None
     return spec
@@ -127,15 +151,17 @@ def add_agent_options(p: argparse.ArgumentParser, what: str = "agent (repeatable
                         "lists as [a, b]), e.g. ppo:model_path=out/ppo.zip,deterministic=true")
     p.add_argument("--agent-file", action="append", default=None, type=Path,
                    help="agent spec YAML (name, label, params, options beside them, and for ppo/a2c/dqn "
-                        "hyperparameters:; docs/configs.md; repeatable)")
+                        "hyperparameters:; docs/configs.md; or a bundled spec's name such as learn_first_k; "
+                        "repeatable, after the --agent agents)")
 
 
 def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -> list[dict[str, Any]]:
-    """The agent specs of ``--agent`` then ``--agent-file`` (or ``default`` texts when neither is given)."""
+    """The agent specs of ``--agent`` then ``--agent-file`` (or ``default`` texts when neither is given),
+    each built once so that any fault names its option text or file."""
     texts = args.agent if args.agent or args.agent_file else default
-    specs = [parse_agent_arg(t) for t in texts or []]
+    specs = [built_once(parse_agent_arg(t), agent_where(t)) for t in texts or []]
     sources = [f"--agent {t!r}" for t in texts or []]
-    specs += [read_agent_spec(path).as_dict() for path in args.agent_file or []]
+    specs += [built_once(read_spec_file(path), str(path)) for path in args.agent_file or []]
     sources += [f"--agent-file {path}" for path in args.agent_file or []]
     from shortcut_gym.lab.simulate import label_of  # the label results are keyed by
 
