@@ -12,7 +12,7 @@ Every fault raises :class:`CLIError` naming the option text; ranges and paths: :
 
 import argparse
 import logging
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from pathlib import Path
 from typing import Any, NamedTuple
 
@@ -155,23 +155,28 @@ def add_agent_options(p: argparse.ArgumentParser, what: str = "agent (repeatable
                         "repeatable, after the --agent agents)")
 
 
-def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None) -> list[dict[str, Any]]:
+def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None,
+                   refuse: Callable[[list[tuple[dict[str, Any], str]]], None] | None = None) -> list[dict[str, Any]]:
     """The agent specs of ``--agent`` then ``--agent-file`` (or ``default`` texts when neither is given),
-    each built once so that any fault names its option text or file."""
+    read, passed to ``refuse`` as (spec, how a fault names it) pairs (a subcommand's own refusals, before
+    anything is loaded), checked for repeated labels, then each built once so that any fault names its
+    option text or file."""
     texts = args.agent if args.agent or args.agent_file else default
-    specs = [built_once(parse_agent_arg(t), agent_where(t)) for t in texts or []]
-    sources = [f"--agent {t!r}" for t in texts or []]
-    specs += [built_once(read_spec_file(path), str(path)) for path in args.agent_file or []]
-    sources += [f"--agent-file {path}" for path in args.agent_file or []]
+    read = [(parse_agent_arg(t), agent_where(t), f"--agent {t!r}") for t in texts or []]
+    read += [(read_spec_file(path), str(path), f"--agent-file {path}") for path in args.agent_file or []]
+    if refuse is not None:
+        refuse([(spec, where) for spec, where, _ in read])
     from shortcut_gym.lab.simulate import label_of  # the label results are keyed by
 
     seen: dict[str, str] = {}
-    for spec, source in zip(specs, sources, strict=True):
+    for spec, _, source in read:
         label = label_of(spec)
         if label in seen:  # two agents under one label would be merged in every table
             raise CLIError(f"{seen[label]} and {source} both give the agent label {label!r}; results are keyed by "
                            "label: give one of them another (label=name:... on the line, label: in a file)")
         seen[label] = source
+    specs = [built_once(spec, where) for spec, where, _ in read]
+    for spec in specs:
         detail("agent " + ", ".join(f"{k}={v}" for k, v in spec.items()))
     return specs
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import math
 from pathlib import Path
+from typing import Any
 
 from shortcut_gym.agents.registry import agent_from_spec, make_agent
 from shortcut_gym.agents.rollout import context_of, evaluate_agent
@@ -87,16 +88,21 @@ def files_to_write(agent: SB3Agent | TabularAgent, name: str, out: Path) -> list
     return [out]
 
 
-def run(args: argparse.Namespace) -> int:
-    """Train, save, and print the trained agent's time per user against always-menu."""
-    specs = agent_specs_of(args)
+def _refuse_untrainable(specs: list[tuple[dict[str, Any], str]]) -> None:
+    """One agent spec, of a trainable agent, naming no model file (faults name the spec's source)."""
     if len(specs) != 1:
         raise CLIError(f"train takes exactly one --agent or --agent-file, got {len(specs)}")
-    spec = specs[0]
+    spec, where = specs[0]
     if spec["name"] not in TRAINABLE:
-        raise CLIError(f"train: agent {spec['name']!r} is not trained by this command; trainable: {list(TRAINABLE)}")
+        raise CLIError(f"train: {where}: agent {spec['name']!r} is not trained by this command; trainable: "
+                       f"{list(TRAINABLE)}")
     if "model_path" in spec:
-        raise CLIError("train: the agent spec names a model_path; give the file to write with --out")
+        raise CLIError(f"train: {where}: the agent spec names a model_path; give the file to write with --out")
+
+
+def run(args: argparse.Namespace) -> int:
+    """Train, save, and print the trained agent's time per user against always-menu."""
+    spec = agent_specs_of(args, refuse=_refuse_untrainable)[0]
     world = world_of(args)
     env = CommandSelectionEnv(world=world)
     agent = agent_from_spec(spec)
