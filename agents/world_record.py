@@ -34,6 +34,8 @@ from shortcut_gym.envs.world import World
 RECORD_FORMAT = 1
 #: The agent option that lets a model run on a world other than its own.
 OVERRIDE = "allow_other_world"
+#: The advice ending a mismatch message (a caller whose worlds differ by design replaces it).
+RETRAIN_ADVICE = f"retrain it on this world, or give {OVERRIDE}=true to use it anyway"
 #: What each part of a world is called in messages.
 PART_NAMES = {"commands": "scenario commands", "costs": "costs", "memory": "memory", "schedule": "schedule",
               "observation": "observation options", "aids": "interface aids"}
@@ -135,7 +137,7 @@ def check_model_world(owner: str, path: str | None, record: dict[str, Any] | Non
             _WARNED.add(key)
             log.warning("%s; used anyway as %s=true", message, OVERRIDE)
         return
-    raise WorldMismatchError(f"{message}; retrain it on this world, or give {OVERRIDE}=true to use it anyway")
+    raise WorldMismatchError(f"{message}; {RETRAIN_ADVICE}")
 
 
 class WorldRecorded:

@@ -78,7 +78,7 @@ def run(args: argparse.Namespace) -> int:
     else:
         refuse_planner_world(world, "allot (it prices every command by the planner; --agent prices by simulation)")
     if specs:
-        table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users))
+        table = population_savings(world, specs, counts, range(args.seed, args.seed + args.users), where="allot")
     else:
         table = planner_savings(world, counts, args.keyboard_share, n_bins=args.bins)
     S = table.for_combos(pool)

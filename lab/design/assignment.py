@@ -60,8 +60,9 @@ from shortcut_gym.agents.planner import (
 )
 from shortcut_gym.agents.registry import agent_from_spec, refuse_planner_memory
 from shortcut_gym.agents.rollout import labelled_trial_table
+from shortcut_gym.agents.world_record import OVERRIDE, RETRAIN_ADVICE
 from shortcut_gym.envs import CommandSelectionEnv, World
-from shortcut_gym.envs.errors import ConfigError, DataError
+from shortcut_gym.envs.errors import ConfigError, DataError, WorldMismatchError
 from shortcut_gym.envs.kernel import MENU
 from shortcut_gym.envs.task import hotkey_keystrokes
 
@@ -193,12 +194,15 @@ def planner_savings(world: World, keystrokes: Iterable[int] = (1, 2, 3), keyboar
 
 
 def population_savings(world: World, agents: Sequence[dict[str, Any]], keystrokes: Iterable[int] = (1, 2, 3),
-                       seeds: Sequence[int] = range(20)) -> SavingTable:
+                       seeds: Sequence[int] = range(20), where: str = "population_savings") -> SavingTable:
     """Savings by simulation under a population of agent specs (each agent meets every seed).
 
     Per command and key count: mean seconds per user its trials take under always-menu minus under
     the population, in the world where every command has a hotkey of that many keys (the same
     users, seeds ``seeds``). Approximate separation (see module); negative savings are kept.
+    Those worlds differ from every trained model's own world by design, so a model agent needs
+    ``allow_other_world=true``; without it the refusal (naming ``where``) says so, since retraining
+    cannot help.
     """
     if not agents:
         raise ConfigError("population_savings needs at least one agent spec")
@@ -212,7 +216,14 @@ def population_savings(world: World, agents: Sequence[dict[str, Any]], keystroke
     menu_only = base.groupby("command")["duration_s"].sum().reindex(range(n), fill_value=0.0).to_numpy() / len(seeds)
     saving = np.zeros((n, len(counts)))
     for i, k in enumerate(counts):
-        trials = labelled_trial_table(CommandSelectionEnv(world=with_keystrokes(world, k)), labelled, list(seeds))
+        try:
+            trials = labelled_trial_table(CommandSelectionEnv(world=with_keystrokes(world, k)), labelled, list(seeds))
+        except WorldMismatchError as err:
+            if not str(err).endswith(f"; {RETRAIN_ADVICE}"):  # not a trained model's record: as it is
+                raise
+            finding = str(err).removesuffix(f"; {RETRAIN_ADVICE}")
+            raise WorldMismatchError(f"{finding}; {where} tries other hotkey assignments: give "
+                                     f"{OVERRIDE}=true") from None
         per = trials.groupby("command")["duration_s"].sum().reindex(range(n), fill_value=0.0).to_numpy()
         saving[:, i] = menu_only - per / (len(seeds) * len(labelled))
     uses = np.bincount(base["command"], minlength=n) / len(seeds)
