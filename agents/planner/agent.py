@@ -81,6 +81,7 @@ class BoundedOptimalPlanner(Agent):
         self.n_weight_bins = int(n_weight_bins)
         self.plan: Plan | None = None
         self._times_for: Plan | None = None  # the plan self._times were priced for
+        self._lookup_for: Plan | None = None  # the plan self._lookup was tabulated for
 
     def __deepcopy__(self, memo: dict) -> BoundedOptimalPlanner:
         """A copy for another simulated user: its own memory tracking, the same read-only world,
