@@ -3,12 +3,17 @@
 Time lost versus bounded-optimal = agent's mean total time per user minus the planner's, over the
 same seeds (so both meet the same schedules). Hotkey adoption trial = the 1-based trial of a
 user's first successful hotkey (NaN when it never happens), averaged over users who adopt.
+
+Standard errors over the simulated users (NaN with one user): ``total_time_se_s`` = sd of the
+per-user totals / sqrt(users); ``time_lost_se_s`` = sd of the per-user paired differences (the
+agent's total minus the reference's on the same seed) / sqrt(users), the SE of ``time_lost_s``.
 """
 
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 
+import numpy as np
 import pandas as pd
 
 from shortcut_gym.agents.base import Agent
@@ -39,11 +44,19 @@ def score_trials(trials: pd.DataFrame, reference: str) -> pd.DataFrame:
     per_user["time_lost_s"] = per_user["total_time_s"] - ref.reindex(per_user.index.get_level_values("user")).values
     out = per_user.groupby(level="agent", sort=False).agg(
         time_per_trial_s=("time_per_trial_s", "mean"), total_time_s=("total_time_s", "mean"),
+        total_time_se_s=("total_time_s", _standard_error),
         adoption_trial=("adoption_trial", "mean"), hotkey_share=("hotkey_share", "mean"),
         learn_trials=("learn_trials", "mean"), time_lost_s=("time_lost_s", "mean"),
+        time_lost_se_s=("time_lost_s", _standard_error),
     )
     out["users"] = per_user.groupby(level="agent", sort=False).size()
     return out.reset_index()
+
+
+def _standard_error(values: pd.Series) -> float:
+    """sd (ddof 1) / sqrt(n) of the values; NaN for fewer than two."""
+    n = len(values)
+    return float(np.std(values.to_numpy(float), ddof=1) / np.sqrt(n)) if n > 1 else float("nan")
 
 
 def time_lost_vs_planner(world: World, agents: Mapping[str, Agent], seeds: Sequence[int],

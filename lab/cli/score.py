@@ -24,7 +24,10 @@ from shortcut_gym.lab.simulate import label_of
 PLANNER = "bounded_optimal"
 DESCRIPTION = (
     "Score agents against the dynamic-programming planner on the same simulated users: time lost per user "
-    "(seconds), adoption trial, hotkey share. Worlds with pavlik_anderson memory are refused: "
+    "(seconds), adoption trial, hotkey share. Columns ending in _se_s are standard errors over the users: "
+    "time_lost_se_s is the sd of the per-user paired differences (the agent's total minus the planner's on "
+    "the same seed) / sqrt(users), total_time_se_s the sd of the per-user totals / sqrt(users); with one "
+    "user they are NaN. Worlds with pavlik_anderson memory are refused: "
     f"{PLANNER_MEMORY_REASON}.")
 
 
@@ -34,7 +37,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                        description=DESCRIPTION)
     add_world_options(p, sessions=True)
     add_agent_options(p, "agent to score (repeatable; default: the baselines)")
-    p.add_argument("--users", type=whole_number(1, 100_000), default=10, help="simulated users per agent")
+    p.add_argument("--users", type=whole_number(1, 100_000), default=10,
+                   help="simulated users per agent (at least 2 for the standard errors)")
     p.add_argument("--seed", type=seed, default=0, help="first seed; users get seed, seed+1, ...")
     p.add_argument("--out", type=output_file, default=None, help="also write the table as CSV")
     p.set_defaults(func=run)
