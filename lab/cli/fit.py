@@ -8,6 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from shortcut_gym.lab.cli.options import add_log_fit_options, covariance_of, detail, log_fit_inputs, status, warn
+from shortcut_gym.lab.cli.world_note import reading_line, world_given, write_note
 from shortcut_gym.lab.fitting import (
     HierarchicalFit,
     context_for,
@@ -32,6 +33,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Fit and write ``fits.csv`` (one row per participant x model) and ``parameters.csv`` (long)."""
     world, specs, priors, ranges, log = log_fit_inputs(args)
+    status(reading_line(specs, world_given(args)))
     context = context_for(log, world.commands.names, world)  # agents may plan with the world
     fits = fit_log(log, specs, context, args.starts, args.seed, args.jobs, priors,
                    progress=not args.quiet, start_ranges=ranges, intervals=args.intervals)
@@ -39,6 +41,7 @@ def run(args: argparse.Namespace) -> int:
     path = args.out / "fits.csv"
     fits.to_csv(path, index=False)
     long_table(fits).to_csv(args.out / "parameters.csv", index=False)
+    note = write_note(args.out, world, args, specs)
     show = fits[["participant", "model", "loglik", "n_params", "aic", "bic", "fit_ok"]]
     print(show.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     doubtful = fits[~fits["fit_ok"]]
@@ -46,7 +49,7 @@ def run(args: argparse.Namespace) -> int:
         warn(f"{len(doubtful)} doubtful fit(s):")
         for _, r in doubtful.iterrows():
             warn(f"  {r['participant']} / {r['model']}: {r['fit_issues']}")
-    status(f"wrote {path} and {args.out / 'parameters.csv'}")
+    status(f"wrote {path}, {args.out / 'parameters.csv'} and {note} (the world of the fits, which compare checks)")
     if args.hierarchical:
         covariance = covariance_of(args)
         detail(f"fitting hierarchically ({covariance} group covariance)")

@@ -181,6 +181,10 @@ def agent_specs_of(args: argparse.Namespace, default: list[str] | None = None,
     return specs
 
 
+#: The options of :func:`add_world_options`.
+WORLD_OPTIONS = ("--scenario", "--costs", "--memory", "--schedule", "--sessions")
+
+
 def add_world_options(p: argparse.ArgumentParser, sessions: bool = True) -> None:
     """The study's world options (scenario, costs, memory, schedule), the same on every subcommand
     that reads or simulates trials."""
@@ -295,7 +299,7 @@ def world_words(world: World, args: argparse.Namespace) -> str:
     parts = [f"scenario {args.scenario or world.scenario.name}", f"costs {args.costs or 'default'}",
              f"memory {args.memory or 'default'}", f"schedule {args.schedule or 'of the scenario'}"]
     if getattr(args, "sessions", None) is not None:
-        parts.append(f"{args.sessions} sessions")
+        parts.append(counted(args.sessions, "session"))
     return "World: " + ", ".join(parts) + f" ({world.horizon} trials per simulated participant)."
 
 

@@ -14,6 +14,7 @@ from shortcut_gym.lab.cli.options import (
     world_words,
 )
 from shortcut_gym.lab.cli.ranges import whole_number
+from shortcut_gym.lab.cli.world_note import reading_line, world_given, write_note
 from shortcut_gym.lab.cli.yardstick import add_planner_options, planner_options_of
 from shortcut_gym.lab.rationality import PLANNED, rationality_analysis
 from shortcut_gym.lab.rationality.report import verdict_scope, write_rationality
@@ -50,6 +51,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Write the report folder and print the summed criteria."""
     world, specs, priors, ranges, log = log_fit_inputs(args)
+    status(reading_line(specs, world_given(args)) + "; the posterior-predictive simulations run in it")
     entries: list = []
     sections: list = []
     note = ""
@@ -65,6 +67,9 @@ def run(args: argparse.Namespace) -> int:
                                       args.jobs, args.duration_noise, args.optimum_sims, progress=not args.quiet)
         entries, sections = write_rationality(result, args.out)  # beside the report's own files, no name shared
         note = verdict_scope(result)
+    args.out.mkdir(parents=True, exist_ok=True)
+    entries = [*entries, (write_note(args.out, world, args, specs),
+                          "the world the fits were made in (compare checks the world it is given against it)")]
     index, tables = analyse_log(log, specs, world, args.out, args.starts, args.seed, args.jobs, args.sims,
                                 args.block, priors, args.knockout, not args.quiet,
                                 args.hierarchical, args.cross_validate, intervals=args.intervals,
