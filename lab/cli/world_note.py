@@ -89,7 +89,6 @@ class WorldNote(NamedTuple):
     path: Path
 
 
-WorldNote.__doc__ = "A ``world.json`` read back (:func:`read_note`): the fit world's words, digest, model labels."
 
 
 def read_note(fits: Path) -> WorldNote | None:
