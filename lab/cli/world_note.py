@@ -90,7 +90,6 @@ class WorldNote(NamedTuple):
 
 
 
-
 def read_note(fits: Path) -> WorldNote | None:
     """The note beside ``fits`` (None when there is none, as in folders written before notes were);
     a malformed note raises :class:`CLIError` naming it."""
