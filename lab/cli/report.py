@@ -51,16 +51,18 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     """Write the report folder and print the summed criteria."""
     world, specs, priors, ranges, log = log_fit_inputs(args)
-    status(reading_line(specs, world_given(args)) + "; the posterior-predictive simulations run in it")
     entries: list = []
     sections: list = []
     note = ""
+    learning = [s for s in specs if s.name != PLANNED]
     if args.rationality:
         refuse_planner_world(world, "report --rationality")
-        learning = [s for s in specs if s.name != PLANNED]
         if any(s.label == PLANNED for s in learning):
             raise CLIError(f"--model: a learning model is labelled {PLANNED!r}, the name of the yardstick's own "
                            "choice model; give it another label")
+    status(reading_line(specs, world_given(args)) + "; the posterior-predictive simulations run in it"
+           + (", and the yardstick plans in it" if args.rationality else ""))
+    if args.rationality:
         status(f"rationality: each of {log['participant'].nunique()} participants against the planner in their "
                "own world")
         result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed,
