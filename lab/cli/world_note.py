@@ -13,8 +13,6 @@ and of those that read none. ``compare`` reads it back to check the world it is 
 one the fits were made in.
 """
 
-from __future__ import annotations
-
 import argparse
 import json
 from collections.abc import Sequence
