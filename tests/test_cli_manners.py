@@ -153,3 +153,28 @@ def test_the_log_line_counts_participants_in_words(tmp_path: Path, capsys, users
     assert main(["simulate", *ONE, *given, "--users", str(users), "--log", str(log)]) == 0
     line = [x for x in capsys.readouterr().err.splitlines() if x.startswith("wrote trial log")]
     assert line == [f"wrote trial log {log} {words}"]
+
+
+def test_a_reader_that_closes_the_pipe_ends_the_command_quietly(tmp_path, monkeypatch, capsys) -> None:
+    # `shortcut-gym simulate ... | head -1`: the pipe closes under the results; no traceback
+    import io
+    import os
+    import sys
+
+    from shortcut_gym.lab.cli import main
+
+    read_end, write_end = os.pipe()
+    os.close(read_end)  # the reader has gone
+    saved = os.dup(1)
+    try:
+        os.dup2(write_end, 1)
+        monkeypatch.setattr(sys, "stdout", io.TextIOWrapper(os.fdopen(1, "wb", closefd=False), write_through=False))
+        schedule = tmp_path / "s.yaml"
+        schedule.write_text("sessions: 1\ntrials_per_session: 4\n")
+        code = main(["-q", "simulate", "--agent", "always_menu", "--users", "1", "--schedule", str(schedule)])
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+        os.close(write_end)
+    assert code == 141
+    assert "Traceback" not in capsys.readouterr().err

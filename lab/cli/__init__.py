@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import logging
+import os
 import sys
 
 from shortcut_gym.envs.errors import ShortcutGymError
@@ -106,7 +107,15 @@ def main(argv: list[str] | None = None) -> int:
             args.quiet = True  # the global -q silences the subcommand's progress bars too
         command = f"shortcut-gym {args.command}"
         logging.getLogger(DETAIL_LOGGER).info("%s", command)
-        return int(args.func(args) or 0)
+        code = int(args.func(args) or 0)
+        sys.stdout.flush()  # a closed pipe shows here, not at the interpreter's exit
+        return code
+    except BrokenPipeError:
+        # the reader of stdout went away (``shortcut-gym ... | head``): not a fault; stop writing
+        # there quietly (Python's documented idiom) and exit as a process killed by SIGPIPE would
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 128 + 13
     except CLIError as err:
         print(f"{getattr(err, 'prog', command)}: error: {one_line(err)}", file=sys.stderr)
         return 2
