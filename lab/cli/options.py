@@ -35,6 +35,12 @@ MODEL_HELP = (f"model as {SYNTAX}; keys that are parameters are held fixed, othe
               "mine=composed_learner:mechanisms=[value, perseveration, lapse]")
 
 
+MODEL_FILE_HELP = ("model spec YAML, read and checked as --agent-file reads an agent (name, label, params, options "
+                   "beside them; or a bundled spec's name such as composed_myopic): its params are held fixed, the "
+                   "model's other parameters fitted, as for the keys of a --model line (repeatable, after the --model "
+                   "models)")
+
+
 #: Status lines of the CLI (which files were written): on stderr through the package logger, so
 #: stdout holds results only and ``-q`` hides them.
 _STATUS = logging.getLogger("shortcut_gym.cli")
@@ -73,19 +79,46 @@ def parse_model(text: str) -> ModelSpec:
     spec = parse_spec(text, "model")
     if spec.name not in AGENTS:
         raise CLIError(f"model {text!r}: unknown agent {spec.name!r}; registered: {sorted(AGENTS)}")
-    options = dict(spec.values)
+    return model_of_values(spec.name, spec.label, dict(spec.values), f"--model {text!r} (command line)")
+
+
+def model_of_values(name: str, label: str | None, values: dict[str, Any], where: str) -> ModelSpec:
+    """The :class:`ModelSpec` of a registered agent ``name`` given ``values`` by key (a ``--model``
+    line's, or a ``--model-file``'s params and options together): those that are parameters of the
+    agent are held fixed, the others are its options. Faults raise CLIError starting with ``where``."""
+    options = dict(values)
     try:
-        probe = make_agent(spec.name, **{k: v for k, v in options.items() if not is_number(v)})
+        check_spec({"name": name, "params": {k: v for k, v in options.items() if is_number(v)},
+                    **{k: v for k, v in options.items() if not is_number(v)}}, where)
+        probe = make_agent(name, **{k: v for k, v in options.items() if not is_number(v)})
     except ConfigError as err:
-        raise CLIError(f"model {text!r}: {err}") from None
+        message = str(err)
+        raise CLIError(message if message.startswith(where) else f"{where}: {message}") from None
     fixed: dict[str, float] = {}
     for key in list(options):
         if key in probe.param_specs():
             value = options.pop(key)
             if not is_number(value):
-                raise CLIError(f"model {text!r}: parameter {key} value {value!r} is not a number")
+                raise CLIError(f"{where}: parameter {key} value {value!r} is not a number")
             fixed[key] = float(value)
-    return ModelSpec(spec.name, spec.label or "", options, fixed)
+    try:
+        return ModelSpec(name, label or "", options, fixed)
+    except ConfigError as err:
+        raise CLIError(f"{where}: {err}") from None
+
+
+def read_model_file(path: Path) -> ModelSpec:
+    """A ``--model-file`` spec: read and checked as an ``--agent-file`` is (the same faults, naming the
+    file), its ``params`` held fixed and the keys beside them its options, as on a ``--model`` line."""
+    spec = built_once(read_spec_file(path), str(path))
+    values = {**spec.get("params", {}), **{k: v for k, v in spec.items() if k not in ("name", "label", "params")}}
+    return model_of_values(spec["name"], spec.get("label"), values, str(path))
+
+
+def add_model_options(p: argparse.ArgumentParser, line_help: str = MODEL_HELP) -> None:
+    """``--model TEXT`` and ``--model-file YAML`` (both repeatable; the lines first, then the files)."""
+    p.add_argument("--model", action="append", default=None, help=line_help)
+    p.add_argument("--model-file", action="append", default=None, type=Path, help=MODEL_FILE_HELP)
 
 
 def parse_prior(text: str) -> tuple[str, Any]:
@@ -325,7 +358,7 @@ def add_common(p: argparse.ArgumentParser, models: bool = True, fitting: bool = 
     ``--start-range`` (for the subcommands that pass them to their fits)."""
     add_world_options(p)
     if models:
-        p.add_argument("--model", action="append", required=True, help=MODEL_HELP)
+        add_model_options(p)
     p.add_argument("--starts", type=whole_number(1), default=10, help="optimiser starts per participant x model")
     p.add_argument("--seed", type=seed, default=0, help="seed of the random starts (and simulations)")
     p.add_argument("--jobs", type=whole_number(1), default=1, help="worker processes")
@@ -418,15 +451,21 @@ def report_skipped(log: pd.DataFrame) -> None:
             warn(f"  {pid!r}: {fault}")
 
 
-def models_of(args: argparse.Namespace) -> list[ModelSpec]:
-    """The ``--model`` options parsed; labels must be unique."""
-    specs = [parse_model(m) for m in args.model]
+def models_of(args: argparse.Namespace, default: list[str] | None = None) -> list[ModelSpec]:
+    """The ``--model`` lines then the ``--model-file`` specs (or ``default`` lines when neither is
+    given); at least one, with unique labels."""
+    files = getattr(args, "model_file", None) or []
+    texts = args.model if args.model or files else default
+    specs = [parse_model(m) for m in texts or []] + [read_model_file(path) for path in files]
+    if not specs:
+        raise CLIError(f"{args.command}: give at least one --model or --model-file")
     for spec in specs:
         detail(f"model {spec.label or spec.name}: {spec.name}, options {dict(spec.options)}, fixed {dict(spec.fixed)}")
     labels = [s.label for s in specs]
     dup = {lab for lab in labels if labels.count(lab) > 1}
     if dup:
-        raise CLIError(f"--model labels repeat: {sorted(dup)}; name them label=agent:...")
+        raise CLIError(f"model labels repeat: {sorted(dup)} (--model and --model-file); name them label=agent:... "
+                       "on the line, label: in a file")
     return specs
 
 

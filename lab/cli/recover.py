@@ -13,6 +13,7 @@ from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import (
     MODEL_HELP,
     add_common,
+    add_model_options,
     claim_output,
     models_of,
     refuse_planner_agents,
@@ -37,8 +38,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``recover`` subcommand."""
     p = sub.add_parser("recover", help="simulate with known parameters/models, refit, report recovery")
     add_common(p, models=False)
-    p.add_argument("--model", action="append", default=None,
-                   help=MODEL_HELP + "; true parameters drawn over each parameter's plausible range")
+    add_model_options(p, MODEL_HELP + "; true parameters drawn over each parameter's plausible range")
     p.add_argument("--population", type=input_file, default=None,
                    help="population spec (YAML: per model, a distribution per parameter and a participant count); "
                         "its models are the ones studied (instead of --model)")
@@ -53,8 +53,8 @@ def run(args: argparse.Namespace) -> int:
     """Write recovery tables and plots, and how the true parameters were drawn."""
     claim_output(args.out, args)
     world = world_of(args)
-    if (args.model is None) == (args.population is None):
-        raise CLIError("recover needs either --model options or --population (not both)")
+    if (args.model is None and args.model_file is None) == (args.population is None):
+        raise CLIError("recover needs either --model/--model-file options or --population (not both)")
     if args.population is not None:
         try:
             populations = read_population(args.population)

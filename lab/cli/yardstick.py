@@ -14,10 +14,11 @@ from shortcut_gym.lab.cli import CLIError
 from shortcut_gym.lab.cli.options import (
     MODEL_HELP,
     add_common,
+    add_model_options,
     add_skip_bad,
     claim_output,
     detail,
-    parse_model,
+    models_of,
     refuse_planner_world,
     report_skipped,
     status,
@@ -54,8 +55,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("yardstick", help="each participant's choices against the planner in their own world")
     p.add_argument("log", type=input_file, help="trial log (.csv or .parquet)")
     add_common(p, models=False, fitting=False)  # the fits here take no --intervals or --start-range
-    p.add_argument("--model", action="append", default=None,
-                   help=f"learning model to compare with planned_choice (default rescorla_wagner); {MODEL_HELP}")
+    add_model_options(p, f"learning model to compare with planned_choice (default rescorla_wagner, when neither "
+                         f"--model nor --model-file is given); {MODEL_HELP}")
     add_skip_bad(p)
     add_planner_options(p)
     p.set_defaults(func=run)
@@ -63,7 +64,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Write the folder; print the per-participant table and the group figures."""
-    learning = [parse_model(m) for m in (args.model or ["rescorla_wagner"])]
+    learning = models_of(args, default=["rescorla_wagner"])
     if any(s.label == PLANNED for s in learning):
         raise CLIError(f"--model: {PLANNED!r} is the model every learning model is compared with; give learning "
                        "models only")
