@@ -113,4 +113,7 @@ def test_recover_with_population_reports_the_draws_and_the_world(tmp_path: Path,
     capsys.readouterr()
     assert main(["recover", "--population", str(spec), "--model", "rescorla_wagner", "--out",
                  str(tmp_path / "x")]) == 2
-    assert "either --model options or --population" in capsys.readouterr().err
+    assert "either --model/--model-file options or --population" in capsys.readouterr().err
+    assert main(["recover", "--population", str(spec), "--model-file", "rescorla_wagner", "--out",
+                 str(tmp_path / "x")]) == 2
+    assert "either --model/--model-file options or --population" in capsys.readouterr().err
