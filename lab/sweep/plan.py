@@ -14,7 +14,7 @@ from collections import OrderedDict
 from typing import Any
 
 from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
-from shortcut_gym.agents.registry import AGENTS, agent_from_spec
+from shortcut_gym.agents.registry import AGENTS, agent_from_spec, check_spec
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.world import World, make_world
 from shortcut_gym.lab.simulate import label_of
@@ -66,10 +66,12 @@ def agent_specs(spec: SweepSpec, source: str = "<sweep spec>") -> list[tuple[str
     for i, entry in enumerate(spec.agents):
         extra = {k: v for k, v in entry.model_dump().items() if k not in ("name", "params", "label")}
         agent_spec = {"name": entry.name, "params": dict(entry.params), **extra}
+        where = f"{source}: agents[{i}]"
         try:
-            agent = agent_from_spec(agent_spec)
+            check_spec(agent_spec, where, file=True)  # an unknown key named as such, with what is known
+            agent = agent_from_spec(agent_spec, source=where)
         except (ValueError, TypeError) as err:
-            raise SweepSpecError(f"{source}: agents[{i}]: {err}") from None
+            raise SweepSpecError(str(err)) from None
         label = entry.label or label_of({"name": agent.name, "params": dict(entry.params)})
         if label in seen:
             raise SweepSpecError(f"{source}: agents[{i}]: label {label!r} repeats agents[{seen[label]}]; "
