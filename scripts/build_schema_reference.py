@@ -48,8 +48,9 @@ KINDS: list[tuple[str, str, str, str]] = [
      "`make_world(aids=...)`, sweep axes under `aids.*`; bundled: `configs/aids/`",
      "name: labels_for_two\nkey_labels:\n  commands: [Open, Find]\n  search_s_per_label: 0.05\n"),
     ("agent spec", "shortcut_gym.agents.registry:AgentSpec",
-     "`--agent-file FILE.yaml` (or a bundled name of `configs/agents/`), `agent_from_spec(FILE)`; the same "
-     "as `--agent [label=]name[:key=value,...]` on the command line",
+     "`--agent-file FILE.yaml` (simulate, score, train, sweep, allot) or `--model-file FILE.yaml` (fit, "
+     "recover, report, yardstick), or a bundled name of `configs/agents/`; `agent_from_spec(FILE)`; the same "
+     "as `--agent` / `--model [label=]name[:key=value,...]` on the command line",
      "name: learn_first_k\nlabel: learner\nparams:\n  k: 2\n"),
     ("sweep spec", "shortcut_gym.lab.sweep.spec:SweepSpec",
      "`shortcut-gym sweep FILE.yaml`, `run_sweep(FILE)`; bundled: `configs/sweeps/`",
