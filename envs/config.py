@@ -42,17 +42,28 @@ def kind_of(model: type[BaseModel]) -> str:
 
 
 def format_validation_error(err: ValidationError, source: str) -> str:
-    """One line per fault: '<source>: <dotted.field>: <message> (got <value>)'."""
+    """One line per fault: '<source>: <dotted.field>: <message> (got <value>)' (a fault of the whole
+    mapping has no field; pydantic's 'Value error, ' prefix is dropped; a long value is cut)."""
     lines = []
     for e in err.errors():
-        where = ".".join(str(p) for p in e["loc"]) or "<top level>"
+        where = ".".join(str(p) for p in e["loc"])
         msg = e["msg"]
         if e["type"] == "extra_forbidden":
             msg = "unknown key"
+        for prefix in ("Value error, ", "Assertion failed, "):
+            msg = msg.removeprefix(prefix)
         got = e.get("input")
-        got_text = "" if isinstance(got, dict) else f" (got {got!r})"
-        lines.append(f"{source}: {where}: {msg}{got_text}")
+        shown = repr(got)
+        if len(shown) > MAX_SHOWN_VALUE:
+            shown = f"{shown[:MAX_SHOWN_VALUE]}... ({type(got).__name__} of {len(got)} entries)" if hasattr(
+                got, "__len__") else shown[:MAX_SHOWN_VALUE] + "..."
+        got_text = "" if isinstance(got, dict) else f" (got {shown})"
+        lines.append(f"{source}: {where}: {msg}{got_text}" if where else f"{source}: {msg}{got_text}")
     return "\n".join(lines)
+
+
+#: Longest value repr a config fault quotes (characters); a longer one is cut.
+MAX_SHOWN_VALUE = 80
 
 
 def validate(model: type[M], data: Any, source: str) -> M:

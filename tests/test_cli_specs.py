@@ -110,8 +110,8 @@ def test_every_bundled_agent_spec_validates_and_builds() -> None:
 
 @pytest.mark.parametrize(("text", "expected"), [
     ("params: {k: 1}\n", "name: Field required"),
-    ("name: nope\n", "name: Value error, unknown agent 'nope'"),
-    ("name: learn_first_k\nparams: {k: yes}\n", "params: Value error, parameter k must be a number"),
+    ("name: nope\n", "name: unknown agent 'nope'"),
+    ("name: learn_first_k\nparams: {k: yes}\n", "params: parameter k must be a number"),
     ("name: learn_first_k\nparams: {k: two}\n", "parameter k must be a number, got 'two'"),
     ("name: learn_first_k\nparams: {k: .inf}\n", "params.k"),
     ("name: learn_first_k\nname: always_menu\n", "key 'name' is given twice"),

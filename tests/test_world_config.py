@@ -63,7 +63,7 @@ def _scenario(**over) -> dict:
     [
         (_scenario(menus=[]), r"menus: List should have at least 1 item"),
         (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "KK"}]}]),
-         r"menus\.0\.items\.0\.hotkey: Value error, hotkey 'KK': the key 'KK' must be one printable"),
+         r"menus\.0\.items\.0\.hotkey: hotkey 'KK': the key 'KK' must be one printable"),
         (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Hyper+K"}]}]),
          r"hotkey 'Hyper\+K': modifier 'Hyper' is not one of"),
         (_scenario(menus=[{"title": "A", "items": [{"name": "x", "hotkey": "Ctrl+"}]}]),
@@ -155,3 +155,25 @@ def test_bundled_presets_load_and_differ_where_they_should() -> None:
     assert world.scenario.name == "tidepool_logbook" and world.commands.n_commands == 12
     assert world.commands.probability.sum() == pytest.approx(1.0)
     assert all(p > q for p, q in zip(world.commands.probability, world.commands.probability[1:]))  # Zipf by rank
+
+
+def test_config_faults_read_as_sentences_with_short_values() -> None:
+    import yaml
+
+    from shortcut_gym.envs.config import MAX_SHOWN_VALUE, bundled_config_dir, validate
+    from shortcut_gym.envs.costs import CostSettings
+    from shortcut_gym.envs.errors import ConfigError
+
+    # a fault of the whole mapping has no field, and pydantic's prefixes are not shown
+    with pytest.raises(ConfigError) as raised:
+        make_world(schedule={"sessions": 3, "gap_h": [1.0]})
+    text = str(raised.value)
+    assert "<top level>" not in text and "Value error" not in text and "gap_h lists 1 gaps" in text
+    # a scenario file given as costs: every fault is one short line, the long menus value cut
+    scenario = yaml.safe_load((bundled_config_dir() / "scenarios" / "tidepool_logbook.yaml").read_text())
+    with pytest.raises(ConfigError) as raised:
+        validate(CostSettings, scenario, "scen.yaml")
+    lines = str(raised.value).splitlines()
+    assert any(line.startswith("scen.yaml: menus: unknown key") for line in lines), lines
+    assert all(len(line) < MAX_SHOWN_VALUE + 120 for line in lines), lines
+    assert any("... (list of" in line for line in lines), lines
