@@ -42,7 +42,8 @@ def simulate_agents(world: World, specs: Sequence[dict[str, Any] | Agent], seeds
 
 
 def session_summary(trials: pd.DataFrame) -> pd.DataFrame:
-    """Per agent x session: mean total time per user (s) and share of trials issued by hotkey."""
+    """Per agent x session: mean total time per user (s) and share of trials issued by hotkey; the
+    agents in the order the trial table first names them (the order given)."""
     t = trials.assign(
         hotkey_success=(trials["outcome"] == "hotkey"),
         learned=(trials["outcome"] == "learned"),
@@ -53,5 +54,8 @@ def session_summary(trials: pd.DataFrame) -> pd.DataFrame:
         learn_trials=("learned", "sum"),
     )
     out = per_user.groupby(["agent", "session"]).mean().reset_index()
+    order = {label: i for i, label in enumerate(pd.unique(trials["agent"]))}  # the agents as given
+    out = out.sort_values(["agent", "session"], key=lambda col: col.map(order) if col.name == "agent" else col,
+                          kind="stable").reset_index(drop=True)
     out["session"] = out["session"] + 1
     return out

@@ -59,3 +59,17 @@ def test_the_library_refuses_repeated_labels() -> None:
         labelled_trial_table(env, [("a", make_agent("always_menu")), ("a", make_agent("always_hotkey"))], [1])
     table = labelled_trial_table(env, [("a", make_agent("always_menu")), ("b", make_agent("always_hotkey"))], [1])
     assert sorted(table["agent"].unique()) == ["a", "b"]
+
+
+def test_the_session_summary_keeps_the_agents_in_the_order_given() -> None:
+    from shortcut_gym.lab.simulate import session_summary, simulate_agents
+
+    world = make_world(schedule={"sessions": 2, "trials_per_session": 4})
+    trials = simulate_agents(world, [{"name": "learn_first_k", "label": "zeta"}, {"name": "always_menu",
+                                                                               "label": "alpha"}], [1, 2])
+    summary = session_summary(trials)
+    assert list(summary["agent"]) == ["zeta", "zeta", "alpha", "alpha"]
+    assert list(summary["session"]) == [1, 2, 1, 2]
+    # the figures are the per-user means, whatever the order
+    zeta = trials[(trials["agent"] == "zeta") & (trials["session"] == 0)]
+    assert summary.loc[0, "total_time_s"] == pytest.approx(zeta.groupby("user")["duration_s"].sum().mean())
