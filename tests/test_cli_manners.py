@@ -178,3 +178,12 @@ def test_a_reader_that_closes_the_pipe_ends_the_command_quietly(tmp_path, monkey
         os.close(write_end)
     assert code == 141
     assert "Traceback" not in capsys.readouterr().err
+
+
+def test_a_multi_line_fault_reads_as_one_sentence() -> None:
+    from shortcut_gym.lab.cli import one_line
+
+    assert one_line(ValueError("2 fault(s) in trial log:\n  a.csv, row 1: x\n  a.csv, row 2: y")) == (
+        "2 fault(s) in trial log: a.csv, row 1: x; a.csv, row 2: y")
+    assert one_line(ValueError("first\n\n second ")) == "first; second"
+    assert one_line(ValueError("")) == "ValueError"

@@ -42,7 +42,10 @@ class CLIError(ShortcutGymError, ValueError):
 def one_line(err: BaseException) -> str:
     """The error's message on one line (a multi-line message's lines joined by '; ')."""
     lines = [line.strip() for line in str(err).splitlines() if line.strip()]
-    return "; ".join(lines) or type(err).__name__
+    out = ""
+    for i, line in enumerate(lines):  # a heading ending in ':' runs on with a space, not ':;'
+        out += line if i == 0 else (" " if lines[i - 1].endswith(":") else "; ") + line
+    return out or type(err).__name__
 
 
 class _Parser(argparse.ArgumentParser):
