@@ -187,3 +187,14 @@ def test_a_multi_line_fault_reads_as_one_sentence() -> None:
         "2 fault(s) in trial log: a.csv, row 1: x; a.csv, row 2: y")
     assert one_line(ValueError("first\n\n second ")) == "first; second"
     assert one_line(ValueError("")) == "ValueError"
+
+
+def test_a_global_flag_after_the_subcommand_says_where_it_goes(tmp_path, capsys) -> None:
+    from shortcut_gym.lab.cli import main
+
+    for flag in ("-v", "--verbose", "-q"):
+        assert main(["simulate", "--agent", "always_menu", "--users", "1", flag]) == 2
+        err = capsys.readouterr().err
+        assert f"unrecognized arguments: {flag}" in err and "go before the subcommand" in err, err
+    assert main(["simulate", "--agent", "always_menu", "--bogus"]) == 2
+    assert "go before the subcommand" not in capsys.readouterr().err

@@ -48,10 +48,17 @@ def one_line(err: BaseException) -> str:
     return out or type(err).__name__
 
 
+#: The global flags of the whole CLI, told apart from a subcommand's own options when misplaced.
+GLOBAL_FLAGS = ("-v", "--verbose", "-q")
+
+
 class _Parser(argparse.ArgumentParser):
     """An argument parser whose faults raise :class:`CLIError` (one line, exit 2 from ``main``)."""
 
     def error(self, message: str):  # type: ignore[override]
+        extra = message.partition("unrecognized arguments:")[2].split()
+        if any(a in GLOBAL_FLAGS for a in extra):  # a global flag given after the subcommand
+            message += "; -v/--verbose and -q go before the subcommand (shortcut-gym -v SUBCOMMAND ...)"
         err = CLIError(f"{message} (see '{self.prog} --help')")
         err.prog = self.prog  # type: ignore[attr-defined]
         raise err
