@@ -63,7 +63,8 @@ def run(args: argparse.Namespace) -> int:
     status(reading_line(specs, world_given(args)) + "; the posterior-predictive simulations run in it"
            + (", and the yardstick plans in it" if args.rationality else ""))
     if args.rationality:
-        status(f"rationality: each of {log['participant'].nunique()} participants against the planner in their "
+        n = log["participant"].nunique()
+        status(f"rationality: each of {n} participant{'' if n == 1 else 's'} against the planner in their "
                "own world")
         result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed,
                                       args.jobs, args.duration_noise, args.optimum_sims, progress=not args.quiet)

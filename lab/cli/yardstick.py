@@ -73,7 +73,8 @@ def run(args: argparse.Namespace) -> int:
     refuse_planner_world(world, "yardstick")
     log = read_log(args.log, world.commands, args.skip_bad_participants)
     report_skipped(log)
-    detail(f"log {args.log}: {len(log)} trials of {log['participant'].nunique()} participants; learning models "
+    people = _count(log["participant"].nunique(), "participant")
+    detail(f"log {args.log}: {len(log)} trials of {people}; learning models "
            f"{[s.label for s in learning]}; output folder {args.out}")
     start = time.perf_counter()
     result = rationality_analysis(log, world, learning, planner_options_of(args), args.starts, args.seed, args.jobs,
@@ -87,3 +88,8 @@ def run(args: argparse.Namespace) -> int:
     print(result.group.to_string(index=False, float_format=lambda v: f"{v:.3g}"))
     status(f"report in {index.parent} ({time.perf_counter() - start:.1f} s)")
     return 0
+
+
+def _count(n: int, noun: str) -> str:
+    """'1 participant', '3 participants'."""
+    return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
