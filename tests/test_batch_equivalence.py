@@ -12,7 +12,7 @@ import pytest
 import shortcut_gym.envs  # noqa: F401 - registers the env
 from shortcut_gym.agents.base import Agent, ParamSpec
 from shortcut_gym.agents.learning import MECHANISMS
-from shortcut_gym.agents.registry import AGENTS, agent_from_spec, register_agent
+from shortcut_gym.agents.registry import AGENTS, agent_from_spec
 from shortcut_gym.agents.rollout import run_episode
 from shortcut_gym.envs import ENV_ID, make_world
 from shortcut_gym.envs.kernel import HOTKEY, LEARN
@@ -102,9 +102,8 @@ class _CountingLearner(Agent):
         return Policy()
 
 
-def test_batch_policy_path_equals_per_user_path() -> None:
-    if _CountingLearner.name not in AGENTS:
-        register_agent(_CountingLearner)
+def test_batch_policy_path_equals_per_user_path(monkeypatch) -> None:
+    monkeypatch.setitem(AGENTS, _CountingLearner.name, _CountingLearner)  # registered for this test only
     world = make_world(schedule=SCHEDULE)
     spec = {"name": _CountingLearner.name, "params": {"k": 2}}
     batched = simulate_users(world, spec, SEEDS, record="trials", use_batch_policy=True)
@@ -141,9 +140,8 @@ class _Recorder(Agent):
                                t.terminated, t.truncated))
 
 
-def test_per_user_agents_see_exactly_what_the_env_gives() -> None:
-    if _Recorder.name not in AGENTS:
-        register_agent(_Recorder)
+def test_per_user_agents_see_exactly_what_the_env_gives(monkeypatch) -> None:
+    monkeypatch.setitem(AGENTS, _Recorder.name, _Recorder)  # registered for this test only
     _Recorder.log = []
     env = gym.make(ENV_ID, schedule=SCHEDULE)
     run_episode(env, agent_from_spec({"name": _Recorder.name}), seed=5)

@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 
 from shortcut_gym.agents.base import Agent
-from shortcut_gym.agents.registry import AGENTS, register_agent
+from shortcut_gym.agents.registry import AGENTS
 from shortcut_gym.lab.sweep.backends import BackendError, parse_ray_address
 from shortcut_gym.lab.sweep.runner import run_sweep
 
@@ -86,9 +86,8 @@ class _Exploding(Agent):
 
 
 @pytest.mark.parametrize("workers", [1, 2])
-def test_a_failing_run_is_recorded_and_the_others_finish(tmp_path: Path, workers: int) -> None:
-    if _Exploding.name not in AGENTS:
-        register_agent(_Exploding)
+def test_a_failing_run_is_recorded_and_the_others_finish(tmp_path: Path, workers: int, monkeypatch) -> None:
+    monkeypatch.setitem(AGENTS, _Exploding.name, _Exploding)  # registered for this test only
     spec = {**SPEC, "agents": [{"name": "always_menu"}, {"name": _Exploding.name}]}
     report = run_sweep(spec, tmp_path / "s", workers=workers, progress=False)
     assert len(report.failed) == 3 and report.computed == 6
