@@ -180,8 +180,8 @@ def test_report_rationality_adds_the_yardstick_section_with_the_simulated_headli
     # the verdict says that it leaves planned_choice out and what the rationality section finds for it
     verdict = index.split("## Verdict", 1)[1].split("\n## ", 1)[0]
     group = pd.read_csv(tmp_path / "report" / "rationality_group.csv").set_index("figure")["value"]
-    share = group["participants better explained by planned_choice (BIC)"]
-    assert "compares the `--model` models only" in verdict and f"{share:.0%} of the participants" in verdict
+    count = int(group["participants better explained by planned_choice (BIC)"])  # a count, not a share
+    assert "compares the `--model` models only" in verdict and f"{count} of {len(per)} participants" in verdict
     # the rationality choice fits have their own fit-quality section, listing every doubtful one
     fits = pd.read_csv(tmp_path / "report" / "rationality_fits.csv", dtype={"participant": str})
     quality = index.split("## Fit quality (rationality choice fits)", 1)[1].split("\n## ", 1)[0]

@@ -65,6 +65,10 @@ from shortcut_gym.lab.fitting import ModelSpec, fit_durations, fit_participant, 
 #: chi2(1) 95% quantile / 2: the drop in ln L bounding a 95% profile-likelihood interval (Wilks 1938).
 PROFILE_DROP = 3.841458820694124 / 2.0
 PLANNED = "planned_choice"
+#: Group-table figures the report reads back: participants better explained by PLANNED (a count)
+#: and PLANNED's BMS protected exceedance probability.
+BETTER_COUNT_FIGURE = f"participants better explained by {PLANNED} (BIC)"
+PXP_FIGURE = f"BMS protected exceedance probability of {PLANNED}"
 #: Simulated planner users per participant for ``simulated_time_lost_s`` (its Monte Carlo SE is
 #: the planner's spread / 16: about 0.4 s on a 160-trial default world, against a spread of 6-7 s).
 DEFAULT_SIMS = 256
@@ -366,10 +370,10 @@ def group_summary(result: RationalityResult) -> pd.DataFrame:
                  "value": float(cmd.loc[~cmd["learning_pays"], "learned"].mean()) if (~cmd["learning_pays"]).any()
                  else float("nan"), "se": float("nan")})
     if "better_model" in per:
-        rows.append({"figure": "participants better explained by planned_choice (BIC)",
+        rows.append({"figure": BETTER_COUNT_FIGURE,
                      "value": float((per["better_model"] == PLANNED).sum()), "se": float("nan")})
         if result.fits["model"].nunique() > 1 and n > 1:
             bms = bms_of_fits(result.fits).table().set_index("model")
-            rows.append({"figure": "BMS protected exceedance probability of planned_choice",
+            rows.append({"figure": PXP_FIGURE,
                          "value": float(bms.loc[PLANNED, "protected_exceedance"]), "se": float("nan")})
     return pd.DataFrame(rows)

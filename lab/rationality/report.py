@@ -8,7 +8,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.lab.rationality.analysis import PLANNED, RationalityResult
+from shortcut_gym.lab.rationality.analysis import BETTER_COUNT_FIGURE, PLANNED, PXP_FIGURE, RationalityResult
 from shortcut_gym.lab.report.markdown import markdown_table, write_table
 from shortcut_gym.lab.report.sections import fit_quality_section
 
@@ -119,11 +119,11 @@ def verdict_scope(result: RationalityResult) -> str:
     """The sentence a report's verdict adds when the rationality section is there: planned_choice is
     not among the models the verdict compares, and what the section finds for it."""
     group = dict(zip(result.group["figure"], result.group["value"], strict=True)) if len(result.group) else {}
-    share = group.get(f"participants better explained by {PLANNED} (BIC)")
-    pxp = group.get(f"BMS protected exceedance probability of {PLANNED}")
+    count, pxp = group.get(BETTER_COUNT_FIGURE), group.get(PXP_FIGURE)
     found = ""
-    if share is not None and np.isfinite(share):
-        found = f": {share:.0%} of the participants are better explained by it than by the learning models (BIC)"
+    if count is not None and np.isfinite(count):
+        found = (f": {int(count)} of {len(result.participants)} participants are better explained by it than by "
+                 "the learning models (BIC)")
         if pxp is not None and np.isfinite(pxp):
             found += f", BMS protected exceedance probability {pxp:.2f}"
     return (f"This verdict compares the `--model` models only. `{PLANNED}` (softmax over the yardstick planner's "
