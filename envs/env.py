@@ -98,11 +98,7 @@ class CommandSelectionEnv(gym.Env):
                 raise ConfigError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
         sim = self._sim
         obs = sim.reset(rngs=[self.np_random], schedules=[schedule])
-        # the kernel's arrays after this reset, in step_users' order (read once, not per step)
-        self._step_arrays = (sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
-                             sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock,
-                             sim.sched_onset, sim.sched_uniform, sim.sched_session, sim.reward, sim.outcome,
-                             sim.operator_time_s, sim.p_recall, sim.obs, sim.sched_noise)
+        self._step_arrays = sim.step_arrays()  # read once per reset, not per step
         self._last = None
         return obs[0].copy(), self._upcoming_info()  # type: ignore[return-value]
 

@@ -270,11 +270,16 @@ class BatchSimulator:
         if bad.any():
             i = int(np.argmax(bad))
             raise ActionError(f"action {int(acts[i])} of user {i} is not 0 (menu), 1 (hotkey) or 2 (learn)")
-        k.step_users(acts.astype(np.int64), self.kernel_int_params, self.kernel_params, self.command_constants,
-                     self.command_float_state, self.command_counts, self.traces, self.user_state, self.sched_command,
-                     self.sched_clock, self.sched_onset, self.sched_uniform, self.sched_session, self.reward,
-                     self.outcome, self.operator_time_s, self.p_recall, self.obs, self.sched_noise)
+        k.step_users(acts.astype(np.int64), *self.step_arrays())
         return self.reward
+
+    def step_arrays(self) -> tuple[np.ndarray, ...]:
+        """The arrays :func:`~shortcut_gym.envs.kernel.step_users` takes after the actions, in its
+        order (the same objects until the next :meth:`reset`)."""
+        return (self.kernel_int_params, self.kernel_params, self.command_constants, self.command_float_state,
+                self.command_counts, self.traces, self.user_state, self.sched_command, self.sched_clock,
+                self.sched_onset, self.sched_uniform, self.sched_session, self.reward, self.outcome,
+                self.operator_time_s, self.p_recall, self.obs, self.sched_noise)
 
 
 # ---- compiled seeding: default_rng(seed).random(n) for many seeds at once ---------------------
