@@ -23,7 +23,6 @@ import pandas as pd
 
 from shortcut_gym.agents.planner import cache, plan_store
 from shortcut_gym.agents.planner.search import Plan
-from shortcut_gym.lab.cli import main
 from shortcut_gym.lab.sweep.plan import plan_runs, world_from_settings
 from shortcut_gym.lab.sweep.run import compute_run
 from shortcut_gym.lab.sweep.spec import load_spec
@@ -83,9 +82,12 @@ def test_a_killed_then_damaged_sweep_resumes_to_the_uninterrupted_tables_replann
     spec_path.write_text(json.dumps(SPEC))  # JSON is YAML
     plans = tmp_path / "plans"
     reference = tmp_path / "reference"
-    cache.clear_plans()
-    assert main(["sweep", str(spec_path), "--out", str(reference), "--plan-folder", str(plans), "--quiet",
-                 "--workers", "1"]) == 0
+    # the reference runs in a fresh process, as the killed and the resumed sweeps do: plan files are
+    # compared byte for byte, and a worker that ran other tests first holds caches of its own
+    done = subprocess.run([sys.executable, "-m", "shortcut_gym", "sweep", str(spec_path), "--out", str(reference),
+                           "--plan-folder", str(plans), "--quiet", "--workers", "1"],
+                          capture_output=True, text=True, timeout=180)
+    assert done.returncode == 0, done.stderr
     runs = plan_runs(load_spec(spec_path), str(spec_path))
     assert len(runs) == N_RUNS
     world_of = {r["run_id"]: world_from_settings(r["settings"]).digest() for r in runs}
