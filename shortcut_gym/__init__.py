@@ -7,8 +7,6 @@ with gymnasium (Gymnasium 1.x convention), so ``gymnasium.make("shortcut_gym:sho
 works with no prior import.
 """
 
-from __future__ import annotations
-
 import logging
 from importlib.metadata import PackageNotFoundError, version
 
@@ -22,5 +20,8 @@ except PackageNotFoundError:  # running from a source tree that is not installed
 logging.getLogger("shortcut_gym").addHandler(logging.NullHandler())
 
 register_envs()
+
+# the helpers imported above are this module's own, not part of the package's namespace
+del logging, version, PackageNotFoundError
 
 __all__ = ["ENV_ID", "__version__", "register_envs"]
