@@ -25,10 +25,19 @@ def main(argv: list[str] | None = None) -> int:
                         help="skip the per-family figures and the held-out style sweep")
     parser.add_argument("--families-only", action="store_true", help="only the per-family figures and the sweep")
     parser.add_argument("--sb3", action="store_true", help="add a small PPO model to the families (trains it)")
+    names = "; ".join(name for name, _, _ in families.FAMILIES)
     parser.add_argument("--only", action="append", default=[], metavar="TEXT",
-                        help="with --families-only: only the families whose name contains TEXT ('sweep': the "
-                             "held-out style sweep alone); repeatable")
+                        help="with --families-only: time only the families whose name contains TEXT as a "
+                             f"substring (the names: {names}); part C (planned_choice batched vs per-user) runs "
+                             "when the planned_choice family is selected (TEXT 'planner', 'planned' or 'choice'), "
+                             "the held-out style sweep when TEXT is 'sweep'; repeatable, a family is selected "
+                             "when any TEXT matches")
     args = parser.parse_args(argv)
+    if args.only and not args.families_only:
+        parser.error("--only selects among the per-family figures: give it with --families-only")
+    unmatched = [o for o in args.only if o != "sweep" and not families.selected_families((o,))]
+    if unmatched:
+        parser.error(f"--only {unmatched[0]!r} is part of no family name; the families: {names}")
     if args.families_only:
         families.run(quick=False, sessions=args.sessions, sb3=args.sb3, only=tuple(args.only))
         return 0

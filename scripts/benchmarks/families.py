@@ -111,7 +111,7 @@ def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print, only:
     cart = cartpole_vector_steps_per_s()
     out(f"\nA. Agent families on {sessions * 40} trials per user; load average {load_average()}")
     out(f"   CartPole-v1 native vector env, 1,024 envs: {cart:>12,.0f} steps/s (reference)")
-    families = [f for f in FAMILIES if not only or any(o in f[0] for o in only)]
+    families = selected_families(only)
     extra: dict[str, Any] = {}
     if sb3:
         t0 = time.perf_counter()
@@ -214,14 +214,22 @@ def part_planned_choice(sessions: int, quick: bool, out: Out = print) -> None:
     out(f"   load average at end {load_average()}")
 
 
+def selected_families(only: tuple[str, ...] = ()) -> list[tuple[str, dict[str, Any], bool]]:
+    """The families of :data:`FAMILIES` whose name contains one of the strings of ``only`` (all of them
+    when ``only`` is empty)."""
+    return [f for f in FAMILIES if not only or any(o in f[0] for o in only)]
+
+
 def run(quick: bool = False, out: Out = print, sessions: int = 10, sb3: bool = True,
         only: tuple[str, ...] = ()) -> None:
-    """The three parts (``quick``: 1,024 users, one thread, an 8-point sweep); ``only`` limits part A
-    to the families whose name contains one of these strings ("sweep" runs part B alone; part C
-    runs when a string is part of "planned_choice")."""
-    if only != ("sweep",):
+    """The three parts (``quick``: 1,024 users, one thread, an 8-point sweep). ``only`` selects the
+    families whose name contains one of these strings (:func:`selected_families`): part A times
+    them, part C runs when the planned_choice family is among them, and part B runs when one of
+    the strings is "sweep"; an empty ``only`` runs everything."""
+    chosen = selected_families(only)
+    if chosen:
         part_families(sessions, quick, sb3, out, only)
     if not only or "sweep" in only:
         part_heldout(quick, out)
-    if not only or any(o in "planned_choice" for o in only):
+    if any(spec is PLANNED_CHOICE for _, spec, _ in chosen):
         part_planned_choice(sessions, quick, out)
