@@ -17,11 +17,13 @@ from pathlib import Path
 from typing import Any, NamedTuple
 
 import pandas as pd
+from pydantic import create_model
 
 from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
 from shortcut_gym.agents.registry import AGENTS, agent_from_spec, check_spec, make_agent, read_agent_spec
 from shortcut_gym.envs.config import load_settings, read_yaml, validate
 from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.strict import StrictModel
 from shortcut_gym.envs.task import ScenarioSettings, ScheduleSettings
 from shortcut_gym.envs.world import DEFAULT_SCENARIO, World, make_world
 from shortcut_gym.lab.cli import DETAIL_LOGGER, CLIError
@@ -231,6 +233,12 @@ def add_world_options(p: argparse.ArgumentParser, sessions: bool = True) -> None
                        help="sessions per user (default: the scenario's or --schedule's)")
 
 
+#: The ``sessions`` field of :class:`ScheduleSettings` alone: a ``--schedule`` file's own value, checked
+#: as the whole schedule checks it when ``--sessions`` replaces it.
+_ScheduleSessions = create_model("ScheduleSessions", __base__=StrictModel,
+                                 sessions=(int, ScheduleSettings.model_fields["sessions"]))
+
+
 def world_of(args: argparse.Namespace) -> World:
     """The :class:`~shortcut_gym.envs.world.World` the options of :func:`add_world_options` name."""
     schedule: dict[str, Any] = {}
@@ -242,6 +250,8 @@ def world_of(args: argparse.Namespace) -> World:
     file_keys = set(schedule)
     sessions = getattr(args, "sessions", None)
     if sessions is not None:
+        if "sessions" in file_keys:  # replaced, but a bad value in the file is still the file's fault
+            validate(_ScheduleSessions, {"sessions": schedule["sessions"]}, str(args.schedule))
         schedule["sessions"] = sessions
     scenario = load_settings(ScenarioSettings, args.scenario or DEFAULT_SCENARIO)  # its faults name its file
     check_gap_count(args, scenario, schedule, file_keys)
