@@ -8,6 +8,7 @@ written.
 
 from __future__ import annotations
 
+import difflib
 import hashlib
 import json
 from collections import OrderedDict
@@ -78,7 +79,22 @@ def agent_specs(spec: SweepSpec, source: str = "<sweep spec>") -> list[tuple[str
                                  "give one of them a label")
         seen[label] = i
         out.append((label, agent_spec))
+    check_role_labels(spec, [label for label, _ in out], source)
     return out
+
+
+def check_role_labels(spec: SweepSpec, labels: list[str], source: str = "<sweep spec>") -> None:
+    """Refuse an ``outputs.reference_agent`` or ``outputs.break_even.learner`` that names none of the
+    agent ``labels``, naming the field, the label and the labels (with the closest one, if any)."""
+    be = spec.outputs.break_even
+    for field, label in (("outputs.reference_agent", spec.outputs.reference_agent),
+                         ("outputs.break_even.learner", be.learner if be is not None else None)):
+        if label is None or label in labels:
+            continue
+        close = difflib.get_close_matches(label, labels, n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise SweepSpecError(f"{source}: {field}: {label!r} is the label of no agent of the sweep; its agent "
+                             f"labels: {labels}{hint}")
 
 
 def plan_runs(spec: SweepSpec, source: str = "<sweep spec>") -> list[dict[str, Any]]:

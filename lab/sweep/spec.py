@@ -165,8 +165,8 @@ class BreakEvenMap(_Strict):
     x: str = Field(description="varied parameter (dotted path) on the map's x axis; numeric values, grid design")
     y: str = Field(description="varied parameter on the y axis (not x)")
     learner: str | None = Field(default=None, description=(
-        "label of the agent whose saving over `always_menu` is mapped; default: the first `learn_first_k`, "
-        "else the reference agent"))
+        "label of the agent whose saving over `always_menu` is mapped (one of the agents' labels, checked before "
+        "any run); default: the first `learn_first_k`, else the reference agent"))
     command: int | str = Field(default=0, description=(
         "the command the map is read for: its name, or its index in menu order (from 0)"))
 
@@ -181,8 +181,8 @@ class Outputs(_Strict):
     break_even: BreakEvenMap | None = Field(default=None, description=(
         "the break-even map; null: drawn over the first two varied parameters when the design is a grid"))
     reference_agent: str | None = Field(default=None, description=(
-        "label of the agent the summary's gap_to_reference_s is measured against; default: the first "
-        "`bounded_optimal`"))
+        "label of the agent the summary's gap_to_reference_s is measured against (one of the agents' labels, "
+        "checked before any run); default: the first `bounded_optimal`"))
 
 
 class SweepSpec(_Strict):
