@@ -3,12 +3,16 @@
 from __future__ import annotations
 
 import difflib
+import functools
 import inspect
+import math
+import types
+import typing
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
-from pydantic import ConfigDict, Field, field_validator
+from pydantic import ConfigDict, Field, field_validator, model_validator
 
 from shortcut_gym.agents.base import Agent, AgentContext
 from shortcut_gym.agents.baselines import AlwaysHotkey, AlwaysMenu, LearnFirstK, RandomAgent
@@ -188,6 +192,56 @@ def check_spec(spec: dict[str, Any], where: str, file: bool = False) -> None:
     raise ConfigError(f"{where}: unknown {keys} {listing}{hint}")
 
 
+def _arms(annotation: Any) -> set[Any]:
+    """The types of an annotation (a union's arms), None left out."""
+    if typing.get_origin(annotation) in (typing.Union, types.UnionType):
+        return set(typing.get_args(annotation)) - {type(None)}
+    return {annotation}
+
+
+@functools.cache
+def _option_hints(cls: type[Agent]) -> dict[str, Any]:
+    """The constructor's annotations of the options of ``cls`` (an unreadable one left out)."""
+    try:
+        hints = typing.get_type_hints(cls.__init__)
+    except (NameError, TypeError):
+        return {}
+    return {key: hints[key] for key in agent_options(cls) if key in hints}
+
+
+def declared_number_type(cls: type[Agent], key: str) -> type | None:
+    """The number type ``cls`` declares for the ``params`` key ``key``: ``int`` for an option its
+    constructor annotates ``int`` (``n_bins``), ``float`` for a ``float`` option and for a fitted
+    parameter (:class:`ParamSpec` values are real numbers), None when the key is left as written
+    (an SB3 hyperparameter, judged by its algorithm's own annotation; an option of another kind)."""
+    if key in agent_options(cls):
+        arms = _arms(_option_hints(cls).get(key))
+        return int if arms == {int} else float if float in arms else None
+    return None if takes_hyperparameters(cls) else float
+
+
+def typed_params(name: str, params: dict[str, Any]) -> dict[str, Any]:
+    """The numbers of ``params`` as agent ``name`` declares them (:func:`declared_number_type`): a whole
+    number for an ``int`` key (``4.0`` becomes 4; ``4.5`` raises ValueError naming the agent and the
+    key), a float for a ``float`` one; other values as given."""
+    cls = AGENTS.get(name)
+    if cls is None:
+        return params
+    out = dict(params)
+    for key, value in params.items():
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            continue  # not a number: refused by the field's own check
+        kind = declared_number_type(cls, key)
+        if kind is int:
+            if not math.isfinite(value) or value != int(value):
+                raise ValueError(f"{name}: parameter {key} must be a whole number ({name} declares it int), "
+                                 f"got {value!r}")
+            out[key] = int(value)
+        elif kind is float:
+            out[key] = float(value)
+    return out
+
+
 class AgentSpec(StrictModel):
     """One agent as a YAML mapping (``--agent-file``, sweep specs): a registered ``name``, its
     ``params`` and any constructor option beside them (``model_path``, ``deterministic``,
@@ -197,9 +251,9 @@ class AgentSpec(StrictModel):
     The SB3 agents (``ppo``, ``a2c``, ``dqn``) take the keyword arguments of their Stable-Baselines3
     class's constructor as hyperparameters (``n_steps``, ``learning_rate``, ``gamma``,
     ``buffer_size``, ...; all but ``policy``, ``env``, ``seed``, ``verbose`` and ``device``, which the
-    adapter sets), either under ``hyperparameters`` or beside the options like any other key (not under ``params``,
-    whose numbers are read as floats), which
-    is how the command line gives them: ``--agent ppo:n_steps=64,learning_rate=3e-4`` is this file's
+    adapter sets), either under ``hyperparameters`` or beside the options like any other key (under ``params``
+    too, where a number keeps the type it is written in), which is how the command line gives them:
+    ``--agent ppo:n_steps=64,learning_rate=3e-4`` is this file's
     ``name: ppo`` with ``hyperparameters: {n_steps: 64, learning_rate: 3.0e-4}``. A key given in both
     places with two different values is refused; an unknown key is refused listing the known ones.
     Nested values (``policy_kwargs: {net_arch: [32, 32]}``) go under ``hyperparameters`` in a file:
@@ -210,8 +264,9 @@ class AgentSpec(StrictModel):
     model_config = ConfigDict(extra="allow", frozen=True, allow_inf_nan=False)
     name: str = Field(min_length=1, description="registered agent name (see [Agents](#agents))")
     label: str | None = Field(default=None, min_length=1, description="name in the outputs (default: from the spec)")
-    params: dict[str, float] = Field(default_factory=dict,
-                                     description="parameters by name (numbers; the agent's defaults otherwise)")
+    params: dict[str, int | float] = Field(default_factory=dict, description=(
+        "parameters by name (numbers, each of the type the agent declares: a whole number for an int option "
+        "such as `n_bins`; the agent's defaults otherwise)"))
     hyperparameters: dict[str, Any] | None = Field(
         default=None, description="SB3 agents only: keyword arguments of the algorithm's constructor "
                                   "(stable_baselines3.PPO, A2C, DQN), e.g. {n_steps: 64, gamma: 0.95, "
@@ -231,7 +286,16 @@ class AgentSpec(StrictModel):
             for key, value in params.items():
                 if isinstance(value, bool) or not isinstance(value, (int, float)):
                     raise ValueError(f"parameter {key} must be a number, got {value!r}")
+                if not math.isfinite(value):  # one fault, not one per arm of the field's type
+                    raise ValueError(f"parameter {key} must be a finite number, got {value!r}")
         return params
+
+    @model_validator(mode="after")
+    def _declared_types(self) -> AgentSpec:
+        typed = typed_params(self.name, dict(self.params))
+        if typed != self.params or any(type(typed[k]) is not type(v) for k, v in self.params.items()):
+            object.__setattr__(self, "params", typed)  # frozen model: set once, while it is validated
+        return self
 
     def as_dict(self) -> dict[str, Any]:
         """The spec as the plain dict :func:`agent_from_spec` and the sweep take (no unset label)."""

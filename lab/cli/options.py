@@ -20,7 +20,14 @@ import pandas as pd
 from pydantic import create_model
 
 from shortcut_gym.agents.planner.memory_model import planner_memory_refusal
-from shortcut_gym.agents.registry import AGENTS, agent_from_spec, check_spec, make_agent, read_agent_spec
+from shortcut_gym.agents.registry import (
+    AGENTS,
+    agent_from_spec,
+    check_spec,
+    make_agent,
+    read_agent_spec,
+    typed_params,
+)
 from shortcut_gym.envs.config import load_settings, read_yaml, validate
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.strict import StrictModel
@@ -153,6 +160,10 @@ def parse_agent_arg(text: str) -> dict[str, Any]:
     spec = agent_spec_dict(text)
     if spec["name"] not in AGENTS:
         raise CLIError(f"agent {text!r}: unknown agent {spec['name']!r}; registered: {sorted(AGENTS)}")
+    try:  # each number of the type the agent declares, as an --agent-file's params are read
+        spec["params"] = typed_params(spec["name"], spec["params"])
+    except ValueError as err:
+        raise CLIError(f"{agent_where(text)}: {err}") from None
     try:
         check_spec(spec, agent_where(text))
     except ConfigError as err:
