@@ -72,7 +72,8 @@ OPTION_DOCS: dict[str, str] = {
     "deterministic": "take the policy's most probable action instead of sampling one",
     "hyperparameters": "keyword arguments of the Stable-Baselines3 class's constructor, merged over the adapter's "
                        "defaults (see AgentSpec); other keys of the spec that are not options land here too",
-    "normalize": "pass observations through the normalisation statistics frozen at the end of training",
+    "normalize": "pass observations through the normalisation statistics frozen at the end of training; a "
+                 "loaded model's file records whether it was trained so, and the other setting is refused",
 }
 
 

@@ -6,7 +6,8 @@
 policy's action distribution (PPO, A2C), or for DQN the epsilon-greedy distribution over its
 Q-values with epsilon = the model's final exploration rate. ``act`` samples from it with the
 agent's generator, or takes its most probable action when ``deterministic=True``. Observations
-go through the frozen training statistics when ``normalize`` is on (default). Stable-Baselines3
+go through the frozen training statistics when ``normalize`` is on (default); a saved model records
+whether it was trained so, and loading it with the other setting is refused (:mod:`.files`). Stable-Baselines3
 and torch are imported on first use; torch runs on :data:`~.algorithms.MAX_TORCH_THREADS` thread.
 A saved model keeps the record of the world it was trained on (:mod:`.files`); a loaded one
 refuses another world (or a zip without a record) unless ``allow_other_world=True``

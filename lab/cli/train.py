@@ -133,5 +133,7 @@ def run(args: argparse.Namespace) -> int:
         menu = evaluate_agent(env, make_agent("always_menu"), seeds)["total_time_s"].mean()
         print(f"time per user over {args.eval_users} new users: {spec['name']} {mine:.1f} s, "
               f"always_menu {menu:.1f} s ({mine - menu:+.1f} s per user)")
-    status(f"load it with --agent {spec['name']}:model_path={path}")
+    # a model trained without normalisation is refused by the default normalize=true: say so in the hint
+    plain = ",normalize=false" if isinstance(agent, SB3Agent) and not agent.normalize else ""
+    status(f"load it with --agent {spec['name']}:model_path={path}{plain}")
     return 0
