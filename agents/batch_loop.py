@@ -52,17 +52,38 @@ class SumArrays(NamedTuple):
     command_uses: np.ndarray
 
 
+#: the longest horizon a run gets a decay-factor table for (trials x trials float64: 8 MB at 1,024)
+MAX_TABLE_TRIALS = 1024
+#: the fewest users a run gets a decay-factor table for (filling one costs about a user's run)
+MIN_TABLE_USERS = 8
+
+
+def decay_factor_table(sim: BatchSimulator) -> np.ndarray | None:
+    """A fresh decay-factor table for a compiled run of ``sim`` (see
+    :func:`~shortcut_gym.envs.kernel.activation_at_trial`), or None where the run steps without one:
+    a memory kind whose trace terms are not a function of age alone, users with their own clocks
+    (replayed schedules), fewer than :data:`MIN_TABLE_USERS` users or more than
+    :data:`MAX_TABLE_TRIALS` trials. The run's numbers are the same either way."""
+    shared_clocks = sim.sched_clock.strides[0] == 0  # every row a view of the world's clocks
+    if (not k.tabulated_kind(int(sim.kernel_int_params[k.I_KIND])) or not shared_clocks
+            or sim.n_users < MIN_TABLE_USERS or sim.horizon > MAX_TABLE_TRIALS):
+        return None
+    return np.full((sim.horizon, sim.horizon), k.FACTOR_UNSET)
+
+
 @njit(**RULE_JIT)
 def step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
-                   sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums, scratch):
+                   sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums, scratch,
+                   factors=None):
     """Step user ``b``'s trial ``t`` with action ``a``, add it to ``sums`` (by session and by
     command), and on the last trial write reward, outcome, operator breakdown and recall
-    probability as after the last ``sim.step``; returns (duration s, outcome code)."""
+    probability as after the last ``sim.step``; returns (duration s, outcome code). ``factors``:
+    the run's :func:`decay_factor_table` (None: none)."""
     c = sched_cmd[b, t]
     last = t == sched_cmd.shape[1] - 1
     o = ops[b] if last else scratch
     dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                               sched_u, sched_session, o, last, fail_lat, sched_noise)
+                               sched_u, sched_session, o, last, fail_lat, sched_noise, factors)
     s = sched_session[b, t]
     sums.trials[b, s] += 1
     sums.time_s[b, s] += dur

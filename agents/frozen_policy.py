@@ -27,7 +27,7 @@ import numpy as np
 from numba import njit
 
 from shortcut_gym.agents.base import AGENT_STREAM, N_ACTIONS
-from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, check_fresh_run, step_and_count
+from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, check_fresh_run, decay_factor_table, step_and_count
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
@@ -207,7 +207,7 @@ def _decide_users(rule, targets, uses, session, obs, cell_cols, pcg, out):
 
 @njit(**RULE_JIT)
 def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-              sched_noise, reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch):
+              sched_noise, reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch, factors):
     """Every trial of user ``b``: choose, step, count, add to the sums."""
     h = sched_cmd.shape[1]
     kind = rule.ints[0]
@@ -229,20 +229,21 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
                             k.seconds_since_last_use_feature(ist[b], fs[b], c, sched_onset[b, t]))
             a = _pick(rule.cdf, row, _draw(pcg, b))
         step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u,
-                       sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums, scratch)
+                       sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums, scratch, factors)
         uses[b, c] += 1
 
 
 @njit(cache=True, nogil=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-               sched_noise, reward, outcome, ops, p_recall, obs, rule, uses, pcg, sums):
-    """:func:`_run_user` for every user, then its final observation (without the GIL)."""
+               sched_noise, reward, outcome, ops, p_recall, obs, rule, uses, pcg, sums, factors):
+    """:func:`_run_user` for every user, then its final observation (without the GIL); ``factors``:
+    the run's decay-factor table or None."""
     n_users, h = sched_cmd.shape
     n_cmd = cmdc.shape[0]
     scratch = np.empty(k.N_OPS)
     for b in range(n_users):
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-                  sched_noise, reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch)
+                  sched_noise, reward, outcome, ops, p_recall, rule, uses, pcg, sums, scratch, factors)
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
@@ -318,7 +319,7 @@ class FrozenBatchPolicy:
         _run_users(sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
                    sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock, sim.sched_onset,
                    sim.sched_uniform, sim.sched_session, sim.sched_noise, sim.reward, sim.outcome, sim.operator_time_s,
-                   sim.p_recall, sim.obs, self.rule, self.uses, self.pcg, sums)
+                   sim.p_recall, sim.obs, self.rule, self.uses, self.pcg, sums, decay_factor_table(sim))
         self.trial = sim.horizon
         return UserSums(**sums._asdict())
 

@@ -30,7 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 from numba import njit
 
-from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, check_fresh_run
+from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, check_fresh_run, decay_factor_table
 from shortcut_gym.agents.frozen_policy import UserDraws
 from shortcut_gym.agents.planner.batch import PlanLookupBatch
 from shortcut_gym.agents.planner.compiled_lookup import (
@@ -103,10 +103,11 @@ def _draw_users(q, beta, lapse, pcg, out, probs):
 @njit(cache=True, nogil=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                sched_noise, reward, outcome, ops, p_recall, obs, tab, mem, beta, lapse, pcg, sums, rec_action,
-               rec_outcome, rec_duration, rec_p_recall, rec_ops, rec_probs, bad):
+               rec_outcome, rec_duration, rec_p_recall, rec_ops, rec_probs, bad, factors):
     """Every trial of every user: action values, probabilities, draw, step, observe, sums; with
     ``rec_*`` arrays of users' rows, each trial as ``sim.step`` leaves it. ``bad`` gets the user and
-    trial of invalid probabilities (the loop stops there)."""
+    trial of invalid probabilities (the loop stops there). ``factors``: the run's decay-factor table
+    or None."""
     n_users, h = sched_cmd.shape
     n_cmd = cmdc.shape[0]
     keep = rec_action.shape[0] > 0
@@ -134,7 +135,7 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
             else:
                 o = scratch
             dur, res, pr = k.step_user(b, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
-                                       sched_u, sched_session, o, last or keep, fail_lat, sched_noise)
+                                       sched_u, sched_session, o, last or keep, fail_lat, sched_noise, factors)
             s = sched_session[b, t]
             sums.trials[b, s] += 1
             sums.time_s[b, s] += dur
@@ -250,7 +251,8 @@ class PlannedChoiceBatch(PlannedChoiceSteps):
                    sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock, sim.sched_onset,
                    sim.sched_uniform, sim.sched_session, sim.sched_noise, sim.reward, sim.outcome, sim.operator_time_s,
                    sim.p_recall, sim.obs, self.tables, mem, self.beta, self.lapse, self.draws.pcg, sums,
-                   kept.action, kept.outcome, kept.duration_s, kept.p_recall, kept.operator_s, probs, bad)
+                   kept.action, kept.outcome, kept.duration_s, kept.p_recall, kept.operator_s, probs, bad,
+                   decay_factor_table(sim))
         if bad[0] >= 0:
             self._refuse(int(bad[0]), int(bad[1]))
         return UserSums(**sums._asdict()), (kept if keep else None), (probs if keep else None)

@@ -53,13 +53,17 @@ C_SEARCH, C_DECISION, C_POINTING, C_KEYS = range(4)
 N_CMDC = 14
 
 # ---- per-user per-command state (CommandState: floats, then counts) --------------------------
-F_OLD_W, F_OLD_FIRST, F_OLD_LAST, F_EXP_S, F_EXP_T, F_LAST_USE = range(6)
-N_FS = 6
+# F_OLD_LAST_TRIAL: the trial that laid the newest folded-in trace (T_TRIAL of that trace)
+F_OLD_W, F_OLD_FIRST, F_OLD_LAST, F_EXP_S, F_EXP_T, F_LAST_USE, F_OLD_LAST_TRIAL = range(7)
+N_FS = 7
 S_NTR, S_MENU_SEL, S_EXPOSURE, S_HK_OK, S_HK_FAIL, S_LEARN = range(6)
 N_IS = 6
-# one stored trace, a row of the per-command trace buffer (Trace): memory clock, weight, own decay
-T_CLOCK, T_WEIGHT, T_DECAY = range(3)
-N_TRACE = 3
+# one stored trace, a row of the per-command trace buffer (Trace): memory clock, weight, own decay, and
+# the trial that laid it (-1: laid off the schedule's clocks, by a warm-up block or a caller's own clock)
+T_CLOCK, T_WEIGHT, T_DECAY, T_TRIAL = range(4)
+N_TRACE = 4
+#: an entry of a decay-factor table not computed yet (a factor is never negative)
+FACTOR_UNSET = -1.0
 # per-user state (UserState)
 U_TRIAL, U_HAND = range(2)
 N_US = 2
@@ -105,6 +109,64 @@ def activation(ipar, par, fs, ist, tr, now):
     return math.log(total)
 
 
+def tabulated_kind(kind: int) -> bool:
+    """Whether a trace's term per unit weight depends on its age alone under memory ``kind`` (ACT-R
+    and power forms), so a decay-factor table keyed by trial pairs can hold it."""
+    return kind in (K_ACTR, K_ACTR_EXACT, K_POW)
+
+
+@njit(cache=True)
+def trace_factor(kind, par, age):
+    """A trace's term per unit weight at ``age`` s: (1 + age/u)^-d (power form), age^-d otherwise
+    (the ACT-R kinds; :func:`activation`'s operations)."""
+    if kind == K_POW:
+        return (1.0 + age / par[P_POW_U]) ** (-par[P_DECAY])
+    return age ** (-par[P_DECAY])
+
+
+@njit(cache=True)
+def _table_factor(kind, par, factors, t, trial, age):
+    """:func:`trace_factor` of a trace laid on trial ``trial`` (-1: off the schedule), read at trial
+    ``t``: from ``factors[t, trial]``, computed and stored there on first use."""
+    if trial < 0.0:
+        return trace_factor(kind, par, age)
+    i = int(trial)
+    v = factors[t, i]
+    if v == FACTOR_UNSET:
+        v = trace_factor(kind, par, age)
+        factors[t, i] = v
+    return v
+
+
+@njit(cache=True)
+def activation_at_trial(ipar, par, fs, ist, tr, now, t, factors):
+    """:func:`activation` at trial ``t``'s clock ``now``, each age-only factor (ACT-R kinds, power
+    form) read from the decay-factor table ``factors`` (trials x trials, :data:`FACTOR_UNSET` where
+    not computed yet): the same operations on the same numbers, so the same value bit for bit.
+
+    Valid only when every user sharing ``factors`` has the same memory clocks and parameters (a
+    table entry is keyed by the trial pair); other kinds fall back to :func:`activation`."""
+    kind = ipar[I_KIND]
+    if not (kind == K_ACTR or kind == K_ACTR_EXACT or kind == K_POW):
+        return activation(ipar, par, fs, ist, tr, now)
+    n = ist[S_NTR]
+    total = 0.0
+    for j in range(n):
+        total += tr[j, T_WEIGHT] * _table_factor(kind, par, factors, t, tr[j, T_TRIAL], now - tr[j, T_CLOCK])
+    if kind == K_ACTR and fs[F_OLD_W] > 0.0:
+        d = par[P_DECAY]
+        a_n = now - fs[F_OLD_LAST]
+        r = (fs[F_OLD_LAST] - fs[F_OLD_FIRST]) / a_n
+        f = _table_factor(kind, par, factors, t, fs[F_OLD_LAST_TRIAL], a_n)
+        if r <= 1e-12:
+            total += fs[F_OLD_W] * f
+        else:
+            total += fs[F_OLD_W] * f * math.expm1((1.0 - d) * math.log1p(r)) / ((1.0 - d) * r)
+    if total <= 0.0:
+        return -np.inf
+    return math.log(total)
+
+
 @njit(cache=True)
 def recall_p(par, a):
     """Logistic retrieval probability of activation ``a``."""
@@ -117,8 +179,9 @@ def recall_p(par, a):
 
 
 @njit(cache=True)
-def add_trace(ipar, par, fs, ist, tr, now, w):
-    """Lay a trace of weight ``w`` at clock ``now``."""
+def add_trace(ipar, par, fs, ist, tr, now, w, trial=-1):
+    """Lay a trace of weight ``w`` at clock ``now``, laid by trial ``trial`` (-1: not on the
+    schedule's clocks; the decay-factor table skips it)."""
     if w <= 0.0:
         return
     kind = ipar[I_KIND]
@@ -134,10 +197,12 @@ def add_trace(ipar, par, fs, ist, tr, now, w):
         if fs[F_OLD_W] == 0.0:
             fs[F_OLD_FIRST] = tr[0, T_CLOCK]
         fs[F_OLD_LAST] = tr[0, T_CLOCK]
+        fs[F_OLD_LAST_TRIAL] = tr[0, T_TRIAL]
         fs[F_OLD_W] += tr[0, T_WEIGHT]
         for j in range(n - 1):
             tr[j, T_CLOCK] = tr[j + 1, T_CLOCK]
             tr[j, T_WEIGHT] = tr[j + 1, T_WEIGHT]
+            tr[j, T_TRIAL] = tr[j + 1, T_TRIAL]
         n -= 1
     decay = par[P_DECAY]
     if kind == K_PA:
@@ -146,6 +211,7 @@ def add_trace(ipar, par, fs, ist, tr, now, w):
     tr[n, T_CLOCK] = now
     tr[n, T_WEIGHT] = w
     tr[n, T_DECAY] = decay
+    tr[n, T_TRIAL] = trial
     ist[S_NTR] = n + 1
 
 
@@ -243,7 +309,7 @@ def write_obs(ipar, par, n_cmd, horizon, fs, ist, tr, us, sched_cmd, sched_clock
 @njit(cache=True)
 def step_user(
     b, act, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session, ops, full,
-    fail_lat, sched_noise,
+    fail_lat, sched_noise, factors=None,
 ):
     """Advance user ``b`` one trial with action ``act``; returns (duration_s, outcome code, p_recall).
 
@@ -253,6 +319,7 @@ def step_user(
     ``fail_lat`` is :func:`failed_retrieval_s` of ``par`` (computed once by the caller).
     ``sched_session`` is read only by the warm-up aid (a session's first trial). ``sched_noise``
     (users x trials) multiplies the trial's time and its breakdown (1.0: no trial-time noise).
+    ``factors``: a decay-factor table (:func:`activation_at_trial`) of these clocks, or None.
     """
     t = us[b, U_TRIAL]
     c = sched_cmd[b, t]
@@ -269,7 +336,10 @@ def step_user(
         dur, hand = _warmup(ipar, par, cmdc, fs[b], ist[b], tr[b], hand, now, o)
     uses = s[S_EXPOSURE]
     if full or act == HOTKEY:
-        a = activation(ipar, par, f, s, trc, now)
+        if factors is None:
+            a = activation(ipar, par, f, s, trc, now)
+        else:
+            a = activation_at_trial(ipar, par, f, s, trc, now, t, factors)
         p = recall_p(par, a)
     else:
         a = -np.inf
@@ -325,7 +395,7 @@ def step_user(
         w += extra_w
         if typed:
             us[b, U_HAND] = HAND_KEYBOARD
-    add_trace(ipar, par, f, s, trc, now, w)
+    add_trace(ipar, par, f, s, trc, now, w, t)
     s[S_EXPOSURE] += 1
     f[F_LAST_USE] = sched_onset[b, t]
     us[b, U_TRIAL] = t + 1

@@ -94,6 +94,7 @@ class CommandState(NamedTuple):
     exp_strength: float  # F_EXP_S: trace strength of the exponential form at exp_clock_s
     exp_clock_s: float  # F_EXP_T: clock of that strength
     last_use_onset_s: float  # F_LAST_USE: onset of the last trial with this target
+    old_last_trial: float  # F_OLD_LAST_TRIAL: trial that laid the newest folded-in trace (-1: off the schedule)
     stored_traces: int  # S_NTR: traces held in the trace buffer
     menu_selections: int  # S_MENU_SEL: menu selections (search-to-decision expertise)
     exposures: int  # S_EXPOSURE: trials with this target
@@ -108,6 +109,7 @@ class Trace(NamedTuple):
     clock_s: float  # T_CLOCK: memory clock when it was laid
     weight: float  # T_WEIGHT
     decay: float  # T_DECAY: its own decay (spacing-effect form; the base decay otherwise)
+    trial: float  # T_TRIAL: trial that laid it (-1: a warm-up block's, or laid on a caller's own clock)
 
 
 class UserState(NamedTuple):
@@ -132,7 +134,7 @@ class ScheduleArrays(NamedTuple):
 class UserArrays(NamedTuple):
     """A batch's kernel state: :class:`BatchSimulator`'s state arrays (B users, C commands)."""
 
-    command_float_state: np.ndarray  # (B, C, N_FS) float64, columns as CommandState's first six
+    command_float_state: np.ndarray  # (B, C, N_FS) float64, columns as CommandState's first seven
     command_counts: np.ndarray  # (B, C, N_IS) int64, columns as CommandState's last six
     traces: np.ndarray  # (B, C, capacity, N_TRACE) float64, rows as Trace
     user_state: np.ndarray  # (B, N_US) int64, columns as UserState

@@ -100,14 +100,17 @@ def test_named_views_report_the_trial_history(memory: str) -> None:
             if mine:
                 assert st.last_use_onset_s == sched.onset_s[b, mine[-1][1]]
             laid = [(float(sched.clock_s[b, h[1]]), weight[h[4]]) for h in mine if weight[h[4]] > 0]
+            laid_on = [h[1] for h in mine if weight[h[4]] > 0]  # the trial that laid each trace
             held = sim.stored_traces(b, c)
             if memory == "exponential":
                 assert held == [] and (st.exp_strength > 0) == bool(laid)
                 continue
             kept = laid if memory == "actr_exact" else laid[-world.memory.recent_traces:]
             assert [(tr.clock_s, tr.weight) for tr in held] == kept
+            assert [tr.trial for tr in held] == laid_on[len(laid_on) - len(kept):]
             assert all(tr.decay == world.memory.decay for tr in held)
             folded = laid[:len(laid) - len(kept)]
             assert st.old_weight == pytest.approx(sum(wt for _, wt in folded))
             if folded:
                 assert (st.old_first_clock_s, st.old_last_clock_s) == (folded[0][0], folded[-1][0])
+                assert st.old_last_trial == laid_on[len(folded) - 1]

@@ -19,7 +19,7 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
-from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, step_and_count
+from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, decay_factor_table, step_and_count
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.rules import LearnerState, RuleSet, belief_now, decide, update
 from shortcut_gym.agents.rollout import UserSums
@@ -43,7 +43,7 @@ class AgentDraws(NamedTuple):
 @njit(**RULE_JIT)
 def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
               sched_noise, reward, outcome, ops, p_recall, rules, horizon, st, draws, sums, probs, scratch, pool,
-              state32):
+              state32, factors):
     """Every trial of user ``b``: decide, step, learn, add to the sums (see module docstring)."""
     h = sched_cmd.shape[1]
     forgetting = rules.flags[mech.M_FORGETTING] == 1
@@ -71,15 +71,16 @@ def _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched
             a = 2
         dur, res = step_and_count(b, t, a, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset,
                                   sched_u, sched_session, sched_noise, reward, outcome, ops, p_recall, fail_lat, sums,
-                                  scratch)
+                                  scratch, factors)
         update(b, c, a, res, dur, p, rules, st)
 
 
 @njit(cache=True, nogil=True)
 def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
-               sched_noise, reward, outcome, ops, p_recall, obs, rules, horizon, st, draws, sums):
+               sched_noise, reward, outcome, ops, p_recall, obs, rules, horizon, st, draws, sums, factors):
     """:func:`_run_user` for every user, then each user's final observation (without the GIL, so
-    chunks of users can run on several Python threads)."""
+    chunks of users can run on several Python threads); ``factors``: the run's decay-factor table
+    or None."""
     n_users, h = sched_cmd.shape
     n_cmd = cmdc.shape[0]
     probs = np.empty(3)
@@ -89,7 +90,7 @@ def _run_users(ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_o
     for b in range(n_users):
         _run_user(b, ipar, par, cmdc, fs, ist, tr, us, sched_cmd, sched_clock, sched_onset, sched_u, sched_session,
                   sched_noise, reward, outcome, ops, p_recall, rules, horizon, st, draws, sums, probs, scratch, pool,
-                  state32)
+                  state32, factors)
         k.write_obs(ipar, par, n_cmd, h, fs[b], ist[b], tr[b], us[b], sched_cmd[b], sched_clock[b], sched_onset[b],
                     obs[b])
 
@@ -105,5 +106,5 @@ def run_fused(sim: BatchSimulator, rules: RuleSet, horizon: int, state: LearnerS
     _run_users(sim.kernel_int_params, sim.kernel_params, sim.command_constants, sim.command_float_state,
                sim.command_counts, sim.traces, sim.user_state, sim.sched_command, sim.sched_clock, sim.sched_onset,
                sim.sched_uniform, sim.sched_session, sim.sched_noise, sim.reward, sim.outcome, sim.operator_time_s,
-               sim.p_recall, sim.obs, rules, horizon, state, draws, sums)
+               sim.p_recall, sim.obs, rules, horizon, state, draws, sums, decay_factor_table(sim))
     return UserSums(**sums._asdict())
