@@ -4,6 +4,11 @@ Both call :func:`step_users` on arrays of users (the single env is a batch of on
 produce the same numbers bit for bit. The formulas mirror :mod:`shortcut_gym.envs.costs` and
 :mod:`shortcut_gym.envs.memory`, which are the readable references the tests compare against.
 Every time is in seconds.
+
+The small per-trial helpers (activation, recall, trace, menu time) are compiled with
+``inline="always"``: numba inlines them into :func:`step_user`, which saves a call passing a dozen
+array structs each (about a fifth of a hotkey trial); the operations, and so the numbers, are the
+same. :func:`step_user` itself stays a call (inlined into the loops it ran slower).
 """
 
 from __future__ import annotations
@@ -115,7 +120,7 @@ def tabulated_kind(kind: int) -> bool:
     return kind in (K_ACTR, K_ACTR_EXACT, K_POW)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def trace_factor(kind, par, age):
     """A trace's term per unit weight at ``age`` s: (1 + age/u)^-d (power form), age^-d otherwise
     (the ACT-R kinds; :func:`activation`'s operations)."""
@@ -124,7 +129,7 @@ def trace_factor(kind, par, age):
     return age ** (-par[P_DECAY])
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _table_factor(kind, par, factors, t, trial, age):
     """:func:`trace_factor` of a trace laid on trial ``trial`` (-1: off the schedule), read at trial
     ``t``: from ``factors[t, trial]``, computed and stored there on first use."""
@@ -138,7 +143,7 @@ def _table_factor(kind, par, factors, t, trial, age):
     return v
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def activation_at_trial(ipar, par, fs, ist, tr, now, t, factors):
     """:func:`activation` at trial ``t``'s clock ``now``, each age-only factor (ACT-R kinds, power
     form) read from the decay-factor table ``factors`` (trials x trials, :data:`FACTOR_UNSET` where
@@ -167,7 +172,7 @@ def activation_at_trial(ipar, par, fs, ist, tr, now, t, factors):
     return math.log(total)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def recall_p(par, a):
     """Logistic retrieval probability of activation ``a``."""
     if a == -np.inf:
@@ -178,7 +183,7 @@ def recall_p(par, a):
     return 1.0 / (1.0 + math.exp(z))
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def add_trace(ipar, par, fs, ist, tr, now, w, trial=-1):
     """Lay a trace of weight ``w`` at clock ``now``, laid by trial ``trial`` (-1: not on the
     schedule's clocks; the decay-factor table skips it)."""
@@ -215,7 +220,7 @@ def add_trace(ipar, par, fs, ist, tr, now, w, trial=-1):
     ist[S_NTR] = n + 1
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _menu(par, cmdc, ist, hand, include_m, ops, aids):
     """Menu selection time; counts the selection for the search-to-decision expertise. With
     ``aids`` the interface aids' menu costs are added (label search, nudge, delay)."""
