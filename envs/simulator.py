@@ -397,9 +397,9 @@ def seeded_schedules(words, n_words, cdf, command, uniforms):
         s_hi, s_lo, i_hi, i_lo = pcg64_seeded(words, n_words[b], b, pool, state32)
         for j in range(h):
             s_hi, s_lo, u = pcg64_next_double(s_hi, s_lo, i_hi, i_lo)
-            below = 0  # searchsorted(side='right') on the non-decreasing cdf: the count of entries <= u
-            while below < m and cdf[below] <= u:
-                below += 1
+            below = 0  # searchsorted(side='right') on the non-decreasing cdf: the count of entries <= u,
+            for i in range(m):  # counted without a branch (the draw decides where a search would stop)
+                below += cdf[i] <= u
             command[b, j] = below
         for j in range(h):
             s_hi, s_lo, uniforms[b, j] = pcg64_next_double(s_hi, s_lo, i_hi, i_lo)

@@ -100,3 +100,30 @@ def test_schedules_of_an_earlier_reset_keep_their_users() -> None:
     np.testing.assert_array_equal(first[1].command, first_cmd[1])
     np.testing.assert_array_equal(sim.schedules[1].command, sim.sched_command[1])
     assert [s.horizon for s in first[0:2]] == [world.horizon] * 2
+
+
+@pytest.mark.parametrize("p", [
+    [0.5, 0.5],
+    [0.2, 0.0, 0.3, 0.0, 0.5],  # commands never drawn: repeated cdf entries
+    list(np.random.default_rng(9).dirichlet(np.full(40, 0.3))),  # many commands, some tiny
+], ids=["two", "zeros", "forty"])
+def test_compiled_schedules_equal_numpy_choice_then_random(p: list[float]) -> None:
+    """seeded_schedules' commands and uniforms are ``rng.choice(m, size=h, p=p)`` then ``rng.random(h)``
+    of ``default_rng(seed)``, for command distributions with zeros and with many commands."""
+    from shortcut_gym.envs.simulator import seed_words, seeded_schedules
+
+    probs = np.asarray(p)
+    cdf = probs.cumsum()
+    cdf /= cdf[-1]
+    seeds = list(range(60)) + [2**40 + 3, 2**64 - 1]
+    words = seed_words(np.array(seeds, dtype=np.uint64))
+    assert words is not None
+    h = 150
+    command = np.empty((len(seeds), h), dtype=np.int64)
+    uniforms = np.empty((len(seeds), h))
+    seeded_schedules(words[0], words[1], cdf, command, uniforms)
+    for b, s in enumerate(seeds):
+        rng = np.random.default_rng(s)
+        np.testing.assert_array_equal(command[b], rng.choice(len(probs), size=h, p=probs), err_msg=str(s))
+        np.testing.assert_array_equal(uniforms[b], rng.random(h), err_msg=str(s))
+    assert set(np.unique(command)) <= set(np.flatnonzero(probs > 0))
