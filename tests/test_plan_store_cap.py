@@ -183,6 +183,7 @@ def test_a_lock_file_removed_while_a_process_waits_for_it_is_taken_again_under_i
         with plan_store.key_lock(tmp_path, key):
             state["held"] = True
             state["free_meanwhile"] = plan_store._take_lock(lock, wait=False)
+            state["named_while_held"] = lock.exists()
 
     thread = threading.Thread(target=waiter)
     thread.start()
@@ -195,7 +196,8 @@ def test_a_lock_file_removed_while_a_process_waits_for_it_is_taken_again_under_i
     thread.join(timeout=30)
     # the waiter holds the file now under the name: another taker is refused
     assert state.get("held") and state["free_meanwhile"] is None
-    assert lock.exists()
+    assert state["named_while_held"]  # it held a file under the name, made anew
+    assert not lock.exists()  # and removed it when it let go
 
 
 def _someone_waits(lock: Path) -> bool:

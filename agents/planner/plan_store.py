@@ -16,6 +16,8 @@ the Python and numpy versions, so a plan made by other code is never read back a
 * One process plans a key at a time: an exclusive ``fcntl.flock`` on ``<key digest>.lock`` is held
   while an entry is looked up, made and written, so processes wanting the same plan wait for
   one plan. (Advisory; where ``fcntl`` is missing two processes may both plan, still correctly.)
+  The holder removes the lock file before letting go (:func:`key_lock`), so a store holds its
+  entries and no lock files once no process is using it.
 
 * Size cap (optional, per process: :func:`set_plan_store`'s ``max_bytes``): the cap is on every
   file the store makes (:func:`store_files`: entries, their lock files, temporary files of a
@@ -177,12 +179,27 @@ def _drop_lock(fh: io.BufferedRandom) -> None:
 @contextlib.contextmanager
 def key_lock(store: Path, key: tuple) -> Iterator[None]:
     """Hold the exclusive lock of ``key``'s entry (other processes wanting it wait)."""
-    fh = _take_lock(_folder(store) / f"{entry_name(key)}.lock", wait=True)
+    path = _folder(store) / f"{entry_name(key)}.lock"
+    fh = _take_lock(path, wait=True)
     assert fh is not None  # waiting never gives up
     try:
         yield
     finally:
+        _remove_held(path, fh)
         _drop_lock(fh)
+
+
+def _remove_held(path: Path, fh: io.BufferedRandom) -> None:
+    """Remove the lock file ``path`` that ``fh`` holds locked, so a store keeps no lock file once its
+    holder lets go. Safe while others wait on it: a waiter that then locks the removed file finds
+    it is no longer the one under ``path`` (:func:`_take_lock`) and locks the file now there, so
+    the lock stays exclusive. Left in place where locks are not enforced (no ``fcntl``)."""
+    if fcntl is None:
+        return
+    with contextlib.suppress(OSError):
+        now, held = os.stat(path), os.fstat(fh.fileno())
+        if (now.st_ino, now.st_dev) == (held.st_ino, held.st_dev):
+            path.unlink()
 
 
 def entry_path(store: Path, key: tuple) -> Path:
