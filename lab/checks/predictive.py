@@ -20,8 +20,8 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent
-from shortcut_gym.agents.rollout import context_of_world, drive_batch
+from shortcut_gym.agents.base import Agent, AgentContext
+from shortcut_gym.agents.rollout import bind_for_world, context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.envs.simulator import BatchSimulator
@@ -53,8 +53,8 @@ def simulate_log(world: World, make: Any, n_users: int, rng: np.random.Generator
                  schedule: Schedule | None = None, prefix: str = "sim") -> pd.DataFrame:
     """A trial log (schema of :mod:`.logs`) of ``n_users`` simulated users named prefix-0, prefix-1, ...
 
-    ``make`` is an :class:`Agent` (its spec is rebuilt per context), a :class:`ModelSpec`, or a
-    callable taking an :class:`AgentContext`. ``schedule`` replays one schedule for every user.
+    ``make`` is an :class:`Agent` (simulated as it is: a table or model trained in memory is used), a
+    :class:`ModelSpec`, or a callable taking an :class:`AgentContext`. ``schedule`` replays one schedule for every user.
     """
     maker = _maker(make)
     sim, actions, outcomes, durations = _drive(world, maker, n_users, rng, schedule)
@@ -76,11 +76,12 @@ def simulate_log(world: World, make: Any, n_users: int, rng: np.random.Generator
 def _maker(make: Any):
     if isinstance(make, ModelSpec):
         return lambda ctx: make.build(ctx)
-    if isinstance(make, Agent):
-        from shortcut_gym.agents.registry import agent_from_spec
+    if isinstance(make, Agent):  # the object itself, in its current state (its spec cannot carry a trained table)
+        def bound(ctx: AgentContext) -> Agent:
+            bind_for_world(make, ctx.world, ctx.horizon, "simulate_log")
+            return make
 
-        spec = make.spec()
-        return lambda ctx: agent_from_spec(spec, ctx)
+        return bound
     if callable(make):
         return make
     raise TypeError(f"cannot simulate {make!r}: give an Agent, a ModelSpec or a callable(context)")

@@ -22,7 +22,7 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent, PreparedAgent
 from shortcut_gym.agents.registry import agent_from_spec
-from shortcut_gym.agents.rollout import BatchRollout, UserSums, context_of_world, drive_batch
+from shortcut_gym.agents.rollout import BatchRollout, UserSums, bind_for_world, context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.envs.simulator import BatchSimulator
@@ -70,9 +70,16 @@ class BlockSums:
         return self.sums.command_uses
 
 
-def build_agent(spec: dict[str, Any] | Agent, world: World) -> Agent:
-    """A fresh agent bound to the world's facts from a spec dict (or a copy of an agent's spec)."""
-    agent = agent_from_spec(spec.spec() if isinstance(spec, Agent) else spec)
+def build_agent(spec: dict[str, Any] | Agent, world: World, where: str = "simulate_users") -> Agent:
+    """The agent to simulate on ``world``: a fresh agent of a spec dict, bound to the world's facts;
+    or an :class:`Agent` object itself, in its current state (a table or model trained in memory,
+    a plan already made), bound for the world by :func:`bind_for_world` (an object that cannot act
+    there is refused, naming both worlds and ``where``). An object is never rebuilt from its spec,
+    which cannot carry what it learned."""
+    if isinstance(spec, Agent):
+        bind_for_world(spec, world, where=where)
+        return spec
+    agent = agent_from_spec(spec)
     agent.bind(context_of_world(world))
     return agent
 
@@ -80,8 +87,8 @@ def build_agent(spec: dict[str, Any] | Agent, world: World) -> Agent:
 def prepare_agent(spec: dict[str, Any] | Agent, world: World) -> float:
     """Do the agent's once-per-world set-up (a planner's plan, kept for every later user of the
     world in this process) and return the seconds it took (0 for agents without one, or when the
-    plan was made before)."""
-    agent = build_agent(spec if not isinstance(spec, Agent) else spec.spec(), world)
+    plan was made before). An agent object is prepared itself (:func:`build_agent`)."""
+    agent = build_agent(spec, world, "prepare_agent")
     return float(agent.prepare()) if isinstance(agent, PreparedAgent) else 0.0
 
 
@@ -103,6 +110,10 @@ def simulate_users(
 ) -> BlockSums:
     """Simulate one user per seed with the agent of ``spec``; per-user sums (+ trial rows if asked).
 
+    ``spec`` is a spec dict (a fresh agent per chunk of users) or an agent object, simulated as it
+    is (:func:`build_agent`: a tabular agent's current table frozen, an SB3 model as trained or
+    loaded), the same numbers as stepping the env one user at a time with that object.
+
     With ``record="blocks"``, a batch policy offering ``run(sim)`` (the learning models) runs the
     whole simulation in one compiled loop unless ``fused`` is False (same numbers either way).
     ``threads`` > 1 runs chunks of users on that many Python threads at once (block sums only; it
@@ -115,6 +126,10 @@ def simulate_users(
     seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)  # type: ignore[assignment]
     if len(seeds) == 0:
         raise ConfigError("need at least one seed")
+    if isinstance(spec, Agent):  # bound (and prepared) once here, so chunks on threads only read it
+        build_agent(spec, world)
+        if isinstance(spec, PreparedAgent):
+            spec.prepare()
     if record == "trials":
         return _simulate_chunk(world, spec, seeds, record, use_batch_policy, fused)  # type: ignore[arg-type]
     size = min(chunk_users, -(-len(seeds) // threads))
@@ -137,7 +152,7 @@ def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarra
                     use_batch_policy: bool, fused: bool = True) -> BlockSums:
     sim = BatchSimulator(world)
     sim.reset(seeds=seeds.tolist())
-    agent = build_agent(spec if not isinstance(spec, Agent) else spec.spec(), world)
+    agent = build_agent(spec, world)
     keep = record == "trials"
     rollout = drive_batch(sim, agent, seeds.tolist(), use_batch_policy, fused, keep_trials=keep)
     return BlockSums(seeds, rollout.sums, rollout if keep else None, sim if keep else None)

@@ -117,7 +117,7 @@ def part_families(sessions: int, quick: bool, sb3: bool, out: Out = print, only:
         t0 = time.perf_counter()
         extra["sb3: ppo"] = _trained_ppo(world, 1_024 if quick else 4_096)
         out(f"   (trained a small PPO model in {time.perf_counter() - t0:.1f} s)")
-        # simulate_users builds its agents from a spec, so the model goes through a file
+        # the model goes through a file, as a sweep spec gives it (model_path)
         model = extra["sb3: ppo"].save(Path(tempfile.mkdtemp()) / "ppo_model")
         families.append(("sb3: ppo", {"name": "ppo", "model_path": str(model)}, True))
     for family, spec, compiled in families:
