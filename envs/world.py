@@ -204,6 +204,31 @@ class World:
         (the fingerprint a saved model keeps); :meth:`digest` also tells apart how it is spelled."""
         return hashlib.sha256(json.dumps(self.problem_parts(), sort_keys=True).encode()).hexdigest()
 
+    def plan_digest(self) -> str:
+        """Digest (hex) of every number the simulator reads and nothing else: the key of a plan,
+        equal for worlds that differ only in text that names things (the scenario's name and
+        description, command names, hotkey spellings of as many keys, menu titles, the costs' and
+        aids' preset names). Covers the command arrays (menu, position, menu size, keys, usage
+        probabilities), the costs (K resolved), memory, the schedule in force, the observation
+        settings and the aids with their commands resolved to the scenario's positions (an aid
+        names commands; the same name list on renamed commands may mean other positions)."""
+        parts = self.problem_parts()
+        cs = self.commands
+        h = hashlib.sha256()
+        for name in ("menu_of", "item_index", "menu_size", "keystrokes", "probability", "within_menu_probability"):
+            array = np.ascontiguousarray(getattr(cs, name))
+            h.update(f"{name}:{array.dtype.str}:{array.shape}".encode())
+            h.update(array.tobytes())
+        aids = self.aids.model_dump(mode="json", exclude={"name"})
+        for section, values in aids.items():
+            if isinstance(values, dict) and "commands" in values:
+                where = f"aids.{section}"
+                values["commands"] = getattr(self.aids, section).mask(cs.names, where).astype(int).tolist()
+        settings = {name: parts[name] for name in ("costs", "memory", "schedule", "observation")}
+        settings["aids"] = hashlib.sha256(json.dumps(aids, sort_keys=True).encode()).hexdigest()
+        settings["commands"] = h.hexdigest()
+        return hashlib.sha256(json.dumps(settings, sort_keys=True).encode()).hexdigest()
+
     def with_changes(self, **changes: Any) -> World:
         """A copy with some fields replaced."""
         fields = {f: getattr(self, f) for f in self.__dataclass_fields__}

@@ -3,7 +3,8 @@
 A plan depends on the world and the planning options only, so every planner agent of one world
 (every simulated user, chunk of users, thread and sweep run in the process) reads the same plan
 (:class:`~shortcut_gym.agents.planner.search.Plan` is read-only once solved). The key is the
-world's content digest (:meth:`~shortcut_gym.envs.world.World.digest`) with the options. Planning
+world's plan digest (:meth:`~shortcut_gym.envs.world.World.plan_digest`: the numbers, not the
+names or descriptions, so worlds differing only in text share one plan) with the options. Planning
 happens under a lock, so threads asking for the same world wait for one plan instead of each
 making their own. The seconds spent planning are counted (:func:`planning_seconds`), so drivers
 report them apart from simulation time.
@@ -116,8 +117,9 @@ def _evict() -> None:
 
 def plan_key(world: World, max_uses: int, n_bins: int, keyboard_share: float | None, n_weight_bins: int,
              select_users: int) -> tuple:
-    """The cache key of a plan: the world's digest and the planning options."""
-    return (world.digest(), int(max_uses), int(n_bins), keyboard_share, int(n_weight_bins), int(select_users))
+    """The cache key of a plan: the world's plan digest (:meth:`World.plan_digest`: every number the
+    simulator reads, not the text naming things) and the planning options."""
+    return (world.plan_digest(), int(max_uses), int(n_bins), keyboard_share, int(n_weight_bins), int(select_users))
 
 
 def cached_plan(world: World, max_uses: int, n_bins: int = 40, keyboard_share: float | None = None,
