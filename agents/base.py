@@ -193,6 +193,17 @@ class Agent(ABC):
         return {"name": self.name, "params": dict(self.params)}
 
 
+def check_batch_users(name: str, n_users: Any, seeds: Sequence[int]) -> int:
+    """Return ``n_users`` of a ``batch_policy`` call, or raise :class:`ConfigError` naming agent
+    ``name``: the count must be a whole number >= 1 and ``seeds`` must hold one seed per user. Every
+    agent's ``batch_policy`` checks this first, so each refuses the same inputs in the same words."""
+    if isinstance(n_users, (bool, np.bool_)) or not isinstance(n_users, numbers.Integral) or n_users < 1:
+        raise ConfigError(f"{name}: a batch policy needs a whole number of users >= 1, got {n_users!r} users")
+    if len(seeds) != n_users:
+        raise ConfigError(f"{name}: {len(seeds)} seeds for {n_users} users")
+    return int(n_users)
+
+
 # ---- capabilities beyond the protocol -----------------------------------------------------------
 @runtime_checkable
 class LikelihoodAgent(Protocol):

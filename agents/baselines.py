@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.frozen_policy import (
     FrozenBatchPolicy,
     cdf_of,
@@ -36,6 +36,7 @@ class AlwaysMenu(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        check_batch_users(self.name, n_users, seeds)
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: constant_rule(MENU))
 
 
@@ -49,6 +50,7 @@ class AlwaysHotkey(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        check_batch_users(self.name, n_users, seeds)
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: constant_rule(HOTKEY))
 
 
@@ -79,6 +81,7 @@ class LearnFirstK(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        check_batch_users(self.name, n_users, seeds)
         k = int(self.params["k"])
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: first_uses_rule(k))
 
@@ -102,5 +105,6 @@ class RandomAgent(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users; user i draws what ``reset(seeds[i])`` draws."""
+        check_batch_users(self.name, n_users, seeds)
         cdf = cdf_of(self.action_probabilities(np.zeros(0), {}))  # checks the probabilities first
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: uses_session_rule(cdf.reshape(1, 1, 3)))

@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 from numba import njit
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.planned_choice_batch import PlannedChoiceSteps, choice_probabilities, planned_choice_batch
 from shortcut_gym.agents.planner import BoundedOptimalPlanner, check_memory_kind
 from shortcut_gym.envs.errors import ConfigError
@@ -212,6 +212,7 @@ class PlannedChoice(Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> PlannedChoiceSteps:
         """Many simulated users at once (:mod:`shortcut_gym.agents.planned_choice_batch`): user i
         draws what this agent reset with ``seeds[i]`` draws."""
+        check_batch_users(self.name, n_users, seeds)
         return planned_choice_batch(self.name, self.planner(), self.params["beta"], self.params.get("lapse", 0.0),
                                     n_users, seeds)
 

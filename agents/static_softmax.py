@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.frozen_policy import DecisionRule, FrozenBatchPolicy, cdf_of, frozen_policy, uses_session_rule
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
@@ -179,6 +179,7 @@ class StaticSoftmax(Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users; user i draws what ``reset(seeds[i])`` would
         (action probabilities tabulated by the target's use count and the session)."""
+        check_batch_users(self.name, n_users, seeds)
         return frozen_policy(self, n_users, seeds, self._rule)
 
     def _rule(self, uses_rows: int, sessions: int) -> DecisionRule:

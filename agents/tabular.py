@@ -35,7 +35,7 @@ import numpy as np
 import pandas as pd
 from tqdm.auto import tqdm
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
 from shortcut_gym.agents.model_files import file_contents, hint_for
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
@@ -226,6 +226,7 @@ class TabularAgent(WorldRecorded, Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled epsilon-greedy policy of the current table for ``n_users`` users (learning off);
         user i draws what ``reset(seeds[i])`` draws."""
+        check_batch_users(self.name, n_users, seeds)
         if self.learning:
             raise ConfigError(f"{self.name}: a batch policy acts with a frozen table; switch learning off "
                               "(it is on only inside train)")

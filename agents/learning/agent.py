@@ -20,7 +20,7 @@ from typing import Any, ClassVar
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import N_ACTIONS, Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import N_ACTIONS, Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.learning import mechanisms as mech
 from shortcut_gym.agents.learning.batch import BatchLearningPolicy
 from shortcut_gym.agents.learning.features import DT_FEATURE, decode_dt_s, dt_feature_index
@@ -187,4 +187,5 @@ class LearningAgent(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> BatchLearningPolicy:
         """Compiled policy for ``n_users`` simulated users (user i seeded like ``reset(seeds[i])``)."""
+        check_batch_users(self.name, n_users, seeds)
         return BatchLearningPolicy(self.name, self.context, self.rule_set(), n_users, seeds)

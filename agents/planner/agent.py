@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition
+from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.frozen_policy import FrozenBatchPolicy
 from shortcut_gym.agents.planner.batch import PlanLookupBatch, rule_policy
 from shortcut_gym.agents.planner.cache import timed_cached_plan
@@ -306,6 +306,7 @@ class BoundedOptimalPlanner(Agent):
         """Many simulated users at once: a fixed-rule choice as a compiled rule (:mod:`.batch`), a
         plan looked up in the compiled fused loop (:mod:`.compiled_lookup`; per user in Python where
         that does not apply); either way each user's actions are this agent's for that user."""
+        check_batch_users(self.name, n_users, seeds)
         self.prepare()
         assert self.plan is not None
         if self.plan.choice.kind != "plan":

@@ -26,7 +26,7 @@ from typing import Any, ClassVar
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.agents.base import Agent, AgentContext
+from shortcut_gym.agents.base import Agent, AgentContext, check_batch_users
 from shortcut_gym.agents.frozen_policy import UserDraws
 from shortcut_gym.agents.rollout import bind_for_world, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
@@ -158,6 +158,7 @@ class SB3Agent(WorldRecorded, Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> SB3BatchPolicy:
         """The policy for many users: one forward pass per trial over every user's observation
         (the vector env's batch), each user's action drawn from its own agent generator."""
+        check_batch_users(self.name, n_users, seeds)
         return SB3BatchPolicy(self, n_users, seeds)
 
     def act(self, obs: np.ndarray, info: dict[str, Any]) -> int:
