@@ -198,6 +198,7 @@ class PlannedChoice(Agent):
         if self._planner is None:
             self.reset()
         assert self._planner is not None
+        self._planner.check_trial(int(info["next_trial"]), self.name)
         q = self._planner.action_values(int(info["target"]), int(info["next_trial"]))
         # the compiled softmax the batch policy draws from, so both give the same doubles
         return np.array(choice_probabilities(float(q[0]), float(q[1]), float(q[2]), self.params["beta"],
@@ -207,6 +208,7 @@ class PlannedChoice(Agent):
         if self._planner is None:
             self.reset()
         assert self._planner is not None
+        self._planner.check_trial(int(transition.info["trial"]), self.name)
         self._planner.observe(transition)
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> PlannedChoiceSteps:

@@ -47,6 +47,7 @@ from shortcut_gym.agents.rollout import TrialRecord, UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, UsageError
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double
+from shortcut_gym.envs.task import check_replay_length
 
 if TYPE_CHECKING:
     from shortcut_gym.agents.planner.agent import BoundedOptimalPlanner
@@ -190,6 +191,8 @@ class PlannedChoiceSteps:
         """Each user's sampled action for its target at the current trial."""
         stepper = self._stepper()
         t = stepper.trial
+        if stepper.users:
+            stepper.users[0].check_trial(t, self.name)
         q = np.array([u.action_values(int(c), t) for u, c in zip(stepper.users, targets, strict=True)],
                      dtype=np.float64).reshape(self.n_users, 3)
         out = np.empty(self.n_users, dtype=np.int64)
@@ -201,7 +204,10 @@ class PlannedChoiceSteps:
 
     def observe(self, targets: np.ndarray, actions: np.ndarray, outcomes: np.ndarray, durations_s: np.ndarray) -> None:
         """Each user's planner tracks its command's new trace."""
-        self._stepper().observe(targets, actions, outcomes, durations_s)
+        stepper = self._stepper()
+        if stepper.users:
+            stepper.users[0].check_trial(stepper.trial, self.name)
+        stepper.observe(targets, actions, outcomes, durations_s)
 
     def _refuse(self, user: int, trial: int) -> None:
         raise ConfigError(f"{self.name}: user {user} (seed {self.seeds[user]}) at trial {trial}: choice probabilities "
@@ -234,9 +240,8 @@ class PlannedChoiceBatch(PlannedChoiceSteps):
 
     def _run(self, sim: BatchSimulator, keep: bool) -> tuple[UserSums, TrialRecord | None, np.ndarray | None]:
         check_fresh_run(sim, 1 if (self._stepped is not None or self._ran) else 0, self.n_users)
-        if sim.horizon > self.tables.clock.shape[0]:  # a shorter schedule (a log cut short) runs on the plan
-            raise ConfigError(f"{self.name}: the plan covers {self.tables.clock.shape[0]} trials, the simulator "
-                              f"{sim.horizon}")
+        # a shorter schedule (a log cut short) runs on the plan, a longer one is refused
+        check_replay_length(sim.horizon, int(self.tables.clock.shape[0]), self.name)
         n, h = sim.n_users, sim.horizon
         n_cmd = sim.world.commands.n_commands
         sums = SumArrays(**vars(UserSums.zeros(n, int(sim.sched_session.max()) + 1, n_cmd)))

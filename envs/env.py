@@ -24,7 +24,7 @@ from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.memory import MemorySettings
 from shortcut_gym.envs.simulator import BatchSimulator
-from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings
+from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings, check_replay_length
 from shortcut_gym.envs.world import World, make_world
 
 
@@ -96,6 +96,8 @@ class CommandSelectionEnv(gym.Env):
             schedule = options.get("schedule")
             if schedule is not None and not isinstance(schedule, Schedule):
                 raise ConfigError(f"options['schedule'] must be a Schedule, got {type(schedule).__name__}")
+            if schedule is not None:
+                check_replay_length(schedule.horizon, self.world.horizon, "reset(options['schedule'])")
         sim = self._sim
         obs = sim.reset(rngs=[self.np_random], schedules=[schedule])
         self._step_arrays = sim.step_arrays()  # read once per reset, not per step

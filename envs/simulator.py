@@ -17,7 +17,7 @@ from numba import njit
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError
 from shortcut_gym.envs.kernel_layout import CommandState, ScheduleArrays, Trace, UserArrays, UserState
-from shortcut_gym.envs.task import Schedule, session_onsets
+from shortcut_gym.envs.task import Schedule, check_replay_length, session_onsets
 from shortcut_gym.envs.world import World
 
 
@@ -120,6 +120,9 @@ class BatchSimulator:
         if len(given) != n:
             raise ConfigError(f"{len(given)} schedules for {n} users")
         replayed = [b for b, s in enumerate(given) if s is not None]
+        for b in replayed:
+            check_replay_length(given[b].horizon, self.world.horizon,  # type: ignore[union-attr]
+                                f"BatchSimulator.reset: schedules[{b}]")
         horizons = {given[b].horizon for b in replayed}  # type: ignore[union-attr]
         if len(replayed) < n:
             horizons.add(self.world.horizon)

@@ -289,6 +289,29 @@ class Schedule:
         return self.onset_s - (1.0 - gap_time_scale) * self.gap_total_s
 
 
+def replay_too_long(n_trials: int, horizon: int, where: str, at_least: bool = False) -> ConfigError | None:
+    """The error for a replayed schedule of ``n_trials`` trials given where ``where`` says, on a
+    world of ``horizon`` trials, or None when it fits. A replay may be shorter than the horizon (a
+    log cut short: the user's world goes on past it) but not longer: nothing (a plan, the world's
+    clock) covers trials past the horizon. ``at_least``: only a lower bound of the length is known
+    (a trial index past the horizon was met)."""
+    if n_trials <= horizon:
+        return None
+    count = f"at least {n_trials}" if at_least else str(n_trials)
+    return ConfigError(
+        f"{where}: the replayed schedule has {count} trials, more than the world's horizon of {horizon} "
+        f"trials; a replay may be shorter than the horizon but not longer: replay only its first {horizon} "
+        f"trials, or make the world with a schedule of at least {n_trials} trials (schedule sessions x "
+        "trials_per_session)")
+
+
+def check_replay_length(n_trials: int, horizon: int, where: str, at_least: bool = False) -> None:
+    """Raise :func:`replay_too_long`'s error for a replayed schedule longer than the world's horizon."""
+    err = replay_too_long(n_trials, horizon, where, at_least)
+    if err is not None:
+        raise err
+
+
 def session_onsets(settings: ScheduleSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Onset (s), session index and cumulative gap (s) of every trial of a schedule."""
     n, k = settings.sessions, settings.trials_per_session

@@ -18,7 +18,7 @@ import pandas as pd
 from shortcut_gym.envs.env import CommandSelectionEnv
 from shortcut_gym.envs.errors import ConfigError, UsageError
 from shortcut_gym.envs.kernel import ACTION_NAMES, OPERATOR_NAMES
-from shortcut_gym.envs.task import Schedule
+from shortcut_gym.envs.task import Schedule, check_replay_length
 
 #: Columns of one trial's row, in order: the step's info, the action by name, then the time
 #: breakdown by operator as ``t_<operator>`` (seconds).
@@ -92,7 +92,8 @@ class ScheduleReplay(gym.Wrapper):
     Use it to evaluate or train any Gymnasium agent on fixed trial orders, e.g. the schedules of
     participants' logs. ``cycle`` True starts again after the last; False raises once all are used.
     A schedule passed explicitly as ``reset(options={'schedule': ...})`` is used instead and does
-    not advance the sequence. Every schedule must have the env's horizon.
+    not advance the sequence. A schedule may be shorter than the env's horizon (a log cut short:
+    the episode ends with it) but not longer; a longer one is refused here (or at reset).
     """
 
     def __init__(self, env: gym.Env, schedules: Iterable[Schedule], cycle: bool = True) -> None:
@@ -105,9 +106,7 @@ class ScheduleReplay(gym.Wrapper):
         for i, s in enumerate(self.schedules):
             if not isinstance(s, Schedule):
                 raise TypeError(f"ScheduleReplay: schedules[{i}] must be a Schedule, got {type(s).__name__}")
-            if len(s.command) != horizon:
-                raise ConfigError(f"ScheduleReplay: schedules[{i}] has {len(s.command)} trials, the env's "
-                                  f"horizon is {horizon}")
+            check_replay_length(s.horizon, horizon, f"ScheduleReplay: schedules[{i}]")
             n_commands = base.world.commands.n_commands
             if np.any((s.command < 0) | (s.command >= n_commands)):
                 raise ConfigError(f"ScheduleReplay: schedules[{i}] names commands outside 0..{n_commands - 1}")

@@ -215,7 +215,8 @@ def test_bad_use_is_refused_with_its_reason() -> None:
     with pytest.raises(ConfigError, match="the policy has 3 users, the simulator 2"):
         other.run(_sim(world, [1, 2]))
     longer = make_world(schedule={"sessions": 4, "trials_per_session": 14, "gap_h": 20.0})
-    with pytest.raises(ConfigError, match="the plan covers 42 trials, the simulator 56"):
+    with pytest.raises(ConfigError, match="planned_choice: the replayed schedule has 56 trials, more than "
+                       "the world.s horizon of 42 trials"):
         agent.batch_policy(2, [1, 2]).run(_sim(longer, [1, 2]))
     assert isinstance(other, PlannedChoiceSteps)
 

@@ -93,8 +93,9 @@ def test_replay_without_cycle_stops_and_explicit_schedule_wins() -> None:
 
 
 def test_replay_rejects_schedules_that_do_not_fit() -> None:
-    with pytest.raises(ValueError, match=r"schedules\[1\] has 10 trials, the env's horizon is 20"):
-        ScheduleReplay(_env(), [_schedule([0] * 20), _schedule([0] * 10)])
+    with pytest.raises(ValueError, match=r"schedules\[1\]: the replayed schedule has 22 trials, more than the "
+                       r"world's horizon of 20 trials"):
+        ScheduleReplay(_env(), [_schedule([0] * 10), _schedule([0] * 22)])
     with pytest.raises(ValueError, match=r"schedules\[0\] names commands outside 0\.\.11"):
         ScheduleReplay(_env(), [_schedule([12] * 20)])
     with pytest.raises(TypeError, match=r"schedules\[0\] must be a Schedule, got list"):

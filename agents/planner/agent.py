@@ -36,7 +36,7 @@ from shortcut_gym.envs.memory import (
     power_activation,
     recall_probability,
 )
-from shortcut_gym.envs.task import session_onsets
+from shortcut_gym.envs.task import check_replay_length, session_onsets
 from shortcut_gym.envs.world import World, make_world, same_world
 
 
@@ -201,6 +201,7 @@ class BoundedOptimalPlanner(Agent):
         if self.plan is None:
             self.reset()
         assert self.plan is not None
+        self.check_trial(trial)
         if self._warmup:
             self._apply_warmup(trial)
         m = self._memory
@@ -289,6 +290,13 @@ class BoundedOptimalPlanner(Agent):
             times.append(now)
             weights.append(weight)
 
+    def check_trial(self, trial: int, who: str | None = None) -> None:
+        """Refuse a trial index past the plan's horizon (a replayed schedule longer than the world's),
+        naming ``who`` (default: this agent)."""
+        horizon = getattr(self, "_horizon", None)  # set by reset
+        if horizon is not None and trial >= horizon:
+            check_replay_length(trial + 1, horizon, who or self.name, at_least=True)
+
     def decide(self, c: int, trial: int) -> int:
         """The executed action for command ``c`` at ``trial``: the argmax of :meth:`action_values`
         (ties to the lowest action index) where ``plan.choice`` follows the plan for ``c``, else
@@ -296,6 +304,7 @@ class BoundedOptimalPlanner(Agent):
         if self.plan is None:
             self.reset()
         assert self.plan is not None
+        self.check_trial(trial)
         choice = self.plan.choice
         if choice.kind != "plan" or not choice.allows(c):
             return rule_action(choice, c, int(self._uses[c]))
@@ -333,6 +342,7 @@ class BoundedOptimalPlanner(Agent):
         c, t = int(info["command"]), int(info["trial"])
         if self.plan is None:
             self.reset()
+        self.check_trial(t)
         m = self._memory
         w = m.weights
         outcome = info["outcome"]

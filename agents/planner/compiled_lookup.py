@@ -66,6 +66,7 @@ from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, UsageError
 from shortcut_gym.envs.simulator import BatchSimulator
+from shortcut_gym.envs.task import check_replay_length
 
 if TYPE_CHECKING:
     from shortcut_gym.agents.planner.agent import BoundedOptimalPlanner
@@ -539,8 +540,8 @@ class CompiledPlanLookup:
             raise UsageError("a fused run needs a fresh batch policy (trial 0)")
         if self.n_users != sim.n_users:
             raise ConfigError(f"the policy has {self.n_users} users, the simulator {sim.n_users}")
-        if sim.horizon > self.tables.clock.shape[0]:  # a shorter schedule (a log cut short) runs on the plan
-            raise ConfigError(f"the plan covers {self.tables.clock.shape[0]} trials, the simulator {sim.horizon}")
+        # a shorter schedule (a log cut short) runs on the plan, a longer one is refused
+        check_replay_length(sim.horizon, int(self.tables.clock.shape[0]), self.agent.name)
         n_cmd = sim.world.commands.n_commands
         sums = SumArrays(**vars(UserSums.zeros(sim.n_users, int(sim.sched_session.max()) + 1, n_cmd)))
         mem = user_memory(n_cmd, int(self.tables.ints[I_CAP]))
