@@ -18,6 +18,7 @@ from shortcut_gym.agents.frozen_policy import (
 )
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import HOTKEY, LEARN, MENU
+from shortcut_gym.envs.seeds import check_seeds
 
 
 def _one_hot(action: int) -> np.ndarray:
@@ -36,6 +37,7 @@ class AlwaysMenu(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: constant_rule(MENU))
 
@@ -50,6 +52,7 @@ class AlwaysHotkey(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: constant_rule(HOTKEY))
 
@@ -81,6 +84,7 @@ class LearnFirstK(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users (see :mod:`~shortcut_gym.agents.frozen_policy`)."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         k = int(self.params["k"])
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: first_uses_rule(k))
@@ -105,6 +109,7 @@ class RandomAgent(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users; user i draws what ``reset(seeds[i])`` draws."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         cdf = cdf_of(self.action_probabilities(np.zeros(0), {}))  # checks the probabilities first
         return frozen_policy(self, n_users, seeds, lambda uses, sessions: uses_session_rule(cdf.reshape(1, 1, 3)))

@@ -36,6 +36,7 @@ from shortcut_gym.agents.planned_choice_batch import PlannedChoiceSteps, choice_
 from shortcut_gym.agents.planner import BoundedOptimalPlanner, check_memory_kind
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.world import World, make_world
 
 _VALUES: OrderedDict[tuple, np.ndarray] = OrderedDict()
@@ -214,6 +215,7 @@ class PlannedChoice(Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> PlannedChoiceSteps:
         """Many simulated users at once (:mod:`shortcut_gym.agents.planned_choice_batch`): user i
         draws what this agent reset with ``seeds[i]`` draws."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return planned_choice_batch(self.name, self.planner(), self.params["beta"], self.params.get("lapse", 0.0),
                                     n_users, seeds)

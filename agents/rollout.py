@@ -37,6 +37,7 @@ from shortcut_gym.agents.world_record import WorldRecorded, describe, differing_
 from shortcut_gym.envs.errors import ConfigError, UsageError, WorldMismatchError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.kernel import N_OPS, OUTCOME_NAMES
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World, same_world
 from shortcut_gym.envs.wrappers import TRIAL_COLUMNS, trial_row
@@ -120,6 +121,7 @@ def run_episode(env: gym.Env, agent: Agent, seed: int | None = None, max_trials:
 
 def evaluate_agent(env: gym.Env, agent: Agent, seeds: Iterable[int]) -> pd.DataFrame:
     """Total time (s) and hotkey share per simulated user, one row per seed."""
+    seeds = check_seeds(seeds, "evaluate_agent")
     rows = []
     for s in seeds:
         df = run_episode(env, agent, seed=int(s))

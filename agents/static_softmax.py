@@ -24,6 +24,7 @@ from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition,
 from shortcut_gym.agents.frozen_policy import DecisionRule, FrozenBatchPolicy, cdf_of, frozen_policy, uses_session_rule
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.kernel import ACTION_NAMES
+from shortcut_gym.envs.seeds import check_seeds
 
 COVARIATES: tuple[str, ...] = ("log_exposure", "session")
 #: Plausible intercepts and covariate weights (logit units; assumptions of this project, no source):
@@ -179,6 +180,7 @@ class StaticSoftmax(Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled policy of ``n_users`` users; user i draws what ``reset(seeds[i])`` would
         (action probabilities tabulated by the target's use count and the session)."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return frozen_policy(self, n_users, seeds, self._rule)
 

@@ -41,6 +41,7 @@ from shortcut_gym.agents.model_files import file_contents, hint_for
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
 from shortcut_gym.agents.world_record import WorldRecorded, atomic_path, check_flag, parse_record
 from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
+from shortcut_gym.envs.seeds import check_seeds
 
 _FEATURES = CELL_FEATURES
 _EDGES = {  # bucket upper edges (counts or seconds), in feature order
@@ -226,6 +227,7 @@ class TabularAgent(WorldRecorded, Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> FrozenBatchPolicy:
         """Compiled epsilon-greedy policy of the current table for ``n_users`` users (learning off);
         user i draws what ``reset(seeds[i])`` draws."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         if self.learning:
             raise ConfigError(f"{self.name}: a batch policy acts with a frozen table; switch learning off "

@@ -23,6 +23,7 @@ from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError
 from shortcut_gym.envs.info import StepInfo, UpcomingInfo, simulator_step_info, simulator_upcoming_info
 from shortcut_gym.envs.memory import MemorySettings
+from shortcut_gym.envs.seeds import check_seed
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.task import ScenarioSettings, Schedule, ScheduleSettings, check_replay_length
 from shortcut_gym.envs.world import World, make_world
@@ -87,7 +88,7 @@ class CommandSelectionEnv(gym.Env):
     # ---- gymnasium API --------------------------------------------------------------------
     def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
         """Start a new simulated user; ``options={'schedule': Schedule}`` replays targets."""
-        super().reset(seed=seed)
+        super().reset(seed=None if seed is None else check_seed(seed, "reset"))
         schedule = None
         if options:
             unknown = set(options) - {"schedule"}

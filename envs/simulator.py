@@ -17,6 +17,7 @@ from numba import njit
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ActionError, ConfigError, UsageError
 from shortcut_gym.envs.kernel_layout import CommandState, ScheduleArrays, Trace, UserArrays, UserState
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.task import Schedule, check_replay_length, session_onsets
 from shortcut_gym.envs.world import World
 
@@ -104,6 +105,8 @@ class BatchSimulator:
         """Start one user per seed (or per generator); returns observations (users x obs_dim)."""
         if (seeds is None) == (rngs is None):
             raise ConfigError("give either seeds or rngs")
+        if seeds is not None:
+            seeds = check_seeds(seeds, "BatchSimulator.reset")
         compiled = None
         if seeds is not None and schedules is None and len(seeds) > 0:
             compiled = seed_words(np.asarray([int(s) for s in seeds]))

@@ -11,6 +11,7 @@ from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.registry import agent_from_spec, refuse_planner_memory
 from shortcut_gym.agents.rollout import labelled_trial_table
 from shortcut_gym.envs.env import CommandSelectionEnv
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.world import World
 
 
@@ -35,6 +36,7 @@ def simulate_agents(world: World, specs: Sequence[dict[str, Any] | Agent], seeds
     A spec dict is labelled by the parameters it sets (``rescorla_wagner(alpha=0.5)``); an agent
     object by its full spec.
     """
+    seeds = check_seeds(seeds, "simulate_agents")
     labelled = [(label_of(s.spec()), s) if isinstance(s, Agent) else (label_of(s), agent_from_spec(s)) for s in specs]
     refuse_planner_memory(world, [(label, a.name) for label, a in labelled if getattr(a, "world", None) is None],
                           "simulate_agents")

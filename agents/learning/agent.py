@@ -37,6 +37,7 @@ from shortcut_gym.agents.learning.rules import (
 from shortcut_gym.agents.learning.trials import TrialArrays
 from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
 from shortcut_gym.envs.kernel import OUTCOME_NAMES
+from shortcut_gym.envs.seeds import check_seeds
 
 
 class LearningAgent(Agent):
@@ -187,5 +188,6 @@ class LearningAgent(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> BatchLearningPolicy:
         """Compiled policy for ``n_users`` simulated users (user i seeded like ``reset(seeds[i])``)."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return BatchLearningPolicy(self.name, self.context, self.rule_set(), n_users, seeds)

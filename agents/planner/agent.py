@@ -36,6 +36,7 @@ from shortcut_gym.envs.memory import (
     power_activation,
     recall_probability,
 )
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.task import check_replay_length, session_onsets
 from shortcut_gym.envs.world import World, make_world, same_world
 
@@ -315,6 +316,7 @@ class BoundedOptimalPlanner(Agent):
         """Many simulated users at once: a fixed-rule choice as a compiled rule (:mod:`.batch`), a
         plan looked up in the compiled fused loop (:mod:`.compiled_lookup`; per user in Python where
         that does not apply); either way each user's actions are this agent's for that user."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         self.prepare()
         assert self.plan is not None

@@ -26,6 +26,7 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from shortcut_gym.agents.base import Agent, Transition, check_batch_users
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.world import World
 
 if TYPE_CHECKING:
@@ -100,6 +101,7 @@ class _RuleAgent(Agent):
 
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> _RuleBatch:
         """The rule for many users at once (deterministic: the seeds draw nothing)."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return _RuleBatch(self.choice, n_users, self.context.n_commands if self.context else 0)
 

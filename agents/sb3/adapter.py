@@ -35,6 +35,7 @@ from shortcut_gym.agents.sb3.hyperparameters import gather_hyperparameters
 from shortcut_gym.agents.sb3.training import train_model
 from shortcut_gym.agents.world_record import WorldRecorded, check_flag
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
+from shortcut_gym.envs.seeds import check_seeds
 
 #: The adapter's own options (its constructor's keywords); any other keyword is a hyperparameter.
 OPTIONS = ["allow_other_world", "deterministic", "hyperparameters", "model_path", "normalize"]
@@ -158,6 +159,7 @@ class SB3Agent(WorldRecorded, Agent):
     def batch_policy(self, n_users: int, seeds: Sequence[int]) -> SB3BatchPolicy:
         """The policy for many users: one forward pass per trial over every user's observation
         (the vector env's batch), each user's action drawn from its own agent generator."""
+        seeds = check_seeds(seeds, f"{self.name}.batch_policy")
         check_batch_users(self.name, n_users, seeds)
         return SB3BatchPolicy(self, n_users, seeds)
 

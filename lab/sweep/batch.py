@@ -25,6 +25,7 @@ from shortcut_gym.agents.registry import agent_from_spec
 from shortcut_gym.agents.rollout import BatchRollout, UserSums, bind_for_world, context_of_world, drive_batch
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.simulator import BatchSimulator
 from shortcut_gym.envs.world import World
 
@@ -123,7 +124,7 @@ def simulate_users(
         raise ConfigError(f"record must be 'blocks' or 'trials', got {record!r}")
     if not (isinstance(threads, int) and threads >= 1):
         raise ConfigError(f"threads must be an integer >= 1, got {threads!r}")
-    seeds = np.asarray([int(s) for s in seeds], dtype=np.int64)  # type: ignore[assignment]
+    seeds = np.asarray(check_seeds(seeds, "simulate_users"), dtype=np.int64)  # type: ignore[assignment]
     if len(seeds) == 0:
         raise ConfigError("need at least one seed")
     if isinstance(spec, Agent):  # bound (and prepared) once here, so chunks on threads only read it
