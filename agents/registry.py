@@ -66,7 +66,8 @@ OPTION_DOCS: dict[str, str] = {
     "select_users": "common simulated users on which the plan is compared with simple fixed rules, the better one "
                     "executed (0: execute the plan as it is)",
     "with_lapse": "add the `lapse` parameter: the probability of a uniform random action",
-    "model_path": "a saved model file to load (relative to the spec file's folder); null: a new, untrained model",
+    "model_path": "a saved model file to load (relative to the spec file's folder); null: a new, untrained model "
+                  "(a tabular agent simulated so warns once that it acts with its initial table)",
     "allow_other_world": "let a loaded model run on a world other than the one it was trained on (with a warning) "
                          "instead of refusing it",
     "deterministic": "take the policy's most probable action instead of sampling one",

@@ -19,6 +19,11 @@ use); an episode a wrapper truncates leaves its open uses unlearned (their next 
 ``reset`` starts a new episode and keeps the learned table; :meth:`clear` forgets it; updates
 happen in ``observe`` only while ``learning`` is True (set by :meth:`train`).
 
+A table never trained nor loaded (or :meth:`clear`-ed) is the initial one: every action valued
+``initial_value``, so the greedy choice is the menu by tie. Simulating with it is allowed (a spec's
+``model_path: null`` means a new, untrained model) but warns once per process and agent spec
+(:class:`UntrainedTableWarning`), on every path: ``reset`` outside training and ``batch_policy``.
+
 ``save`` writes the table with the record of the world it was trained on (``world`` entry of the
 .npz, :mod:`shortcut_gym.agents.world_record`); a loaded table refuses another world (or a file
 without a record) unless ``allow_other_world=True``.
@@ -27,6 +32,8 @@ without a record) unless ``allow_other_world=True``.
 from __future__ import annotations
 
 import json
+import threading
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -51,6 +58,20 @@ _EDGES = {  # bucket upper edges (counts or seconds), in feature order
     "log1p_seconds_since_last_use": [0.5, 3600.0],
 }
 _SIZES = tuple(len(_EDGES[f]) + 1 for f in _FEATURES)
+
+
+class UntrainedTableWarning(UserWarning):
+    """A tabular agent acts with its initial Q table (never trained nor loaded)."""
+
+
+_WARNED: set[str] = set()  # specs of the untrained agents warned about in this process
+_WARNED_LOCK = threading.Lock()  # chunks of users may build their agents on threads
+
+
+def forget_warned_tables() -> None:
+    """Warn again about every untrained agent (the warning is given once per process and spec)."""
+    with _WARNED_LOCK:
+        _WARNED.clear()
 
 
 class TabularAgent(WorldRecorded, Agent):
@@ -93,16 +114,33 @@ class TabularAgent(WorldRecorded, Agent):
         return self._has_model
 
     def clear(self) -> None:
-        """Forget the learned table."""
+        """Forget the learned table (back to the initial one: :meth:`has_model` is False again)."""
         if self.context is None:
             raise NotReadyError(f"{self.name}: bind a context before use")
         self.q = np.full((self.context.n_commands, *_SIZES, 3), self.params["initial_value"])
+        self._has_model = False
 
     def reset(self, seed: int | None = None) -> None:
         super().reset(seed)
         if self.q is None:
             self.clear()
         self._open = {}  # updates of an unfinished episode are dropped
+        self.warn_if_initial()
+
+    def warn_if_initial(self) -> None:
+        """Warn (:class:`UntrainedTableWarning`, once per process and spec) when the agent acts, outside
+        training, with a table never trained nor loaded."""
+        if self.learning or self._has_model:
+            return
+        key = json.dumps(self.spec(), sort_keys=True, default=str)
+        with _WARNED_LOCK:
+            if key in _WARNED:
+                return
+            _WARNED.add(key)
+        warnings.warn(f"{self.name}: simulated with its initial Q table (never trained nor loaded: every action "
+                      f"valued {self.params['initial_value']:g}, so the greedy choice is the menu by tie, with "
+                      f"epsilon {self.params['epsilon']:g} exploration); train it first, or give "
+                      "model_path= a saved table", UntrainedTableWarning, stacklevel=3)
 
     def state(self, obs: np.ndarray, info: dict[str, Any]) -> tuple[int, ...]:
         """Discrete state of the upcoming trial."""
@@ -237,6 +275,7 @@ class TabularAgent(WorldRecorded, Agent):
         names = list(self.context.obs_names) if self.context is not None else []
         if not names:
             raise NotReadyError(f"{self.name}: needs a context with obs_names (use agents.rollout.context_of(env))")
+        self.warn_if_initial()
         q = self.q.reshape(-1, 3)  # type: ignore[union-attr]
         eps = self.params["epsilon"]
         p = np.full(q.shape, eps / 3)
