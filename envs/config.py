@@ -43,10 +43,11 @@ def kind_of(model: type[BaseModel]) -> str:
 
 def format_validation_error(err: ValidationError, source: str) -> str:
     """One line per fault: '<source>: <dotted.field>: <message> (got <value>)' (a fault of the whole
-    mapping has no field; pydantic's 'Value error, ' prefix is dropped; a long value is cut)."""
+    mapping has no field; pydantic's 'Value error, ' prefix is dropped; a long value is cut). A
+    tagged union's tag written in angle brackets (``Tag("<block>")``) names no field and is left out."""
     lines = []
     for e in err.errors():
-        where = ".".join(str(p) for p in e["loc"])
+        where = ".".join(str(p) for p in e["loc"] if not (isinstance(p, str) and p.startswith("<") and p.endswith(">")))
         msg = e["msg"]
         if e["type"] == "extra_forbidden":
             msg = "unknown key"

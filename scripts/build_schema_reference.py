@@ -98,6 +98,8 @@ def _model_of(annotation: Any) -> list[type[BaseModel]]:
 def type_text(annotation: Any) -> str:
     """A short readable type: ``number``, ``whole number``, ``text``, ``a | b`` choices, ``list of X``."""
     origin = typing.get_origin(annotation)
+    if origin is typing.Annotated:  # a tagged union's member: its type, the tag is no field
+        return type_text(typing.get_args(annotation)[0])
     if origin is Literal:
         return " | ".join(f"`{a}`" for a in typing.get_args(annotation))  # _cell escapes the pipes
     if origin in (typing.Union, types.UnionType):

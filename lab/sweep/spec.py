@@ -11,9 +11,9 @@ from __future__ import annotations
 import copy
 import math
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import ConfigDict, Discriminator, Field, Tag, ValidationError, field_validator, model_validator
 
 from shortcut_gym.envs.aids import AidSettings
 from shortcut_gym.envs.config import format_validation_error, load_settings, read_yaml
@@ -151,6 +151,16 @@ class SeedBlock(_Strict):
         return self
 
 
+def _seed_form(value: Any) -> str | None:
+    """Which form a spec's ``seeds`` take, by the value's type: a block (a mapping), a list, or
+    neither (None: refused in one line, not once per form)."""
+    if isinstance(value, dict | SeedBlock):
+        return "<block>"
+    if isinstance(value, list):
+        return "<list>"
+    return None
+
+
 class Horizon(_Strict):
     """Overrides of the schedule's length."""
 
@@ -194,10 +204,23 @@ class SweepSpec(_Strict):
     base: BaseSetting = Field(default=BaseSetting(), description="the setting every run starts from")
     vary: Variation = Field(default=Variation(), description="the varied parameters and the design over them")
     agents: list[AgentEntry] = Field(min_length=1, description="the agents, each run at every design point")
-    seeds: SeedBlock | list[int] = Field(description=(
+    seeds: Annotated[
+        Annotated[SeedBlock, Tag("<block>")] | Annotated[list[int], Tag("<list>")],
+        Discriminator(_seed_form, custom_error_type="seed_form",
+                      custom_error_message="must be a block {first, count} or a list of distinct seeds"),
+    ] = Field(description=(
         "the simulated users: a block `{first, count}` or a list of distinct seeds (0 .. 2^63 - 1)"))
     horizon: Horizon | None = Field(default=None, description="shorter or longer schedule; null: the base's")
     outputs: Outputs = Field(default=Outputs(), description="what to write besides the tables")
+
+    @field_validator("seeds", mode="before")
+    @classmethod
+    def _no_bool_seed(cls, v: Any) -> Any:
+        if isinstance(v, list):
+            for i, s in enumerate(v):
+                if isinstance(s, bool):
+                    raise ValueError(f"seed {i} is {s}, a bool, not a whole number")
+        return v
 
     @field_validator("seeds")
     @classmethod
