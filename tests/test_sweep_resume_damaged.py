@@ -56,7 +56,7 @@ def _output_tables(folder: Path) -> dict[str, pd.DataFrame]:
 
 
 def _entry_of_world(plans: Path) -> dict[str, tuple[Path, tuple]]:
-    """world digest -> its plan entry in the folder and the entry's key (from each header line)."""
+    """world plan digest -> its plan entry in the folder and the entry's key (from each header line)."""
     out = {}
     for path in plan_store.entries(plans):
         key = ast.literal_eval(json.loads(path.read_bytes().partition(b"\n")[0])["key"])
@@ -90,7 +90,7 @@ def test_a_killed_then_damaged_sweep_resumes_to_the_uninterrupted_tables_replann
     assert done.returncode == 0, done.stderr
     runs = plan_runs(load_spec(spec_path), str(spec_path))
     assert len(runs) == N_RUNS
-    world_of = {r["run_id"]: world_from_settings(r["settings"]).digest() for r in runs}
+    world_of = {r["run_id"]: world_from_settings(r["settings"]).plan_digest() for r in runs}
     planner_runs = [r["run_id"] for r in runs if r["agent"]["name"] == PLANNER]
     entry = _entry_of_world(plans)
     assert set(entry) == {world_of[r] for r in planner_runs}  # one plan per world
