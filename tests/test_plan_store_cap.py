@@ -20,6 +20,7 @@ import pandas as pd
 import pytest
 
 from shortcut_gym.agents.planner import cache, plan_store
+from shortcut_gym.lab.sweep.outputs import without_cost_columns
 from shortcut_gym.lab.sweep.runner import run_sweep
 
 STEM = "0123456789abcdef" * 4
@@ -278,4 +279,4 @@ def test_a_capped_sweep_over_damaged_entries_and_litter_keeps_the_folder_within_
 
 def _tables(folder: Path) -> list[pd.DataFrame]:
     return [pd.read_parquet(folder / "results.parquet"), pd.read_parquet(folder / "commands.parquet"),
-            pd.read_parquet(folder / "users.parquet"), pd.read_csv(folder / "summary.csv")]
+            pd.read_parquet(folder / "users.parquet"), without_cost_columns(pd.read_csv(folder / "summary.csv"))]

@@ -15,6 +15,7 @@ import pytest
 from shortcut_gym.agents.base import Agent
 from shortcut_gym.agents.registry import AGENTS
 from shortcut_gym.lab.sweep.backends import BackendError, parse_ray_address
+from shortcut_gym.lab.sweep.outputs import without_cost_columns
 from shortcut_gym.lab.sweep.runner import run_sweep
 
 SPEC: dict[str, Any] = {
@@ -34,7 +35,7 @@ SPEC: dict[str, Any] = {
 
 def _tables(folder: Path) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     return (pd.read_parquet(folder / "results.parquet"), pd.read_parquet(folder / "commands.parquet"),
-            pd.read_csv(folder / "summary.csv"))
+            without_cost_columns(pd.read_csv(folder / "summary.csv")))
 
 
 def test_local_one_and_two_workers_and_ray_give_identical_tables(tmp_path: Path) -> None:

@@ -17,6 +17,7 @@ import pandas as pd
 import pytest
 
 from shortcut_gym.agents.planner import cache, plan_store
+from shortcut_gym.lab.sweep.outputs import without_cost_columns
 from shortcut_gym.lab.sweep.runner import run_sweep
 
 SCHEDULE = {"sessions": 2, "trials_per_session": 8, "gap_h": 5.0}
@@ -32,7 +33,7 @@ def _spec() -> dict[str, Any]:
 
 def _tables(folder: Path) -> list[pd.DataFrame]:
     return [pd.read_parquet(folder / "results.parquet"), pd.read_parquet(folder / "commands.parquet"),
-            pd.read_parquet(folder / "users.parquet"), pd.read_csv(folder / "summary.csv")]
+            pd.read_parquet(folder / "users.parquet"), without_cost_columns(pd.read_csv(folder / "summary.csv"))]
 
 
 def _same_tables(a: Path, b: Path) -> None:

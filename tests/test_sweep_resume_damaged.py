@@ -23,6 +23,7 @@ import pandas as pd
 
 from shortcut_gym.agents.planner import cache, plan_store
 from shortcut_gym.agents.planner.search import Plan
+from shortcut_gym.lab.sweep.outputs import without_cost_columns
 from shortcut_gym.lab.sweep.plan import plan_runs, world_from_settings
 from shortcut_gym.lab.sweep.run import compute_run
 from shortcut_gym.lab.sweep.spec import load_spec
@@ -51,6 +52,8 @@ def _metas(folder: Path) -> dict[str, tuple[int, int]]:
 def _output_tables(folder: Path) -> dict[str, pd.DataFrame]:
     """Every output table the sweep wrote at its top level, by file name."""
     tables = {p.name: pd.read_csv(p) for p in folder.glob("*.csv")}
+    if "summary.csv" in tables:  # its timing and plan-count columns differ by computation (COST_COLUMNS)
+        tables["summary.csv"] = without_cost_columns(tables["summary.csv"])
     tables.update({p.name: pd.read_parquet(p) for p in folder.glob("*.parquet")})
     return tables
 

@@ -9,7 +9,15 @@
 * ``summary.csv``: one row per run: total time per user, final-session hotkey share, learning
   trials, time saved against always-menu at the same point, and the gap to the reference agent,
   each time with its standard error over the simulated users (``*_se_s``: sd / sqrt(users), of the
-  per-user totals, and of the paired per-user differences for the two comparisons);
+  per-user totals, and of the paired per-user differences for the two comparisons); then what
+  computing the run cost (:data:`COST_COLUMNS`, from its ``meta.json``): wall seconds in the
+  worker ``compute_s``, of which ``plan_s`` making or reading the plan, ``plan_wait_s`` waiting for
+  another worker making it, ``simulation_s`` the rest; CPU seconds ``compute_cpu_s``,
+  ``plan_cpu_s``, ``simulation_cpu_s``; and ``plans_made`` / ``plans_loaded`` (read from the plan
+  store). These vary from one computation to the next (machine load, which worker planned a
+  world first); every other column is the same for any backend, worker count or resume;
+* ``index.md``: the time saved per agent and condition, and the computing time per agent and in
+  all (runs, plans made and read, planning, waiting and simulation seconds);
 * ``failures.csv``: the failed runs and their errors;
 * ``plots/``: see :mod:`shortcut_gym.lab.sweep.plots`.
 """
@@ -27,6 +35,13 @@ from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.lab.sweep.plan import world_from_settings
 from shortcut_gym.lab.sweep.spec import SweepSpec
 from shortcut_gym.lab.sweep.store import SweepStore, atomic_write_text, unique_suffix
+
+#: Seconds columns of summary.csv (wall and CPU): they differ between two computations of one sweep.
+TIMING_COLUMNS = ("compute_s", "plan_s", "plan_wait_s", "simulation_s", "compute_cpu_s", "plan_cpu_s",
+                  "simulation_cpu_s")
+#: Every column of summary.csv about how a run was computed: the timings and the plan counts (which
+#: worker made a plan and which read it depends on the order runs were taken up).
+COST_COLUMNS = (*TIMING_COLUMNS, "plans_made", "plans_loaded")
 
 MENU_BASELINE = "always_menu"
 PLANNER = "bounded_optimal"
@@ -76,9 +91,57 @@ def _standard_errors(out: pd.DataFrame, users: pd.DataFrame, roles: dict[str, st
     return out
 
 
+def cost_columns(metas: dict[str, dict[str, Any]], run_ids: pd.Series) -> pd.DataFrame:
+    """The :data:`COST_COLUMNS` of the runs ``run_ids`` from their ``meta.json`` records (``metas``:
+    run id -> record; a figure a record lacks, as one written by older code may, is NaN)."""
+    def figure(meta: dict[str, Any], name: str) -> float:
+        value = meta.get(name)
+        return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else math.nan
+
+    rows = []
+    for run_id in run_ids:
+        meta = metas.get(run_id, {})
+        compute, plan, wait = figure(meta, "compute_s"), figure(meta, "plan_s"), figure(meta, "plan_wait_s")
+        cpu, plan_cpu = figure(meta, "compute_cpu_s"), figure(meta, "plan_cpu_s")
+        rows.append({"compute_s": compute, "plan_s": plan, "plan_wait_s": wait,
+                     "simulation_s": compute - plan - wait, "compute_cpu_s": cpu, "plan_cpu_s": plan_cpu,
+                     "simulation_cpu_s": cpu - plan_cpu, "plans_made": figure(meta, "plans_made"),
+                     "plans_loaded": figure(meta, "plans_loaded")})
+    out = pd.DataFrame(rows, columns=list(COST_COLUMNS))
+    for col in ("plans_made", "plans_loaded"):
+        if out[col].notna().all():
+            out[col] = out[col].astype(int)
+    return out
+
+
+def without_cost_columns(summary: pd.DataFrame) -> pd.DataFrame:
+    """``summary`` (summary.csv) without its :data:`COST_COLUMNS`: what is equal between two
+    computations of one sweep (any backend, worker count, resume). A table missing one of them is
+    refused, naming it (it is no summary of this code)."""
+    missing = [c for c in COST_COLUMNS if c not in summary.columns]
+    if missing:
+        raise ValueError(f"the summary has no column(s) {missing}")
+    return summary.drop(columns=list(COST_COLUMNS))
+
+
+def compute_time_table(summary: pd.DataFrame) -> pd.DataFrame:
+    """Computing time per agent and over all runs ("all runs"), from summary.csv's cost columns."""
+    sums = {"runs": ("run_id", "count"), "plans made": ("plans_made", "sum"), "plans read": ("plans_loaded", "sum"),
+            "planning wall s": ("plan_s", "sum"), "planning CPU s": ("plan_cpu_s", "sum"),
+            "waiting s": ("plan_wait_s", "sum"), "simulation wall s": ("simulation_s", "sum"),
+            "simulation CPU s": ("simulation_cpu_s", "sum")}
+    per_agent = summary.groupby("agent", sort=False).agg(**sums)
+    total = summary.assign(agent="all runs").groupby("agent").agg(**sums)
+    table = pd.concat([per_agent, total])
+    table.index.name = "agent"
+    return table
+
+
 def summary_table(spec: SweepSpec, runs: list[dict[str, Any]], blocks: pd.DataFrame,
-                  users: pd.DataFrame | None = None) -> pd.DataFrame:
-    """One row per finished run (see the module docstring); ``users`` is the per-user table."""
+                  users: pd.DataFrame | None = None,
+                  metas: dict[str, dict[str, Any]] | None = None) -> pd.DataFrame:
+    """One row per finished run (see the module docstring); ``users`` is the per-user table,
+    ``metas`` the runs' ``meta.json`` records by run id (None: no cost columns)."""
     if blocks.empty:
         return pd.DataFrame()
     paths = list(spec.vary.parameters)
@@ -97,7 +160,10 @@ def summary_table(spec: SweepSpec, runs: list[dict[str, Any]], blocks: pd.DataFr
         ref = out[out["agent"] == label].set_index("point_index")["total_time_s"] if label else pd.Series(dtype=float)
         vals = out["point_index"].map(ref)
         out[col] = (vals - out["total_time_s"]) if role == "menu" else (out["total_time_s"] - vals)
-    return _standard_errors(out, pd.DataFrame() if users is None else users, roles)
+    out = _standard_errors(out, pd.DataFrame() if users is None else users, roles)
+    if metas is not None:
+        out = pd.concat([out, cost_columns(metas, out["run_id"])], axis=1)
+    return out
 
 
 def break_even_grid(spec: SweepSpec, runs: list[dict[str, Any]], commands: pd.DataFrame,
@@ -190,7 +256,7 @@ def write_outputs(spec: SweepSpec, runs: list[dict[str, Any]], store: SweepStore
         if not trials.empty:
             _atomic_parquet(trials, folder / "trials.parquet")
             written["trials"] = folder / "trials.parquet"
-    summary = summary_table(spec, runs, blocks, users)
+    summary = summary_table(spec, runs, blocks, users, store.read_metas(runs))
     if not summary.empty:
         atomic_write_text(folder / "summary.csv", summary.to_csv(index=False))
         written["summary"] = folder / "summary.csv"
@@ -221,7 +287,8 @@ _OUTPUT_NOTES = {
     "commands": "per run x command: time and hotkey use",
     "users": "per run x simulated user: total time, hotkey uses, learning trials (for paired differences)",
     "trials": "every simulated trial",
-    "summary": "per run: total time, time saved over always-menu, gap to the reference agent",
+    "summary": "per run: total time, time saved over always-menu, gap to the reference agent, planning and "
+               "simulation seconds",
     "failures": "runs that raised, with their error",
     "adoption_plot": "hotkey adoption curves per condition",
     "break_even_plot": "break-even map with the break-even rule's boundary",
@@ -243,6 +310,12 @@ def sweep_index(spec: SweepSpec, folder: Path, runs: list[dict[str, Any]], summa
         sections.append(("Time saved over always-menu (s per simulated user)",
                          markdown_table(table, index=True, digits=1) if len(table) <= 60
                          else f"{len(table)} conditions: see `summary.csv`."))
+    if "plan_s" in summary.columns:
+        sections.append(("Computing time (seconds in the workers, summed over the finished runs)",
+                         markdown_table(compute_time_table(summary), index=True, digits=3)
+                         + "\n\nPlanning: making a plan or reading it from the plan store; waiting: for another "
+                         "worker making the same plan; simulation: the rest of the run. Wall and CPU seconds "
+                         "of each run are in `summary.csv` and its `runs/<id>/meta.json`."))
     if grid is not None:
         sections.append(("Break-even", f"On '{grid['command_name']}', the simulated verdict of {grid['learner']} "
                          f"against {grid['menu']} agrees with the break-even rule on "

@@ -278,6 +278,19 @@ class SweepStore:
             return pd.DataFrame()
         return pd.concat(frames, ignore_index=True)
 
+    def read_metas(self, runs: list[dict[str, Any]]) -> dict[str, dict[str, Any]]:
+        """Run id -> the ``meta.json`` record of each finished run (an unreadable one as {})."""
+        done = self.finished_ids()
+        out: dict[str, dict[str, Any]] = {}
+        for r in runs:
+            if r["run_id"] in done:
+                try:
+                    meta = json.loads((self.runs_dir / r["run_id"] / "meta.json").read_text())
+                except (OSError, ValueError):
+                    meta = {}
+                out[r["run_id"]] = meta if isinstance(meta, dict) else {}
+        return out
+
     def failures(self) -> list[dict[str, Any]]:
         """The failure records of the runs that failed."""
         return [json.loads((self.runs_dir / f"{i}.failed.json").read_text()) for i in sorted(self.failed_ids())]
