@@ -1,7 +1,8 @@
 """``shortcut-gym audit``: check a sweep folder against its manifest's digests, computing nothing.
 
-Exit 0 when every finished run is intact, 1 when a finished run is missing or damaged or a stray
-run folder is present (each named), 2 when the folder is not a sweep folder.
+Exit 0 when every finished run is intact, 1 when a finished run is missing or damaged, a stray
+run folder is present or a loose file in ``runs/`` belongs to no run (each named), 2 when the
+folder is not a sweep folder.
 """
 
 from __future__ import annotations

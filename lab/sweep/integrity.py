@@ -56,6 +56,7 @@ class FolderCheck:
     planned: int
     verdicts: list[RunVerdict] = field(default_factory=list)
     strays: list[str] = field(default_factory=list)  # run folders that belong to no planned run
+    loose: list[str] = field(default_factory=list)  # files in runs/ that belong to no planned run
 
     def of(self, *kinds: str) -> list[RunVerdict]:
         """The verdicts of the given kinds."""
@@ -68,16 +69,18 @@ class FolderCheck:
 
     @property
     def intact(self) -> bool:
-        """True when no finished run is missing or damaged and no stray folder is present."""
-        return not self.faults and not self.strays
+        """True when no finished run is missing or damaged and no stray folder or loose file is present."""
+        return not self.faults and not self.strays and not self.loose
 
     def lines(self) -> list[str]:
         """Readable summary: counts, then one line per fault."""
         done = len(self.of(OK, ADOPTED))
         out = [f"{self.folder}: {self.planned} runs planned, {done} finished and intact, "
-               f"{len(self.of(MISSING))} missing, {len(self.of(DAMAGED))} damaged, {len(self.strays)} stray folder(s)"]
+               f"{len(self.of(MISSING))} missing, {len(self.of(DAMAGED))} damaged, {len(self.strays)} stray folder(s), "
+               f"{len(self.loose)} loose file(s)"]
         out += [f"  {v.verdict} {v.run_id}: {v.detail}" for v in self.faults]
         out += [f"  stray runs/{s}: not a run of this sweep's plan" for s in self.strays]
+        out += [f"  loose runs/{s}: a file of no run of this sweep's plan" for s in self.loose]
         return out
 
 

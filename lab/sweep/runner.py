@@ -101,6 +101,7 @@ def _lock_notes(lock: FolderLock) -> list[str]:
 def _check_notes(check: FolderCheck) -> list[str]:
     notes = [f"note: {v.verdict} run {v.run_id}: {v.detail}; computing it again" for v in check.faults]
     notes += [f"note: runs/{s} belongs to no run of this plan; left as it is" for s in check.strays]
+    notes += [f"note: runs/{s} is a file of no run of this plan; left as it is" for s in check.loose]
     adopted = check.of(ADOPTED)
     if adopted:
         notes.append(f"note: {len(adopted)} finished run(s) not yet in the manifest were checked and taken in")
@@ -120,12 +121,27 @@ def _plan_store_of(store: SweepStore, engine: LocalBackend | RayBackend,
         if folder == sweep or folder.is_relative_to(sweep / "runs"):
             raise SweepSpecError(f"plan store {plan_store}: it is the sweep folder {store.folder} or lies under its "
                                  "runs/; use <folder>/plans (the default) or a folder outside it")
+        other = _results_holding(folder)
+        if other is not None:
+            raise SweepSpecError(f"plan store {folder}: it is the sweep folder {other} or lies under its runs/ "
+                                 "(another sweep's results); use a folder outside that sweep's results, such as "
+                                 f"{other / 'plans'} to share its plans")
         if folder.exists() and not folder.is_dir():
             raise SweepSpecError(f"plan store {plan_store}: is a file, not a folder")
         return str(folder)
     if isinstance(engine, RayBackend) and engine.address is not None:
         return None  # the sweep folder may not be reachable from the cluster's nodes
     return str(store.plans_dir.resolve())
+
+
+def _results_holding(folder: Path) -> Path | None:
+    """The sweep folder (one holding a ``manifest.json``) that ``folder`` is, or lies under the
+    ``runs/`` of; None when it is inside no sweep's results."""
+    for candidate in (folder, *folder.parents):
+        if (candidate / "manifest.json").is_file() and (folder == candidate
+                                                        or folder.is_relative_to(candidate / "runs")):
+            return candidate
+    return None
 
 
 def _set_aside_plans_file(store: SweepStore) -> list[str]:

@@ -188,6 +188,9 @@ class SweepStore:
         if self.runs_dir.is_dir():
             result.strays = sorted(p.name for p in self.runs_dir.iterdir() if p.is_dir()
                                    and not p.name.startswith(TMP_PREFIX) and p.name not in known)
+            failure_records = {f"{run_id}.failed.json" for run_id in known}
+            result.loose = sorted(p.name for p in self.runs_dir.iterdir() if not p.is_dir()
+                                  and not p.name.startswith(TMP_PREFIX) and p.name not in failure_records)
         return result
 
     def repair(self, check: FolderCheck) -> list[str]:
