@@ -73,3 +73,18 @@ def test_integer_seeds_of_any_type_give_the_plain_int_numbers() -> None:
     b = env.reset(seed=9)[1]["target"]
     assert a == b
     assert len(evaluate_agent(env, make_agent("always_menu"), np.arange(2))) == 2
+
+
+@pytest.mark.parametrize("bad", [0, -5, 2.5, 4.0, True, "8", None])
+def test_simulate_users_refuses_a_bad_chunk_size_naming_it(bad: object) -> None:
+    with pytest.raises(ConfigError, match=rf"^simulate_users: chunk_users must be a whole number >= 1, got {bad!r}$"):
+        simulate_users(_world(), {"name": "always_menu"}, [1, 2, 3], chunk_users=bad)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize("chunk", [1, 2, 3, 50])
+def test_every_good_chunk_size_gives_the_same_users(chunk: int) -> None:
+    world, spec, seeds = _world(), {"name": "random"}, [8, 3, 11, 4, 9]
+    whole = simulate_users(world, spec, seeds, chunk_users=len(seeds))
+    parts = simulate_users(world, spec, seeds, chunk_users=chunk)
+    np.testing.assert_array_equal(parts.sums.time_s, whole.sums.time_s)
+    np.testing.assert_array_equal(parts.seeds, seeds)

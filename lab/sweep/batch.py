@@ -124,6 +124,8 @@ def simulate_users(
         raise ConfigError(f"record must be 'blocks' or 'trials', got {record!r}")
     if not (isinstance(threads, int) and threads >= 1):
         raise ConfigError(f"threads must be an integer >= 1, got {threads!r}")
+    if isinstance(chunk_users, bool) or not isinstance(chunk_users, int) or chunk_users < 1:
+        raise ConfigError(f"simulate_users: chunk_users must be a whole number >= 1, got {chunk_users!r}")
     seeds = np.asarray(check_seeds(seeds, "simulate_users"), dtype=np.int64)  # type: ignore[assignment]
     if len(seeds) == 0:
         raise ConfigError("need at least one seed")
