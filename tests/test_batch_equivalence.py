@@ -36,10 +36,11 @@ SPECS = [
 def _looped(spec: dict[str, Any], memory: str | None = None) -> pd.DataFrame:
     env = gym.make(ENV_ID, schedule=SCHEDULE, memory=memory)
     frames = []
-    for seed in SEEDS:
+    for user, seed in enumerate(SEEDS):
         agent = agent_from_spec(spec)
         df = run_episode(env, agent, seed=seed)
-        df.insert(0, "user", seed)
+        df.insert(0, "seed", seed)
+        df.insert(0, "user", user)
         df.insert(0, "agent", label_of(agent.spec()))
         frames.append(df)
     return pd.concat(frames, ignore_index=True)

@@ -294,7 +294,7 @@ def test_env_batched_and_fused_paths_agree_with_every_aid_on() -> None:
         for seed in seeds:
             env = CommandSelectionEnv(world=world)
             df = run_episode(env, make_agent(spec["name"], **spec.get("params", {})), seed=seed)
-            mine = table[table["user"] == seed]
+            mine = table[table["seed"] == seed]
             assert np.array_equal(mine["duration_s"].to_numpy(), df["duration_s"].to_numpy())
             assert np.array_equal(mine["t_warmup"].to_numpy(), df["t_warmup"].to_numpy())
 

@@ -162,7 +162,9 @@ def _simulate_chunk(world: World, spec: dict[str, Any] | Agent, seeds: np.ndarra
 
 
 def trial_table(world: World, sums: BlockSums, label: str) -> pd.DataFrame:
-    """The per-trial table of a ``record="trials"`` simulation, as ``run_episode`` lays it out."""
+    """The per-trial table of a ``record="trials"`` simulation, as ``run_episode`` lays it out, after
+    ``agent``, ``user`` (the user's position in the seed list, 0-based, as in a sweep's users
+    table) and ``seed`` (that user's seed)."""
     if sums.rollout is None or sums.rollout.trials is None or sums.sim is None:
         raise NotReadyError("this simulation kept no trial rows; rerun with record='trials'")
     sim, kept = sums.sim, sums.rollout.trials
@@ -171,7 +173,8 @@ def trial_table(world: World, sums: BlockSums, label: str) -> pd.DataFrame:
     names = np.array(world.commands.names, dtype=object)
     frame = {
         "agent": np.full(n * h, label, dtype=object),
-        "user": np.repeat(sums.seeds, h),
+        "user": np.repeat(np.arange(n), h),
+        "seed": np.repeat(sums.seeds, h),
         "trial": np.tile(np.arange(h), n),
         "session": np.concatenate([s.session for s in sim.schedules]).astype(np.int64),
         "onset_s": sim.sched_onset.ravel(),

@@ -2,10 +2,11 @@
 
 * ``results.parquet``: one row per run x session (means over the simulated users);
 * ``commands.parquet``: one row per run x command (mean uses and time per user);
-* ``users.parquet``: one row per run x simulated user (seed, total time, hotkey uses, learning
-  trials): every agent at a design point runs on the same seeds, so paired differences per user
-  can be formed;
-* ``trials.parquet``: every trial of every run (only when ``outputs.trial_tables``);
+* ``users.parquet``: one row per run x simulated user (``user``: position in the run's seed list,
+  ``seed``, total time, hotkey uses, learning trials): every agent at a design point runs on the
+  same seeds, so paired differences per user can be formed;
+* ``trials.parquet``: every trial of every run (only when ``outputs.trial_tables``), with ``user``
+  and ``seed`` meaning what they mean in ``users.parquet`` (join the two on ``run_id`` and ``user``);
 * ``summary.csv``: one row per run: total time per user, final-session hotkey share, learning
   trials, time saved against always-menu at the same point, and the gap to the reference agent,
   each time with its standard error over the simulated users (``*_se_s``: sd / sqrt(users), of the
@@ -285,8 +286,9 @@ def write_outputs(spec: SweepSpec, runs: list[dict[str, Any]], store: SweepStore
 _OUTPUT_NOTES = {
     "results": "per run x block: time, hotkey share, learn trials (tidy)",
     "commands": "per run x command: time and hotkey use",
-    "users": "per run x simulated user: total time, hotkey uses, learning trials (for paired differences)",
-    "trials": "every simulated trial",
+    "users": "per run x simulated user (user: position in the seed list; seed): total time, hotkey uses, "
+             "learning trials (for paired differences)",
+    "trials": "every simulated trial (user and seed as in users; join on run_id and user)",
     "summary": "per run: total time, time saved over always-menu, gap to the reference agent, planning and "
                "simulation seconds",
     "failures": "runs that raised, with their error",
