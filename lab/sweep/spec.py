@@ -21,7 +21,7 @@ from shortcut_gym.envs.costs import CostSettings
 from shortcut_gym.envs.errors import ConfigError
 from shortcut_gym.envs.memory import MemorySettings
 from shortcut_gym.envs.strict import StrictModel
-from shortcut_gym.envs.task import ScenarioSettings
+from shortcut_gym.envs.task import ScenarioSettings, ScheduleSettings
 
 #: Most design points of one sweep (each point is one run per agent, planned in memory at once).
 MAX_POINTS = 100_000
@@ -316,6 +316,28 @@ def _relative_to(data: Any, folder: Path) -> Any:
     return {**data, "base": fixed}
 
 
+def _check_horizon_fits(own: dict[str, Any], schedule: dict[str, Any], horizon: Horizon, gaps_in_base: bool,
+                        source: str) -> None:
+    """Refuse a ``horizon`` that breaks a schedule valid without it, naming the horizon's field: its
+    sessions against a gap_h list (from the base's schedule or the scenario's), else the fault."""
+    gaps = schedule.get("gap_h")
+    n = horizon.sessions
+    if n is not None and isinstance(gaps, list) and len(gaps) != n - 1:
+        whence = "base.schedule.gap_h" if gaps_in_base else "the scenario's schedule.gap_h"
+        raise SweepSpecError(
+            f"{source}: horizon.sessions: {n} sessions need {n - 1} gap(s) between them, but {whence} lists "
+            f"{len(gaps)}: set horizon.sessions to {len(gaps) + 1}, or give base.schedule.gap_h as one number or "
+            f"a list of {n - 1}")
+    try:
+        ScheduleSettings.model_validate(schedule)
+    except ValidationError as err:
+        try:
+            ScheduleSettings.model_validate(own)
+        except ValidationError:
+            return  # the schedule is at fault without the horizon too: told as the schedule's, later
+        raise SweepSpecError(format_validation_error(err, f"{source}: horizon (laid over the schedule)")) from None
+
+
 def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, Any]:
     """The base setting resolved into plain dicts per section (what overrides apply to)."""
     b = spec.base
@@ -328,7 +350,9 @@ def base_settings(spec: SweepSpec, source: str = "<sweep spec>") -> dict[str, An
         raise SweepSpecError(f"{source}: base: {err}") from None
     schedule = {**scenario.schedule.model_dump(), **(b.schedule or {})}
     if spec.horizon is not None:
+        own = dict(schedule)
         schedule.update({k: v for k, v in spec.horizon.model_dump().items() if v is not None})
+        _check_horizon_fits(own, schedule, spec.horizon, "gap_h" in (b.schedule or {}), source)
     scen = scenario.model_dump()
     scen.pop("schedule")
     out = {
