@@ -147,3 +147,15 @@ def test_planner_built_for_its_own_world_is_refused_on_another() -> None:
         simulate_users(other, agent, SEEDS[:2])
     with pytest.raises(WorldMismatchError, match="prepare_agent"):
         prepare_agent(agent, other)
+
+
+@pytest.mark.parametrize("deterministic", [True, False])
+def test_sb3_model_just_trained_drives_one_object_per_user(deterministic: bool) -> None:
+    pytest.importorskip("stable_baselines3")
+    world = make_world(schedule=SCHEDULE)
+    agent = make_agent("ppo", deterministic=deterministic, hyperparameters={"n_steps": 64, "batch_size": 64})
+    agent.train(world, total_timesteps=256, seed=0, progress_bar=False, n_envs=2)  # type: ignore[attr-defined]
+    per_user = simulate_users(world, agent, SEEDS, use_batch_policy=False, record="trials")  # copies the object
+    actions, durations = _looped(agent)
+    np.testing.assert_array_equal(per_user.rollout.trials.action, actions)  # type: ignore[union-attr]
+    np.testing.assert_array_equal(per_user.rollout.trials.duration_s, durations)  # type: ignore[union-attr]

@@ -18,6 +18,7 @@ against the class's own signature (:mod:`.hyperparameters`).
 
 from __future__ import annotations
 
+import copy
 import json
 from collections.abc import Sequence
 from pathlib import Path
@@ -85,6 +86,16 @@ class SB3Agent(WorldRecorded, Agent):
     def has_model(self) -> bool:
         """True once a model was trained or loaded."""
         return self.model is not None
+
+    def __deepcopy__(self, memo: dict[int, Any]) -> SB3Agent:
+        """A copy for another simulated user (the per-user drivers copy one agent per user): its own
+        generator, settings and statistics, sharing the model, which simulation only reads (a model
+        just trained holds tensors torch cannot deep-copy). Train a copy only after loading its own."""
+        clone = copy.copy(self)
+        memo[id(self)] = clone
+        for key in ("rng", "hyperparameters", "obs_norm"):
+            setattr(clone, key, copy.deepcopy(getattr(self, key), memo))
+        return clone
 
     def spec(self) -> dict[str, Any]:
         out = {"name": self.name, "model_path": self.model_path, "deterministic": self.deterministic,
