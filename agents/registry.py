@@ -225,7 +225,7 @@ def declared_number_type(cls: type[Agent], key: str) -> type | None:
 def typed_params(name: str, params: dict[str, Any]) -> dict[str, Any]:
     """The numbers of ``params`` as agent ``name`` declares them (:func:`declared_number_type`): a whole
     number for an ``int`` key (``4.0`` becomes 4; ``4.5`` raises ValueError naming the agent and the
-    key), a float for a ``float`` one; other values as given."""
+    key; a ConfigError, a ValueError), a float for a ``float`` one; other values as given."""
     cls = AGENTS.get(name)
     if cls is None:
         return params
@@ -236,7 +236,7 @@ def typed_params(name: str, params: dict[str, Any]) -> dict[str, Any]:
         kind = declared_number_type(cls, key)
         if kind is int:
             if not math.isfinite(value) or value != int(value):
-                raise ValueError(f"{name}: parameter {key} must be a whole number ({name} declares it int), "
+                raise ConfigError(f"{name}: parameter {key} must be a whole number ({name} declares it int), "
                                  f"got {value!r}")
             out[key] = int(value)
         elif kind is float:

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import copy
 import json
+import threading
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any, ClassVar
@@ -37,6 +38,11 @@ from shortcut_gym.agents.sb3.training import train_model
 from shortcut_gym.agents.world_record import WorldRecorded, check_flag
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
 from shortcut_gym.envs.seeds import check_seeds
+
+#: held around every forward pass: SB3's policy keeps the last distribution on itself
+#: (``policy.action_dist``), so two threads simulating chunks of users with one model would read
+#: each other's probabilities (``simulate_users(..., threads=2)`` with an agent object)
+FORWARD_LOCK = threading.Lock()
 
 #: The adapter's own options (its constructor's keywords); any other keyword is a hyperparameter.
 OPTIONS = ["allow_other_world", "deterministic", "hyperparameters", "model_path", "normalize"]
@@ -156,7 +162,7 @@ class SB3Agent(WorldRecorded, Agent):
         import torch
 
         policy = self.model.policy
-        with torch.no_grad():
+        with FORWARD_LOCK, torch.no_grad():
             tensor = policy.obs_to_tensor(self._prepare(obs))[0]
             if self.algorithm == "dqn":
                 q = policy.q_net(tensor).numpy()

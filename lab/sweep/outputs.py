@@ -32,7 +32,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from shortcut_gym.envs.errors import ConfigError
+from shortcut_gym.envs.errors import ConfigError, DataError
 from shortcut_gym.lab.sweep.plan import world_from_settings
 from shortcut_gym.lab.sweep.spec import SweepSpec
 from shortcut_gym.lab.sweep.store import SweepStore, atomic_write_text, unique_suffix
@@ -121,7 +121,7 @@ def without_cost_columns(summary: pd.DataFrame) -> pd.DataFrame:
     refused, naming it (it is no summary of this code)."""
     missing = [c for c in COST_COLUMNS if c not in summary.columns]
     if missing:
-        raise ValueError(f"the summary has no column(s) {missing}")
+        raise DataError(f"the summary has no column(s) {missing}")
     return summary.drop(columns=list(COST_COLUMNS))
 
 
