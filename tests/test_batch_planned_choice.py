@@ -200,7 +200,7 @@ def test_bad_use_is_refused_with_its_reason() -> None:
     agent = make_agent("planned_choice", context_of_world(world), beta=1.0)
     with pytest.raises(ConfigError, match="3 seeds for 2 users"):
         agent.batch_policy(2, [1, 2, 3])
-    with pytest.raises(ConfigError, match="agent seeds must be whole numbers"):
+    with pytest.raises(ConfigError, match=r"planned_choice.batch_policy: seeds\[0\] = -4 is negative"):
         agent.batch_policy(1, [-4])
     policy = agent.batch_policy(2, [1, 2])
     sim = _sim(world, [1, 2])
