@@ -23,7 +23,7 @@ LOWEST_TESTS := tests/test_world_env.py tests/test_world_config.py tests/test_wo
 	tests/test_agents_learning.py tests/test_agents_rl.py::test_other_sb3_adapters_run_through_the_protocol \
 	tests/test_model_world_record.py tests/test_sb3_spec_hyperparameters.py
 
-.PHONY: setup demo test test-lowest lint typecheck bench docs clean
+.PHONY: setup demo test test-lowest lint typecheck bench docs clean clean-compiled
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -67,3 +67,6 @@ docs: $(STAMP)
 
 clean:
 	rm -rf $(VENV) $(LOWEST_VENV) out site build *.egg-info
+
+clean-compiled:
+	find . -path ./$(VENV) -prune -o -path ./$(LOWEST_VENV) -prune -o \( -name '*.nbi' -o -name '*.nbc' \) -type f -exec rm -f {} +
