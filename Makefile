@@ -5,6 +5,8 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed-stamp
 OUT ?= out/demo
+# every pip install goes through this: a download cut off by the network is tried again
+PIP_RETRY := bash scripts/pip_retry.sh
 
 # `make test-lowest`: a fresh venv with every direct dependency at the lower bound pyproject.toml
 # declares (scripts/lowest_pins.py; torch is installed first as the CPU wheel 2.13.0, which is also its
@@ -27,9 +29,9 @@ LOWEST_TESTS := tests/test_world_env.py tests/test_world_config.py tests/test_wo
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
-	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet torch==2.13.0
-	$(PY) -m pip install --quiet -e ".[test]"
+	$(PIP_RETRY) $(PY) -m pip install --quiet --upgrade pip
+	$(PIP_RETRY) $(PY) -m pip install --quiet torch==2.13.0
+	$(PIP_RETRY) $(PY) -m pip install --quiet -e ".[test]"
 	touch $(STAMP)
 
 setup: $(STAMP)
@@ -45,10 +47,10 @@ test: $(STAMP)
 test-lowest:
 	rm -rf $(LOWEST_VENV)
 	$(PYTHON) -m venv $(LOWEST_VENV)
-	$(LOWEST_VENV)/bin/python -m pip install --quiet --upgrade pip
-	$(LOWEST_VENV)/bin/python -m pip install --quiet torch==2.13.0
+	$(PIP_RETRY) $(LOWEST_VENV)/bin/python -m pip install --quiet --upgrade pip
+	$(PIP_RETRY) $(LOWEST_VENV)/bin/python -m pip install --quiet torch==2.13.0
 	$(PYTHON) scripts/lowest_pins.py --extra rl > $(LOWEST_VENV)/lowest-pins.txt
-	$(LOWEST_VENV)/bin/python -m pip install --quiet -c $(LOWEST_VENV)/lowest-pins.txt -e ".[rl]" \
+	$(PIP_RETRY) $(LOWEST_VENV)/bin/python -m pip install --quiet -c $(LOWEST_VENV)/lowest-pins.txt -e ".[rl]" \
 		"pytest>=8" "pytest-xdist>=3.5" "hypothesis>=6.100"
 	$(LOWEST_VENV)/bin/python scripts/lowest_pins.py --extra rl --check
 	$(LOWEST_VENV)/bin/pytest -n 2 -q $(LOWEST_TESTS)
