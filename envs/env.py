@@ -111,7 +111,7 @@ class CommandSelectionEnv(gym.Env):
         if sim.n_users == 0:
             raise UsageError("call reset() before step()")
         a = action_index(action)
-        t = int(sim.user_state[0, k.U_TRIAL])
+        t = sim.user_state.item(0, k.U_TRIAL)  # .item: a Python int without a numpy scalar
         if t >= sim.horizon:
             raise UsageError(f"the episode reached its horizon of {sim.horizon} trials; call reset()")
         self._act[0] = a
@@ -119,7 +119,7 @@ class CommandSelectionEnv(gym.Env):
         info = simulator_step_info(sim, 0, t, a, self.world.commands.names)
         self._last = info
         terminated = t + 1 >= sim.horizon
-        return sim.obs[0].copy(), float(sim.reward[0]), terminated, False, info  # type: ignore[return-value]
+        return sim.obs[0].copy(), sim.reward.item(0), terminated, False, info  # type: ignore[return-value]
 
     def render(self) -> str | np.ndarray | None:
         """ansi: a one-line summary of the last trial; rgb_array: a picture of it (H x W x 3 uint8)."""

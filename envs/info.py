@@ -91,9 +91,11 @@ def step_info(upcoming: UpcomingInfo, trial: Any, session: Any, onset_s: Any, co
     return cast(StepInfo, info)
 
 
-def simulator_upcoming_info(sim: BatchSimulator, user: int, command_names: Sequence[str]) -> UpcomingInfo:
-    """User ``user``'s upcoming-trial info on a batched simulator."""
-    t = sim.trial
+def simulator_upcoming_info(sim: BatchSimulator, user: int, command_names: Sequence[str],
+                            next_trial: int | None = None) -> UpcomingInfo:
+    """User ``user``'s upcoming-trial info on a batched simulator; ``next_trial``: ``sim.trial`` when
+    the caller knows it (saves reading it from the simulator's state on every step)."""
+    t = sim.trial if next_trial is None else next_trial
     last = min(t, sim.horizon - 1)
     c = sim.sched_command.item(user, last)  # .item: the Python int/float, without a numpy scalar
     return upcoming_info(c, command_names[c], t, sim.sched_onset.item(user, last), sim.sched_session.item(user, last))
@@ -104,10 +106,10 @@ def simulator_step_info(sim: BatchSimulator, user: int, trial: int, action: int,
     """User ``user``'s info after ``sim.step`` ran trial ``trial`` with ``action``."""
     c = sim.sched_command.item(user, trial)
     return step_info(
-        simulator_upcoming_info(sim, user, command_names), trial, sim.sched_session.item(user, trial),
+        simulator_upcoming_info(sim, user, command_names, trial + 1), trial, sim.sched_session.item(user, trial),
         sim.sched_onset.item(user, trial), c, command_names[c], int(action), OUTCOME_NAMES[sim.outcome.item(user)],
         -sim.reward.item(user), sim.p_recall.item(user),
-        dict(zip(OPERATOR_NAMES, sim.operator_time_s[user].tolist(), strict=True)),
+        dict(zip(OPERATOR_NAMES, sim.operator_time_s[user].tolist())),  # a row has one entry per operator
     )
 
 
