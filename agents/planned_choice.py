@@ -173,8 +173,9 @@ class PlannedChoice(Agent):
         return self.world
 
     def plan_key(self) -> tuple:
-        """Cache key of this agent's plan and logged values: the world's content digest and the options."""
-        return (self.planner_world().digest(), self.keyboard_share, self.n_bins, self.n_weight_bins,
+        """Cache key of this agent's plan and logged values: the world's plan digest (its numbers, not
+        the text naming things: :meth:`World.plan_digest`) and the options."""
+        return (self.planner_world().plan_digest(), self.keyboard_share, self.n_bins, self.n_weight_bins,
                 self.select_users)
 
     def planner(self) -> BoundedOptimalPlanner:

@@ -150,3 +150,20 @@ def test_an_aid_named_by_command_follows_the_command_not_its_position() -> None:
     assert a.plan_digest() != b.plan_digest()  # but the nudge is on another command
     sc, aids = _renamed()
     assert _world(sc, aids=aids).plan_digest() == _world().plan_digest()
+
+
+def _chooser_key(world: World) -> tuple:
+    from shortcut_gym.agents.registry import make_agent
+
+    return make_agent("planned_choice", world=world).plan_key()
+
+
+@pytest.mark.parametrize("variant", sorted(_text_only_variants()))
+def test_planned_choice_logged_values_are_keyed_by_the_plan_digest(variant: str) -> None:
+    """planned_choice's cache of logged action values follows the plan: text-only changes share it."""
+    assert _chooser_key(_world()) == _chooser_key(_text_only_variants()[variant])
+
+
+@pytest.mark.parametrize("variant", ["memory: decay", "costs: keystroke", "aids: one more aid", "schedule: gap"])
+def test_planned_choice_logged_values_differ_for_any_number(variant: str) -> None:
+    assert _chooser_key(_world()) != _chooser_key(NUMERIC[variant]())
