@@ -18,6 +18,8 @@ from pathlib import Path
 
 import numpy as np
 
+from shortcut_gym.envs.errors import ConfigError
+
 #: The zip member of an SB3 model zip holding the world record (and the algorithm's name).
 RECORD_MEMBER = "shortcut_gym_world.json"
 #: The record's entry naming the SB3 algorithm of the zip.
@@ -124,3 +126,16 @@ def hint_for(contents: Contents, path: str | Path) -> str:
     if contents.kind in ("sb3", "table") and contents.name:
         return f" (load it with {contents.name}:model_path={path})"
     return ""
+
+
+def model_file_path(owner: str, path: str | Path, suffix: str) -> Path:
+    """The file a model of ``owner`` is saved to or read from for ``path``: ``path`` itself when it
+    ends in ``suffix`` (``".zip"``, ``".npz"``), ``path`` with ``suffix`` added when it has none; any
+    other suffix is refused naming the path (a silent swap would write ``run.v2`` as ``run.zip``)."""
+    p = Path(path)
+    if p.suffix == suffix:
+        return p
+    if p.suffix == "" or p.name.endswith("."):
+        return p.with_name(p.name.rstrip(".") + suffix)
+    raise ConfigError(f"{owner}: the model file {p} must end in {suffix} (its suffix is {p.suffix!r}); give "
+                      f"{p.name}{suffix} or a name without a suffix, to which {suffix} is added")

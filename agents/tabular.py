@@ -44,7 +44,7 @@ from tqdm.auto import tqdm
 
 from shortcut_gym.agents.base import Agent, AgentContext, ParamSpec, Transition, check_batch_users
 from shortcut_gym.agents.frozen_policy import CELL_FEATURES, FrozenBatchPolicy, cdf_of, cell_rule, frozen_policy
-from shortcut_gym.agents.model_files import file_contents, hint_for
+from shortcut_gym.agents.model_files import file_contents, hint_for, model_file_path
 from shortcut_gym.agents.rollout import evaluate_agent, run_episode
 from shortcut_gym.agents.world_record import WorldRecorded, atomic_path, check_flag, parse_record
 from shortcut_gym.envs.errors import ConfigError, DataError, NotReadyError
@@ -207,10 +207,12 @@ class TabularAgent(WorldRecorded, Agent):
         return pd.DataFrame({"episode": np.arange(episodes), "total_time_s": totals})
 
     def save(self, path: str | Path) -> Path:
-        """Write the Q table, the agent name and the world record (JSON) to ``path`` (.npz), atomically."""
+        """Write the Q table, the agent name and the world record (JSON) to ``path`` (.npz; added when
+        ``path`` has no suffix, another suffix refused: :func:`model_file_path`), atomically; returns
+        the path written."""
         if self.q is None:
             raise NotReadyError(f"{self.name}: nothing to save, train first")
-        p = Path(path).with_suffix(".npz")
+        p = model_file_path(self.name, path, ".npz")
         record = self.record_to_save(self.context.world if self.context is not None else None)
         with atomic_path(p) as tmp, open(tmp, "wb") as f:
             np.savez(f, q=self.q, name=self.name, world=json.dumps(record, sort_keys=True))
@@ -218,8 +220,11 @@ class TabularAgent(WorldRecorded, Agent):
         return p
 
     def load(self, path: str | Path) -> TabularAgent:
-        """Read a Q table written by :meth:`save` (shape must fit the bound context)."""
+        """Read a Q table written by :meth:`save` (shape must fit the bound context): the file ``path``,
+        or ``path`` with .npz added where that file is the one (as :meth:`save` names it)."""
         p = Path(path)
+        if not p.is_file() and not p.suffix:
+            p = model_file_path(self.name, p, ".npz")
         if not p.is_file():
             raise ConfigError(f"{self.name}: no Q table at {p}")
         held = file_contents(p)

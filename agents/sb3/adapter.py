@@ -30,6 +30,7 @@ import pandas as pd
 
 from shortcut_gym.agents.base import Agent, AgentContext, check_batch_users
 from shortcut_gym.agents.frozen_policy import UserDraws
+from shortcut_gym.agents.model_files import model_file_path
 from shortcut_gym.agents.rollout import bind_for_world, evaluate_agent
 from shortcut_gym.agents.sb3.algorithms import DEFAULT_HYPERPARAMETERS
 from shortcut_gym.agents.sb3.files import load_model, save_model
@@ -134,10 +135,12 @@ class SB3Agent(WorldRecorded, Agent):
         return np.clip(z, -n["clip"], n["clip"]).astype(np.float32)
 
     def save(self, path: str | Path) -> Path:
-        """Write the model zip; returns its path."""
+        """Write the model zip to ``path`` (.zip; added when ``path`` has no suffix, another suffix
+        refused: :func:`~shortcut_gym.agents.model_files.model_file_path`); returns the path written."""
         if self.model is None:
             raise NotReadyError(f"{self.name}: nothing to save, train or load a model first")
         record = self.record_to_save(self.context.world if self.context is not None else None)
+        path = model_file_path(self.name, path, ".zip")
         p = save_model(self.model, self.obs_norm, path, json.dumps(record, sort_keys=True), self.algorithm)
         self.model_path = str(p)
         return p

@@ -27,6 +27,7 @@ from shortcut_gym.agents.model_files import (
     RECORD_MEMBER,
     file_contents,
     hint_for,
+    model_file_path,
     sb3_title,
     with_article,
 )
@@ -115,9 +116,9 @@ def load_model(owner: str, algorithm: str, path: str | Path,
     """Read a model saved by :func:`save_model`: (model, statistics or None without ``normalize``,
     world record or None when the file keeps none); errors name ``owner`` and the missing file."""
     p = Path(path)
-    if not p.is_file() and not p.with_suffix(".zip").is_file():
+    zip_path = p if p.is_file() or p.suffix else model_file_path(owner, p, ".zip")  # as save names it
+    if not zip_path.is_file():
         raise ConfigError(f"{owner}: no model file at {p}")
-    zip_path = p if p.is_file() else p.with_suffix(".zip")
     held = file_contents(zip_path)
     asked = with_article(f"{sb3_title(algorithm)} model")
     if held.kind != "sb3" or (held.name is not None and held.name != algorithm):
