@@ -122,14 +122,19 @@ def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) 
     """Per logged trial: the planner's action values (``q_*``, what it decides by), its optimal
     action and the decomposition's time lost ``q_time_lost_s`` (s): Q(a*) - Q(a) in the executed
     policy's values with the homing priced at the midpoint of the participant's and the optimum's hand shares
-    (:func:`~shortcut_gym.agents.planner.valuation.executed_values`; each switch charged once)."""
+    (:func:`~shortcut_gym.agents.planner.valuation.executed_values`; each switch charged once).
+    The pieces are columns too, so ``q_time_lost_s`` can be recomputed from the table: ``priced_menu``,
+    ``priced_hotkey``, ``priced_learn`` (s, minus expected seconds) are those executed-policy values
+    and ``priced_keyboard_share`` / ``priced_next_hotkey_share`` the midpoint shares they are priced
+    at; ``q_time_lost_s`` = priced value of ``optimal_action`` - priced value of ``action``."""
     planner = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
     assert planner.plan is not None
     d = trials.sort_values("trial", kind="stable")
     ks_opt, q_opt = executed_shares(world, planner.plan)
     ks_own, q_own = participant_shares(d)
     valuer = cached_plan(world, options.keyboard_share, options.n_bins, options.n_weight_bins, options.select_users)
-    valuer.plan = executed_values(world, planner.plan, (ks_opt + ks_own) / 2, (q_opt + q_own) / 2)
+    keyboard_mid, hotkey_mid = (ks_opt + ks_own) / 2, (q_opt + q_own) / 2
+    valuer.plan = executed_values(world, planner.plan, keyboard_mid, hotkey_mid)
     valuer.reset(0)
     command = d["command"].to_numpy(dtype=np.int64)
     outcome = d["outcome"].astype(str).to_numpy()
@@ -153,6 +158,8 @@ def assess_choices(trials: pd.DataFrame, world: World, options: PlannerOptions) 
         "trial": d["trial"].to_numpy(), "command": command, "action": d["action"].astype(str).to_numpy(),
         "optimal_action": np.array(ACTION_NAMES, dtype=object)[best], "q_menu": q[:, 0], "q_hotkey": q[:, 1],
         "q_learn": q[:, 2], "q_time_lost_s": v[rows, best] - v[rows, action], "optimal": action == best,
+        "priced_menu": v[:, 0], "priced_hotkey": v[:, 1], "priced_learn": v[:, 2],
+        "priced_keyboard_share": np.full(n, keyboard_mid), "priced_next_hotkey_share": np.full(n, hotkey_mid),
     })
 
 
