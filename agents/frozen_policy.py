@@ -31,6 +31,7 @@ from shortcut_gym.agents.batch_loop import RULE_JIT, SumArrays, check_fresh_run,
 from shortcut_gym.agents.rollout import UserSums
 from shortcut_gym.envs import kernel as k
 from shortcut_gym.envs.errors import ConfigError, NotReadyError
+from shortcut_gym.envs.seeds import check_seeds
 from shortcut_gym.envs.simulator import BatchSimulator, pcg64_next_double, pcg64_seeded, seed_words
 
 #: rule kinds: one action; learn on the first k uses then hotkey; a cdf per (uses, session); a cdf per tabular cell
@@ -264,7 +265,7 @@ class FrozenBatchPolicy:
             raise ConfigError(f"{name}: {len(seeds)} seeds for {n_users} users")
         self.name = name
         self.n_users = n_users
-        self.seeds = [int(s) for s in seeds]
+        self.seeds = check_seeds(seeds, name)
         self._rule_for = rule_for
         self._sizes = (max(int(horizon), 1), max(int(n_sessions), 1))
         self.rule: DecisionRule = rule_for(*self._sizes)
@@ -274,9 +275,8 @@ class FrozenBatchPolicy:
         self.cell_columns[:len(cell_columns)] = cell_columns
         self.pcg = np.zeros((n_users, 4), dtype=np.uint64)
         if self.draws:
-            words = seed_words(np.asarray(self.seeds), (AGENT_STREAM,))
-            if words is None:
-                raise ConfigError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {self.seeds}")
+            words = seed_words(np.asarray(self.seeds, dtype=np.int64), (AGENT_STREAM,))
+            assert words is not None  # checked seeds are in 0 .. 2**63 - 1
             _seed_all(words[0], words[1].astype(np.int64), self.pcg)
         self.trial = 0
 
@@ -347,10 +347,10 @@ class UserDraws:
     draws one action per user as ``rng.choice(3, p=p[b])`` would."""
 
     def __init__(self, name: str, seeds: Sequence[int]) -> None:
-        words = seed_words(np.asarray([int(s) for s in seeds]), (AGENT_STREAM,))
-        if words is None:
-            raise ConfigError(f"{name}: agent seeds must be whole numbers in 0 .. 2**64 - 1, got {list(seeds)}")
-        self.pcg = np.zeros((len(seeds), 4), dtype=np.uint64)
+        checked = check_seeds(seeds, name)
+        words = seed_words(np.asarray(checked, dtype=np.int64), (AGENT_STREAM,))
+        assert words is not None  # checked seeds are in 0 .. 2**63 - 1
+        self.pcg = np.zeros((len(checked), 4), dtype=np.uint64)
         _seed_all(words[0], words[1].astype(np.int64), self.pcg)
 
     def sample(self, p: np.ndarray) -> np.ndarray:

@@ -88,3 +88,32 @@ def test_every_good_chunk_size_gives_the_same_users(chunk: int) -> None:
     parts = simulate_users(world, spec, seeds, chunk_users=chunk)
     np.testing.assert_array_equal(parts.sums.time_s, whole.sums.time_s)
     np.testing.assert_array_equal(parts.seeds, seeds)
+
+
+@pytest.mark.parametrize("bad,words", BAD)
+def test_the_frozen_policies_own_seed_checks_match_the_entry_points(bad: object, words: str) -> None:
+    """The frozen batch policy and the per-user draws check their seeds as every entry point does
+    (0 .. 2**63 - 1, named by position), not by the wider range the generator seeding accepts."""
+    from shortcut_gym.agents.frozen_policy import UserDraws, frozen_policy
+
+    agent = make_agent("static_softmax")
+    agent.bind(context_of_world(_world()))
+    rule = agent.batch_policy(2, [0, 1]).rule
+    with pytest.raises(ConfigError, match=rf"^static_softmax: seeds\[1\] = {words}{TAIL}"):
+        frozen_policy(agent, 2, [0, bad], lambda uses, sessions: rule)
+    with pytest.raises(ConfigError, match=rf"^draws: seeds\[1\] = {words}{TAIL}"):
+        UserDraws("draws", [0, bad])
+
+
+def test_the_largest_seed_draws_as_the_generator_it_names() -> None:
+    """2**63 - 1, the largest seed accepted, seeds the compiled draws as ``agent_rng`` would."""
+    from shortcut_gym.agents.base import agent_rng
+    from shortcut_gym.agents.frozen_policy import UserDraws
+
+    p = np.tile([0.2, 0.5, 0.3], (2, 1))
+    seeds = [2**63 - 1, 2**62 + 5]
+    draws = UserDraws("draws", seeds)
+    got = np.stack([draws.sample(p) for _ in range(50)], axis=1)
+    gens = [agent_rng(s) for s in seeds]
+    want = np.array([[g.choice(3, p=p[0]) for _ in range(50)] for g in gens])
+    np.testing.assert_array_equal(got, want)
